@@ -1,0 +1,163 @@
+"""Density dependence: its form, where it acts, and what is counted.
+
+A season's density index D is taken from the census (or from the offspring
+born, for ``counted = "offspring"``). A form turns D into a factor f(D) in
+(0, 1]; the placement says which vital rate it multiplies:
+
+=================  =======  =========  ===========
+acts_on            f_fec    f_adult    f_rec
+=================  =======  =========  ===========
+recruitment        1        1          f
+fecundity          f        1          1
+adult-survival     1        f          1
+all-survival       1        f          f
+=================  =======  =========  ===========
+
+The ceiling is not a factor of D: after recruitment, random individuals are
+removed down to the capacity K (from everyone for ``all-survival``, from the
+new recruits only for ``recruitment``). In the mean-field model the removal
+is a survival factor phi at the same placement, fixed so that the census is K.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import NamedTuple
+
+import numpy as np
+
+__all__ = [
+    "Factors",
+    "NoDensity",
+    "BevertonHolt",
+    "Ricker",
+    "Ceiling",
+    "DensityDependence",
+    "FORMS",
+    "PLACEMENTS",
+    "COUNTED",
+]
+
+
+class Factors(NamedTuple):
+    """Multipliers of fecundity, adult survival and recruitment in one season."""
+
+    fecundity: float = 1.0
+    adult: float = 1.0
+    recruitment: float = 1.0
+
+
+@dataclass(frozen=True)
+class NoDensity:
+    """f(D) = 1."""
+
+    def factor(self, d):
+        return np.ones_like(np.asarray(d, dtype=float))
+
+
+@dataclass(frozen=True)
+class BevertonHolt:
+    """f(D) = 1 / (1 + D / K) (Beverton & Holt 1957)."""
+
+    capacity: float
+
+    def factor(self, d):
+        return 1.0 / (1.0 + np.asarray(d, dtype=float) / self.capacity)
+
+
+@dataclass(frozen=True)
+class Ricker:
+    """f(D) = exp(-D / K) (Ricker 1954)."""
+
+    capacity: float
+
+    def factor(self, d):
+        return np.exp(-np.asarray(d, dtype=float) / self.capacity)
+
+
+@dataclass(frozen=True)
+class Ceiling:
+    """After recruitment, random individuals are removed down to K; f(D) = 1 otherwise."""
+
+    capacity: float
+
+    def factor(self, d):
+        return np.ones_like(np.asarray(d, dtype=float))
+
+
+FORMS = {"none": NoDensity, "beverton-holt": BevertonHolt, "ricker": Ricker, "ceiling": Ceiling}
+PLACEMENTS = ("recruitment", "fecundity", "adult-survival", "all-survival")
+COUNTED = ("census", "breeders", "offspring")
+
+
+@dataclass(frozen=True)
+class DensityDependence:
+    """A density form placed on one part of the life cycle.
+
+    Parameters
+    ----------
+    form : NoDensity | BevertonHolt | Ricker | Ceiling
+    acts_on : {"recruitment", "fecundity", "adult-survival", "all-survival"}
+    counted : {"census", "breeders", "offspring"}
+        Who makes up D: everyone at the census, individuals with m(a) > 0, or
+        the offspring born this season (D then taken after breeding).
+    """
+
+    form: object
+    acts_on: str = "recruitment"
+    counted: str = "census"
+
+    def __post_init__(self):
+        if self.acts_on not in PLACEMENTS:
+            raise ValueError(f"acts_on must be one of {PLACEMENTS}; got {self.acts_on!r}")
+        if self.counted not in COUNTED:
+            raise ValueError(f"counted must be one of {COUNTED}; got {self.counted!r}")
+        if self.counted == "offspring" and self.acts_on == "fecundity":
+            raise ValueError("counted = 'offspring' cannot act on fecundity (D is taken after breeding)")
+        if isinstance(self.form, Ceiling) and self.acts_on not in ("recruitment", "all-survival"):
+            raise ValueError(
+                "a ceiling removes individuals after recruitment: acts_on must be "
+                f"'recruitment' or 'all-survival'; got {self.acts_on!r}"
+            )
+
+    @classmethod
+    def from_names(cls, form: str, capacity: float | None = None, acts_on="recruitment", counted="census"):
+        """Build from config words, e.g. ``from_names("ricker", 500, "fecundity")``."""
+        kind = FORMS[form]
+        return cls(kind() if kind is NoDensity else kind(float(capacity)), acts_on, counted)
+
+    @property
+    def ceiling(self) -> float | None:
+        """Capacity of a ceiling, or None for the other forms."""
+        return self.form.capacity if isinstance(self.form, Ceiling) else None
+
+    @property
+    def counted_after_breeding(self) -> bool:
+        """True where D is the number of offspring born (taken after breeding)."""
+        return self.counted == "offspring"
+
+    def index_weights(self, M: np.ndarray) -> np.ndarray:
+        """Weights w[allele, age] with D = sum(w * census) for census-based counting.
+
+        For ``counted = "offspring"`` the weights are the mean fecundities, so
+        ``sum(w * census)`` is the expected number born before f_fec (which is 1
+        there, see the class notes); engines use the realised number instead.
+        """
+        if self.counted == "census":
+            return np.ones_like(M)
+        if self.counted == "breeders":
+            return (M > 0).astype(float)
+        return M.astype(float)
+
+    def placed(self, f: float) -> Factors:
+        """Place a factor f on the vital rates this density dependence acts on."""
+        return {
+            "recruitment": Factors(1.0, 1.0, f),
+            "fecundity": Factors(f, 1.0, 1.0),
+            "adult-survival": Factors(1.0, f, 1.0),
+            "all-survival": Factors(1.0, f, f),
+        }[self.acts_on]
+
+    def factors(self, d: float) -> Factors:
+        """The season's factors at density index ``d`` (all 1 for a ceiling)."""
+        return self.placed(float(self.form.factor(d)))

@@ -1,0 +1,172 @@
+"""The mean-field (deterministic) version of the life cycle.
+
+The simulator needs it to start a resident at its equilibrium; the analysis
+layer builds its invasion theory on the same functions, so the projection
+matrix is written down once.
+
+Projection matrix of one allele at factors (f_fec, f_adult, f_rec)::
+
+    A[0, a]       = m(a) f_fec c f_rec        (births that recruit at age 1)
+    A[a + 1, a]   = s(a) f_adult              (survival and ageing)
+    A[L-1, L-1]   = s(L-1) f_adult            (plus-group)
+
+(Caswell 2001, Matrix Population Models, ch. 2: a pre-breeding census
+Leslie matrix.)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import brentq
+
+from .density import Ceiling, DensityDependence, Factors, NoDensity
+from .schedules import Schedule
+
+__all__ = [
+    "NoEquilibriumError",
+    "Equilibrium",
+    "projection_matrix",
+    "growth_rate",
+    "stable_age_distribution",
+    "solve_equilibrium",
+    "mean_field_step",
+]
+
+
+class NoEquilibriumError(ValueError):
+    """The resident has no positive, stable-size equilibrium under this density dependence."""
+
+
+def projection_matrix(schedule: Schedule, factors: Factors = Factors()) -> np.ndarray:
+    """Pre-breeding-census projection matrix of ``schedule`` at the given density factors."""
+    n = schedule.n_ages
+    a = np.zeros((n, n))
+    a[0, :] = schedule.fecundity * factors.fecundity * schedule.juvenile_survival * factors.recruitment
+    s = schedule.survival * factors.adult
+    idx = np.arange(n - 1)
+    a[idx + 1, idx] += s[:-1]
+    a[n - 1, n - 1] += s[-1]
+    return a
+
+
+def growth_rate(schedule: Schedule, factors: Factors = Factors()) -> float:
+    """Dominant eigenvalue lambda of the projection matrix (the per-season growth ratio)."""
+    a = projection_matrix(schedule, factors)
+    if a.shape == (1, 1):
+        return float(a[0, 0])
+    return float(np.max(np.abs(np.linalg.eigvals(a))))
+
+
+def stable_age_distribution(schedule: Schedule, factors: Factors = Factors()) -> np.ndarray:
+    """Right eigenvector of the dominant eigenvalue, normalised to sum 1."""
+    a = projection_matrix(schedule, factors)
+    vals, vecs = np.linalg.eig(a)
+    v = np.abs(np.real(vecs[:, np.argmax(np.abs(vals))]))
+    return v / v.sum()
+
+
+@dataclass(frozen=True)
+class Equilibrium:
+    """A resident's deterministic equilibrium.
+
+    Attributes
+    ----------
+    density_index : float
+        D* (for a ceiling: the census, K).
+    factors : Factors
+        The density factors the resident experiences at equilibrium (for a
+        ceiling, the removal fraction phi as a survival factor).
+    census : ndarray
+        Equilibrium numbers by census age (not rounded).
+    """
+
+    density_index: float
+    factors: Factors
+    census: np.ndarray
+
+    @property
+    def census_size(self) -> float:
+        return float(self.census.sum())
+
+
+def _root(fn, lo, hi, what):
+    """Root of a decreasing fn on [lo, hi], extending hi geometrically if needed."""
+    f_lo = fn(lo)
+    if f_lo <= 0:
+        raise NoEquilibriumError(f"{what}: growth rate at low density is {f_lo + 1:.6g} <= 1")
+    for _ in range(200):
+        if fn(hi) < 0:
+            return brentq(fn, lo, hi, xtol=1e-12, rtol=1e-12, maxiter=500)
+        hi *= 2.0
+    raise NoEquilibriumError(f"{what}: growth rate stays above 1 at any density (no regulation)")
+
+
+def solve_equilibrium(schedule: Schedule, density: DensityDependence) -> Equilibrium:
+    """The resident's equilibrium: the density at which its growth rate is 1.
+
+    Raises
+    ------
+    NoEquilibriumError
+        Without density dependence, when the resident cannot grow from low
+        density (lambda(0) <= 1), or when density dependence cannot bring
+        lambda down to 1 (e.g. on adult survival when m(1) c > 1).
+    """
+    what = f"resident {schedule.name!r}"
+    if isinstance(density.form, NoDensity):
+        raise NoEquilibriumError(f"{what}: no density dependence, so no equilibrium")
+    if isinstance(density.form, Ceiling):
+        def excess_phi(p):
+            return growth_rate(schedule, density.placed(p)) - 1.0
+
+        if excess_phi(1.0) <= 0:
+            raise NoEquilibriumError(f"{what}: growth rate without removal is {excess_phi(1.0) + 1:.6g} <= 1")
+        if excess_phi(0.0) >= 0:
+            raise NoEquilibriumError(f"{what}: growth rate stays >= 1 however many are removed")
+        phi = brentq(excess_phi, 0.0, 1.0, xtol=1e-14, rtol=1e-12, maxiter=500)
+        factors = density.placed(phi)
+        u = stable_age_distribution(schedule, factors)
+        return Equilibrium(density.form.capacity, factors, density.form.capacity * u)
+
+    def excess(d):
+        return growth_rate(schedule, density.factors(d)) - 1.0
+
+    d_star = _root(excess, 0.0, density.form.capacity, what)
+    factors = density.factors(d_star)
+    u = stable_age_distribution(schedule, factors)
+    w = density.index_weights(schedule.fecundity[None, :])[0]
+    weight = float(w @ u)
+    if weight <= 0:
+        raise NoEquilibriumError(f"{what}: no individual is counted in the density index")
+    return Equilibrium(d_star, factors, d_star / weight * u)
+
+
+def mean_field_step(census: np.ndarray, M, S, C, density: DensityDependence) -> np.ndarray:
+    """One deterministic season for all alleles: census[allele, age] -> next census."""
+    census = np.asarray(census, dtype=float)
+    births_mean = M * census
+    if density.counted_after_breeding:
+        f = density.factors(births_mean.sum())
+    else:
+        f = density.factors((density.index_weights(M) * census).sum())
+    births = births_mean.sum(axis=1) * f.fecundity
+    survivors = S * f.adult * census
+    nxt = np.zeros_like(census)
+    nxt[:, 1:] += survivors[:, :-1]
+    nxt[:, -1] += survivors[:, -1]
+    recruits = births * C * f.recruitment
+    if density.ceiling is not None:
+        k = density.ceiling
+        if density.acts_on == "recruitment":
+            room = max(k - nxt.sum(), 0.0)
+            recruits = recruits * min(1.0, room / recruits.sum()) if recruits.sum() > 0 else recruits
+            nxt[:, 0] += recruits
+        else:
+            nxt[:, 0] += recruits
+            total = nxt.sum()
+            if total > k:
+                nxt *= k / total
+        return nxt
+    nxt[:, 0] += recruits
+    return nxt
