@@ -1,0 +1,27 @@
+"""broodline's simulator: configs, schedules, density dependence, engines, runs and results."""
+
+from .config import Config, ConfigError, load_config, parse_config, sweep_points
+from .density import DensityDependence, Factors
+from .lifecycle import LifeCycle, initial_census
+from .meanfield import (
+    Equilibrium,
+    NoEquilibriumError,
+    growth_rate,
+    projection_matrix,
+    solve_equilibrium,
+    stable_age_distribution,
+)
+from .model import BroodModel
+from .runner import ReplicateResult, replicate_rng, run_experiment, run_replicate
+from .schedules import Schedule, iteroparous, semelparous, table
+from .store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
+
+__all__ = [
+    "Config", "ConfigError", "load_config", "parse_config", "sweep_points",
+    "DensityDependence", "Factors", "LifeCycle", "initial_census",
+    "Equilibrium", "NoEquilibriumError", "growth_rate", "projection_matrix",
+    "solve_equilibrium", "stable_age_distribution",
+    "BroodModel", "ReplicateResult", "replicate_rng", "run_experiment", "run_replicate",
+    "Schedule", "iteroparous", "semelparous", "table",
+    "read_attrs", "read_point_configs", "read_points", "read_replicates", "read_trajectories",
+]

@@ -1,0 +1,128 @@
+"""The ``broodline`` command line: a thin layer over the Python API.
+
+Every command calls a function a user could call from a notebook. A user's
+mistake (bad config, missing file, existing output) prints one message per
+problem and exits with status 2, without a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+import pandas as pd
+
+from .config import ConfigError, load_config
+from .describe import describe_experiment
+from .meanfield import NoEquilibriumError
+
+__all__ = ["main", "build_parser", "demo_config_path"]
+
+
+class UserError(Exception):
+    """A mistake of the user's, reported as a message and exit status 2."""
+
+
+def demo_config_path() -> Path:
+    """The demo experiment's config, shipped with the package."""
+    return Path(__file__).with_name("demo.toml")
+
+
+def _load(path):
+    return load_config(path)
+
+
+def _print_table(table: pd.DataFrame) -> None:
+    with pd.option_context("display.width", 120, "display.max_columns", 20,
+                           "display.float_format", "{:.3f}".format):
+        print(table.to_string(index=False))
+
+
+def cmd_check(args) -> int:
+    config = _load(args.config)
+    print(describe_experiment(config))
+    return 0
+
+
+def _run(config, out, *, overwrite, quiet):
+    from .runner import run_experiment
+
+    summary = run_experiment(config, out, overwrite=overwrite, progress=not quiet)
+    print(f"\nResults: {out}")
+    _print_table(summary)
+    return summary
+
+
+def cmd_run(args) -> int:
+    config = _load(args.config)
+    _run(config, args.output, overwrite=args.overwrite, quiet=args.quiet)
+    return 0
+
+
+def cmd_demo(args) -> int:
+    config = _load(demo_config_path())
+    out = Path(args.output)
+    out.mkdir(parents=True, exist_ok=True)
+    results = out / "demo.h5"
+    print(describe_experiment(config))
+    print()
+    _run(config, results, overwrite=True, quiet=args.quiet)
+    print(f"\nNext, look at the config and run it yourself:\n"
+          f"  broodline check {demo_config_path()}\n"
+          f"  broodline run {demo_config_path()} -o my-run.h5")
+    return 0
+
+
+def _register_core(sub) -> None:
+    p = sub.add_parser("run", help="run an experiment config and write an HDF5 results file")
+    p.add_argument("config", help="experiment config (TOML)")
+    p.add_argument("-o", "--output", required=True, help="results file to write (.h5)")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing results file")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_run)
+
+    p = sub.add_parser("check", help="validate a config and print the resolved experiment")
+    p.add_argument("config")
+    p.set_defaults(func=cmd_check)
+
+    p = sub.add_parser("demo", help="run the demo invasion experiment (about a minute)")
+    p.add_argument("-o", "--output", default="broodline-demo", help="folder for the demo's files")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=cmd_demo)
+
+
+# Each entry adds its subcommands to the parser; other modules register theirs here.
+REGISTRARS = [_register_core]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from .store import software_version
+
+    parser = argparse.ArgumentParser(
+        prog="broodline",
+        description="Simulate the evolution of breeding schedules in finite populations.",
+    )
+    parser.add_argument("--version", action="version", version=f"broodline {software_version()}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    for register in REGISTRARS:
+        register(sub)
+    return parser
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except (ConfigError, NoEquilibriumError, UserError, FileExistsError, FileNotFoundError,
+            PermissionError, IsADirectoryError) as err:
+        print(f"broodline {args.command}: error: {err}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"broodline {args.command}: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

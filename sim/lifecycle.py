@@ -1,0 +1,105 @@
+"""The rules of one season, gathered for the engines, and the starting census.
+
+Engines take a ``LifeCycle`` and never branch on allele, form or distribution
+names: everything they need is an array or a small object with a method.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .config import Config
+from .density import DensityDependence, Factors
+from .meanfield import solve_equilibrium, stable_age_distribution
+from .mutation import Mutation
+from .schedules import stack_schedules
+
+__all__ = ["LifeCycle", "initial_census", "round_preserving_total"]
+
+
+@dataclass(frozen=True)
+class LifeCycle:
+    """All alleles' schedules on one age axis plus the season's shared rules.
+
+    Attributes
+    ----------
+    M, S : ndarray, shape (n_alleles, n_ages)
+        Mean fecundity m(a) and survival s(a) by allele and census age.
+    C : ndarray, shape (n_alleles,)
+        Juvenile survival c by allele.
+    density : DensityDependence
+    offspring : offspring distribution (``draw``, ``draw_total``, ``pgf``)
+    mutation : Mutation
+    """
+
+    M: np.ndarray
+    S: np.ndarray
+    C: np.ndarray
+    density: DensityDependence
+    offspring: object
+    mutation: Mutation
+
+    @classmethod
+    def from_config(cls, config: Config) -> "LifeCycle":
+        M, S, C = stack_schedules(config.schedules())
+        return cls(M, S, C, config.density_dependence(), config.offspring_distribution(),
+                   config.mutation_model())
+
+    @property
+    def n_alleles(self) -> int:
+        return self.M.shape[0]
+
+    @property
+    def n_ages(self) -> int:
+        return self.M.shape[1]
+
+    def density_index(self, census: np.ndarray) -> float:
+        """D from a census (n_alleles, n_ages); for ``counted = "offspring"`` use births instead."""
+        return float((self.density.index_weights(self.M) * census).sum())
+
+    def factors_before_breeding(self, census: np.ndarray) -> Factors:
+        """The season's factors where D is known before breeding (all 1 otherwise, until births)."""
+        if self.density.counted_after_breeding:
+            return Factors()
+        return self.density.factors(self.density_index(census))
+
+
+def round_preserving_total(x: np.ndarray, total: int) -> np.ndarray:
+    """Round non-negative ``x`` to integers summing to ``total`` (largest remainders)."""
+    x = np.asarray(x, dtype=float)
+    x = x * (total / x.sum()) if x.sum() > 0 else x
+    base = np.floor(x).astype(np.int64)
+    short = int(total - base.sum())
+    if short > 0:
+        order = np.argsort(-(x - base), kind="stable")
+        base[order[:short]] += 1
+    return base
+
+
+def initial_census(config: Config, life: LifeCycle | None = None) -> np.ndarray:
+    """The starting census, counts by (allele, age index), as integers.
+
+    With ``[invasion]`` the resident starts at its mean-field equilibrium (or at
+    ``resident_count``) in its stable age distribution, rounded to integers
+    with the total kept, and ``mutant_count`` mutants are added at age 1.
+    Without it, each allele's ``initial_count`` individuals start at age 1.
+    """
+    life = life or LifeCycle.from_config(config)
+    census = np.zeros((life.n_alleles, life.n_ages), dtype=np.int64)
+    inv = config.invasion
+    if inv is None:
+        census[:, 0] = [a.initial_count for a in config.allele]
+        return census
+    r = config.allele_index(inv.resident)
+    schedule = config.schedules()[r].padded(life.n_ages)
+    if inv.resident_count == "equilibrium":
+        eq = solve_equilibrium(schedule, life.density)
+        target, shape = int(round(eq.census_size)), eq.census
+    else:
+        target = int(inv.resident_count)
+        shape = stable_age_distribution(schedule, life.density.factors(0.0))
+    census[r] = round_preserving_total(shape, target)
+    census[config.allele_index(inv.mutant), 0] += inv.mutant_count
+    return census
