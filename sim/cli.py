@@ -13,6 +13,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from .bench import register_bench
 from .config import ConfigError, load_config
 from .describe import describe_experiment
 from .meanfield import NoEquilibriumError
@@ -93,7 +94,7 @@ def _register_core(sub) -> None:
 
 
 # Each entry adds its subcommands to the parser; other modules register theirs here.
-REGISTRARS = [_register_core]
+REGISTRARS = [_register_core, register_bench]
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -19,6 +19,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
 
+from .aggregation import counts_obstacles
 from .density import DensityDependence
 from .mutation import Mutation, uniform_mutation
 from .offspring import make_offspring
@@ -80,7 +81,7 @@ class ExperimentSection(_Section):
     max_steps: int = Field(1000, ge=1)
     stop: Literal["fixation", "max-steps"] = "fixation"
     record_every: int = Field(1, ge=1)
-    engine: Literal["individual", "agents"] = "individual"
+    engine: Literal["individual", "agents", "counts"] = "individual"
     max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT)
 
 
@@ -252,6 +253,9 @@ class Config(_Section):
                     problems.append(f"sweep.{path!r}: {problem}")
                 elif len(values) == 0:
                     problems.append(f"sweep.{path!r}: needs at least one value")
+        if self.experiment.engine == "counts":
+            problems += [f"experiment.engine: 'counts' is not exact for this config ({why}); "
+                         "use engine = 'individual'" for why in counts_obstacles(self)]
         if problems:
             raise ValueError("\n".join(problems))
         return self

@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import numpy as np
 
+from .aggregation import counts_obstacles
 from .config import Config, sweep_points
 from .lifecycle import LifeCycle, initial_census
 from .meanfield import growth_rate
 
-__all__ = ["describe_experiment", "preflight"]
+__all__ = ["describe_experiment", "preflight", "counts_engine_note"]
 
 
 def _fmt(values) -> str:
@@ -73,4 +74,14 @@ def describe_experiment(config: Config) -> str:
             lines.append(f"  {p.index}: " + ", ".join(f"{k} = {v!r}" for k, v in p.values.items()))
     total = len(points) * exp.replicates
     lines.append(f"replicates: {exp.replicates} per point, {total} in all")
+    lines.append(counts_engine_note(config))
     return "\n".join(lines)
+
+
+def counts_engine_note(config: Config) -> str:
+    """Whether the aggregated ``counts`` engine would be exact for this config, and if not, why."""
+    obstacles = counts_obstacles(config)
+    if obstacles:
+        return "counts engine: not exact here (" + "; ".join(obstacles) + ")"
+    return ("counts engine: exact in distribution here (individuals carry only allele and age); "
+            + ("in use" if config.experiment.engine == "counts" else "choose it with engine = 'counts'"))

@@ -26,7 +26,12 @@ class BroodModel(mesa.Model):
     """
 
     def __init__(self, config: Config, census: np.ndarray | None = None, *, rng=None):
+        rng = np.random.default_rng(rng)
+        state = rng.bit_generator.state
         super().__init__(rng=rng)
+        # mesa 3.3 seeds its stdlib ``random`` with a draw from rng; rewind, so the
+        # engine's draws are the replicate's stream from its start on every mesa version
+        rng.bit_generator.state = state
         self.config = config
         self.life = LifeCycle.from_config(config)
         start = initial_census(config, self.life) if census is None else np.asarray(census)

@@ -2,8 +2,11 @@
 
 Each distribution draws for many individuals at once (``draw``), draws the
 total of ``n`` individuals of one mean exactly (``draw_total``, for engines
-that work with counts) and gives its probability generating function (``pgf``,
-for branching-process calculations).
+that work with counts), draws that total already thinned by an independent
+per-offspring survival ``keep`` (``draw_thinned_total``: the recruits of a
+class; ``draw_thinned_totals`` does it for many replicates, each with its own
+generator) and gives its probability generating function (``pgf``, for
+branching-process calculations).
 """
 
 from __future__ import annotations
@@ -26,6 +29,10 @@ class Poisson:
         # Sum of n independent Poisson(m) is Poisson(n m).
         return rng.poisson(np.asarray(n) * np.asarray(mean))
 
+    def draw_thinned_total(self, n, mean, keep, rng):
+        # Thinning a Poisson(m) by keep gives Poisson(m keep); sum of n of them is Poisson(n m keep).
+        return rng.poisson(n * mean * keep)
+
     def pgf(self, s, mean):
         return np.exp(np.asarray(mean) * (np.asarray(s) - 1.0))
 
@@ -43,6 +50,10 @@ class Fixed:
         mean = np.asarray(mean, dtype=float)
         whole = np.floor(mean)
         return (np.asarray(n) * whole + rng.binomial(n, mean - whole)).astype(np.int64)
+
+    def draw_thinned_total(self, n, mean, keep, rng):
+        # Not closed under thinning: draw the births, then keep each one independently.
+        return rng.binomial(self.draw_total(n, mean, rng), keep)
 
     def pgf(self, s, mean):
         mean = np.asarray(mean, dtype=float)
@@ -72,6 +83,13 @@ class NegativeBinomial:
         n = np.asarray(n)
         shape = np.maximum(n * self.dispersion, 1e-300)
         return np.where(n > 0, rng.negative_binomial(shape, self._p(mean)), 0)
+
+    def draw_thinned_total(self, n, mean, keep, rng):
+        # A gamma-mixed Poisson thinned by keep is the same mixture at mean m keep, so
+        # NB(k, mean m) thinned is NB(k, mean m keep) and the sum of n of them NB(n k, same p).
+        if np.ndim(n) == 0:
+            return rng.negative_binomial(n * self.dispersion, self._p(mean * keep)) if n > 0 else 0
+        return self.draw_total(n, np.asarray(mean) * keep, rng)
 
     def pgf(self, s, mean):
         p = self._p(mean)

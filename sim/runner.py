@@ -121,8 +121,15 @@ def run_replicates(point: SweepPoint, replicates, seed: int) -> list[ReplicateRe
     """Run a batch of replicates of one sweep point (the unit of work a worker takes).
 
     Each replicate uses its own keyed stream, so the results do not depend on
-    how replicates are grouped into batches.
+    how replicates are grouped into batches. Engines that hold replicates as
+    an array dimension (``individual``, ``counts``) advance the batch together
+    (``sim.batch.run_batch``); the result of each replicate is the one
+    ``run_replicate`` gives.
     """
+    from .batch import batchable, run_batch
+
+    if batchable(point.config):
+        return run_batch(point, replicates, seed)
     return [run_replicate(point, rep, seed) for rep in replicates]
 
 

@@ -1,84 +1,169 @@
-"""The default engine: individuals as numpy arrays, one vectorised pass per season."""
+"""The default engine: each individual is an entry of a numpy array, one vectorised pass per season."""
 
 from __future__ import annotations
 
 import numpy as np
 
 from ..lifecycle import LifeCycle
+from .season import OneReplicate, ReplicateBatch
 
-__all__ = ["IndividualEngine"]
+__all__ = ["IndividualEngine", "IndividualPopulations"]
+
+_CHUNK = 1 << 16  # individuals per survival chunk of a lone replicate (its uniforms fit in cache)
 
 
-class IndividualEngine:
-    """Each individual is an entry of two arrays: its allele and its age index.
+class IndividualPopulations(ReplicateBatch):
+    """Replicate populations whose individuals are the entries of one array.
+
+    Each individual is one entry of ``cell``: its class (allele and age index,
+    see ``ClassRules``), in the smallest unsigned integer type that holds the
+    classes (one byte for up to 256 classes). Replicate ``r`` owns the slice
+    ``cell[offsets[r]:offsets[r + 1]]``: its survivors in their previous order,
+    then its recruits.
 
     One season follows the life cycle of DESIGN.md: density index, breeding,
-    survival, recruitment, next census (and a ceiling's removal). Every draw
-    is per individual (or per offspring), as in the agents engine, but made
-    for all individuals in one numpy call.
+    survival (one uniform per individual, independent of its brood),
+    recruitment, next census, then a ceiling's removal of random
+    individuals. Each class's recruits are drawn as one total (exact: parents
+    within a class are exchangeable and pass on only their allele).
+
+    Parameters are those of ``ReplicateBatch``.
     """
 
-    def __init__(self, model, life: LifeCycle, census: np.ndarray):
-        self.rng = model.rng
-        self.life = life
-        self._cell_weights = life.density.index_weights(life.M).ravel()
-        counts = np.asarray(census, dtype=np.int64)
-        cells = np.repeat(np.arange(counts.size), counts.ravel())
-        self.allele = (cells // life.n_ages).astype(np.int16)
-        self.age = (cells % life.n_ages).astype(np.int16)
+    def __init__(self, life: LifeCycle, census: np.ndarray, rngs):
+        super().__init__(life, census, rngs)
+        rules, counts = self.rules, self.counts
+        self._dtype = np.min_scalar_type(max(rules.n_classes - 1, 0))
+        self._aged = rules.aged.astype(self._dtype)
+        self._first = rules.first.astype(self._dtype)
+        self.sizes = counts.sum(axis=1)
+        classes = np.tile(np.arange(rules.n_classes, dtype=self._dtype), len(self.rngs))
+        self.cell = np.repeat(classes, counts.ravel())
 
-    def census(self) -> np.ndarray:
-        """Counts by (allele, age index)."""
-        life = self.life
-        cells = self.allele.astype(np.int64) * life.n_ages + self.age
-        return np.bincount(cells, minlength=life.n_alleles * life.n_ages).reshape(
-            life.n_alleles, life.n_ages)
+    @property
+    def offsets(self) -> np.ndarray:
+        """Where each replicate's slice of ``cell`` starts (and, last, the total)."""
+        return np.concatenate([[0], np.cumsum(self.sizes)])
+
+    def state_bytes(self) -> int:
+        """Bytes held between seasons: the individuals and their counts by class."""
+        return self.cell.nbytes + self.counts.nbytes + self.sizes.nbytes
+
+    def keep(self, which) -> None:
+        """Keep only the replicates where ``which`` (bool, one per replicate) is true."""
+        which = np.asarray(which, dtype=bool)
+        self.cell = np.compress(np.repeat(which, self.sizes), self.cell)
+        self.sizes = self.sizes[which]
+        super().keep(which)
 
     def step(self) -> None:
-        life, rng = self.life, self.rng
-        allele, age = self.allele, self.age
-        n = allele.size
-        if n == 0:
+        """Advance every replicate one season."""
+        rules, rngs = self.rules, self.rngs
+        n_reps = len(rngs)
+        if n_reps == 0:
             return
-        density = life.density
-        # 1. density index from the census (unless it is the offspring born)
-        if density.counted_after_breeding:
-            f = density.factors(0.0)
+        counts, sizes, cell = self.counts, self.sizes, self.cell
+        rows = counts.tolist()
+        # 1. density index from the census (or, counting offspring, 2. births first)
+        births, f = rules.open_season(counts, rngs)
+        f_fec, f_rec = f.fecundity.tolist(), f.recruitment.tolist()
+        draw_recruits = rules.recruits
+        # 3. survival (one uniform per individual), survivors one year older (the
+        # plus-group stays); 4. recruitment
+        if n_reps == 1:
+            aged = self._survivors_streamed(cell, rngs[0], float(f.adult[0]))
+            recruits = [draw_recruits(rows[0], births[0], f_fec[0], f_rec[0], rngs[0])]
+            survivors = np.array([aged.size])
+            by_class = np.bincount(aged, minlength=rules.n_classes)[None]
         else:
-            cells = allele.astype(np.int64) * life.n_ages + age
-            d = float(np.bincount(cells, weights=self._cell_weights[cells], minlength=1).sum()) \
-                if density.counted != "census" else float(n)
-            f = density.factors(d)
-        # 2. breeding
-        births = life.offspring.draw(life.M[allele, age] * f.fecundity, rng)
-        if density.counted_after_breeding:
-            f = density.factors(float(births.sum()))
-        # 3. survival, independent of the realised brood
-        survives = rng.random(n) < life.S[allele, age] * f.adult
-        # 4. recruitment: each offspring survives to age 1 on its own
-        recruits = rng.binomial(births, life.C[allele] * f.recruitment)
-        recruit_allele = life.mutation.mutate(np.repeat(allele, recruits), rng)
-        # 5. next census: survivors one year older (plus-group stays), recruits at age 1
-        new_allele = np.concatenate([allele[survives], recruit_allele])
-        new_age = np.concatenate([np.minimum(age[survives] + 1, life.n_ages - 1),
-                                  np.zeros(recruit_allele.size, dtype=age.dtype)])
-        if density.ceiling is not None:
-            keep = _ceiling_keep(int(survives.sum()), recruit_allele.size, density, rng)
-            if keep is not None:
-                new_allele, new_age = new_allele[keep], new_age[keep]
-        self.allele, self.age = new_allele, new_age
+            offsets = self.offsets
+            bounds = offsets.tolist()
+            u = np.empty(cell.size)
+            recruits = []
+            for g, a, b, row, born, ff, fr in zip(rngs, bounds, bounds[1:], rows, births, f_fec, f_rec):
+                g.random(out=u[a:b])
+                recruits.append(draw_recruits(row, born, ff, fr, g))
+            threshold = rules.survival[cell]
+            if rules.adult_density:
+                threshold *= np.repeat(f.adult, sizes)
+            alive = np.flatnonzero(u < threshold)
+            del u, threshold
+            aged = self._aged[cell[alive]]
+            survivors = np.diff(np.searchsorted(alive, offsets))
+            rep = np.repeat(np.arange(n_reps) * rules.n_classes, survivors)
+            by_class = np.bincount(rep + aged, minlength=n_reps * rules.n_classes).reshape(
+                n_reps, rules.n_classes)
+        recruits = np.array(recruits, dtype=np.int64)
+        # 5. next census: survivors, then recruits at age 1; a ceiling's removal
+        born = recruits.sum(axis=1)
+        cell = self._assemble(aged, survivors, recruits, born)
+        by_class[:, rules.first] += recruits
+        sizes = survivors + born
+        if rules.ceiling is not None:
+            cell, removed = self._apply_ceiling(cell, sizes, survivors, born)
+            by_class -= removed
+            sizes = by_class.sum(axis=1)
+        self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
+
+    def _assemble(self, aged, survivors, recruits, born) -> np.ndarray:
+        """The next census's array: per replicate, its aged survivors then its recruits by allele."""
+        n_reps = recruits.shape[0]
+        total_survivors = aged.size
+        out = np.empty(total_survivors + int(born.sum()), dtype=self._dtype)
+        fill = np.repeat(np.tile(self._first, n_reps), recruits.ravel())
+        if n_reps == 1:
+            out[:total_survivors] = aged
+            out[total_survivors:] = fill
+            return out
+        lengths = np.stack([survivors, born], axis=1).ravel()
+        from_survivors = np.repeat(np.tile([True, False], n_reps), lengths)
+        out[from_survivors] = aged
+        out[~from_survivors] = fill
+        return out
+
+    def _survivors_streamed(self, cell, rng, f_adult: float) -> np.ndarray:
+        """One replicate's survivors, aged, drawn chunk by chunk (few bytes per individual at peak).
+
+        A generator's uniforms form one sequence however they are split into
+        calls, so these are the very draws one call for the whole population
+        would make.
+        """
+        survival, aged_class = self.rules.survival, self._aged
+        if self.rules.adult_density:
+            survival = survival * f_adult
+        out = np.empty(cell.size, dtype=self._dtype)
+        u = np.empty(min(cell.size, _CHUNK))
+        k = 0
+        for a in range(0, cell.size, _CHUNK):
+            c = cell[a:a + _CHUNK]
+            w = u[:c.size]
+            rng.random(out=w)
+            kept = aged_class[np.compress(w < survival[c], c)]
+            out[k:k + kept.size] = kept
+            k += kept.size
+        return out[:k]
+
+    def _apply_ceiling(self, cell, sizes, survivors, born):
+        """Remove random individuals down to the capacity (from recruits only, or anyone)."""
+        rules = self.rules
+        excess, pool = rules.ceiling_excess(survivors, born)
+        removed = np.zeros((len(sizes), rules.n_classes), dtype=np.int64)
+        over = np.flatnonzero(excess)
+        if over.size == 0:
+            return cell, removed
+        pool_start = np.cumsum(sizes) - pool  # the pool is the end of each replicate's slice
+        chosen = [pool_start[r] + self.rngs[r].choice(int(pool[r]), size=int(excess[r]),
+                                                       replace=False, shuffle=False)
+                  for r in over.tolist()]
+        gone = np.concatenate(chosen)
+        removed_rep = np.repeat(over, excess[over])
+        np.add.at(removed, (removed_rep, cell[gone]), 1)
+        keep = np.ones(cell.size, dtype=bool)
+        keep[gone] = False
+        return cell[np.flatnonzero(keep)], removed
 
 
-def _ceiling_keep(n_survivors: int, n_recruits: int, density, rng):
-    """Indices kept by a ceiling (survivors first, then recruits), or None to keep all."""
-    k = int(density.ceiling)
-    total = n_survivors + n_recruits
-    if density.acts_on == "recruitment":
-        room = max(k - n_survivors, 0)
-        if n_recruits <= room:
-            return None
-        chosen = np.sort(rng.choice(n_recruits, size=room, replace=False))
-        return np.concatenate([np.arange(n_survivors), n_survivors + chosen])
-    if total <= k:
-        return None
-    return np.sort(rng.choice(total, size=k, replace=False))
+class IndividualEngine(OneReplicate):
+    """One replicate of ``IndividualPopulations``: the default engine of ``BroodModel``."""
+
+    populations = IndividualPopulations

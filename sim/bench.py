@@ -1,0 +1,392 @@
+"""``broodline bench``: engine speed and memory on one fixed model, as ratios from one run.
+
+The model: an iteroparous resident (m = 2, adult survival 0.5, juvenile
+survival 0.5) at its equilibrium, one tenth as many semelparous mutants
+(m = 4.5) added, Beverton-Holt density dependence on recruitment with
+K = N (so the resident's equilibrium census is N), Poisson offspring.
+
+Speed is individual-steps per second: the census size summed over the
+seasons stepped, divided by the wall time of the steps (DESIGN.md). Each
+engine is set against, at the same N,
+
+- the *floor*: numpy drawing one uniform per individual (its survival) and
+  one integer per recruit (its parent), nothing else, for the censuses and
+  recruit numbers the ``individual`` engine met season by season;
+- the ``agents`` Mesa reference engine (run at small N only: it is slow).
+
+Memory per individual is measured, not estimated, two ways: the engine's
+state held between seasons (the ``nbytes`` of its arrays; for the Mesa engine
+the ``tracemalloc`` size of the model once built), and the peak during a
+season (that state plus the ``tracemalloc`` peak of what one more season
+allocates), each divided by the census size.
+
+The small-population experiment times a whole invasion experiment at K = 200
+(one mutant, to fixation, every season recorded) through
+``runner.run_replicates`` on one worker, batched, against the rate of the
+``individual`` engine at the largest N run.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import textwrap
+import time
+import tracemalloc
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+
+from .config import Config, parse_config, sweep_points
+
+__all__ = [
+    "DEFAULT_SIZES",
+    "LARGE_SIZE",
+    "BenchRecord",
+    "BenchReport",
+    "ExperimentRecord",
+    "bench_config",
+    "format_report",
+    "register_bench",
+    "run_bench",
+    "traced_peak",
+]
+
+DEFAULT_SIZES = (1_000, 10_000, 100_000, 1_000_000)
+LARGE_SIZE = 10_000_000
+MEMORY_METHOD = ("state B/ind: engine arrays held between seasons (nbytes; Mesa: tracemalloc "
+                 "of the built model) per census individual; peak B/ind: that state plus the "
+                 "tracemalloc peak of one more season")
+
+
+@dataclass
+class BenchRecord:
+    """One engine at one census size."""
+
+    engine: str
+    census_size: int
+    individual_steps_per_s: float
+    ratio_to_floor: float | None
+    ratio_to_agents: float | None
+    bytes_per_individual: float | None
+    peak_bytes_per_individual: float | None
+    seasons: int
+    wall_s: float
+
+
+@dataclass
+class ExperimentRecord:
+    """The small-population invasion experiment run by one engine."""
+
+    engine: str
+    census_size: int
+    replicates: int
+    replicate_seasons: int
+    individual_steps_per_s: float
+    ratio_to_individual: float | None
+    wall_s: float
+
+
+@dataclass
+class BenchReport:
+    """Everything one ``run_bench`` measured."""
+
+    records: list[BenchRecord]
+    experiment: list[ExperimentRecord] = field(default_factory=list)
+    seasons: int = 0
+    reference_size: int | None = None  # N of the individual rate the experiment is set against
+    memory_method: str = MEMORY_METHOD
+
+    def to_records(self) -> list[dict]:
+        """The table as a list of dicts (what ``--json`` prints)."""
+        out = [dict(asdict(r), kind="scale") for r in self.records]
+        for e in self.experiment:
+            out.append({"engine": e.engine, "census_size": e.census_size,
+                        "individual_steps_per_s": e.individual_steps_per_s,
+                        "ratio_to_floor": None, "ratio_to_agents": None,
+                        "bytes_per_individual": None, "peak_bytes_per_individual": None,
+                        "kind": "experiment",
+                        "replicates": e.replicates, "replicate_seasons": e.replicate_seasons,
+                        "ratio_to_individual": e.ratio_to_individual,
+                        "reference_size": self.reference_size, "wall_s": e.wall_s})
+        return out
+
+
+def bench_config(census_size: int, *, engine: str = "individual", mutant_count: int | None = None,
+                 replicates: int = 1, seed: int = 20261202, record_every: int = 1) -> Config:
+    """The benchmark's model at equilibrium census ``census_size`` (K = N)."""
+    return parse_config({
+        "experiment": {"name": f"bench-{census_size}", "engine": engine, "seed": seed,
+                       "replicates": replicates, "max_steps": 5000, "stop": "fixation",
+                       "record_every": record_every, "max_population": 4_000_000_000},
+        "density": {"form": "beverton-holt", "acts_on": "recruitment", "counted": "census",
+                    "capacity": census_size},
+        "offspring": {"distribution": "poisson"},
+        "allele": [
+            {"name": "perennial", "breeding": "iteroparous", "fecundity": 2.0,
+             "adult_survival": 0.5, "juvenile_survival": 0.5},
+            {"name": "one-shot", "breeding": "semelparous", "fecundity": 4.5,
+             "juvenile_survival": 0.5},
+        ],
+        "invasion": {"resident": "perennial", "mutant": "one-shot",
+                     "mutant_count": mutant_count or max(1, census_size // 10)},
+    })
+
+
+# -- one engine at one size ------------------------------------------------------------
+def traced_peak(action) -> int:
+    """Peak bytes allocated (tracemalloc) while ``action()`` runs, above what was held before."""
+    tracemalloc.start()
+    tracemalloc.reset_peak()
+    before = tracemalloc.get_traced_memory()[0]
+    action()
+    peak = tracemalloc.get_traced_memory()[1] - before
+    tracemalloc.stop()
+    return peak
+
+
+def _census_size(model) -> int:
+    engine = model.engine
+    return int(engine.batch.sizes[0]) if hasattr(engine, "batch") else len(model.agents)
+
+
+def _held_bytes(model) -> int | None:
+    engine = model.engine
+    return engine.batch.state_bytes() if hasattr(engine, "batch") else None
+
+
+def _time_engine(config: Config, seasons: int, seed: int):
+    """Step a model ``seasons`` times.
+
+    Returns wall seconds of the steps, census sizes and recruits season by
+    season, and (state, peak) bytes per individual.
+    """
+    from .model import BroodModel
+    from .runner import replicate_rng
+
+    rng = replicate_rng(seed, 0, 0)
+    tracemalloc.start()
+    model = BroodModel(config, rng=rng)
+    built = tracemalloc.get_traced_memory()[0]
+    tracemalloc.stop()
+    sizes, recruits, wall = [], [], 0.0
+    for _ in range(seasons):
+        sizes.append(_census_size(model))
+        start = time.perf_counter()
+        model.step()
+        wall += time.perf_counter() - start
+        engine = model.engine
+        recruits.append(int(engine.batch.recruits[0]) if hasattr(engine, "batch") else 0)
+    n = _census_size(model)
+    held = _held_bytes(model)
+    peak = traced_peak(model.step)
+    state = built if held is None else held
+    return wall, sizes, recruits, (state / max(n, 1), (state + peak) / max(n, 1))
+
+
+def _time_floor(sizes, recruits, seed: int):
+    """The floor: one uniform per individual and one integer per recruit, season by season."""
+    rng = np.random.default_rng(seed)
+    wall = 0.0
+    for n, r in zip(sizes, recruits):
+        start = time.perf_counter()
+        rng.random(n)
+        rng.integers(0, max(n, 1), size=r)
+        wall += time.perf_counter() - start
+    n, r = sizes[-1], recruits[-1]
+    peak = traced_peak(lambda: (rng.random(n), rng.integers(0, max(n, 1), size=r)))
+    return wall, (None, peak / max(n, 1))
+
+
+def _record(engine, n, sizes, wall, seasons, memory):
+    rate = sum(sizes) / wall if wall > 0 else float("inf")
+    return BenchRecord(engine=engine, census_size=n, individual_steps_per_s=rate,
+                       ratio_to_floor=None, ratio_to_agents=None, bytes_per_individual=memory[0],
+                       peak_bytes_per_individual=memory[1], seasons=seasons, wall_s=wall)
+
+
+# -- the small-population experiment -------------------------------------------------------
+def _time_experiment(engine: str, replicates: int, capacity: int, seed: int, *,
+                     one_at_a_time: bool = False) -> ExperimentRecord:
+    from .runner import run_replicate, run_replicates
+
+    config = bench_config(capacity, engine=engine, mutant_count=1, replicates=replicates,
+                          seed=seed)
+    point = sweep_points(config)[0]
+    start = time.perf_counter()
+    if one_at_a_time:
+        results = [run_replicate(point, r, seed) for r in range(replicates)]
+    else:
+        results = run_replicates(point, range(replicates), seed)
+    wall = time.perf_counter() - start
+    # every season is recorded: the census stepped in season t is record t (all but the last)
+    work = sum(int(r.trajectory[:-1].sum()) for r in results)
+    name = f"{engine} ({'one replicate at a time' if one_at_a_time else 'batched'})"
+    return ExperimentRecord(engine=name, census_size=capacity, replicates=replicates,
+                            replicate_seasons=sum(r.steps for r in results),
+                            individual_steps_per_s=work / wall, ratio_to_individual=None,
+                            wall_s=wall)
+
+
+def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, agents_max: int = 10_000,
+              replicates: int = 10_000, capacity: int = 200, sequential: int | None = 1_000,
+              seed: int = 20261202, progress=None) -> BenchReport:
+    """Time every engine at every census size, the floor, and the small-population experiment.
+
+    Parameters
+    ----------
+    sizes : sequence of int
+        Census sizes N (K = N).
+    seasons : int
+        Seasons timed per engine and size.
+    agents_max : int
+        The Mesa ``agents`` engine runs only at N <= agents_max.
+    replicates : int
+        Replicates of the small-population experiment (0 skips it).
+    capacity : int
+        K of the small-population experiment.
+    sequential : int or None
+        Replicates also run one at a time, to show what batching buys (None skips).
+    progress : callable, optional
+        Called with a short message before each measurement.
+
+    Returns
+    -------
+    BenchReport
+    """
+    say = progress or (lambda message: None)
+    records = []
+    for n in sizes:
+        n = int(n)
+        say(f"individual, N = {n}")
+        wall, trace, recruits, mem = _time_engine(bench_config(n), seasons, seed)
+        individual = _record("individual", n, trace, wall, seasons, mem)
+        say(f"floor, N = {n}")
+        floor_wall, floor_mem = _time_floor(trace, recruits, seed)
+        floor = _record("floor", n, trace, floor_wall, seasons, floor_mem)
+        rows = [floor, individual]
+        if n <= agents_max:
+            say(f"agents, N = {n}")
+            wall, sizes_a, _, mem = _time_engine(bench_config(n, engine="agents"), seasons, seed)
+            rows.append(_record("agents", n, sizes_a, wall, seasons, mem))
+        say(f"counts, N = {n}")
+        wall, sizes_c, _, mem = _time_engine(bench_config(n, engine="counts"), seasons, seed)
+        rows.append(_record("counts", n, sizes_c, wall, seasons, mem))
+        agents = next((r for r in rows if r.engine == "agents"), None)
+        for r in rows:
+            r.ratio_to_floor = r.individual_steps_per_s / floor.individual_steps_per_s
+            if agents is not None:
+                r.ratio_to_agents = r.individual_steps_per_s / agents.individual_steps_per_s
+        records += rows
+    report = BenchReport(records=records, seasons=seasons)
+    if replicates > 0:
+        for engine in ("individual", "counts"):
+            say(f"{engine}, {replicates} replicates at K = {capacity}, batched")
+            report.experiment.append(_time_experiment(engine, replicates, capacity, seed))
+        if sequential:
+            say(f"individual, {min(sequential, replicates)} replicates at K = {capacity}, one at a time")
+            report.experiment.append(_time_experiment("individual", min(sequential, replicates),
+                                                      capacity, seed, one_at_a_time=True))
+        reference = [r for r in records if r.engine == "individual"]
+        if reference:
+            ref = max(reference, key=lambda r: r.census_size)
+            report.reference_size = ref.census_size
+            for e in report.experiment:
+                e.ratio_to_individual = e.individual_steps_per_s / ref.individual_steps_per_s
+    return report
+
+
+# -- output --------------------------------------------------------------------------------
+def _num(x, fmt) -> str:
+    return "-" if x is None else format(x, fmt)
+
+
+def format_report(report: BenchReport) -> str:
+    """The report as plain-text tables."""
+    header = (f"{'engine':<12}{'N':>12}{'ind-steps/s':>14}{'x floor':>10}{'x agents':>10}"
+              f"{'state B/ind':>13}{'peak B/ind':>12}")
+    lines = [
+        ("broodline bench: iteroparous resident (m = 2, s = 0.5, c = 0.5) against a "
+         "semelparous mutant (m = 4.5),"),
+        (f"Beverton-Holt on recruitment with K = N, Poisson offspring; {report.seasons} "
+         "seasons per engine and size, one process."),
+        "",
+        header,
+    ]
+    for r in report.records:
+        lines.append(f"{r.engine:<12}{r.census_size:>12,}{r.individual_steps_per_s:>14.3g}"
+                     f"{_num(r.ratio_to_floor, '.3g'):>10}{_num(r.ratio_to_agents, '.3g'):>10}"
+                     f"{_num(r.bytes_per_individual, '.3g'):>13}"
+                     f"{_num(r.peak_bytes_per_individual, '.3g'):>12}")
+    lines += textwrap.wrap(report.memory_method + ".", 100)
+    if report.experiment:
+        e0 = report.experiment[0]
+        lines += ["",
+                  (f"Invasion experiment at K = {e0.census_size} (one mutant, to fixation, "
+                   "every season recorded), one worker:"),
+                  (f"{'engine':<38}{'replicates':>11}{'rep-seasons':>13}{'ind-steps/s':>14}"
+                   f"{'x individual':>14}")]
+        for e in report.experiment:
+            lines.append(f"{e.engine:<38}{e.replicates:>11,}{e.replicate_seasons:>13,}"
+                         f"{e.individual_steps_per_s:>14.3g}{_num(e.ratio_to_individual, '.3g'):>14}")
+        if report.reference_size:
+            lines.append(f"x individual: against the individual engine at N = {report.reference_size:,}.")
+    return "\n".join(lines)
+
+
+# -- command line ------------------------------------------------------------------------------
+def _size(text: str) -> int:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"a census size must be a number; got {text!r}") from None
+    if value != int(value) or not 10 <= value <= 1e8:
+        raise argparse.ArgumentTypeError(f"a census size must be a whole number in [10, 1e8]; got {text!r}")
+    return int(value)
+
+
+def _count(low: int):
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"must be a whole number; got {text!r}") from None
+        if value < low:
+            raise argparse.ArgumentTypeError(f"must be >= {low}; got {value}")
+        return value
+    return parse
+
+
+def cmd_bench(args) -> int:
+    import sys
+
+    sizes = list(args.sizes or DEFAULT_SIZES)
+    if args.large and LARGE_SIZE not in sizes:
+        sizes.append(LARGE_SIZE)
+    say = None if args.json else (lambda m: print(f"  timing {m} ...", file=sys.stderr, flush=True))
+    report = run_bench(sizes, seasons=args.seasons, agents_max=args.agents_max,
+                       replicates=args.replicates, capacity=args.capacity,
+                       sequential=args.sequential or None, progress=say)
+    if args.json:
+        print(json.dumps(report.to_records(), indent=1))
+    else:
+        print(format_report(report))
+    return 0
+
+
+def register_bench(sub) -> None:
+    """Add ``broodline bench`` to the command line."""
+    p = sub.add_parser("bench", help="time the engines against the random-number floor and Mesa")
+    p.add_argument("--sizes", nargs="+", type=_size, metavar="N",
+                   help="census sizes (default: 1e3 1e4 1e5 1e6)")
+    p.add_argument("--large", action="store_true", help="also N = 1e7")
+    p.add_argument("--seasons", type=_count(1), default=20, help="seasons timed per engine and size")
+    p.add_argument("--agents-max", type=_count(0), default=10_000,
+                   help="largest N the slow Mesa engine runs at (default 1e4)")
+    p.add_argument("--replicates", type=_count(0), default=10_000,
+                   help="replicates of the K = 200 invasion experiment (0 skips it)")
+    p.add_argument("--capacity", type=_count(10), default=200, help="K of the invasion experiment")
+    p.add_argument("--sequential", type=_count(0), default=1_000,
+                   help="replicates also run one at a time, for comparison (0 skips)")
+    p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
+    p.set_defaults(func=cmd_bench)

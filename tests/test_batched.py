@@ -1,0 +1,161 @@
+"""Replicates advanced together give each replicate exactly its result when run alone.
+
+``runner.run_replicates`` hands batchable engines to ``sim.batch.run_batch``,
+which keeps every replicate on its own stream
+``SeedSequence(seed, spawn_key=(point, replicate))``. These tests compare it
+field by field with ``runner.run_replicate`` (the BroodModel loop, one
+replicate), and check that the grouping of replicates into batches changes
+nothing.
+"""
+
+import numpy as np
+import pytest
+
+from sim.batch import STATES, classify_many, run_batch
+from sim.config import parse_config, sweep_points
+from sim.model import BroodModel
+from sim.runner import classify, replicate_rng, run_replicate, run_replicates
+
+RESIDENT = {"name": "perennial", "breeding": "iteroparous", "fecundity": 2.0,
+            "adult_survival": 0.5, "juvenile_survival": 0.5}
+MUTANT = {"name": "one-shot", "breeding": "semelparous", "fecundity": 4.5, "juvenile_survival": 0.5}
+
+
+def _config(engine="individual", **sections):
+    raw = {
+        "experiment": {"engine": engine, "seed": 11, "max_steps": 60, "record_every": 1},
+        "density": {"form": "beverton-holt", "acts_on": "recruitment", "capacity": 40},
+        "allele": [RESIDENT, MUTANT],
+        "invasion": {"resident": "perennial", "mutant": "one-shot", "mutant_count": 3},
+    }
+    for key, value in sections.items():
+        if key == "experiment":
+            raw["experiment"].update(value)
+        else:
+            raw[key] = value
+    return parse_config(raw)
+
+
+# a third allele maturing at age 3, so individuals move through several age classes
+LATE = {"name": "late", "breeding": "iteroparous", "fecundity": 3.0, "adult_survival": 0.7,
+        "juvenile_survival": 0.6, "maturity_age": 3}
+
+CONFIGS = {
+    "bh-recruitment": {},
+    "ricker-fecundity-breeders-nb": {
+        "density": {"form": "ricker", "acts_on": "fecundity", "counted": "breeders", "capacity": 30},
+        "offspring": {"distribution": "negative-binomial", "dispersion": 1.5}},
+    "bh-adult-survival-fixed": {
+        "density": {"form": "beverton-holt", "acts_on": "adult-survival", "capacity": 30},
+        "offspring": {"distribution": "fixed"},
+        "invasion": {"resident": "perennial", "mutant": "one-shot", "mutant_count": 3,
+                     "resident_count": 30}},
+    "offspring-counted-all-survival": {
+        "density": {"form": "beverton-holt", "acts_on": "all-survival", "counted": "offspring",
+                    "capacity": 60}},
+    "ceiling-everyone": {"density": {"form": "ceiling", "acts_on": "all-survival", "capacity": 35}},
+    "ceiling-recruits": {"density": {"form": "ceiling", "acts_on": "recruitment", "capacity": 35}},
+    "ages-mutation-max-steps": {
+        "allele": [RESIDENT, MUTANT, LATE], "invasion": None,
+        "mutation": {"rate": 0.02},
+        "experiment": {"stop": "max-steps", "max_steps": 25, "record_every": 4}},
+    "no-density-capped": {
+        "density": {"form": "none"}, "invasion": {"resident": "perennial", "mutant": "one-shot",
+                                                  "mutant_count": 2, "resident_count": 20},
+        "experiment": {"max_population": 150, "record_every": 3}},
+}
+
+
+def _with_initial_counts(name, sections):
+    if sections.get("invasion", "x") is None:
+        sections = dict(sections)
+        sections.pop("invasion")
+        sections["allele"] = [dict(a, initial_count=c) for a, c in zip(sections["allele"], (15, 5, 10))]
+    return sections
+
+
+def _same(a, b) -> bool:
+    return (a.point, a.replicate, a.seed, a.outcome, a.winner, a.steps, a.fixation_step,
+            a.final_census) == (b.point, b.replicate, b.seed, b.outcome, b.winner, b.steps,
+                                b.fixation_step, b.final_census) \
+        and np.array_equal(a.record_steps, b.record_steps) \
+        and np.array_equal(a.trajectory, b.trajectory) \
+        and a.trajectory.dtype == b.trajectory.dtype and a.record_steps.dtype == b.record_steps.dtype
+
+
+@pytest.mark.parametrize("engine", ["individual", "counts"])
+@pytest.mark.parametrize("name", list(CONFIGS))
+def test_batched_equals_one_replicate_at_a_time(engine, name):
+    config = _config(engine, **_with_initial_counts(name, CONFIGS[name]))
+    point = sweep_points(config)[0]
+    reps = list(range(14))
+    alone = [run_replicate(point, r, 5) for r in reps]
+    together = run_replicates(point, reps, 5)
+    assert [r.replicate for r in together] == reps
+    for a, b in zip(alone, together):
+        assert _same(a, b), (name, a.replicate, a.outcome, b.outcome, a.steps, b.steps)
+
+
+def test_configs_reach_every_kind_of_end():
+    # the equality test above is only as good as the paths it walks: check it meets
+    # fixation, loss, the step limit and the population cap
+    seen = set()
+    for name, sections in CONFIGS.items():
+        point = sweep_points(_config(**_with_initial_counts(name, sections)))[0]
+        seen |= {r.outcome for r in run_replicates(point, range(14), 5)}
+    assert {"mutant-fixed", "mutant-lost", "capped", "undecided"} <= seen
+
+
+@pytest.mark.parametrize("engine", ["individual", "counts"])
+def test_batch_grouping_and_order_do_not_matter(engine):
+    config = _config(engine, density={"form": "ceiling", "acts_on": "all-survival", "capacity": 30})
+    point = sweep_points(config)[0]
+    whole = {r.replicate: r for r in run_replicates(point, range(20), 9)}
+    pieces = run_replicates(point, [7], 9) + run_replicates(point, [19, 3, 11, 0], 9) \
+        + run_batch(point, range(12, 19), 9)
+    for r in pieces:
+        assert _same(r, whole[r.replicate])
+
+
+def test_points_and_seeds_key_the_streams():
+    config = parse_config({
+        "experiment": {"seed": 3, "max_steps": 30},
+        "density": {"form": "beverton-holt", "capacity": 40},
+        "allele": [RESIDENT, MUTANT],
+        "invasion": {"resident": "perennial", "mutant": "one-shot", "mutant_count": 3},
+        "sweep": {"allele.one-shot.fecundity": [4.5, 4.5]},
+    })
+    p0, p1 = sweep_points(config)
+    a = run_replicates(p0, range(6), 3)
+    b = run_replicates(p1, range(6), 3)  # same model, another point: another stream
+    c = run_replicates(p0, range(6), 4)
+    assert [r.point for r in b] == [1] * 6
+    assert any(not np.array_equal(x.trajectory, y.trajectory) for x, y in zip(a, b))
+    assert any(not np.array_equal(x.trajectory, y.trajectory) for x, y in zip(a, c))
+
+
+def test_agents_engine_falls_back_to_one_at_a_time():
+    config = _config("agents", density={"form": "beverton-holt", "capacity": 12})
+    point = sweep_points(config)[0]
+    together = run_replicates(point, [0, 1], 2)
+    for r, rep in zip(together, (0, 1)):
+        assert _same(r, run_replicate(point, rep, 2))
+
+
+def test_model_stream_starts_at_the_replicate_stream():
+    # mesa 3.3 draws from the generator it is given; BroodModel rewinds it so the engine
+    # uses the replicate's stream from its first draw, as run_batch does
+    config = _config()
+    model = BroodModel(config, rng=replicate_rng(5, 0, 3))
+    assert model.rng.bit_generator.state == replicate_rng(5, 0, 3).bit_generator.state
+
+
+@pytest.mark.parametrize("invasion", [True, False])
+def test_classify_many_matches_classify(invasion):
+    config = _config() if invasion else _config(
+        invasion=None, allele=[dict(RESIDENT, initial_count=3), dict(MUTANT, initial_count=2)])
+    rng = np.random.default_rng(0)
+    totals = rng.integers(0, 3, size=(500, 2)) * rng.integers(0, 2, size=(500, 2))
+    states, winners = classify_many(totals, config)
+    for row, s, w in zip(totals, states, winners):
+        assert (STATES[s], int(w)) == classify(row, config)
