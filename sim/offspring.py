@@ -18,8 +18,18 @@ import numpy as np
 __all__ = ["Poisson", "Fixed", "NegativeBinomial", "make_offspring"]
 
 
+class _Replicated:
+    def draw_thinned_totals(self, n: list, mean: list, keep: list, rngs) -> list:
+        """``draw_thinned_total`` for replicate i from ``rngs[i]`` (lists in, a list out).
+
+        A replicate with n = 0 draws nothing from its generator.
+        """
+        draw = self.draw_thinned_total
+        return [int(draw(a, m, k, g)) if a else 0 for a, m, k, g in zip(n, mean, keep, rngs)]
+
+
 @dataclass(frozen=True)
-class Poisson:
+class Poisson(_Replicated):
     """Poisson(m): variance equals the mean."""
 
     def draw(self, mean, rng):
@@ -33,12 +43,16 @@ class Poisson:
         # Thinning a Poisson(m) by keep gives Poisson(m keep); sum of n of them is Poisson(n m keep).
         return rng.poisson(n * mean * keep)
 
+    def draw_thinned_totals(self, n, mean, keep, rngs) -> list:
+        # the batched engines' common case, written out: a call per replicate costs more than the draw
+        return [g.poisson(a * m * k) if a else 0 for a, m, k, g in zip(n, mean, keep, rngs)]
+
     def pgf(self, s, mean):
         return np.exp(np.asarray(mean) * (np.asarray(s) - 1.0))
 
 
 @dataclass(frozen=True)
-class Fixed:
+class Fixed(_Replicated):
     """floor(m) plus one more with probability frac(m): the mean is exact, the variance least."""
 
     def draw(self, mean, rng):
@@ -64,7 +78,7 @@ class Fixed:
 
 
 @dataclass(frozen=True)
-class NegativeBinomial:
+class NegativeBinomial(_Replicated):
     """Negative binomial with mean m and dispersion k: variance m + m^2 / k.
 
     A gamma-mixed Poisson; k -> infinity recovers the Poisson.

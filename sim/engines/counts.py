@@ -61,22 +61,12 @@ class CountsPopulations(ReplicateBatch):
         if n_reps == 0:
             return
         counts = self.counts
-        rows = counts.tolist()
         births, f = rules.open_season(counts, rngs)
-        f_fec, f_rec = f.fecundity.tolist(), f.recruitment.tolist()
-        p_survive = (rules.survival * f.adult[:, None]).tolist()
-        living = np.flatnonzero(rules.survival > 0).tolist()
-        draw_recruits = rules.recruits
-        survivors, recruits = [], []
-        for g, row, p, born, ff, fr in zip(rngs, rows, p_survive, births, f_fec, f_rec):
-            kept = [0] * rules.n_classes
-            for c in living:
-                if row[c]:
-                    kept[c] = int(g.binomial(row[c], p[c]))
-            survivors.append(kept)
-            recruits.append(draw_recruits(row, born, ff, fr, g))
-        survivors = np.array(survivors, dtype=np.int64)
-        recruits = np.array(recruits, dtype=np.int64)
+        survivors = np.zeros_like(counts)
+        for c in np.flatnonzero(rules.survival > 0).tolist():
+            survivors[:, c] = [g.binomial(n, p) if n else 0 for n, p, g in
+                               zip(counts[:, c].tolist(), (rules.survival[c] * f.adult).tolist(), rngs)]
+        recruits = rules.recruits(counts, births, f, rngs)
         aged = survivors @ self._ageing
         born = recruits.sum(axis=1)
         if rules.ceiling is None:

@@ -17,9 +17,9 @@ class IndividualPopulations(ReplicateBatch):
 
     Each individual is one entry of ``cell``: its class (allele and age index,
     see ``ClassRules``), in the smallest unsigned integer type that holds the
-    classes (one byte for up to 256 classes). Replicate ``r`` owns the slice
-    ``cell[offsets[r]:offsets[r + 1]]``: its survivors in their previous order,
-    then its recruits.
+    classes (one byte for up to 256 classes). The replicates own consecutive
+    slices of ``cell`` (of lengths ``sizes``): each its survivors in their
+    previous order, then its recruits.
 
     One season follows the life cycle of DESIGN.md: density index, breeding,
     survival (one uniform per individual, independent of its brood),
@@ -39,20 +39,28 @@ class IndividualPopulations(ReplicateBatch):
         self.sizes = counts.sum(axis=1)
         classes = np.tile(np.arange(rules.n_classes, dtype=self._dtype), len(self.rngs))
         self.cell = np.repeat(classes, counts.ravel())
-
-    @property
-    def offsets(self) -> np.ndarray:
-        """Where each replicate's slice of ``cell`` starts (and, last, the total)."""
-        return np.concatenate([[0], np.cumsum(self.sizes)])
+        self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
+        self._uniforms = np.empty(0)  # a batch's survival uniforms, reused season to season
 
     def state_bytes(self) -> int:
-        """Bytes held between seasons: the individuals and their counts by class."""
-        return self.cell.nbytes + self.counts.nbytes + self.sizes.nbytes
+        """Bytes held between seasons: the individuals, their counts by class, and (batches
+        of several replicates only) the buffer of survival uniforms."""
+        return self.cell.nbytes + self.counts.nbytes + self.sizes.nbytes + self._uniforms.nbytes
 
     def keep(self, which) -> None:
-        """Keep only the replicates where ``which`` (bool, one per replicate) is true."""
+        """Keep only the replicates where ``which`` (bool, one per replicate) is true.
+
+        The individuals of the others leave ``cell`` at the next step's
+        compaction (a pass over the array saved); until then ``_segments``
+        holds the slices ``cell`` is made of and which of them are kept.
+        """
         which = np.asarray(which, dtype=bool)
-        self.cell = np.compress(np.repeat(which, self.sizes), self.cell)
+        if self._segments is None:
+            self._segments = (self.sizes, which.copy())
+        else:
+            kept = self._segments[1].copy()
+            kept[kept] = which
+            self._segments = (self._segments[0], kept)
         self.sizes = self.sizes[which]
         super().keep(which)
 
@@ -62,38 +70,23 @@ class IndividualPopulations(ReplicateBatch):
         n_reps = len(rngs)
         if n_reps == 0:
             return
-        counts, sizes, cell = self.counts, self.sizes, self.cell
-        rows = counts.tolist()
+        counts, cell = self.counts, self.cell
         # 1. density index from the census (or, counting offspring, 2. births first)
         births, f = rules.open_season(counts, rngs)
-        f_fec, f_rec = f.fecundity.tolist(), f.recruitment.tolist()
-        draw_recruits = rules.recruits
         # 3. survival (one uniform per individual), survivors one year older (the
-        # plus-group stays); 4. recruitment
-        if n_reps == 1:
+        # plus-group stays)
+        if n_reps == 1 and self._segments is None:
             aged = self._survivors_streamed(cell, rngs[0], float(f.adult[0]))
-            recruits = [draw_recruits(rows[0], births[0], f_fec[0], f_rec[0], rngs[0])]
             survivors = np.array([aged.size])
             by_class = np.bincount(aged, minlength=rules.n_classes)[None]
         else:
-            offsets = self.offsets
-            bounds = offsets.tolist()
-            u = np.empty(cell.size)
-            recruits = []
-            for g, a, b, row, born, ff, fr in zip(rngs, bounds, bounds[1:], rows, births, f_fec, f_rec):
-                g.random(out=u[a:b])
-                recruits.append(draw_recruits(row, born, ff, fr, g))
-            threshold = rules.survival[cell]
-            if rules.adult_density:
-                threshold *= np.repeat(f.adult, sizes)
-            alive = np.flatnonzero(u < threshold)
-            del u, threshold
-            aged = self._aged[cell[alive]]
-            survivors = np.diff(np.searchsorted(alive, offsets))
+            aged, survivors = self._survivors_batched(cell, f.adult)
             rep = np.repeat(np.arange(n_reps) * rules.n_classes, survivors)
             by_class = np.bincount(rep + aged, minlength=n_reps * rules.n_classes).reshape(
                 n_reps, rules.n_classes)
-        recruits = np.array(recruits, dtype=np.int64)
+        self._segments = None
+        # 4. recruitment
+        recruits = rules.recruits(counts, births, f, rngs)
         # 5. next census: survivors, then recruits at age 1; a ceiling's removal
         born = recruits.sum(axis=1)
         cell = self._assemble(aged, survivors, recruits, born)
@@ -104,6 +97,42 @@ class IndividualPopulations(ReplicateBatch):
             by_class -= removed
             sizes = by_class.sum(axis=1)
         self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
+
+    def _survivors_batched(self, cell, f_adult):
+        """Survivors of every replicate, aged, in order, and their number per replicate.
+
+        Each replicate draws the uniforms of its own slice of ``cell``; slices
+        of replicates that left the batch get uniforms of 2 (no one survives).
+        """
+        sizes, kept = self._segments if self._segments is not None else (self.sizes, None)
+        offsets = np.concatenate([[0], np.cumsum(sizes)])
+        if self._uniforms.size < cell.size:  # kept between seasons: no fresh pages to fault in
+            self._uniforms = np.empty(int(cell.size * 1.25))
+        u = self._uniforms
+        starts, ends = offsets[:-1], offsets[1:]
+        if kept is not None:
+            for a, b in zip(starts[~kept].tolist(), ends[~kept].tolist()):
+                u[a:b] = 2.0
+            starts, ends = starts[kept], ends[kept]
+        for g, a, b in zip(self.rngs, starts.tolist(), ends.tolist()):
+            g.random(out=u[a:b])
+        survival = self.rules.survival
+        if self.rules.adult_density:
+            by_slice = np.ones(sizes.size)
+            by_slice[slice(None) if kept is None else kept] = f_adult
+            slice_of = np.repeat(np.arange(sizes.size), sizes)
+        alive = []
+        for a in range(0, cell.size, _CHUNK):  # chunks keep the temporaries in cache
+            b = min(a + _CHUNK, cell.size)
+            threshold = survival[cell[a:b]]
+            if self.rules.adult_density:
+                threshold *= by_slice[slice_of[a:b]]
+            alive.append(np.flatnonzero(u[a:b] < threshold) + a)
+        alive = np.concatenate(alive) if alive else np.zeros(0, dtype=np.intp)
+        survivors = np.diff(np.searchsorted(alive, offsets))
+        if kept is not None:
+            survivors = survivors[kept]
+        return self._aged[cell[alive]], survivors
 
     def _assemble(self, aged, survivors, recruits, born) -> np.ndarray:
         """The next census's array: per replicate, its aged survivors then its recruits by allele."""

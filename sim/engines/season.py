@@ -56,7 +56,7 @@ class ClassRules:
         self.ceiling = None if density.ceiling is None else int(density.ceiling)
         self.ceiling_on_recruits = density.acts_on == "recruitment"
         self.adult_density = density.placed(0.5).adult != 1.0
-        # (class, allele, m, c) of each class that breeds, as Python numbers for the draw loops
+        # (class, allele, m, c) of each class that breeds, as Python numbers
         self._breeders = [(int(c), int(self.allele_of[c]), float(self.fecundity[c]),
                            float(self.juvenile[c])) for c in np.flatnonzero(self.fecundity > 0)]
         self._mutation = life.mutation if life.mutation.active else None
@@ -72,59 +72,53 @@ class ClassRules:
             return Factors(np.ones(n), np.ones(n), np.ones(n))
         return self._placed(counts @ self.weights, n)
 
-    def open_season(self, counts: np.ndarray, rngs) -> tuple[list, Factors]:
-        """Step 1 for a batch: the factors, and births by replicate where D counts them.
+    def open_season(self, counts: np.ndarray, rngs) -> tuple[np.ndarray | None, Factors]:
+        """Step 1 for a batch: the factors, and the births where D counts them.
 
-        Births are drawn first (step 2) where ``counted = "offspring"``; elsewhere
-        they are not needed, and each replicate's entry is None.
+        Births are drawn first (step 2) where ``counted = "offspring"``;
+        elsewhere they are not needed and None is returned for them.
         """
         if not self.after_breeding:
-            return [None] * counts.shape[0], self.factors(counts)
-        births = [self.births(row, g) for row, g in zip(counts.tolist(), rngs)]
-        return births, self.factors_from_births(births)
-
-    def factors_from_births(self, births: list) -> Factors:
-        """Factors where D is the number of offspring born this season (``counted = "offspring"``)."""
-        return self._placed(np.array([float(sum(b)) for b in births]), len(births))
+            return None, self.factors(counts)
+        births = self.births(counts, rngs)
+        return births, self._placed(births.sum(axis=1).astype(float), counts.shape[0])
 
     def _placed(self, d, n) -> Factors:
         f = self.life.density.placed(self.life.density.form.factor(d))
         return Factors(*(np.broadcast_to(np.asarray(x, dtype=float), (n,)) for x in f))
 
-    # -- steps 2 and 4: births and recruits of one replicate ------------------------------
-    # The engines call these inside their one loop over replicates, so that each
-    # replicate's generator is touched once per season (generators left cold between
-    # separate passes cost more than the draws).
-    def births(self, counts: list, rng) -> list:
-        """Offspring born to each class of one replicate (drawn where D counts them)."""
-        out = [0] * self.n_classes
+    # -- steps 2 and 4: births and recruits ------------------------------------------
+    # Draws go class by class across the batch, each replicate from its own generator;
+    # within a replicate they come in the same order whatever its batch.
+    def births(self, counts: np.ndarray, rngs) -> np.ndarray:
+        """Offspring born to each class, (n_replicates, n_classes) (drawn where D counts them)."""
+        out = np.zeros(counts.shape, dtype=np.int64)
         draw = self.life.offspring.draw_total
         for c, _, fecundity, _ in self._breeders:
-            if counts[c]:
-                out[c] = int(draw(counts[c], fecundity, rng))
+            out[:, c] = [int(draw(n, fecundity, g)) if n else 0
+                         for n, g in zip(counts[:, c].tolist(), rngs)]
         return out
 
-    def recruits(self, counts: list, births, f_fecundity: float, f_recruitment: float,
-                 rng) -> list:
-        """Recruits of one replicate by allele, after mutation.
+    def recruits(self, counts: np.ndarray, births, f: Factors, rngs) -> np.ndarray:
+        """Recruits by (replicate, allele), after mutation.
 
-        ``counts`` is the replicate's census by class; ``births`` its births by
-        class where they were drawn (else None: each class's recruit total is
-        then drawn at once, births thinned by c f_rec).
+        ``births`` are the births by class where they were drawn (else None:
+        each class's recruit total is then drawn at once, births thinned by
+        c f_rec, see ``draw_thinned_totals``).
         """
-        out = [0] * self.n_alleles
+        out = np.zeros((counts.shape[0], self.n_alleles), dtype=np.int64)
         if births is None:
-            draw = self.life.offspring.draw_thinned_total
+            draw = self.life.offspring.draw_thinned_totals
             for c, allele, fecundity, juvenile in self._breeders:
-                n = counts[c]
-                if n:
-                    out[allele] += int(draw(n, fecundity * f_fecundity, juvenile * f_recruitment, rng))
+                out[:, allele] += draw(counts[:, c].tolist(), (fecundity * f.fecundity).tolist(),
+                                       (juvenile * f.recruitment).tolist(), rngs)
         else:
             for c, allele, _, juvenile in self._breeders:
-                if births[c]:
-                    out[allele] += int(rng.binomial(births[c], juvenile * f_recruitment))
+                out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
+                                   zip(births[:, c].tolist(), (juvenile * f.recruitment).tolist(), rngs)]
         if self._mutation is not None:
-            out = self._mutation.mutate_counts(np.array(out), rng).tolist()
+            for r, g in enumerate(rngs):
+                out[r] = self._mutation.mutate_counts(out[r], g)
         return out
 
     # -- the ceiling ------------------------------------------------------------------
