@@ -59,6 +59,9 @@ CONFIGS = {
         "allele": [RESIDENT, MUTANT, LATE], "invasion": None,
         "mutation": {"rate": 0.02},
         "experiment": {"stop": "max-steps", "max_steps": 25, "record_every": 4}},
+    "many-ages-two-byte-classes": {  # 3 alleles x 130 ages: more classes than one byte holds
+        "allele": [RESIDENT, MUTANT, dict(LATE, maturity_age=130, adult_survival=0.97)],
+        "invasion": None, "experiment": {"stop": "max-steps", "max_steps": 30, "record_every": 7}},
     "no-density-capped": {
         "density": {"form": "none"}, "invasion": {"resident": "perennial", "mutant": "one-shot",
                                                   "mutant_count": 2, "resident_count": 20},
@@ -104,6 +107,20 @@ def test_configs_reach_every_kind_of_end():
         point = sweep_points(_config(**_with_initial_counts(name, sections)))[0]
         seen |= {r.outcome for r in run_replicates(point, range(14), 5)}
     assert {"mutant-fixed", "mutant-lost", "capped", "undecided"} <= seen
+
+
+def test_class_dtype_grows_with_the_classes():
+    from sim.engines import IndividualPopulations
+    from sim.lifecycle import LifeCycle
+
+    for late_age, dtype in ((3, np.uint8), (130, np.uint16)):
+        config = _config(**_with_initial_counts("x", {
+            "allele": [RESIDENT, MUTANT, dict(LATE, maturity_age=late_age)], "invasion": None}))
+        life = LifeCycle.from_config(config)
+        batch = IndividualPopulations(life, np.ones((2, 3, life.n_ages), dtype=int), [
+            np.random.default_rng(0), np.random.default_rng(1)])
+        batch.step()
+        assert batch.cell.dtype == dtype and batch.cell.size == batch.sizes.sum()
 
 
 @pytest.mark.parametrize("engine", ["individual", "counts"])

@@ -9,7 +9,13 @@ from .season import OneReplicate, ReplicateBatch
 
 __all__ = ["IndividualEngine", "IndividualPopulations"]
 
-_CHUNK = 1 << 16  # individuals per survival chunk of a lone replicate (its uniforms fit in cache)
+_CHUNK = 1 << 16  # individuals per survival chunk (its temporaries fit in cache)
+
+
+def _chunk(n: int) -> int:
+    """Chunk length for n individuals: at most _CHUNK, and a quarter of n down to 4096,
+    so a season's temporaries stay a small share of a mid-sized population."""
+    return min(_CHUNK, max(4096, n // 4))
 
 
 class IndividualPopulations(ReplicateBatch):
@@ -122,8 +128,9 @@ class IndividualPopulations(ReplicateBatch):
             by_slice[slice(None) if kept is None else kept] = f_adult
             slice_of = np.repeat(np.arange(sizes.size), sizes)
         alive = []
-        for a in range(0, cell.size, _CHUNK):  # chunks keep the temporaries in cache
-            b = min(a + _CHUNK, cell.size)
+        step = _chunk(cell.size)
+        for a in range(0, cell.size, step):  # chunks keep the temporaries in cache
+            b = min(a + step, cell.size)
             threshold = survival[cell[a:b]]
             if self.rules.adult_density:
                 threshold *= by_slice[slice_of[a:b]]
@@ -161,10 +168,11 @@ class IndividualPopulations(ReplicateBatch):
         if self.rules.adult_density:
             survival = survival * f_adult
         out = np.empty(cell.size, dtype=self._dtype)
-        u = np.empty(min(cell.size, _CHUNK))
+        step = _chunk(cell.size)
+        u = np.empty(min(cell.size, step))
         k = 0
-        for a in range(0, cell.size, _CHUNK):
-            c = cell[a:a + _CHUNK]
+        for a in range(0, cell.size, step):
+            c = cell[a:a + step]
             w = u[:c.size]
             rng.random(out=w)
             kept = aged_class[np.compress(w < survival[c], c)]
@@ -196,3 +204,13 @@ class IndividualEngine(OneReplicate):
     """One replicate of ``IndividualPopulations``: the default engine of ``BroodModel``."""
 
     populations = IndividualPopulations
+
+    @property
+    def allele(self) -> np.ndarray:
+        """Each individual's allele index."""
+        return self.batch.cell // self.life.n_ages
+
+    @property
+    def age(self) -> np.ndarray:
+        """Each individual's age index (0 is age 1; the last is the plus-group)."""
+        return self.batch.cell % self.life.n_ages
