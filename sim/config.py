@@ -155,7 +155,7 @@ class AlleleSection(_Section):
                 )
             if len(self.fecundity) == 0:
                 raise ValueError("fecundity: a table schedule needs at least one age")
-            if "maturity_age" in self.model_fields_set:
+            if self.maturity_age != 1:
                 raise ValueError("maturity_age: not used by a table schedule (give zeros in fecundity)")
             return self
         for key in ("fecundity", "adult_survival"):
