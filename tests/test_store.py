@@ -6,7 +6,13 @@ import pytest
 
 from sim.config import sweep_points
 from sim.runner import run_experiment, run_replicate
-from sim.store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
+from sim.store import (
+    read_attrs,
+    read_point_configs,
+    read_points,
+    read_replicates,
+    read_trajectories,
+)
 from tests.conftest import make_config
 
 
