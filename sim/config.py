@@ -303,7 +303,8 @@ def _check_sweep_path(config: Config, path: str) -> str | None:
             return f"allele has no sweepable key {parts[2]!r}{_suggest(parts[2], AlleleSection)}"
         return None
     if parts[0] not in _SECTIONS or len(parts) != 2:
-        return "a path reads SECTION.KEY or allele.NAME.KEY (sections: experiment, density, offspring, invasion, mutation)"
+        return ("a path reads SECTION.KEY or allele.NAME.KEY "
+                "(sections: experiment, density, offspring, invasion, mutation)")
     section = _SECTIONS[parts[0]]
     if parts[1] not in section.model_fields:
         return f"[{parts[0]}] has no key {parts[1]!r}{_suggest(parts[1], section)}"
