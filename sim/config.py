@@ -63,6 +63,12 @@ def _non_negative(x: float) -> float:
     return x
 
 
+def _resident_count(x):
+    if x == "equilibrium" or (isinstance(x, int) and not isinstance(x, bool) and 1 <= x <= MAX_COUNT):
+        return x
+    raise ValueError(f"must be 'equilibrium' or a whole number in [1, {MAX_COUNT}]")
+
+
 Probability = Annotated[float, AfterValidator(_probability)]
 NonNegative = Annotated[float, AfterValidator(_non_negative)]
 
@@ -188,7 +194,7 @@ class InvasionSection(_Section):
     resident: str
     mutant: str
     mutant_count: int = Field(1, ge=1, le=MAX_COUNT)
-    resident_count: Literal["equilibrium"] | Annotated[int, Field(ge=1, le=MAX_COUNT)] = "equilibrium"
+    resident_count: Annotated[Any, AfterValidator(_resident_count)] = "equilibrium"
 
 
 class MutationSection(_Section):

@@ -54,7 +54,7 @@ BAD = [
     ([(("sweep",), {"density.capasity": [1, 2]})], r"\[density\] has no key 'capasity'"),
     ([(("sweep",), {"allele.one-shot.fecundity": [3.0, -1.0]})],
      r"sweep point 1 \(allele\.one-shot\.fecundity = -1\.0\): allele\[1\]\.fecundity must be >= 0"),
-    ([(("invasion", "resident_count"), 0)], r"invasion\.resident_count must be >= 1"),
+    ([(("invasion", "resident_count"), 0)], r"invasion\.resident_count must be .equilibrium. or a whole number"),
 ]
 
 
