@@ -64,8 +64,9 @@ def cmd_demo(args) -> int:
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
     config_path = out / "demo.toml"  # a copy the user can edit and run again
-    config_path.write_text(demo_config_path().read_text())
-    config = _load(config_path)
+    if not config_path.exists():  # never clobber a copy the user may have edited
+        config_path.write_text(demo_config_path().read_text())
+    config = _load(demo_config_path())
     results = out / "demo.h5"
     print(describe_experiment(config))
     print()
