@@ -174,3 +174,26 @@ def test_neutral_mutant_fixes_with_its_initial_share(engine, n_reps):
     # probability ~1e-3.
     ci = stats.binomtest(fixed, n_reps).proportion_ci(confidence_level=0.999, method="wilson")
     assert ci.low <= 5 / 25 <= ci.high
+
+
+def test_simulated_equilibrium_matches_beverton_holt_formula():
+    # Derived from the model (README, The model): with Beverton-Holt on recruitment the
+    # iteroparous resident settles at N* = K (B c / (1 - P) - 1) = 2000 here.
+    # 200 independent replicates start at N = 500 and run 60 seasons (the map contracts by
+    # dN'/dN = P + B c / (1 + N*/K)^2 = 0.67 per season, so the start is forgotten). The sample
+    # SD of the census is ~50, so the mean's standard error is ~3.5; tolerance 5 SE (~6e-7
+    # false-failure rate). The second-order (Jensen) bias of the stochastic mean is ~ -1,
+    # far inside it.
+    k, n_reps = 1000.0, 200
+    raw = _raw(
+        experiment={"max_steps": 60, "stop": "max-steps", "seed": 3},
+        density={"form": "beverton-holt", "acts_on": "recruitment", "capacity": k},
+        allele=[{**BASE["allele"][0], "fecundity": 3.0}],
+        invasion=None,
+    )
+    raw["allele"][0]["initial_count"] = 500
+    raw.pop("invasion")
+    point = SweepPoint(index=0, values={}, config=parse_config(raw))
+    finals = np.array([run_replicate(point, rep, 3).final_census for rep in range(n_reps)])
+    n_star = k * (3.0 * 0.5 / (1 - 0.5) - 1)
+    assert abs(finals.mean() - n_star) < 5 * finals.std(ddof=1) / np.sqrt(n_reps)
