@@ -6,7 +6,7 @@ import numpy as np
 
 from .aggregation import counts_obstacles
 from .config import Config, sweep_points
-from .lifecycle import LifeCycle, initial_census
+from .lifecycle import initial_census
 from .meanfield import growth_rate
 
 __all__ = ["describe_experiment", "preflight", "counts_engine_note"]
