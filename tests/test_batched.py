@@ -59,9 +59,9 @@ CONFIGS = {
         "allele": [RESIDENT, MUTANT, LATE], "invasion": None,
         "mutation": {"rate": 0.02},
         "experiment": {"stop": "max-steps", "max_steps": 25, "record_every": 4}},
-    "many-ages-two-byte-classes": {  # 3 alleles x 130 ages: more classes than one byte holds
-        "allele": [RESIDENT, MUTANT, dict(LATE, maturity_age=130, adult_survival=0.97)],
-        "invasion": None, "experiment": {"stop": "max-steps", "max_steps": 30, "record_every": 7}},
+    "many-ages-two-byte-classes": {  # 3 alleles x 100 ages: more classes than one byte holds
+        "allele": [RESIDENT, MUTANT, dict(LATE, maturity_age=100, adult_survival=0.97)],
+        "invasion": None, "experiment": {"stop": "max-steps", "max_steps": 15, "record_every": 7}},
     "no-density-capped": {
         "density": {"form": "none"}, "invasion": {"resident": "perennial", "mutant": "one-shot",
                                                   "mutant_count": 2, "resident_count": 20},
@@ -113,7 +113,7 @@ def test_class_dtype_grows_with_the_classes():
     from sim.engines import IndividualPopulations
     from sim.lifecycle import LifeCycle
 
-    for late_age, dtype in ((3, np.uint8), (130, np.uint16)):
+    for late_age, dtype in ((3, np.uint8), (100, np.uint16)):
         config = _config(**_with_initial_counts("x", {
             "allele": [RESIDENT, MUTANT, dict(LATE, maturity_age=late_age)], "invasion": None}))
         life = LifeCycle.from_config(config)

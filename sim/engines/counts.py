@@ -63,7 +63,7 @@ class CountsPopulations(ReplicateBatch):
         counts = self.counts
         births, f = rules.open_season(counts, rngs)
         survivors = np.zeros_like(counts)
-        for c in np.flatnonzero(rules.survival > 0).tolist():
+        for c in np.flatnonzero((rules.survival > 0) & counts.any(axis=0)).tolist():
             survivors[:, c] = [g.binomial(n, p) if n else 0 for n, p, g in
                                zip(counts[:, c].tolist(), (rules.survival[c] * f.adult).tolist(), rngs)]
         recruits = rules.recruits(counts, births, f, rngs)

@@ -109,7 +109,10 @@ class ClassRules:
         out = np.zeros((counts.shape[0], self.n_alleles), dtype=np.int64)
         if births is None:
             draw = self.life.offspring.draw_thinned_totals
+            present = counts.any(axis=0)
             for c, allele, fecundity, juvenile in self._breeders:
+                if not present[c]:
+                    continue  # no replicate has this class: no draws to make
                 out[:, allele] += draw(counts[:, c].tolist(), (fecundity * f.fecundity).tolist(),
                                        (juvenile * f.recruitment).tolist(), rngs)
         else:
