@@ -127,15 +127,15 @@ class IndividualPopulations(ReplicateBatch):
             by_slice = np.ones(sizes.size)
             by_slice[slice(None) if kept is None else kept] = f_adult
             slice_of = np.repeat(np.arange(sizes.size), sizes)
-        alive = []
+        lives = np.empty(cell.size, dtype=bool)
         step = _chunk(cell.size)
         for a in range(0, cell.size, step):  # chunks keep the temporaries in cache
             b = min(a + step, cell.size)
             threshold = survival[cell[a:b]]
             if self.rules.adult_density:
                 threshold *= by_slice[slice_of[a:b]]
-            alive.append(np.flatnonzero(u[a:b] < threshold) + a)
-        alive = np.concatenate(alive) if alive else np.zeros(0, dtype=np.intp)
+            np.less(u[a:b], threshold, out=lives[a:b])
+        alive = np.flatnonzero(lives)
         survivors = np.diff(np.searchsorted(alive, offsets))
         if kept is not None:
             survivors = survivors[kept]
