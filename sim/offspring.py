@@ -19,13 +19,14 @@ __all__ = ["Poisson", "Fixed", "NegativeBinomial", "make_offspring"]
 
 
 class _Replicated:
-    def draw_thinned_totals(self, n: list, mean: list, keep: list, rngs) -> list:
-        """``draw_thinned_total`` for replicate i from ``rngs[i]`` (lists in, a list out).
+    def draw_thinned_totals(self, n, mean, keep, rngs) -> list:
+        """``draw_thinned_total`` for replicate i from ``rngs[i]`` (arrays in, a list out).
 
         A replicate with n = 0 draws nothing from its generator.
         """
         draw = self.draw_thinned_total
-        return [int(draw(a, m, k, g)) if a else 0 for a, m, k, g in zip(n, mean, keep, rngs)]
+        return [int(draw(a, m, k, g)) if a else 0
+                for a, m, k, g in zip(n.tolist(), mean.tolist(), keep.tolist(), rngs)]
 
 
 @dataclass(frozen=True)
@@ -45,7 +46,7 @@ class Poisson(_Replicated):
 
     def draw_thinned_totals(self, n, mean, keep, rngs) -> list:
         # the batched engines' common case, written out: a call per replicate costs more than the draw
-        return [g.poisson(a * m * k) if a else 0 for a, m, k, g in zip(n, mean, keep, rngs)]
+        return [g.poisson(lam) if lam else 0 for lam, g in zip((n * mean * keep).tolist(), rngs)]
 
     def pgf(self, s, mean):
         return np.exp(np.asarray(mean) * (np.asarray(s) - 1.0))

@@ -113,8 +113,8 @@ class ClassRules:
             for c, allele, fecundity, juvenile in self._breeders:
                 if not present[c]:
                     continue  # no replicate has this class: no draws to make
-                out[:, allele] += draw(counts[:, c].tolist(), (fecundity * f.fecundity).tolist(),
-                                       (juvenile * f.recruitment).tolist(), rngs)
+                out[:, allele] += draw(counts[:, c], fecundity * f.fecundity,
+                                       juvenile * f.recruitment, rngs)
         else:
             for c, allele, _, juvenile in self._breeders:
                 out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
