@@ -96,6 +96,7 @@ class BenchReport:
     records: list[BenchRecord]
     experiment: list[ExperimentRecord] = field(default_factory=list)
     seasons: int = 0
+    min_time: float = 0.0
     reference_size: int | None = None  # N of the individual rate the experiment is set against
     memory_method: str = MEMORY_METHOD
 
@@ -157,8 +158,13 @@ def _held_bytes(model) -> int | None:
     return engine.batch.state_bytes() if hasattr(engine, "batch") else None
 
 
-def _time_engine(config: Config, seasons: int, seed: int):
-    """Step a model ``seasons`` times (after one untimed season).
+def _time_engine(config: Config, seasons: int, seed: int, min_time: float = 0.0):
+    """Time blocks of ``seasons`` seasons, each from the starting census, until ``min_time``.
+
+    Every block starts a fresh model (untimed, on its own stream) so the
+    population keeps the benchmark's make-up (a long run would let the
+    mutant take over and change the work per individual). The first block
+    is preceded by one untimed season: first calls pay one-off costs.
 
     Returns wall seconds of the steps, census sizes and recruits season by
     season, and (state, peak) bytes per individual.
@@ -166,20 +172,24 @@ def _time_engine(config: Config, seasons: int, seed: int):
     from .model import BroodModel
     from .runner import replicate_rng
 
-    rng = replicate_rng(seed, 0, 0)
-    tracemalloc.start()
-    model = BroodModel(config, rng=rng)
-    built = tracemalloc.get_traced_memory()[0]
-    tracemalloc.stop()
-    model.step()  # one season untimed: first calls pay one-off costs (imports, caches)
     sizes, recruits, wall = [], [], 0.0
-    for _ in range(seasons):
-        sizes.append(_census_size(model))
-        start = time.perf_counter()
-        model.step()
-        wall += time.perf_counter() - start
-        engine = model.engine
-        recruits.append(int(engine.batch.recruits[0]) if hasattr(engine, "batch") else 0)
+    block = 0
+    while block == 0 or wall < min_time:
+        tracemalloc.start()
+        model = BroodModel(config, rng=replicate_rng(seed, 0, block))
+        built = tracemalloc.get_traced_memory()[0]
+        tracemalloc.stop()
+        if block == 0:
+            model.step()
+            model = BroodModel(config, rng=replicate_rng(seed, 0, block))
+        for _ in range(seasons):
+            sizes.append(_census_size(model))
+            start = time.perf_counter()
+            model.step()
+            wall += time.perf_counter() - start
+            engine = model.engine
+            recruits.append(int(engine.batch.recruits[0]) if hasattr(engine, "batch") else 0)
+        block += 1
     n = _census_size(model)
     held = _held_bytes(model)
     peak = traced_peak(model.step)
@@ -187,12 +197,15 @@ def _time_engine(config: Config, seasons: int, seed: int):
     return wall, sizes, recruits, (state / max(n, 1), (state + peak) / max(n, 1))
 
 
-def _time_floor(sizes, recruits, seed: int):
+def _time_floor(sizes, recruits, seed: int, min_time: float = 0.0):
     """The floor: one uniform per individual and one integer per recruit, season by season.
 
     Drawn the fastest way numpy offers: in cache-sized chunks, the uniforms
     into a reused buffer (at N = 1e7 a single call would spend much of its
-    time faulting in a fresh 80 MB array).
+    time faulting in a fresh 80 MB array). The seasons are replayed,
+    whole, until ``min_time`` seconds have been spent drawing.
+
+    Returns the wall time, the census sizes drawn for, and the memory.
     """
     rng = np.random.default_rng(seed)
     buffer = np.empty(min(max(sizes), _FLOOR_CHUNK))
@@ -203,21 +216,23 @@ def _time_floor(sizes, recruits, seed: int):
         for a in range(0, r, _FLOOR_CHUNK):
             rng.integers(0, max(n, 1), size=min(_FLOOR_CHUNK, r - a))
 
-    wall = 0.0
-    for n, r in zip(sizes, recruits):
-        start = time.perf_counter()
-        draw(n, r)
-        wall += time.perf_counter() - start
+    wall, drawn = 0.0, []
+    while not drawn or wall < min_time:
+        for n, r in zip(sizes, recruits):
+            start = time.perf_counter()
+            draw(n, r)
+            wall += time.perf_counter() - start
+        drawn += sizes
     n, r = sizes[-1], recruits[-1]
     peak = buffer.nbytes + traced_peak(lambda: draw(n, r))
-    return wall, (None, peak / max(n, 1))
+    return wall, drawn, (None, peak / max(n, 1))
 
 
-def _record(engine, n, sizes, wall, seasons, memory):
+def _record(engine, n, sizes, wall, memory):
     rate = sum(sizes) / wall if wall > 0 else float("inf")
     return BenchRecord(engine=engine, census_size=n, individual_steps_per_s=rate,
                        ratio_to_floor=None, ratio_to_agents=None, bytes_per_individual=memory[0],
-                       peak_bytes_per_individual=memory[1], seasons=seasons, wall_s=wall)
+                       peak_bytes_per_individual=memory[1], seasons=len(sizes), wall_s=wall)
 
 
 # -- the small-population experiment -------------------------------------------------------
@@ -243,17 +258,19 @@ def _time_experiment(engine: str, replicates: int, capacity: int, seed: int, *,
                             wall_s=wall)
 
 
-def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, agents_max: int = 10_000,
-              replicates: int = 10_000, capacity: int = 200, sequential: int | None = 1_000,
-              seed: int = 20261202, progress=None) -> BenchReport:
+def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, min_time: float = 1.0,
+              agents_max: int = 10_000, replicates: int = 10_000, capacity: int = 200,
+              sequential: int | None = 1_000, seed: int = 20261202, progress=None) -> BenchReport:
     """Time every engine at every census size, the floor, and the small-population experiment.
 
     Parameters
     ----------
     sizes : sequence of int
         Census sizes N (K = N).
-    seasons : int
-        Seasons timed per engine and size.
+    seasons, min_time : int, float
+        Each engine and size is timed over blocks of ``seasons`` seasons from
+        the starting census, repeated until ``min_time`` seconds (short
+        timings are at the mercy of the machine's moment-to-moment load).
     agents_max : int
         The Mesa ``agents`` engine runs only at N <= agents_max.
     replicates : int
@@ -274,26 +291,24 @@ def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, agents_max: int = 10_00
     for n in sizes:
         n = int(n)
         say(f"individual, N = {n}")
-        wall, trace, recruits, mem = _time_engine(bench_config(n), seasons, seed)
-        individual = _record("individual", n, trace, wall, seasons, mem)
+        wall, trace, recruits, mem = _time_engine(bench_config(n), seasons, seed, min_time)
+        individual = _record("individual", n, trace, wall, mem)
         say(f"floor, N = {n}")
-        floor_wall, floor_mem = _time_floor(trace, recruits, seed)
-        floor = _record("floor", n, trace, floor_wall, seasons, floor_mem)
+        floor_wall, drawn, floor_mem = _time_floor(trace, recruits, seed, min_time)
+        floor = _record("floor", n, drawn, floor_wall, floor_mem)
         rows = [floor, individual]
-        if n <= agents_max:
-            say(f"agents, N = {n}")
-            wall, sizes_a, _, mem = _time_engine(bench_config(n, engine="agents"), seasons, seed)
-            rows.append(_record("agents", n, sizes_a, wall, seasons, mem))
-        say(f"counts, N = {n}")
-        wall, sizes_c, _, mem = _time_engine(bench_config(n, engine="counts"), seasons, seed)
-        rows.append(_record("counts", n, sizes_c, wall, seasons, mem))
+        for engine in ("agents", "counts") if n <= agents_max else ("counts",):
+            say(f"{engine}, N = {n}")
+            wall, trace, _, mem = _time_engine(bench_config(n, engine=engine), seasons, seed,
+                                               min_time)
+            rows.append(_record(engine, n, trace, wall, mem))
         agents = next((r for r in rows if r.engine == "agents"), None)
         for r in rows:
             r.ratio_to_floor = r.individual_steps_per_s / floor.individual_steps_per_s
             if agents is not None:
                 r.ratio_to_agents = r.individual_steps_per_s / agents.individual_steps_per_s
         records += rows
-    report = BenchReport(records=records, seasons=seasons)
+    report = BenchReport(records=records, seasons=seasons, min_time=min_time)
     if replicates > 0:
         for engine in ("individual", "counts"):
             say(f"{engine}, {replicates} replicates at K = {capacity}, batched")
@@ -324,8 +339,9 @@ def format_report(report: BenchReport) -> str:
     lines = [
         ("broodline bench: iteroparous resident (m = 2, s = 0.5, c = 0.5) against a "
          "semelparous mutant (m = 4.5),"),
-        (f"Beverton-Holt on recruitment with K = N, Poisson offspring; {report.seasons} "
-         "seasons per engine and size, one process."),
+        (f"Beverton-Holt on recruitment with K = N, Poisson offspring; blocks of {report.seasons} "
+         f"seasons from the start, for at least {report.min_time:g} s per engine and size; "
+         "one process."),
         "",
         header,
     ]
@@ -361,6 +377,16 @@ def _size(text: str) -> int:
     return int(value)
 
 
+def _seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number of seconds; got {text!r}") from None
+    if not 0 <= value <= 3600:
+        raise argparse.ArgumentTypeError(f"must be in [0, 3600] seconds; got {text!r}")
+    return value
+
+
 def _count(low: int):
     def parse(text: str) -> int:
         try:
@@ -380,7 +406,8 @@ def cmd_bench(args) -> int:
     if args.large and LARGE_SIZE not in sizes:
         sizes.append(LARGE_SIZE)
     say = None if args.json else (lambda m: print(f"  timing {m} ...", file=sys.stderr, flush=True))
-    report = run_bench(sizes, seasons=args.seasons, agents_max=args.agents_max,
+    report = run_bench(sizes, seasons=args.seasons, min_time=args.min_time,
+                       agents_max=args.agents_max,
                        replicates=args.replicates, capacity=args.capacity,
                        sequential=args.sequential or None, progress=say)
     if args.json:
@@ -396,7 +423,10 @@ def register_bench(sub) -> None:
     p.add_argument("--sizes", nargs="+", type=_size, metavar="N",
                    help="census sizes (default: 1e3 1e4 1e5 1e6)")
     p.add_argument("--large", action="store_true", help="also N = 1e7")
-    p.add_argument("--seasons", type=_count(1), default=20, help="seasons timed per engine and size")
+    p.add_argument("--seasons", type=_count(1), default=20,
+                   help="seasons per timed block, each from the starting census (default 20)")
+    p.add_argument("--min-time", type=_seconds, default=1.0,
+                   help="least seconds of stepping timed per engine and size (default 1)")
     p.add_argument("--agents-max", type=_count(0), default=10_000,
                    help="largest N the slow Mesa engine runs at (default 1e4)")
     p.add_argument("--replicates", type=_count(0), default=10_000,

@@ -18,7 +18,8 @@ from sim.lifecycle import LifeCycle, initial_census
 
 KEYS = {"engine", "census_size", "individual_steps_per_s", "ratio_to_floor", "ratio_to_agents",
         "bytes_per_individual"}
-REDUCED = ["bench", "--sizes", "1000", "--seasons", "3", "--replicates", "30", "--sequential", "5"]
+REDUCED = ["bench", "--sizes", "1000", "--seasons", "3", "--min-time", "0", "--replicates", "30",
+           "--sequential", "5"]
 
 
 def test_bench_json_records(capsys):
@@ -28,7 +29,7 @@ def test_bench_json_records(capsys):
     scale = {r["engine"]: r for r in records if r["kind"] == "scale"}
     assert set(scale) == {"floor", "individual", "agents", "counts"}
     for r in scale.values():
-        assert r["census_size"] == 1000
+        assert r["census_size"] == 1000 and r["seasons"] >= 3
         assert math.isfinite(r["individual_steps_per_s"]) and r["individual_steps_per_s"] > 0
         assert r["ratio_to_floor"] > 0 and r["ratio_to_agents"] > 0
         assert r["peak_bytes_per_individual"] > 0
@@ -60,6 +61,7 @@ def test_bench_table(capsys):
     (["--sizes", "2.5e1", "1.5"], "whole number"),
     (["--seasons", "0"], "must be >= 1"),
     (["--replicates", "-3"], "must be >= 0"),
+    (["--min-time", "soon"], "number of seconds"),
 ])
 def test_bench_refuses_bad_options(argv, message, capsys):
     with pytest.raises(SystemExit) as exit_info:
@@ -69,7 +71,7 @@ def test_bench_refuses_bad_options(argv, message, capsys):
 
 
 def test_report_object_is_usable_from_python():
-    report = run_bench([500], seasons=2, agents_max=0, replicates=0)
+    report = run_bench([500], seasons=2, min_time=0, agents_max=0, replicates=0)
     assert [r.engine for r in report.records] == ["floor", "individual", "counts"]
     assert report.experiment == []
     assert "individual" in format_report(report)
