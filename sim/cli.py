@@ -68,6 +68,9 @@ def cmd_demo(args) -> int:
     print(describe_experiment(config))
     print()
     _run(config, results, overwrite=True, quiet=args.quiet)
+    from analysis.commands import finish_demo  # sim imports analysis only here, lazily
+
+    finish_demo(results, out)
     print(f"\nNext, look at the config and run it yourself:\n"
           f"  broodline check {demo_config_path()}\n"
           f"  broodline run {demo_config_path()} -o my-run.h5")
@@ -92,8 +95,14 @@ def _register_core(sub) -> None:
     p.set_defaults(func=cmd_demo)
 
 
+def _register_analysis(sub) -> None:
+    from analysis.commands import register  # lazily: sim does not import analysis otherwise
+
+    register(sub)
+
+
 # Each entry adds its subcommands to the parser; other modules register theirs here.
-REGISTRARS = [_register_core]
+REGISTRARS = [_register_core, _register_analysis]
 
 
 def build_parser() -> argparse.ArgumentParser:
