@@ -21,20 +21,42 @@ from .sweep import predict_sweep, sweep_thresholds
 from .thresholds import ThresholdResult, threshold, with_values
 
 __all__ = [
-    "Demography", "Extinction", "FixationEstimate", "ObservedThreshold", "Prediction",
-    "ResidentEnvironment", "ThresholdResult", "agreement", "compare", "compare_thresholds",
-    "dominant_eigen", "establishment_probability", "extinction_probabilities", "invasion_fitness",
-    "neutral_expectation", "observed_threshold", "plot", "predict", "predict_sweep", "report",
-    "resident_environment", "schedule_demography", "sweep_thresholds", "threshold",
-    "wilson_interval", "with_values",
+    "Demography",
+    "Extinction",
+    "FixationEstimate",
+    "ObservedThreshold",
+    "Prediction",
+    "ResidentEnvironment",
+    "ThresholdResult",
+    "agreement",
+    "compare",
+    "compare_thresholds",
+    "dominant_eigen",
+    "establishment_probability",
+    "extinction_probabilities",
+    "invasion_fitness",
+    "neutral_expectation",
+    "observed_threshold",
+    "plot",
+    "predict",
+    "predict_sweep",
+    "report",
+    "resident_environment",
+    "schedule_demography",
+    "sweep_thresholds",
+    "threshold",
+    "wilson_interval",
+    "with_values",
 ]
 
 
 def __getattr__(name):
     if name == "plot":
         from .plots import plot
+
         return plot
     if name == "report":
         from .reporting import report
+
         return report
     raise AttributeError(f"module 'analysis' has no attribute {name!r}")

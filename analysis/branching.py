@@ -52,7 +52,7 @@ class Extinction:
     error_bound: float
 
     def establishment(self, count: int = 1, age: int = 1) -> float:
-        """Probability that at least one of ``count`` founders of census age ``age`` leaves a lasting lineage."""
+        """Probability that some of ``count`` founders of age ``age`` leave a lasting lineage."""
         q = self.probabilities[min(age, self.probabilities.size) - 1]
         return float(1.0 - q**count)
 
@@ -81,8 +81,9 @@ def _irreducible(a: np.ndarray) -> bool:
     return bool(np.all(np.linalg.matrix_power(reach, max(a.shape[0] - 1, 1)) > 0))
 
 
-def extinction_probabilities(schedule: Schedule, factors: Factors, offspring, *,
-                             tol: float = 1e-12, max_iter: int = 200_000) -> Extinction:
+def extinction_probabilities(
+    schedule: Schedule, factors: Factors, offspring, *, tol: float = 1e-12, max_iter: int = 200_000
+) -> Extinction:
     """Extinction probability of a mutant lineage started by one individual of each census age.
 
     Parameters
@@ -132,8 +133,15 @@ def extinction_probabilities(schedule: Schedule, factors: Factors, offspring, *,
     return Extinction(np.minimum(q, 1.0), lam, max_iter, False, bound)
 
 
-def establishment_probability(schedule: Schedule, factors: Factors, offspring, *,
-                              count: int = 1, age: int = 1, tol: float = 1e-12) -> float:
+def establishment_probability(
+    schedule: Schedule,
+    factors: Factors,
+    offspring,
+    *,
+    count: int = 1,
+    age: int = 1,
+    tol: float = 1e-12,
+) -> float:
     """Probability that ``count`` mutants of census age ``age`` escape early loss: 1 - q_age^count.
 
     The founders' lineages are independent while mutants are rare, so all of

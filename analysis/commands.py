@@ -40,8 +40,9 @@ def _records(table) -> list[dict]:
 def _print_table(table) -> None:
     import pandas as pd
 
-    with pd.option_context("display.width", 160, "display.max_columns", 30,
-                           "display.float_format", "{:.4g}".format):
+    with pd.option_context(
+        "display.width", 160, "display.max_columns", 30, "display.float_format", "{:.4g}".format
+    ):
         print(table.to_string(index=False))
 
 
@@ -55,7 +56,9 @@ def _results(path) -> Path:
     except FileNotFoundError:
         raise
     except (OSError, ValueError, KeyError) as err:
-        raise _user_error(f"{str(path)!r} cannot be read as a broodline results file ({err})") from None
+        raise _user_error(
+            f"{str(path)!r} cannot be read as a broodline results file ({err})"
+        ) from None
     return path
 
 
@@ -63,8 +66,9 @@ def _free(paths, overwrite: bool) -> None:
     """Refuse to replace existing files unless asked, before anything is written."""
     taken = [str(p) for p in paths if Path(p).exists()]
     if taken and not overwrite:
-        raise FileExistsError(f"{', '.join(taken)} exist{'s' if len(taken) == 1 else ''}; "
-                              "pass --overwrite to replace")
+        raise FileExistsError(
+            f"{', '.join(taken)} exist{'s' if len(taken) == 1 else ''}; pass --overwrite to replace"
+        )
     for p in paths:
         if not Path(p).parent.exists():
             raise FileNotFoundError(f"output folder {str(Path(p).parent)!r} does not exist")
@@ -82,8 +86,12 @@ def threshold_report(config, *, parameters=None, bracket=None) -> dict:
 
     points = predict_sweep(config)
     thresholds = sweep_thresholds(config, parameters=parameters, bracket=bracket)
-    return {"resident": config.invasion.resident, "mutant": config.invasion.mutant,
-            "points": points, "thresholds": thresholds}
+    return {
+        "resident": config.invasion.resident,
+        "mutant": config.invasion.mutant,
+        "points": points,
+        "thresholds": thresholds,
+    }
 
 
 def cmd_threshold(args) -> int:
@@ -91,22 +99,39 @@ def cmd_threshold(args) -> int:
 
     config = load_config(args.config)
     if config.invasion is None:
-        raise _user_error(f"{args.config}: needs an [invasion] table naming the resident and the "
-                          "mutant")
-    result = threshold_report(config, parameters=args.parameter or None,
-                              bracket=tuple(args.bracket) if args.bracket else None)
+        raise _user_error(
+            f"{args.config}: needs an [invasion] table naming the resident and the mutant"
+        )
+    result = threshold_report(
+        config,
+        parameters=args.parameter or None,
+        bracket=tuple(args.bracket) if args.bracket else None,
+    )
     if args.json:
-        print(json.dumps({
-            "resident": result["resident"], "mutant": result["mutant"],
-            "points": _records(result["points"]),
-            "thresholds": [jsonable(t.as_dict()) for t in result["thresholds"]],
-        }, indent=2))
+        print(
+            json.dumps(
+                {
+                    "resident": result["resident"],
+                    "mutant": result["mutant"],
+                    "points": _records(result["points"]),
+                    "thresholds": [jsonable(t.as_dict()) for t in result["thresholds"]],
+                },
+                indent=2,
+            )
+        )
         return 0
     print(f"resident {result['resident']!r}, mutant {result['mutant']!r}")
-    points = result["points"].rename(columns={
-        "density_index": "D*", "census_size": "census", "resident_growth_rate": "lambda_res",
-        "mutant_growth_rate": "lambda_mut", "invasion_fitness": "fitness",
-        "establishment_probability": "establish", "neutral_expectation": "neutral"})
+    points = result["points"].rename(
+        columns={
+            "density_index": "D*",
+            "census_size": "census",
+            "resident_growth_rate": "lambda_res",
+            "mutant_growth_rate": "lambda_mut",
+            "invasion_fitness": "fitness",
+            "establishment_probability": "establish",
+            "neutral_expectation": "neutral",
+        }
+    )
     if points["problem"].eq("").all():
         points = points.drop(columns="problem")
     _print_table(points)
@@ -138,19 +163,48 @@ def cmd_compare(args) -> int:
     return 0
 
 
-_SHOWN = ["replicates", "mutant_fixed", "fixed_fraction", "fixed_low", "fixed_high",
-          "invasion_fitness", "verdict", "establishment_probability", "neutral_expectation",
-          "agreement"]
+_SHOWN = [
+    "replicates",
+    "mutant_fixed",
+    "fixed_fraction",
+    "fixed_low",
+    "fixed_high",
+    "invasion_fitness",
+    "verdict",
+    "establishment_probability",
+    "neutral_expectation",
+    "agreement",
+]
 
 
 def _print_compare(table, thresholds) -> None:
-    swept = [c for c in table.columns[1:] if c not in _SHOWN and c not in (
-        "mutant_lost", "unresolved", "density_index", "census_size", "resident_growth_rate",
-        "mutant_growth_rate", "problem")]
-    shown = table[["point", *swept, *_SHOWN]].rename(columns={
-        "replicates": "reps", "mutant_fixed": "fixed", "fixed_fraction": "fraction",
-        "fixed_low": "low95", "fixed_high": "high95", "invasion_fitness": "fitness",
-        "establishment_probability": "establish", "neutral_expectation": "neutral"})
+    swept = [
+        c
+        for c in table.columns[1:]
+        if c not in _SHOWN
+        and c
+        not in (
+            "mutant_lost",
+            "unresolved",
+            "density_index",
+            "census_size",
+            "resident_growth_rate",
+            "mutant_growth_rate",
+            "problem",
+        )
+    ]
+    shown = table[["point", *swept, *_SHOWN]].rename(
+        columns={
+            "replicates": "reps",
+            "mutant_fixed": "fixed",
+            "fixed_fraction": "fraction",
+            "fixed_low": "low95",
+            "fixed_high": "high95",
+            "invasion_fitness": "fitness",
+            "establishment_probability": "establish",
+            "neutral_expectation": "neutral",
+        }
+    )
     _print_table(shown)
     for r in thresholds.itertuples():
         at = f" at {r.at}" if r.at != "{}" else ""
@@ -167,8 +221,10 @@ def cmd_plot(args) -> int:
     out = Path(args.output)
     if out.exists() and not out.is_dir():
         raise _user_error(f"-o {out}: exists and is not a folder")
-    _free([out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
-          args.overwrite)
+    _free(
+        [out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
+        args.overwrite,
+    )
     figs = plot(path, out)
     for name, files in figs.files.items():
         print(f"{name}: {files['png']}  {files['svg']}")
@@ -194,8 +250,9 @@ def finish_demo(results, out_dir) -> Path:
     thresholds = compare_thresholds(results, table)
     print("\nObserved fixation against the prediction:")
     _print_compare(table, thresholds)
-    page = report(results, out_dir / "report.html", figures_dir=out_dir, table=table,
-                  thresholds=thresholds)
+    page = report(
+        results, out_dir / "report.html", figures_dir=out_dir, table=table, thresholds=thresholds
+    )
     print(f"\nFigures: {out_dir}/fixation.png, trajectories.png, invasion_fitness.png (and .svg)")
     print(f"Report:  {page}")
     return page
@@ -203,14 +260,26 @@ def finish_demo(results, out_dir) -> Path:
 
 def register(sub) -> None:
     """Add ``threshold``, ``compare``, ``plot`` and ``report`` to the ``broodline`` subparsers."""
-    p = sub.add_parser("threshold", help="analytic prediction for an invasion config: equilibrium, "
-                       "invasion fitness, establishment, neutral expectation, thresholds")
+    p = sub.add_parser(
+        "threshold",
+        help="analytic prediction for an invasion config: equilibrium, "
+        "invasion fitness, establishment, neutral expectation, thresholds",
+    )
     p.add_argument("config", help="experiment config (TOML) with an [invasion] table")
     p.add_argument("--json", action="store_true", help="print JSON (keys in the README)")
-    p.add_argument("--parameter", action="append", metavar="PATH",
-                   help="sweep path to find the threshold of (repeatable; default: each swept one)")
-    p.add_argument("--bracket", nargs=2, type=float, metavar=("LOW", "HIGH"),
-                   help="range to search for the threshold (default: the swept range)")
+    p.add_argument(
+        "--parameter",
+        action="append",
+        metavar="PATH",
+        help="sweep path to find the threshold of (repeatable; default: each swept one)",
+    )
+    p.add_argument(
+        "--bracket",
+        nargs=2,
+        type=float,
+        metavar=("LOW", "HIGH"),
+        help="range to search for the threshold (default: the swept range)",
+    )
     p.set_defaults(func=cmd_threshold)
 
     p = sub.add_parser("compare", help="observed fixation in a results file against the prediction")

@@ -22,19 +22,29 @@ from sim.config import Config, ConfigError
 from sim.store import read_attrs, read_point_configs, read_points, read_replicates
 
 from .estimates import observed_threshold, wilson_interval
-from .sweep import numeric_sweep_paths, predict_configs, sweep_thresholds
+from .sweep import predict_configs, sweep_thresholds
 
 __all__ = ["COMPARE_COLUMNS", "agreement", "experiment_config", "compare", "compare_thresholds"]
 
 COMPARE_COLUMNS = [
-    "point", "replicates", "mutant_fixed", "mutant_lost", "unresolved", "fixed_fraction",
-    "fixed_low", "fixed_high", "invasion_fitness", "verdict", "establishment_probability",
-    "neutral_expectation", "agreement",
+    "point",
+    "replicates",
+    "mutant_fixed",
+    "mutant_lost",
+    "unresolved",
+    "fixed_fraction",
+    "fixed_low",
+    "fixed_high",
+    "invasion_fitness",
+    "verdict",
+    "establishment_probability",
+    "neutral_expectation",
+    "agreement",
 ]
 
 
 def agreement(verdict: str, low: float, high: float, neutral: float) -> str:
-    """"agrees", "disagrees" or "inconclusive": the Wilson interval [low, high] against the verdict.
+    """Agrees, disagrees or inconclusive: the Wilson interval [low, high] against a verdict.
 
     See the module notes for the rule.
     """
@@ -55,8 +65,10 @@ def experiment_config(path) -> Config:
 
 def _require_invasion(config: Config, path) -> None:
     if config.invasion is None:
-        raise ConfigError(f"{str(path)!r}: the experiment has no [invasion] table, so there is no "
-                         "mutant to compare with theory")
+        raise ConfigError(
+            f"{str(path)!r}: the experiment has no [invasion] table, so there is no "
+            "mutant to compare with theory"
+        )
 
 
 def compare(path, *, level: float = 0.95) -> pd.DataFrame:
@@ -91,24 +103,34 @@ def compare(path, *, level: float = 0.95) -> pd.DataFrame:
         lost = int((outcomes == "mutant-lost").sum())
         est = wilson_interval(fixed, n, level=level)
         t = theory.iloc[i]
-        rows.append({
-            "point": int(point), "replicates": n, "mutant_fixed": fixed, "mutant_lost": lost,
-            "unresolved": n - fixed - lost, "fixed_fraction": est.fraction,
-            "fixed_low": est.low, "fixed_high": est.high,
-            **t.to_dict(),
-            "agreement": agreement(t["verdict"], est.low, est.high, t["neutral_expectation"])
-            if n else "no replicates",
-        })
+        rows.append(
+            {
+                "point": int(point),
+                "replicates": n,
+                "mutant_fixed": fixed,
+                "mutant_lost": lost,
+                "unresolved": n - fixed - lost,
+                "fixed_fraction": est.fraction,
+                "fixed_low": est.low,
+                "fixed_high": est.high,
+                **t.to_dict(),
+                "agreement": agreement(t["verdict"], est.low, est.high, t["neutral_expectation"])
+                if n
+                else "no replicates",
+            }
+        )
     table = pd.DataFrame(rows)
     rest = [c for c in table.columns if c not in COMPARE_COLUMNS]
     table = table[[*COMPARE_COLUMNS, *rest]]
     swept = points.drop(columns="point")
-    return pd.concat([table[["point"]], swept.reset_index(drop=True), table.drop(columns="point")],
-                     axis=1)
+    return pd.concat(
+        [table[["point"]], swept.reset_index(drop=True), table.drop(columns="point")], axis=1
+    )
 
 
-def compare_thresholds(path, table: pd.DataFrame | None = None, *, level: float = 0.95,
-                       seed: int = 0) -> pd.DataFrame:
+def compare_thresholds(
+    path, table: pd.DataFrame | None = None, *, level: float = 0.95, seed: int = 0
+) -> pd.DataFrame:
     """The observed threshold along each numeric swept parameter beside the analytic one.
 
     Parameters
@@ -142,19 +164,47 @@ def compare_thresholds(path, table: pd.DataFrame | None = None, *, level: float 
         for k, v in res.at.items():
             sel &= table[k].to_numpy() == v
         sub = table[sel]
-        obs = observed_threshold(res.parameter, sub[res.parameter], sub["mutant_fixed"],
-                                 sub["replicates"], sub["neutral_expectation"],
-                                 increasing=res.invades_above, level=level, seed=seed)
+        obs = observed_threshold(
+            res.parameter,
+            sub[res.parameter],
+            sub["mutant_fixed"],
+            sub["replicates"],
+            sub["neutral_expectation"],
+            increasing=res.invades_above,
+            level=level,
+            seed=seed,
+        )
         lo = obs.low if np.isfinite(obs.low) else -np.inf
         hi = obs.high if np.isfinite(obs.high) else np.inf
-        inside = bool(np.isfinite(res.value) and lo <= res.value <= hi) if np.isfinite(obs.value) \
-            or np.isfinite(obs.low) or np.isfinite(obs.high) else False
-        rows.append({
-            "parameter": res.parameter, "at": json.dumps(res.at),
-            "analytic": res.value, "analytic_message": res.message,
-            "observed": obs.value, "observed_low": obs.low, "observed_high": obs.high,
-            "observed_message": obs.message, "analytic_in_interval": inside,
-        })
-    return pd.DataFrame(rows, columns=["parameter", "at", "analytic", "analytic_message", "observed",
-                                       "observed_low", "observed_high", "observed_message",
-                                       "analytic_in_interval"])
+        inside = (
+            bool(np.isfinite(res.value) and lo <= res.value <= hi)
+            if np.isfinite(obs.value) or np.isfinite(obs.low) or np.isfinite(obs.high)
+            else False
+        )
+        rows.append(
+            {
+                "parameter": res.parameter,
+                "at": json.dumps(res.at),
+                "analytic": res.value,
+                "analytic_message": res.message,
+                "observed": obs.value,
+                "observed_low": obs.low,
+                "observed_high": obs.high,
+                "observed_message": obs.message,
+                "analytic_in_interval": inside,
+            }
+        )
+    return pd.DataFrame(
+        rows,
+        columns=[
+            "parameter",
+            "at",
+            "analytic",
+            "analytic_message",
+            "observed",
+            "observed_low",
+            "observed_high",
+            "observed_message",
+            "analytic_in_interval",
+        ],
+    )

@@ -61,8 +61,12 @@ class ResidentEnvironment:
 def invasion_pair(config: Config) -> tuple[int, int]:
     """Indices of the resident and mutant alleles named by ``[invasion]``."""
     if config.invasion is None:
-        raise ConfigError("invasion: the config has no [invasion] table naming a resident and a mutant")
-    return config.allele_index(config.invasion.resident), config.allele_index(config.invasion.mutant)
+        raise ConfigError(
+            "invasion: the config has no [invasion] table naming a resident and a mutant"
+        )
+    return config.allele_index(config.invasion.resident), config.allele_index(
+        config.invasion.mutant
+    )
 
 
 def resident_environment(config: Config) -> ResidentEnvironment:
@@ -87,5 +91,6 @@ def resident_environment(config: Config) -> ResidentEnvironment:
     if isinstance(density.form, NoDensity):
         return ResidentEnvironment(schedule.name, Factors(), None, schedule_demography(schedule))
     eq = solve_equilibrium(schedule, density)
-    return ResidentEnvironment(schedule.name, eq.factors, eq, schedule_demography(schedule, eq.factors))
-
+    return ResidentEnvironment(
+        schedule.name, eq.factors, eq, schedule_demography(schedule, eq.factors)
+    )

@@ -8,7 +8,13 @@ import numpy as np
 from scipy.optimize import isotonic_regression
 from scipy.stats import norm
 
-__all__ = ["FixationEstimate", "wilson_interval", "ObservedThreshold", "crossing", "observed_threshold"]
+__all__ = [
+    "FixationEstimate",
+    "wilson_interval",
+    "ObservedThreshold",
+    "crossing",
+    "observed_threshold",
+]
 
 
 @dataclass(frozen=True)
@@ -112,8 +118,18 @@ class ObservedThreshold:
         return asdict(self)
 
 
-def observed_threshold(parameter: str, x, fixed, n, neutral, *, increasing: bool | None = None,
-                       level: float = 0.95, draws: int = 4000, seed: int = 0) -> ObservedThreshold:
+def observed_threshold(
+    parameter: str,
+    x,
+    fixed,
+    n,
+    neutral,
+    *,
+    increasing: bool | None = None,
+    level: float = 0.95,
+    draws: int = 4000,
+    seed: int = 0,
+) -> ObservedThreshold:
     """The parameter value where observed fixation crosses the neutral expectation.
 
     Parameters
@@ -169,7 +185,9 @@ def observed_threshold(parameter: str, x, fixed, n, neutral, *, increasing: bool
 
     value = cross(fixed / n)
     rng = np.random.default_rng(seed)
-    boot = np.array([cross(row) for row in rng.beta(fixed + 0.5, n - fixed + 0.5, size=(draws, x.size))])
+    boot = np.array(
+        [cross(row) for row in rng.beta(fixed + 0.5, n - fixed + 0.5, size=(draws, x.size))]
+    )
     tail = (1.0 - level) / 2.0
     low, high = np.quantile(boot, [tail, 1.0 - tail], method="inverted_cdf")
 
@@ -177,14 +195,25 @@ def observed_threshold(parameter: str, x, fixed, n, neutral, *, increasing: bool
         return float(v) if np.isfinite(v) else float("nan")
 
     if np.isfinite(value):
-        message = (f"observed fixation crosses the neutral expectation at {parameter} = {value:.4g} "
-                   f"({level:.0%} interval {_bound(low)} to {_bound(high)})")
+        message = (
+            f"observed fixation crosses the neutral expectation at {parameter} = {value:.4g} "
+            f"({level:.0%} interval {_bound(low)} to {_bound(high)})"
+        )
     else:
         side = "below" if value < 0 else "above"
-        message = (f"observed fixation does not cross the neutral expectation in [{x[0]:g}, {x[-1]:g}]; "
-                   f"the crossing lies {side} the swept range")
-    return ObservedThreshold(parameter, finite(value), finite(low), finite(high),
-                             float(np.isfinite(boot).mean()), level, message)
+        message = (
+            f"observed fixation does not cross the neutral expectation in [{x[0]:g}, {x[-1]:g}]; "
+            f"the crossing lies {side} the swept range"
+        )
+    return ObservedThreshold(
+        parameter,
+        finite(value),
+        finite(low),
+        finite(high),
+        float(np.isfinite(boot).mean()),
+        level,
+        message,
+    )
 
 
 def _bound(v) -> str:

@@ -50,7 +50,7 @@ def invasion_fitness(config: Config, env: ResidentEnvironment | None = None) -> 
 
 
 def verdict(fitness: float) -> str:
-    """"invades" (fitness > 1), "does not invade" (< 1) or "neutral" (within 1e-9 of 1)."""
+    """ "invades" (fitness > 1), "does not invade" (< 1) or "neutral" (within 1e-9 of 1)."""
     if not np.isfinite(fitness):
         return "undefined"
     if abs(fitness - 1.0) <= NEUTRAL_TOLERANCE:
@@ -76,7 +76,7 @@ def neutral_expectation(config: Config, env: ResidentEnvironment | None = None) 
     r, _ = invasion_pair(config)
     census = initial_census(config)
     v = env.demography.reproductive_values
-    resident_value = float(census[r, : v.size] @ v + census[r, v.size:].sum() * v[-1])
+    resident_value = float(census[r, : v.size] @ v + census[r, v.size :].sum() * v[-1])
     mutant_value = config.invasion.mutant_count * float(v[0])
     total = resident_value + mutant_value
     return mutant_value / total if total > 0 else float("nan")

@@ -15,22 +15,35 @@ from sim.config import Config, sweep_points
 from sim.meanfield import NoEquilibriumError
 
 from .environment import invasion_pair
-from .invasion import Prediction, predict
+from .invasion import predict
 from .thresholds import ThresholdResult, threshold, with_values
 
-__all__ = ["PREDICTION_COLUMNS", "predict_configs", "predict_sweep", "numeric_sweep_paths",
-           "sweep_thresholds"]
+__all__ = [
+    "PREDICTION_COLUMNS",
+    "predict_configs",
+    "predict_sweep",
+    "numeric_sweep_paths",
+    "sweep_thresholds",
+]
 
 PREDICTION_COLUMNS = [
-    "density_index", "census_size", "resident_growth_rate", "mutant_growth_rate",
-    "invasion_fitness", "verdict", "establishment_probability", "neutral_expectation",
+    "density_index",
+    "census_size",
+    "resident_growth_rate",
+    "mutant_growth_rate",
+    "invasion_fitness",
+    "verdict",
+    "establishment_probability",
+    "neutral_expectation",
 ]
 
 
 def _row(config: Config) -> dict:
     try:
         p = predict(config).as_dict()
-        p["problem"] = "" if p.pop("establishment_converged") else "establishment iteration hit its cap"
+        p["problem"] = (
+            "" if p.pop("establishment_converged") else "establishment iteration hit its cap"
+        )
     except NoEquilibriumError as err:
         p = {k: float("nan") for k in PREDICTION_COLUMNS}
         p["verdict"] = "undefined"
@@ -50,7 +63,7 @@ def predict_configs(configs) -> pd.DataFrame:
 
 
 def predict_sweep(config: Config) -> pd.DataFrame:
-    """Theory at every sweep point of ``config``: ``point``, the swept values, then the prediction."""
+    """Theory at every sweep point of ``config``: ``point``, the swept values, the prediction."""
     invasion_pair(config)
     points = sweep_points(config)
     values = pd.DataFrame([{"point": p.index, **p.values} for p in points])
@@ -61,8 +74,13 @@ def numeric_sweep_paths(config: Config) -> list[str]:
     """Swept paths whose values are all real numbers (the ones a threshold can be sought along)."""
     out = []
     for path, values in (config.sweep or {}).items():
-        if all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
-               for v in values) and len(set(values)) > 1:
+        if (
+            all(
+                isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+                for v in values
+            )
+            and len(set(values)) > 1
+        ):
             out.append(path)
     return out
 

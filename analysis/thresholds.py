@@ -86,8 +86,12 @@ def with_values(config: Config, values: dict) -> Config:
         return sweep_points(parse_config(raw))[0].config
     except ConfigError as err:
         where = ", ".join(f"{p} = {v!r}" for p, v in values.items())
-        raise ConfigError([f"{where}: {m.split('): ', 1)[-1]}" if m.startswith("sweep point") else m
-                           for m in err.problems]) from None
+        raise ConfigError(
+            [
+                f"{where}: {m.split('): ', 1)[-1]}" if m.startswith("sweep point") else m
+                for m in err.problems
+            ]
+        ) from None
 
 
 def parameter_value(config: Config, parameter: str):
@@ -109,15 +113,27 @@ def _check_parameter(config: Config, parameter: str) -> None:
             parse_config(probe)
         except ConfigError as err:  # reworded: the path is a parameter here, not a sweep key
             prefix = f"sweep.{parameter!r}: "
-            raise ConfigError([f"parameter {parameter!r}: {m.removeprefix(prefix)}"
-                               for m in err.problems]) from None
+            raise ConfigError(
+                [f"parameter {parameter!r}: {m.removeprefix(prefix)}" for m in err.problems]
+            ) from None
     current = parameter_value(config, parameter)
     parts = parameter.split(".")
-    if parts[0] == "allele" and parts[2] in ("maturity_age", "initial_count") or \
-            parameter in ("invasion.mutant_count", "invasion.resident_count", "experiment.max_steps",
-                          "experiment.record_every", "experiment.max_population"):
-        raise ConfigError(f"{parameter}: takes whole numbers; a threshold needs a continuous parameter "
-                          "(sweep it instead)")
+    if (
+        parts[0] == "allele"
+        and parts[2] in ("maturity_age", "initial_count")
+        or parameter
+        in (
+            "invasion.mutant_count",
+            "invasion.resident_count",
+            "experiment.max_steps",
+            "experiment.record_every",
+            "experiment.max_population",
+        )
+    ):
+        raise ConfigError(
+            f"{parameter}: takes whole numbers; a threshold needs a continuous parameter "
+            "(sweep it instead)"
+        )
     if isinstance(current, list):
         raise ConfigError(f"{parameter}: is a list by age; a threshold needs one number")
     if current is not None and (isinstance(current, bool) or not isinstance(current, (int, float))):
@@ -132,7 +148,7 @@ def _is_probability(config: Config, parameter: str) -> bool:
 
 
 def fitness_along(config: Config, parameter: str, values) -> np.ndarray:
-    """Invasion fitness at each value of ``parameter`` (nan where the resident has no equilibrium)."""
+    """Invasion fitness at each value of ``parameter`` (nan: no resident equilibrium)."""
     base = config.model_copy(update={"sweep": None})
     out = np.empty(len(values))
     for i, v in enumerate(values):
@@ -159,7 +175,9 @@ def _default_bracket(config: Config, parameter: str) -> tuple[float, float, bool
     return 0.0, max(2.0 * float(current or 0.0), 1.0), True
 
 
-def threshold(config: Config, parameter: str, *, bracket=None, tol: float = 1e-10) -> ThresholdResult:
+def threshold(
+    config: Config, parameter: str, *, bracket=None, tol: float = 1e-10
+) -> ThresholdResult:
     """The value of ``parameter`` at which the mutant's invasion fitness equals 1.
 
     Parameters
@@ -194,7 +212,9 @@ def threshold(config: Config, parameter: str, *, bracket=None, tol: float = 1e-1
     density dependence on recruitment (Mylius & Diekmann 1995).
     """
     if config.invasion is None:
-        raise ConfigError("invasion: a threshold needs an [invasion] table naming resident and mutant")
+        raise ConfigError(
+            "invasion: a threshold needs an [invasion] table naming resident and mutant"
+        )
     _check_parameter(config, parameter)
     if bracket is None:
         lo, hi, open_ended = _default_bracket(config, parameter)
@@ -233,19 +253,33 @@ def threshold(config: Config, parameter: str, *, bracket=None, tol: float = 1e-1
         else:
             side = "above" if f[signed][0] > 1 else "below"
             where = "throughout the range" if side == "above" else "nowhere in the range"
-            why = (f"invasion fitness stays {side} 1 (from {f.min():.6g} to {f.max():.6g}), "
-                   f"so the mutant invades {where}")
-        return ThresholdResult(parameter, float("nan"), False, (lo, hi), ends, None, 0,
-                               f"no threshold of {parameter} in [{lo:g}, {hi:g}]: {why}")
+            why = (
+                f"invasion fitness stays {side} 1 (from {f.min():.6g} to {f.max():.6g}), "
+                f"so the mutant invades {where}"
+            )
+        return ThresholdResult(
+            parameter,
+            float("nan"),
+            False,
+            (lo, hi),
+            ends,
+            None,
+            0,
+            f"no threshold of {parameter} in [{lo:g}, {hi:g}]: {why}",
+        )
     i, j, invades_above = crossings[0]
-    value = grid[i] if i == j else brentq(excess, grid[i], grid[j], xtol=tol,
-                                          rtol=4 * np.finfo(float).eps, maxiter=500)
+    value = (
+        grid[i]
+        if i == j
+        else brentq(excess, grid[i], grid[j], xtol=tol, rtol=4 * np.finfo(float).eps, maxiter=500)
+    )
     side = "above" if invades_above else "below"
     msg = f"{parameter} = {value:.10g}: the mutant invades {side} it"
     if len(crossings) > 1:
         msg += f" ({len(crossings)} crossings in [{lo:g}, {hi:g}]; the lowest is reported)"
-    return ThresholdResult(parameter, float(value), True, (lo, hi), ends, invades_above,
-                           len(crossings), msg)
+    return ThresholdResult(
+        parameter, float(value), True, (lo, hi), ends, invades_above, len(crossings), msg
+    )
 
 
 def _crossings(ex: np.ndarray) -> list[tuple[int, int, bool]]:
@@ -257,8 +291,11 @@ def _crossings(ex: np.ndarray) -> list[tuple[int, int, bool]]:
     """
     finite = [i for i in range(ex.size) if np.isfinite(ex[i])]
     signed = [i for i in finite if abs(ex[i]) > _ROUNDING]
-    out = [(i, j, bool(ex[j] > 0)) for i, j in zip(signed[:-1], signed[1:])
-           if (ex[i] > 0) != (ex[j] > 0)]
+    out = [
+        (i, j, bool(ex[j] > 0))
+        for i, j in zip(signed[:-1], signed[1:])
+        if (ex[i] > 0) != (ex[j] > 0)
+    ]
     for k in finite:
         if abs(ex[k]) > _ROUNDING or any(i < k < j for i, j, _ in out):
             continue

@@ -9,17 +9,55 @@ from analysis.commands import finish_demo, jsonable
 from sim.cli import main
 from tests.invasion_configs import SMALL_SWEEP, write_small_results
 
-POINT_KEYS = {"point", "density_index", "census_size", "resident_growth_rate", "mutant_growth_rate",
-              "invasion_fitness", "verdict", "establishment_probability", "neutral_expectation",
-              "problem"}
-THRESHOLD_KEYS = {"parameter", "value", "converged", "bracket", "fitness_at_bracket",
-                  "invades_above", "crossings", "message", "at"}
-COMPARE_KEYS = {"point", "replicates", "mutant_fixed", "mutant_lost", "unresolved",
-                "fixed_fraction", "fixed_low", "fixed_high", "invasion_fitness", "verdict",
-                "establishment_probability", "neutral_expectation", "agreement"}
-COMPARE_THRESHOLD_KEYS = {"parameter", "at", "analytic", "analytic_message", "observed",
-                          "observed_low", "observed_high", "observed_message",
-                          "analytic_in_interval"}
+POINT_KEYS = {
+    "point",
+    "density_index",
+    "census_size",
+    "resident_growth_rate",
+    "mutant_growth_rate",
+    "invasion_fitness",
+    "verdict",
+    "establishment_probability",
+    "neutral_expectation",
+    "problem",
+}
+THRESHOLD_KEYS = {
+    "parameter",
+    "value",
+    "converged",
+    "bracket",
+    "fitness_at_bracket",
+    "invades_above",
+    "crossings",
+    "message",
+    "at",
+}
+COMPARE_KEYS = {
+    "point",
+    "replicates",
+    "mutant_fixed",
+    "mutant_lost",
+    "unresolved",
+    "fixed_fraction",
+    "fixed_low",
+    "fixed_high",
+    "invasion_fitness",
+    "verdict",
+    "establishment_probability",
+    "neutral_expectation",
+    "agreement",
+}
+COMPARE_THRESHOLD_KEYS = {
+    "parameter",
+    "at",
+    "analytic",
+    "analytic_message",
+    "observed",
+    "observed_low",
+    "observed_high",
+    "observed_message",
+    "analytic_in_interval",
+}
 
 CONFIG = """
 [experiment]
@@ -79,8 +117,21 @@ def test_threshold_json(config, capsys):
 
 
 def test_threshold_of_a_chosen_parameter_with_bracket(config, capsys):
-    assert main(["threshold", str(config), "--json", "--parameter", "allele.perennial.fecundity",
-                 "--bracket", "0.5", "10"]) == 0
+    assert (
+        main(
+            [
+                "threshold",
+                str(config),
+                "--json",
+                "--parameter",
+                "allele.perennial.fecundity",
+                "--bracket",
+                "0.5",
+                "10",
+            ]
+        )
+        == 0
+    )
     data = json.loads(capsys.readouterr().out)
     # one result per swept mutant fecundity B_s; B_i* = B_s - P / c = B_s - 1. For B_s = 2
     # that is B_i = 1, where the resident itself stops being viable (P + B_i c = 1): below it
@@ -114,7 +165,8 @@ def test_plot_and_report(results, tmp_path, capsys):
     figs = tmp_path / "figs"
     assert main(["plot", str(results), "-o", str(figs)]) == 0
     assert sorted(p.name for p in figs.iterdir()) == sorted(
-        f"{n}.{e}" for n in ("fixation", "trajectories", "invasion_fitness") for e in ("png", "svg"))
+        f"{n}.{e}" for n in ("fixation", "trajectories", "invasion_fitness") for e in ("png", "svg")
+    )
     assert main(["plot", str(results), "-o", str(figs)]) == 2
     assert "pass --overwrite" in capsys.readouterr().err
     page = tmp_path / "r.html"
@@ -123,11 +175,14 @@ def test_plot_and_report(results, tmp_path, capsys):
     assert main(["report", str(results), "-o", str(page)]) == 2
 
 
-@pytest.mark.parametrize("argv, message", [
-    (["compare", "missing.h5"], "not found"),
-    (["plot", "missing.h5", "-o", "x"], "not found"),
-    (["threshold", "missing.toml"], "not found"),
-])
+@pytest.mark.parametrize(
+    "argv, message",
+    [
+        (["compare", "missing.h5"], "not found"),
+        (["plot", "missing.h5", "-o", "x"], "not found"),
+        (["threshold", "missing.toml"], "not found"),
+    ],
+)
 def test_user_errors_exit_2(argv, message, tmp_path, monkeypatch, capsys):
     monkeypatch.chdir(tmp_path)
     assert main(argv) == 2
@@ -144,8 +199,12 @@ def test_threshold_bad_parameter_and_no_invasion(config, tmp_path, capsys):
     assert main(["threshold", str(config), "--parameter", "allele.one-shot.fecundty"]) == 2
     assert "did you mean 'fecundity'" in capsys.readouterr().err
     plain = tmp_path / "plain.toml"
-    plain.write_text(CONFIG.split("[invasion]")[0].replace(
-        'juvenile_survival = 0.5\n[[allele]]', 'juvenile_survival = 0.5\ninitial_count = 5\n[[allele]]'))
+    plain.write_text(
+        CONFIG.split("[invasion]")[0].replace(
+            "juvenile_survival = 0.5\n[[allele]]",
+            "juvenile_survival = 0.5\ninitial_count = 5\n[[allele]]",
+        )
+    )
     assert main(["threshold", str(plain)]) == 2
     assert "needs an [invasion] table" in capsys.readouterr().err
 
@@ -162,4 +221,7 @@ def test_jsonable():
     import numpy as np
 
     assert jsonable({"a": np.float64("nan"), "b": [np.int64(3), float("inf")], "c": "x"}) == {
-        "a": None, "b": [3, None], "c": "x"}
+        "a": None,
+        "b": [3, None],
+        "c": "x",
+    }

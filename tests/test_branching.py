@@ -62,8 +62,9 @@ def test_haldane_two_s(s):
 def test_iteroparous_plus_group_against_scalar_equation():
     # One age class that survives (sigma) and breeds: G(s) = (1 - sigma + sigma s) exp(B p (s - 1)).
     sigma, b, p = 0.6, 1.5, 0.4
-    q_ref = brentq(lambda q: (1 - sigma + sigma * q) * np.exp(b * p * (q - 1)) - q, 0.0, 1 - 1e-9,
-                   xtol=1e-14)
+    q_ref = brentq(
+        lambda q: (1 - sigma + sigma * q) * np.exp(b * p * (q - 1)) - q, 0.0, 1 - 1e-9, xtol=1e-14
+    )
     ext = extinction_probabilities(iteroparous("m", b, sigma, p), NO_DENSITY, Poisson())
     assert ext.probabilities[0] == pytest.approx(q_ref, abs=1e-10)
 
@@ -73,9 +74,12 @@ def test_delayed_semelparity_against_its_generation_process():
     # recruits. Per generation the pgf is H(s) = 1 - sigma + sigma exp(B p (s - 1)), whose
     # smallest fixed point is q at age 1; at age 2, q2 = exp(B p (q1 - 1)).
     sigma, b, p = 0.7, 6.0, 0.5
-    q1 = brentq(lambda q: 1 - sigma + sigma * np.exp(b * p * (q - 1)) - q, 0.0, 1 - 1e-9, xtol=1e-14)
-    ext = extinction_probabilities(semelparous("m", b, p, maturity_age=2, adult_survival=sigma),
-                                   NO_DENSITY, Poisson())
+    q1 = brentq(
+        lambda q: 1 - sigma + sigma * np.exp(b * p * (q - 1)) - q, 0.0, 1 - 1e-9, xtol=1e-14
+    )
+    ext = extinction_probabilities(
+        semelparous("m", b, p, maturity_age=2, adult_survival=sigma), NO_DENSITY, Poisson()
+    )
     assert ext.probabilities == pytest.approx([q1, np.exp(b * p * (q1 - 1))], abs=1e-10)
 
 
@@ -85,8 +89,9 @@ def test_k_founders():
     q = ext.probabilities[0]
     for k in (1, 3, 10):
         assert ext.establishment(k) == pytest.approx(1 - q**k)
-        assert establishment_probability(semelparous("m", 4.0, 0.5), NO_DENSITY, Poisson(),
-                                         count=k) == pytest.approx(1 - q**k)
+        assert establishment_probability(
+            semelparous("m", 4.0, 0.5), NO_DENSITY, Poisson(), count=k
+        ) == pytest.approx(1 - q**k)
 
 
 @pytest.mark.parametrize("b", [0.5, 1.0, 1.999])
@@ -116,4 +121,5 @@ def test_pgf_is_one_at_one_and_zero_at_zero_without_survivors():
     assert offspring_pgf(np.ones(1), sched, NO_DENSITY, Poisson()) == pytest.approx([1.0])
     # G(0) = P(no survivor and no recruit) = (1 - sigma) exp(-B p)
     assert offspring_pgf(np.zeros(1), sched, NO_DENSITY, Poisson()) == pytest.approx(
-        [0.6 * np.exp(-1.5)])
+        [0.6 * np.exp(-1.5)]
+    )

@@ -18,17 +18,20 @@ def results(tmp_path_factory):
     return write_small_results(tmp_path_factory.mktemp("cmp") / "small.h5")
 
 
-@pytest.mark.parametrize("verdict, low, high, expected", [
-    ("invades", 0.2, 0.4, "agrees"),
-    ("invades", 0.0, 0.3, "inconclusive"),
-    ("invades", 0.0, 0.02, "disagrees"),
-    ("does not invade", 0.0, 0.02, "agrees"),
-    ("does not invade", 0.01, 0.2, "inconclusive"),
-    ("does not invade", 0.1, 0.2, "disagrees"),
-    ("neutral", 0.01, 0.1, "agrees"),
-    ("neutral", 0.1, 0.2, "disagrees"),
-    ("undefined", 0.1, 0.2, "no prediction"),
-])
+@pytest.mark.parametrize(
+    "verdict, low, high, expected",
+    [
+        ("invades", 0.2, 0.4, "agrees"),
+        ("invades", 0.0, 0.3, "inconclusive"),
+        ("invades", 0.0, 0.02, "disagrees"),
+        ("does not invade", 0.0, 0.02, "agrees"),
+        ("does not invade", 0.01, 0.2, "inconclusive"),
+        ("does not invade", 0.1, 0.2, "disagrees"),
+        ("neutral", 0.01, 0.1, "agrees"),
+        ("neutral", 0.1, 0.2, "disagrees"),
+        ("undefined", 0.1, 0.2, "no prediction"),
+    ],
+)
 def test_agreement_rule(verdict, low, high, expected):
     # the rule of the README: the Wilson interval against the neutral expectation (0.05 here)
     assert agreement(verdict, low, high, 0.05) == expected
@@ -76,8 +79,9 @@ def test_results_without_invasion_are_refused(tmp_path):
 
 def test_unresolved_replicates_count_as_not_fixed(tmp_path):
     # stop after 1 season: most replicates are still undecided
-    config = invasion_config(mutant_fecundity=6.0, capacity=30.0, replicates=20, max_steps=1,
-                             mutant_count=3)
+    config = invasion_config(
+        mutant_fecundity=6.0, capacity=30.0, replicates=20, max_steps=1, mutant_count=3
+    )
     path = tmp_path / "short.h5"
     run_experiment(config, path, progress=False)
     row = compare(path).iloc[0]

@@ -23,37 +23,44 @@ def test_growth_rate_and_eigenvectors_against_scipy(schedule):
     d = schedule_demography(schedule, Factors(0.8, 0.9, 0.7))
     a = projection_matrix(schedule, Factors(0.8, 0.9, 0.7))
     assert d.growth_rate == pytest.approx(np.max(np.abs(scipy.linalg.eigvals(a))), rel=1e-10)
-    assert a @ d.stable_age_distribution == pytest.approx(d.growth_rate * d.stable_age_distribution,
-                                                         abs=1e-10)
-    assert d.reproductive_values @ a == pytest.approx(d.growth_rate * d.reproductive_values, abs=1e-9)
+    assert a @ d.stable_age_distribution == pytest.approx(
+        d.growth_rate * d.stable_age_distribution, abs=1e-10
+    )
+    assert d.reproductive_values @ a == pytest.approx(
+        d.growth_rate * d.reproductive_values, abs=1e-9
+    )
     assert d.stable_age_distribution.sum() == pytest.approx(1.0)
     assert d.reproductive_values[0] == pytest.approx(1.0)
 
 
 def _life_table(m, s, c):
     """l(a) and F(a) for a finite life (last survival 0): l(1) = 1, F(a) = m(a) c."""
-    l = np.concatenate([[1.0], np.cumprod(s[:-1])])
-    return l, np.asarray(m) * c
+    lt = np.concatenate([[1.0], np.cumprod(s[:-1])])
+    return lt, np.asarray(m) * c
 
 
 def test_r0_generation_time_and_euler_lotka_for_a_finite_life():
     m, s, c = np.array([0.0, 1.5, 3.0, 2.0]), np.array([0.6, 0.5, 0.4, 0.0]), 0.4
     d = schedule_demography(table("t", m, s, c))
-    l, f = _life_table(m, s, c)
+    surv, f = _life_table(m, s, c)
     a = np.arange(1, 5)
     # Euler-Lotka (Lotka 1907; Caswell 2001 sec. 4.2): sum_a lambda^-a l(a) F(a) = 1
-    assert np.sum(d.growth_rate ** -a * l * f) == pytest.approx(1.0, abs=1e-12)
+    assert np.sum(d.growth_rate**-a * surv * f) == pytest.approx(1.0, abs=1e-12)
     # Life-table R0 = sum_a l(a) m(a) (recruits per recruit; textbook)
-    assert d.net_reproductive_number == pytest.approx(np.sum(l * f), rel=1e-12)
+    assert d.net_reproductive_number == pytest.approx(np.sum(surv * f), rel=1e-12)
     # Mean age of parents in the stable population, sum_a a lambda^-a l(a) F(a)
     # (Caswell 2001 sec. 5.3.5, from memory; Bienvenu & Legendre 2015)
-    assert d.generation_time == pytest.approx(np.sum(a * d.growth_rate ** -a * l * f), rel=1e-10)
+    assert d.generation_time == pytest.approx(np.sum(a * d.growth_rate**-a * surv * f), rel=1e-10)
     # Stable age distribution proportional to lambda^-a l(a) (Caswell 2001 sec. 4.5)
-    w = d.growth_rate ** -a * l
+    w = d.growth_rate**-a * surv
     assert d.stable_age_distribution == pytest.approx(w / w.sum(), rel=1e-10)
     # Reproductive value v(a) = lambda^a / l(a) sum_{j >= a} lambda^-j l(j) F(j) (Fisher 1930)
-    v = np.array([d.growth_rate**k / l[k - 1] * np.sum((d.growth_rate ** -a * l * f)[k - 1:])
-                  for k in a])
+    v = np.array(
+        [
+            d.growth_rate**k / surv[k - 1] * np.sum((d.growth_rate**-a * surv * f)[k - 1 :])
+            for k in a
+        ]
+    )
     assert d.reproductive_values == pytest.approx(v / v[0], rel=1e-9)
 
 

@@ -17,9 +17,13 @@ _VALID = [
     for form, acts_on, counted in itertools.product(
         ["beverton-holt", "ricker", "ceiling"],
         ["recruitment", "fecundity", "adult-survival", "all-survival"],
-        ["census", "breeders", "offspring"])
+        ["census", "breeders", "offspring"],
+    )
     if not (counted == "offspring" and acts_on == "fecundity")
-    and not (form == "ceiling" and (acts_on not in ("recruitment", "all-survival") or counted != "census"))
+    and not (
+        form == "ceiling"
+        and (acts_on not in ("recruitment", "all-survival") or counted != "census")
+    )
 ]
 
 
@@ -27,11 +31,24 @@ _VALID = [
 def test_equilibrium_is_a_fixed_point_with_growth_rate_one(form, acts_on, counted):
     # A maturity-2 resident so that "breeders" and "census" differ. Adult survival is
     # low enough that density on adult survival alone can regulate it.
-    config = invasion_config(form=form, acts_on=acts_on, counted=counted, capacity=80.0,
-                             fecundity=4.0, adult_survival=0.3, juvenile_survival=0.8, maturity_age=2,
-                             mutant={"name": "one-shot", "breeding": "iteroparous", "fecundity": 2.0,
-                                     "adult_survival": 0.3, "juvenile_survival": 0.8,
-                                     "maturity_age": 2})
+    config = invasion_config(
+        form=form,
+        acts_on=acts_on,
+        counted=counted,
+        capacity=80.0,
+        fecundity=4.0,
+        adult_survival=0.3,
+        juvenile_survival=0.8,
+        maturity_age=2,
+        mutant={
+            "name": "one-shot",
+            "breeding": "iteroparous",
+            "fecundity": 2.0,
+            "adult_survival": 0.3,
+            "juvenile_survival": 0.8,
+            "maturity_age": 2,
+        },
+    )
     env = resident_environment(config)
     assert env.regulated
     # the defining property: the resident's dominant eigenvalue is 1 (Caswell 2001 ch. 16)
@@ -41,7 +58,9 @@ def test_equilibrium_is_a_fixed_point_with_growth_rate_one(form, acts_on, counte
     life = LifeCycle.from_config(config)
     census = np.zeros((2, life.n_ages))
     census[0, : env.equilibrium.census.size] = env.equilibrium.census
-    assert mean_field_step(census, life.M, life.S, life.C, life.density) == pytest.approx(census, rel=1e-7)
+    assert mean_field_step(census, life.M, life.S, life.C, life.density) == pytest.approx(
+        census, rel=1e-7
+    )
     if form == "ceiling":
         assert env.census_size == pytest.approx(80.0)
 
@@ -53,9 +72,15 @@ def test_beverton_holt_and_ricker_on_recruitment_closed_forms(b, p, c):
     # (Ricker 1954). Counting the census, census = D*.
     f_star = (1 - p) / (b * c)
     k = 150.0
-    for form, d_star in [("beverton-holt", k * (1 / f_star - 1)), ("ricker", k * np.log(1 / f_star))]:
-        env = resident_environment(invasion_config(fecundity=b, adult_survival=p, juvenile_survival=c,
-                                                   form=form, capacity=k))
+    for form, d_star in [
+        ("beverton-holt", k * (1 / f_star - 1)),
+        ("ricker", k * np.log(1 / f_star)),
+    ]:
+        env = resident_environment(
+            invasion_config(
+                fecundity=b, adult_survival=p, juvenile_survival=c, form=form, capacity=k
+            )
+        )
         assert env.factors.recruitment == pytest.approx(f_star, rel=1e-9)
         assert env.density_index == pytest.approx(d_star, rel=1e-9)
         assert env.census_size == pytest.approx(d_star, rel=1e-9)
@@ -72,8 +97,10 @@ def test_no_density_dependence_has_no_equilibrium():
     assert not env.regulated
     assert np.isnan(env.density_index) and np.isnan(env.census_size)
     assert env.demography.growth_rate == pytest.approx(0.5 + 2.0 * 0.5)
-    assert env.demography.growth_rate == schedule_demography(
-        invasion_config(form="none").schedules()[0]).growth_rate
+    assert (
+        env.demography.growth_rate
+        == schedule_demography(invasion_config(form="none").schedules()[0]).growth_rate
+    )
 
 
 def test_resident_that_cannot_grow_has_no_equilibrium():

@@ -38,7 +38,9 @@ def test_wilson_coverage():
     rng = np.random.default_rng(11)
     n, p = 200, 0.3
     xs = rng.binomial(n, p, 20000)
-    lows, highs = zip(*[(e.low, e.high) for e in (wilson_interval(int(x), n) for x in np.unique(xs))])
+    lows, highs = zip(
+        *[(e.low, e.high) for e in (wilson_interval(int(x), n) for x in np.unique(xs))]
+    )
     table = dict(zip(np.unique(xs), zip(lows, highs)))
     covered = np.mean([table[x][0] <= p <= table[x][1] for x in xs])
     assert 0.93 <= covered <= 0.97

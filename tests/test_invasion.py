@@ -9,17 +9,28 @@ from sim.config import parse_config
 from sim.lifecycle import initial_census
 from tests.invasion_configs import invasion_config
 
-_PLACEMENTS = [("beverton-holt", "recruitment"), ("beverton-holt", "fecundity"),
-               ("beverton-holt", "all-survival"), ("ricker", "recruitment"),
-               ("ricker", "all-survival"), ("ceiling", "recruitment"), ("ceiling", "all-survival")]
+_PLACEMENTS = [
+    ("beverton-holt", "recruitment"),
+    ("beverton-holt", "fecundity"),
+    ("beverton-holt", "all-survival"),
+    ("ricker", "recruitment"),
+    ("ricker", "all-survival"),
+    ("ceiling", "recruitment"),
+    ("ceiling", "all-survival"),
+]
 
 
 @pytest.mark.parametrize("form, acts_on", _PLACEMENTS)
 def test_mutant_identical_to_resident_is_neutral(form, acts_on):
     # A mutant with the resident's schedule has the resident's eigenvalue, 1 at the
     # equilibrium (Metz, Nisbet & Geritz 1992: residents are neutral against themselves).
-    twin = {"name": "twin", "breeding": "iteroparous", "fecundity": 2.0, "adult_survival": 0.5,
-            "juvenile_survival": 0.5}
+    twin = {
+        "name": "twin",
+        "breeding": "iteroparous",
+        "fecundity": 2.0,
+        "adult_survival": 0.5,
+        "juvenile_survival": 0.5,
+    }
     config = invasion_config(form=form, acts_on=acts_on, mutant=twin)
     assert invasion_fitness(config) == pytest.approx(1.0, abs=1e-10)
     assert predict(config).verdict == "neutral"
@@ -49,8 +60,10 @@ def test_without_density_dependence_fitness_is_ratio_of_growth_rates():
     assert np.isnan(p.density_index)
 
 
-@pytest.mark.parametrize("value, expected", [(1.2, "invades"), (0.8, "does not invade"),
-                                             (1 + 1e-12, "neutral"), (np.nan, "undefined")])
+@pytest.mark.parametrize(
+    "value, expected",
+    [(1.2, "invades"), (0.8, "does not invade"), (1 + 1e-12, "neutral"), (np.nan, "undefined")],
+)
 def test_verdict_words(value, expected):
     assert verdict(value) == expected
 
@@ -67,8 +80,9 @@ def test_neutral_expectation_weights_by_reproductive_value():
     # Resident maturing at 2: an age-1 individual must survive a year (P) before it breeds,
     # so it is worth P times an adult: at lambda = 1, v A = v with A = [[0, F], [P, P]]
     # gives v = (P, 1) (reproductive value, Fisher 1930; Caswell 2001 sec. 4.5).
-    config = invasion_config(maturity_age=2, fecundity=4.0, adult_survival=0.5, capacity=80.0,
-                             mutant_count=2)
+    config = invasion_config(
+        maturity_age=2, fecundity=4.0, adult_survival=0.5, capacity=80.0, mutant_count=2
+    )
     env_census = initial_census(config)[0]
     from analysis import resident_environment
 

@@ -24,7 +24,9 @@ def _fixed(config, n, seed):
     return sum(o == "mutant-fixed" for o in outcomes)
 
 
-@pytest.mark.parametrize("distribution, dispersion", [("poisson", None), ("negative-binomial", 1.5)])
+@pytest.mark.parametrize(
+    "distribution, dispersion", [("poisson", None), ("negative-binomial", 1.5)]
+)
 def test_strong_invader_establishes_at_branching_rate(distribution, dispersion):
     # Resident B_i = 2, P = 0.5, c = 0.5, Beverton-Holt on all survival, K = 200: f* = 2/3 and
     # the census is 100. A semelparous mutant with B_s = 6 has lambda = 2 and recruits
@@ -37,8 +39,14 @@ def test_strong_invader_establishes_at_branching_rate(distribution, dispersion):
     # replicates (K = 200) and 0.575 +- 0.009 over 3000 (K = 1000).
     # A theory without thinning or without the density factor would predict >= 0.94
     # (Poisson) or >= 0.74 (negative binomial).
-    config = invasion_config(mutant_fecundity=6.0, acts_on="all-survival", capacity=200.0,
-                             distribution=distribution, dispersion=dispersion, record_every=1000)
+    config = invasion_config(
+        mutant_fecundity=6.0,
+        acts_on="all-survival",
+        capacity=200.0,
+        distribution=distribution,
+        dispersion=dispersion,
+        record_every=1000,
+    )
     pred = predict(config)
     assert pred.invasion_fitness == pytest.approx(2.0)
     n = 2000
@@ -55,10 +63,22 @@ def test_age_structured_invader_establishes_at_multitype_rate():
     raw = {
         "experiment": {"seed": 1, "replicates": 1, "max_steps": 5000, "record_every": 1000},
         "density": {"form": "beverton-holt", "acts_on": "recruitment", "capacity": 100.0},
-        "allele": [{"name": "annual", "breeding": "semelparous", "fecundity": 4.0,
-                    "juvenile_survival": 0.5},
-                   {"name": "slow", "breeding": "iteroparous", "fecundity": 4.0,
-                    "adult_survival": 0.7, "juvenile_survival": 0.5, "maturity_age": 2}],
+        "allele": [
+            {
+                "name": "annual",
+                "breeding": "semelparous",
+                "fecundity": 4.0,
+                "juvenile_survival": 0.5,
+            },
+            {
+                "name": "slow",
+                "breeding": "iteroparous",
+                "fecundity": 4.0,
+                "adult_survival": 0.7,
+                "juvenile_survival": 0.5,
+                "maturity_age": 2,
+            },
+        ],
         "invasion": {"resident": "annual", "mutant": "slow"},
     }
     config = parse_config(raw)
@@ -91,10 +111,12 @@ def test_placement_of_density_dependence_moves_the_threshold():
     # Error rates: all survival fails if 74 or fewer of 1000 fix (pilot 0.244; at a true
     # 0.15 the chance is 2e-13); recruitment fails if 58 or more of 2000 fix (pilot 0.005;
     # at a true 0.01 the chance is 3e-12).
-    survival = invasion_config(mutant_fecundity=3.5, acts_on="all-survival", capacity=40.0,
-                               record_every=1000)
-    recruitment = invasion_config(mutant_fecundity=3.5, acts_on="recruitment", capacity=20.0,
-                                  record_every=1000)
+    survival = invasion_config(
+        mutant_fecundity=3.5, acts_on="all-survival", capacity=40.0, record_every=1000
+    )
+    recruitment = invasion_config(
+        mutant_fecundity=3.5, acts_on="recruitment", capacity=20.0, record_every=1000
+    )
     ps, pr = predict(survival), predict(recruitment)
     assert (ps.verdict, pr.verdict) == ("invades", "does not invade")
     assert ps.neutral_expectation == pytest.approx(pr.neutral_expectation)
@@ -109,9 +131,41 @@ def test_placement_of_density_dependence_moves_the_threshold():
 def test_strong_invader_establishes_at_branching_rate_large_population():
     # As the default test, with census 500 (K = 1000), where the mutant's own effect on D is
     # five times smaller, and 8000 replicates (+-4 SE = 0.018).
-    config = invasion_config(mutant_fecundity=6.0, acts_on="all-survival", capacity=1000.0,
-                             record_every=1000)
+    config = invasion_config(
+        mutant_fecundity=6.0, acts_on="all-survival", capacity=1000.0, record_every=1000
+    )
     pred = predict(config)
     n = 8000
     est = wilson_interval(_fixed(config, n, seed=17), n, level=Z4)
     assert est.low <= pred.establishment_probability <= est.high, (est, pred)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "acts_on, capacity, analytic, other",
+    [("recruitment", 50.0, 4.0, 3.0), ("all-survival", 100.0, 3.0, 4.0)],
+)
+def test_observed_threshold_follows_the_placement(tmp_path, acts_on, capacity, analytic, other):
+    # The observed threshold (where fixation crosses the neutral expectation) sits at the
+    # analytic one for each placement (census 50 in both) and not at the other placement's.
+    # Intervals at 99.9% (bootstrap of analysis.estimates.observed_threshold), so a correct
+    # theory fails a check with probability about 1e-3.
+    from analysis import compare, compare_thresholds
+    from sim.runner import run_experiment
+
+    sweep = [2.5, 2.75, 3.0, 3.25, 3.5, 3.75, 4.0, 4.25, 4.5]
+    config = invasion_config(
+        acts_on=acts_on,
+        capacity=capacity,
+        replicates=1000,
+        seed=23,
+        record_every=1000,
+        sweep={"allele.one-shot.fecundity": sweep},
+    )
+    path = tmp_path / "placement.h5"
+    run_experiment(config, path, progress=False)
+    table = compare(path, level=0.999)
+    row = compare_thresholds(path, table, level=0.999).iloc[0]
+    assert row["analytic"] == pytest.approx(analytic)
+    assert row["observed_low"] <= analytic <= row["observed_high"], row.to_dict()
+    assert not row["observed_low"] <= other <= row["observed_high"], row.to_dict()

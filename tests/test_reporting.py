@@ -44,8 +44,14 @@ def page(tmp_path_factory):
 def test_report_sections(page):
     text, parsed = page
     assert text.startswith("<!DOCTYPE html>")
-    assert parsed.sections == ["experiment", "prediction", "results", "figures", "verdict",
-                               "cautions"]
+    assert parsed.sections == [
+        "experiment",
+        "prediction",
+        "results",
+        "figures",
+        "verdict",
+        "cautions",
+    ]
 
 
 def test_report_is_self_contained(page):
@@ -63,7 +69,7 @@ def test_report_content(page):
     assert parsed.rows == 1 + len(SMALL_SWEEP)  # header + one row per sweep point
     assert "perennial" in words and "one-shot" in words
     assert "allele.one-shot.fecundity = 4" in words  # the analytic threshold
-    assert re.search(r"Of 4 sweep points, \d+ agrees", words)
+    assert re.search(r"Of 4 sweep points, \d+ agree, \d+ are inconclusive, \d+ disagree", words)
     assert " ".join(CAUTIONS.split()) in " ".join(words.split())
     assert "not advice for managing real populations" in words
 

@@ -24,22 +24,41 @@ def test_cole_1954(b_i):
     assert res.value == pytest.approx(b_i + 1.0, abs=1e-8)
 
 
-@pytest.mark.parametrize("form, acts_on", [("none", None), ("beverton-holt", "all-survival"),
-                                           ("ricker", "all-survival"), ("ceiling", "all-survival")])
+@pytest.mark.parametrize(
+    "form, acts_on",
+    [
+        ("none", None),
+        ("beverton-holt", "all-survival"),
+        ("ricker", "all-survival"),
+        ("ceiling", "all-survival"),
+    ],
+)
 @pytest.mark.parametrize("b_i, p, c", _GRID)
 def test_charnov_schaffer_1973(form, acts_on, b_i, p, c):
     # Charnov & Schaffer (1973): B_s = B_i + P / c without density dependence, and with
     # density dependence acting alike on juvenile and adult survival (or a ceiling on
     # everyone), which scales both terms of lambda = P + B c by the same factor.
-    config = invasion_config(form=form, acts_on=acts_on or "recruitment", fecundity=b_i,
-                             adult_survival=p, juvenile_survival=c)
+    config = invasion_config(
+        form=form,
+        acts_on=acts_on or "recruitment",
+        fecundity=b_i,
+        adult_survival=p,
+        juvenile_survival=c,
+    )
     res = threshold(config, MUTANT_FECUNDITY, bracket=(0.0, 30.0))
     assert res.converged and res.invades_above
     assert res.value == pytest.approx(b_i + p / c, abs=1e-8)
 
 
-@pytest.mark.parametrize("form, acts_on", [("beverton-holt", "recruitment"), ("ricker", "recruitment"),
-                                           ("beverton-holt", "fecundity"), ("ceiling", "recruitment")])
+@pytest.mark.parametrize(
+    "form, acts_on",
+    [
+        ("beverton-holt", "recruitment"),
+        ("ricker", "recruitment"),
+        ("beverton-holt", "fecundity"),
+        ("ceiling", "recruitment"),
+    ],
+)
 @pytest.mark.parametrize("b_i, p, c", _GRID)
 def test_mylius_diekmann_1995_recruitment(form, acts_on, b_i, p, c):
     # Density dependence on recruitment (or fecundity, which enters lambda the same way):
@@ -47,8 +66,9 @@ def test_mylius_diekmann_1995_recruitment(form, acts_on, b_i, p, c):
     # B_s c f* > 1, i.e. B_s > B_i / (1 - P) (Mylius & Diekmann 1995: R0 is maximised).
     if p * 1.0 + b_i * c <= 1.0:
         pytest.skip("resident cannot grow: no equilibrium")
-    config = invasion_config(form=form, acts_on=acts_on, fecundity=b_i, adult_survival=p,
-                             juvenile_survival=c)
+    config = invasion_config(
+        form=form, acts_on=acts_on, fecundity=b_i, adult_survival=p, juvenile_survival=c
+    )
     res = threshold(config, MUTANT_FECUNDITY, bracket=(0.0, 50.0))
     assert res.converged and res.invades_above
     assert res.value == pytest.approx(b_i / (1.0 - p), abs=1e-8)
@@ -86,20 +106,24 @@ def test_capacity_has_no_threshold():
 
 
 def test_default_bracket_extends_for_an_unbounded_parameter():
-    res = threshold(invasion_config(mutant_fecundity=1.0, fecundity=20.0, adult_survival=0.5),
-                    MUTANT_FECUNDITY)
+    res = threshold(
+        invasion_config(mutant_fecundity=1.0, fecundity=20.0, adult_survival=0.5), MUTANT_FECUNDITY
+    )
     assert res.converged and res.value == pytest.approx(40.0, abs=1e-8)
 
 
-@pytest.mark.parametrize("parameter, bracket, message", [
-    ("allele.nobody.fecundity", None, "no allele is named 'nobody'"),
-    ("allele.one-shot.fecundty", None, "did you mean 'fecundity'"),
-    ("allele.one-shot.maturity_age", None, "whole numbers"),
-    ("density.form", None, "not a number"),
-    (MUTANT_FECUNDITY, (3.0, 2.0), "low < high"),
-    (MUTANT_FECUNDITY, (-1.0, 2.0), "fecundity must be >= 0"),
-    ("allele.perennial.adult_survival", (0.2, 1.5), "must be in \\[0, 1\\]"),
-])
+@pytest.mark.parametrize(
+    "parameter, bracket, message",
+    [
+        ("allele.nobody.fecundity", None, "no allele is named 'nobody'"),
+        ("allele.one-shot.fecundty", None, "did you mean 'fecundity'"),
+        ("allele.one-shot.maturity_age", None, "whole numbers"),
+        ("density.form", None, "not a number"),
+        (MUTANT_FECUNDITY, (3.0, 2.0), "low < high"),
+        (MUTANT_FECUNDITY, (-1.0, 2.0), "fecundity must be >= 0"),
+        ("allele.perennial.adult_survival", (0.2, 1.5), "must be in \\[0, 1\\]"),
+    ],
+)
 def test_bad_parameters_are_refused(parameter, bracket, message):
     with pytest.raises(ConfigError, match=message):
         threshold(invasion_config(), parameter, bracket=bracket)
@@ -113,11 +137,14 @@ def test_with_values_uses_sweep_validation():
 
 
 def test_sweep_thresholds_and_predictions_per_point():
-    config = invasion_config(sweep={MUTANT_FECUNDITY: [3.0, 5.0],
-                                    "density.acts_on": ["recruitment", "all-survival"]})
+    config = invasion_config(
+        sweep={MUTANT_FECUNDITY: [3.0, 5.0], "density.acts_on": ["recruitment", "all-survival"]}
+    )
     results = sweep_thresholds(config)
-    assert [r.at for r in results] == [{"density.acts_on": "recruitment"},
-                                       {"density.acts_on": "all-survival"}]
+    assert [r.at for r in results] == [
+        {"density.acts_on": "recruitment"},
+        {"density.acts_on": "all-survival"},
+    ]
     assert [r.value for r in results] == pytest.approx([4.0, 3.0], abs=1e-8)
     table = predict_sweep(config)
     assert list(table["point"]) == [0, 1, 2, 3]
