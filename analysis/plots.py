@@ -6,6 +6,7 @@ written as PNG and SVG.
 
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -48,19 +49,20 @@ def _axis(table: pd.DataFrame, config) -> tuple[str | None, np.ndarray, str]:
 
 
 def _groups(table: pd.DataFrame, config, xpath):
-    """Rows grouped by the values of the other swept parameters (one line per group)."""
+    """Rows grouped by the other swept parameters: (values as a dict, label, rows) per group."""
     others = [p for p in (config.sweep or {}) if p != xpath]
     if not others:
-        return [("", table)]
-    return [
-        (
-            ", ".join(
-                f"{k} = {v}" for k, v in zip(others, key if isinstance(key, tuple) else (key,))
-            ),
-            sub,
-        )
-        for key, sub in table.groupby(others, sort=False)
-    ]
+        return [({}, "", table)]
+    out = []
+    for key, sub in table.groupby(others, sort=False):
+        at = dict(zip(others, key if isinstance(key, tuple) else (key,)))
+        out.append((at, ", ".join(f"{k} = {v}" for k, v in at.items()), sub))
+    return out
+
+
+def _same(at: dict, text: str) -> bool:
+    """True when the JSON ``at`` of a thresholds row names the group ``at``."""
+    return {k: str(v) for k, v in json.loads(text).items()} == {k: str(v) for k, v in at.items()}
 
 
 def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
@@ -68,7 +70,8 @@ def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
     xpath, _, xlabel = _axis(table, config)
     fig, ax = plt.subplots(figsize=(7.5, 4.8))
     colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
-    for g, (label, sub) in enumerate(_groups(table, config, xpath)):
+    spans = []
+    for g, (at, label, sub) in enumerate(_groups(table, config, xpath)):
         colour = colours[g % len(colours)]
         sub = sub.sort_values(xpath or "point")
         x = sub[xpath].to_numpy(float) if xpath else sub["point"].to_numpy(float)
@@ -97,27 +100,29 @@ def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
         ax.plot(
             x, sub["neutral_expectation"], ":", color=colour, label=f"neutral expectation{suffix}"
         )
-    for _, row in thresholds.iterrows():
-        if row["parameter"] != xpath:
-            continue
-        if np.isfinite(row["analytic"]):
-            ax.axvline(
-                row["analytic"],
-                color="black",
-                ls="--",
-                lw=1,
-                label=f"analytic threshold {row['analytic']:.4g}",
-            )
-        if np.isfinite(row["observed"]):
-            lo = row["observed_low"] if np.isfinite(row["observed_low"]) else ax.get_xlim()[0]
-            hi = row["observed_high"] if np.isfinite(row["observed_high"]) else ax.get_xlim()[1]
-            ax.axvspan(
-                lo,
-                hi,
-                color="grey",
-                alpha=0.15,
-                label=f"observed threshold {row['observed']:.4g} (95% interval)",
-            )
+        for _, row in thresholds.iterrows():
+            if row["parameter"] != xpath or not _same(at, row["at"]):
+                continue
+            if np.isfinite(row["analytic"]):
+                ax.axvline(
+                    row["analytic"],
+                    color=colour if label else "black",
+                    ls="--",
+                    lw=1,
+                    label=f"analytic threshold {row['analytic']:.4g}{suffix}",
+                )
+            if np.isfinite(row["observed"]):
+                spans.append((row, colour if label else "grey", suffix))
+    for row, colour, suffix in spans:  # after the data, so open bounds reach the axis ends
+        lo = row["observed_low"] if np.isfinite(row["observed_low"]) else ax.get_xlim()[0]
+        hi = row["observed_high"] if np.isfinite(row["observed_high"]) else ax.get_xlim()[1]
+        ax.axvspan(
+            lo,
+            hi,
+            color=colour,
+            alpha=0.15,
+            label=f"observed threshold {row['observed']:.4g} (95% interval){suffix}",
+        )
     ax.set_xlabel(xlabel)
     ax.set_ylabel("probability the mutant fixes")
     ax.set_ylim(bottom=0)

@@ -121,7 +121,7 @@ def _experiment_text(config) -> str:
     )
 
 
-def _prediction_text(table: pd.DataFrame, thresholds: pd.DataFrame) -> str:
+def _prediction_text(table: pd.DataFrame, thresholds: pd.DataFrame, config) -> str:
     parts = [
         "<p>A rare mutant invades when its invasion fitness, the dominant eigenvalue of its "
         "projection matrix in the resident's equilibrium environment, exceeds 1 (Metz, Nisbet "
@@ -130,6 +130,12 @@ def _prediction_text(table: pd.DataFrame, thresholds: pd.DataFrame) -> str:
         "not, it should fix less often than a neutral allele, whose chance is its share of "
         "reproductive value.</p>"
     ]
+    if config.density.form == "none":
+        parts.append(
+            "<p>Without density dependence the resident has no equilibrium: the invasion "
+            "fitness shown is the ratio of the mutant's to the resident's growth rate, and "
+            "both alleles grow, so few replicates can end with the mutant fixed.</p>"
+        )
     if not table["problem"].eq("").all():
         parts.append(
             "<p>Some points have no prediction: "
@@ -300,7 +306,7 @@ def report(
     esc = html.escape
     sections = {
         "experiment": ("The experiment", _experiment_text(config)),
-        "prediction": ("The prediction", _prediction_text(table, thresholds) + mutation),
+        "prediction": ("The prediction", _prediction_text(table, thresholds, config) + mutation),
         "results": ("Results", _table_html(table, swept) + unresolved_note),
         "figures": ("Figures", figures),
         "verdict": ("Verdict", f'<p class="verdict">{verdict_text(table, thresholds)}</p>'),
