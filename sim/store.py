@@ -31,7 +31,7 @@ from __future__ import annotations
 
 import json
 import os
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 
@@ -118,7 +118,7 @@ class ResultsWriter:
             format=_FORMAT,
             format_version=FORMAT_VERSION,
             software_version=software_version(),
-            created=datetime.now(timezone.utc).isoformat(timespec="seconds"),
+            created=datetime.now(UTC).isoformat(timespec="seconds"),
             config=json.dumps(config.model_dump(mode="json")),
             config_hash=config_hash(config),
             seed=config.experiment.seed,
