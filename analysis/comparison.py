@@ -163,7 +163,7 @@ def compare_thresholds(
         sel = np.ones(len(table), dtype=bool)
         for k, v in res.at.items():
             sel &= table[k].to_numpy() == v
-        sub = table[sel]
+        sub = table[sel & (table["replicates"].to_numpy() > 0)]  # points with replicates
         obs = observed_threshold(
             res.parameter,
             sub[res.parameter],

@@ -167,6 +167,9 @@ def observed_threshold(
     beyond the swept range; a bound among them is reported as nan (open).
     """
     x = np.asarray(x, float)
+    if x.size == 0:
+        nan = float("nan")
+        return ObservedThreshold(parameter, nan, nan, nan, 0.0, level, "no replicates to estimate from")
     order = np.argsort(x, kind="stable")
     x = x[order]
     fixed = np.asarray(fixed, float)[order]

@@ -117,19 +117,7 @@ def _check_parameter(config: Config, parameter: str) -> None:
                 [f"parameter {parameter!r}: {m.removeprefix(prefix)}" for m in err.problems]
             ) from None
     current = parameter_value(config, parameter)
-    parts = parameter.split(".")
-    if (
-        parts[0] == "allele"
-        and parts[2] in ("maturity_age", "initial_count")
-        or parameter
-        in (
-            "invasion.mutant_count",
-            "invasion.resident_count",
-            "experiment.max_steps",
-            "experiment.record_every",
-            "experiment.max_population",
-        )
-    ):
+    if isinstance(current, int) and not isinstance(current, bool):  # the schema's int fields
         raise ConfigError(
             f"{parameter}: takes whole numbers; a threshold needs a continuous parameter "
             "(sweep it instead)"
@@ -191,7 +179,7 @@ def threshold(
     bracket : (float, float), optional
         Range to search. By default the swept range when ``parameter`` is
         swept, [0, 1] for a probability, otherwise [0, 2 x current value]
-        extended by doubling (up to 1e6) until fitness - 1 changes sign.
+        extended fourfold at a time (up to 1e6) until fitness - 1 changes sign.
     tol : float, optional
         Absolute tolerance of the root.
 

@@ -82,3 +82,8 @@ def test_observed_threshold_open_and_missing():
 def test_observed_threshold_is_reproducible():
     args = ("b", [1, 2, 3], [0, 3, 30], [100, 100, 100], 0.02)
     assert repr(observed_threshold(*args, seed=4)) == repr(observed_threshold(*args, seed=4))
+
+
+def test_observed_threshold_without_points():
+    res = observed_threshold("b", [], [], [], 0.1)
+    assert math.isnan(res.value) and res.message == "no replicates to estimate from"
