@@ -209,8 +209,12 @@ def _check_reachable(address: str, timeout: float) -> None:
         return
     try:
         host, port = parse_host_port(location, default_port=8786)
+    except ValueError as err:
+        raise ClusterError(f"--cluster: {address!r} is not a dask scheduler address "
+                           f"(e.g. tcp://HOST:8786): {err}") from None
+    try:
         socket.create_connection((host, port), timeout=timeout).close()
-    except (OSError, ValueError) as err:
+    except OSError as err:
         reason = getattr(err, "strerror", None) or str(err) or type(err).__name__
         raise ClusterError(f"cannot reach the dask scheduler at {address!r}: {reason}. "
                            "Is it running, and is the address (host and port) right?") from None
@@ -252,7 +256,7 @@ class DaskPool:
         from distributed.scheduler import KilledWorker
 
         tasks = iter(tasks)
-        queue = as_completed()
+        queue = as_completed(loop=self.client.loop)
         futures = self._futures
 
         def submit_next() -> None:
@@ -280,6 +284,12 @@ class DaskPool:
             except ImportError as err:
                 raise ClusterError(f"a dask worker cannot import broodline ({err}); install "
                                    "broodline on every worker") from None
+            except RuntimeError as err:
+                if "deserializ" not in str(err):
+                    raise
+                raise ClusterError(
+                    "the dask scheduler cannot read broodline's tasks: install broodline (the "
+                    "same version) where the scheduler and the workers run, then resume") from None
             future.release()
             yield batch, results
             if n % 16 == 0:

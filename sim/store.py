@@ -53,6 +53,7 @@ import os
 import re
 import shutil
 import socket
+from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from importlib.metadata import PackageNotFoundError, version
@@ -178,22 +179,56 @@ def _fsync_path(path: Path, *, directory: bool = False) -> None:
         os.close(fd)
 
 
-def _write_atomic(path: Path, fill) -> None:
+def _write_atomic(path: Path, fill, *, in_memory: bool = True) -> None:
     """Write an HDF5 file as ``path.tmp`` with ``fill(file)``, make it durable, rename it to ``path``.
 
     After a crash at any moment ``path`` is either absent, or its old
     version, or the complete new one; a leftover ``.tmp`` is never read.
+    ``in_memory`` builds the file in memory and writes its bytes in one go
+    (for files of a batch's size): a full disk is then a plain OSError,
+    never a half-closed HDF5 file.
     """
     tmp = path.with_name(path.name + ".tmp")
     try:
-        with h5py.File(tmp, "w") as f:
-            fill(f)
-            f.flush()
-        _fsync_path(tmp)
+        if in_memory:
+            with h5py.File(tmp.name, "w", driver="core", backing_store=False) as f:
+                fill(f)
+                f.flush()
+                image = f.id.get_file_image()
+            _write_file(tmp, image)
+        else:
+            with _h5_write_errors(), h5py.File(tmp, "w") as f:
+                fill(f)
+                f.flush()
+            _fsync_path(tmp)
         _commit(tmp, path)
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise
+
+
+def _write_file(path: Path, data: bytes) -> None:
+    """Write bytes to a new file and fsync it."""
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
+    try:
+        view = memoryview(data)
+        while view:
+            view = view[os.write(fd, view):]
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+@contextmanager
+def _h5_write_errors():
+    """HDF5 reports a failed write (a full disk) as RuntimeError; raise it as the OSError it is."""
+    try:
+        yield
+    except RuntimeError as err:
+        code = re.search(r"errno = (\d+)", str(err))
+        if code is None:
+            raise
+        raise OSError(int(code.group(1)), os.strerror(int(code.group(1)))) from None
 
 
 def _commit(tmp: Path, path: Path) -> None:
@@ -300,7 +335,8 @@ class ResultsWriter:
                     "it is unfinished: pass --resume to finish it, or --overwrite to start again")
             raise FileExistsError(f"results file {where!r} exists; {hint}")
         if not os.access(folder, os.W_OK):
-            raise PermissionError(f"cannot write {where!r}: no permission to write in {str(folder)!r}")
+            raise PermissionError(f"cannot write {where!r}: the folder {str(folder)!r} is not writable "
+                                  "(no permission, or a read-only file system)")
 
     def _lock(self) -> None:
         try:
@@ -510,7 +546,7 @@ class ResultsWriter:
             return False
         shards = sorted(self.shards.values())
         try:
-            _write_atomic(self.path, lambda f: self._merge(f, shards))
+            _write_atomic(self.path, lambda f: self._merge(f, shards), in_memory=False)
         except OSError as err:
             raise ResultsError(self._write_failure(err).replace(
                 "intact", "intact (as shards)")) from None
