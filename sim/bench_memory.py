@@ -3,8 +3,10 @@
 Each size runs in a fresh Python process (peak RSS only grows within a
 process), the same small invasion experiment with more replicates. The
 report gives each run's peak resident set size of the writing process (and
-of its largest worker) and the ratio to the smallest run; a ratio near 1
-across a tenfold growth in replicates is what streaming promises.
+of its largest worker), the size of the results (uncompressed census counts,
+what a writer holding the whole experiment would need), and the ratio to the
+smallest run; a ratio near 1 across a tenfold growth in replicates, while
+the data grow tenfold, is what streaming promises.
 """
 
 from __future__ import annotations
@@ -21,13 +23,15 @@ import pandas as pd
 
 __all__ = ["MemoryReport", "measure_memory", "BENCH_CONFIG"]
 
-# A small invasion: a few dozen individuals, a few dozen seasons, census by age every season.
+# A small population of two schedules run for a fixed 100 seasons, its census by allele and age
+# (3 age classes) recorded every season: about 2.4 kB of trajectory per replicate.
 BENCH_CONFIG = """
 [experiment]
 name = "bench-memory"
 seed = 11
 replicates = {replicates}
-max_steps = 200
+max_steps = 100
+stop = "max-steps"
 record_every = 1
 
 [density]
@@ -38,9 +42,10 @@ capacity = 25
 [[allele]]
 name = "perennial"
 breeding = "iteroparous"
-fecundity = 2.0
-adult_survival = 0.5
+fecundity = 3.0
+adult_survival = 0.7
 juvenile_survival = 0.5
+maturity_age = 3
 
 [[allele]]
 name = "one-shot"
@@ -55,6 +60,7 @@ mutant = "one-shot"
 
 _CHILD = """
 import json, resource, sys, time
+import h5py
 from sim.config import load_config
 from sim.runner import run_experiment
 from sim.store import read_outcomes
@@ -66,6 +72,7 @@ if __name__ == "__main__":
     print(json.dumps({
         "seconds": seconds,
         "rows": int(len(read_outcomes(out))),
+        "records": int(h5py.File(out, "r")["trajectories/counts"].size),
         "writer_kib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss,
         "worker_kib": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss,
     }))
@@ -107,6 +114,7 @@ def measure_memory(sizes=(1000, 10000), *, workers: int = 1) -> MemoryReport:
                 raise RuntimeError(f"bench run of {n} replicates wrote {m['rows']} rows")
             rows.append({"replicates": n, "seconds": m["seconds"],
                          "file_mib": out.stat().st_size / 2**20,
+                         "data_mib": m["records"] * 4 / 2**20,  # the census counts, uncompressed
                          "writer_peak_mib": m["writer_kib"] / 1024,
                          "worker_peak_mib": m["worker_kib"] / 1024 if workers > 1 else float("nan")})
             time.sleep(0.1)

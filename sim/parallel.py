@@ -11,6 +11,7 @@ of workers or the batching, because each replicate draws from its own stream
 
 from __future__ import annotations
 
+import json
 import math
 import multiprocessing
 import os
@@ -22,6 +23,7 @@ import uuid
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, replace
+from pathlib import Path
 
 import numpy as np
 
@@ -196,6 +198,18 @@ class ProcessPool:
         self._executor.shutdown(wait=not cancel, cancel_futures=cancel)
 
 
+def _scheduler_address(address: str) -> str:
+    """An address as given, or the one in a scheduler file (``dask scheduler --scheduler-file``)."""
+    path = Path(address)
+    if not address.endswith(".json") or not path.is_file():
+        return address
+    try:
+        return json.loads(path.read_text())["address"]
+    except (OSError, ValueError, KeyError, TypeError) as err:
+        raise ClusterError(f"--cluster: cannot read a scheduler address from {address!r}: "
+                           f"{type(err).__name__}: {err}") from None
+
+
 def _check_reachable(address: str, timeout: float) -> None:
     """Refuse a malformed or unreachable TCP scheduler address quickly, with a plain message."""
     from distributed.comm import parse_address, parse_host_port
@@ -235,6 +249,7 @@ class DaskPool:
         except ImportError:
             raise ClusterError(f"--cluster needs dask.distributed, an optional extra: "
                                f"{CLUSTER_INSTALL}") from None
+        address = _scheduler_address(address)
         _check_reachable(address, timeout)
         try:
             self.client = Client(address, timeout=timeout, set_as_default=False)
@@ -310,7 +325,11 @@ class DaskPool:
 
 
 def make_pool(*, workers: int = 1, cluster: str | None = None):
-    """The pool for a run: a dask cluster at ``cluster``, else ``workers`` local processes."""
+    """The pool for a run: a dask cluster at ``cluster``, else ``workers`` local processes.
+
+    ``cluster`` is a scheduler address (``tcp://HOST:8786``) or the JSON file
+    that ``dask scheduler --scheduler-file FILE`` writes.
+    """
     if cluster is not None:
         return DaskPool(cluster)
     if workers < 1:

@@ -35,8 +35,9 @@ def add_run_options(parser) -> None:
     parser.add_argument("--workers", type=_positive, default=None, metavar="N",
                         help="local worker processes (default: the cores this process may use)")
     parser.add_argument("--cluster", metavar="ADDRESS", default=None,
-                        help="run the batches on a running dask scheduler, e.g. tcp://HOST:8786 "
-                             "(needs pip install 'broodline[cluster]')")
+                        help="run the batches on a running dask scheduler: its address "
+                             "(tcp://HOST:8786) or scheduler file (.json); needs "
+                             "pip install 'broodline[cluster]'")
     parser.add_argument("--resume", action="store_true",
                         help="finish an unfinished results file (same config), skipping what is done")
     parser.add_argument("--batch-size", type=_positive, default=None, metavar="N",

@@ -105,8 +105,8 @@ _REPLICATE_COLUMNS = {
     "trajectory_length": (np.int32, ()),
 }
 # rows buffered while merging shards: bounds the merge's memory whatever the experiment's size
-_MERGE_ROWS = 65536
-_MERGE_RECORDS = 1 << 18
+_MERGE_ROWS = 16384
+_MERGE_RECORDS = 1 << 16
 
 
 class ResultsError(Exception):

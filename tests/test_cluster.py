@@ -99,3 +99,17 @@ def test_a_lost_worker_batch_is_rerun_without_duplicate_rows(tmp_path):
     reps = read_replicates(out)
     assert not reps.duplicated(["point", "replicate"]).any()
     assert_same_datasets(reference, out)
+
+
+def test_scheduler_file_gives_the_address(tmp_path):
+    import json
+
+    from sim.parallel import _scheduler_address
+
+    f = tmp_path / "scheduler.json"
+    f.write_text(json.dumps({"type": "Scheduler", "address": "tcp://10.0.0.7:8786"}))
+    assert _scheduler_address(str(f)) == "tcp://10.0.0.7:8786"
+    assert _scheduler_address("tcp://h:1") == "tcp://h:1"
+    f.write_text("{}")
+    with pytest.raises(ClusterError, match="cannot read a scheduler address from"):
+        _scheduler_address(str(f))
