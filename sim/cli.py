@@ -60,16 +60,19 @@ def cmd_run(args) -> int:
 
 
 def cmd_demo(args) -> int:
-    config = _load(demo_config_path())
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
+    config_path = out / "demo.toml"  # a copy the user can edit and run again
+    if not config_path.exists():  # never clobber a copy the user may have edited
+        config_path.write_text(demo_config_path().read_text())
+    config = _load(demo_config_path())
     results = out / "demo.h5"
     print(describe_experiment(config))
     print()
     _run(config, results, overwrite=True, quiet=args.quiet)
-    print(f"\nNext, look at the config and run it yourself:\n"
-          f"  broodline check {demo_config_path()}\n"
-          f"  broodline run {demo_config_path()} -o my-run.h5")
+    print(f"\nNext, edit the demo's config and run it yourself:\n"
+          f"  broodline check {config_path}\n"
+          f"  broodline run {config_path} -o {out / 'my-run.h5'}")
     return 0
 
 

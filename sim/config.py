@@ -66,6 +66,12 @@ def _non_negative(x: float) -> float:
     return x
 
 
+def _resident_count(x):
+    if x == "equilibrium" or (isinstance(x, int) and not isinstance(x, bool) and 1 <= x <= MAX_COUNT):
+        return x
+    raise ValueError(f"must be 'equilibrium' or a whole number in [1, {MAX_COUNT}]")
+
+
 Probability = Annotated[float, AfterValidator(_probability)]
 NonNegative = Annotated[float, AfterValidator(_non_negative)]
 
@@ -159,7 +165,7 @@ class AlleleSection(_Section):
                 )
             if len(self.fecundity) == 0:
                 raise ValueError("fecundity: a table schedule needs at least one age")
-            if "maturity_age" in self.model_fields_set:
+            if self.maturity_age != 1:
                 raise ValueError("maturity_age: not used by a table schedule (give zeros in fecundity)")
             return self
         for key in ("fecundity", "adult_survival"):
@@ -192,7 +198,7 @@ class InvasionSection(_Section):
     resident: str
     mutant: str
     mutant_count: int = Field(1, ge=1, le=MAX_COUNT)
-    resident_count: Literal["equilibrium"] | Annotated[int, Field(ge=1, le=MAX_COUNT)] = "equilibrium"
+    resident_count: Annotated[Any, AfterValidator(_resident_count)] = "equilibrium"
 
 
 class MutationSection(_Section):
@@ -302,7 +308,8 @@ def _check_sweep_path(config: Config, path: str) -> str | None:
             return f"allele has no sweepable key {parts[2]!r}{_suggest(parts[2], AlleleSection)}"
         return None
     if parts[0] not in _SECTIONS or len(parts) != 2:
-        return "a path reads SECTION.KEY or allele.NAME.KEY (sections: experiment, density, offspring, invasion, mutation)"
+        return ("a path reads SECTION.KEY or allele.NAME.KEY "
+                "(sections: experiment, density, offspring, invasion, mutation)")
     section = _SECTIONS[parts[0]]
     if parts[1] not in section.model_fields:
         return f"[{parts[0]}] has no key {parts[1]!r}{_suggest(parts[1], section)}"

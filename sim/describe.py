@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from .config import Config, sweep_factors, sweep_points
-from .lifecycle import LifeCycle, initial_census
+from .lifecycle import initial_census
 from .meanfield import growth_rate
 
 __all__ = ["describe_experiment", "preflight"]

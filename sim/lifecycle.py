@@ -42,7 +42,7 @@ class LifeCycle:
     mutation: Mutation
 
     @classmethod
-    def from_config(cls, config: Config) -> "LifeCycle":
+    def from_config(cls, config: Config) -> LifeCycle:
         M, S, C = stack_schedules(config.schedules())
         return cls(M, S, C, config.density_dependence(), config.offspring_distribution(),
                    config.mutation_model())

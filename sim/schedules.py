@@ -57,7 +57,7 @@ class Schedule:
         """Number of age classes (the last is a plus-group)."""
         return self.fecundity.size
 
-    def padded(self, n_ages: int) -> "Schedule":
+    def padded(self, n_ages: int) -> Schedule:
         """The same life history over ``n_ages`` classes.
 
         Extra classes repeat the plus-group (same m and s). They are

@@ -55,7 +55,7 @@ import shutil
 import socket
 from contextlib import contextmanager
 from dataclasses import dataclass
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 
@@ -375,7 +375,7 @@ class ResultsWriter:
             format=_FORMAT,
             format_version=FORMAT_VERSION,
             software_version=software_version(),
-            created=datetime.now(timezone.utc).isoformat(timespec="seconds"),
+            created=datetime.now(UTC).isoformat(timespec="seconds"),
             config=json.dumps(config.model_dump(mode="json")),
             config_hash=self.hash,
             seed=config.experiment.seed,

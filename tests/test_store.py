@@ -1,71 +1,106 @@
-"""The results file: shards and the merged file read the same; the merge streams in bounded pieces."""
+"""Results files: reproducible, readable with plain h5py and pandas, never overwritten by accident."""
 
 import h5py
-import pandas as pd
+import numpy as np
 import pytest
 
-import sim.store as store
-from runs_support import BATCH, REPLICATES, assert_same_datasets, kill9, small_config, start_stopped_run
 from sim.config import sweep_points
-from sim.parallel import run_batch
-from sim.runner import run_experiment
-from sim.store import (ResultsError, ResultsWriter, parts_dir, read_attrs, read_points, read_replicates,
-                       read_trajectories)
+from sim.runner import run_experiment, run_replicate
+from sim.store import (
+    read_attrs,
+    read_point_configs,
+    read_points,
+    read_replicates,
+    read_trajectories,
+)
+from tests.conftest import make_config
 
 
-def test_unfinished_file_reads_like_the_finished_one(tmp_path):
-    # all batches written, not yet merged: the readers see the shards
-    config = small_config(replicates=6)
-    points = sweep_points(config)
-    out = tmp_path / "shards.h5"
-    writer = ResultsWriter(out, config, points)
-    for p in reversed(points):  # written out of order: the readers still give canonical order
-        writer.write(run_batch(p, 3, 5, config.experiment.seed))
-        writer.write(run_batch(p, 0, 2, config.experiment.seed))
-    writer.release()
-    assert not read_attrs(out)["complete"] and len(list(parts_dir(out).glob("p*.h5"))) == 8
-    with h5py.File(out, "r") as f:  # plain h5py sees the header and empty tables until the merge
-        assert f["replicates/point"].shape == (0,) and f["points/index"].shape == (4,)
-    merged = tmp_path / "merged.h5"
-    run_experiment(config, merged, batch_size=4, progress=False)
-    pd.testing.assert_frame_equal(read_replicates(out), read_replicates(merged))
-    pd.testing.assert_frame_equal(read_trajectories(out), read_trajectories(merged))
-    pd.testing.assert_frame_equal(read_trajectories(out, points=[2], replicates=[4], by_age=False),
-                                  read_trajectories(merged, points=[2], replicates=[4], by_age=False))
-    pd.testing.assert_frame_equal(read_points(out), read_points(merged))
-    # finishing the unfinished file gives the datasets of the uninterrupted one
-    run_experiment(config, out, resume=True, progress=False)
-    assert_same_datasets(out, merged)
+@pytest.fixture(scope="module")
+def config():
+    return make_config(
+        experiment={"replicates": 12, "max_steps": 300, "seed": 42, "record_every": 3},
+        density={"capacity": 15},
+        sweep={"allele.one-shot.fecundity": [3.0, 6.0]},
+    )
 
 
-def test_merge_in_small_pieces_gives_the_same_file(tmp_path, monkeypatch):
-    config = small_config(replicates=7)
-    whole = tmp_path / "whole.h5"
-    run_experiment(config, whole, batch_size=2, progress=False)
-    monkeypatch.setattr(store, "_MERGE_ROWS", 3)
-    monkeypatch.setattr(store, "_MERGE_RECORDS", 10)
-    pieces = tmp_path / "pieces.h5"
-    run_experiment(config, pieces, batch_size=2, progress=False)
-    assert_same_datasets(whole, pieces)
+def _datasets(path):
+    out = {}
+    with h5py.File(path, "r") as f:
+        f.visititems(lambda name, obj: out.__setitem__(name, obj[()]) if isinstance(obj, h5py.Dataset) else None)
+    return out
 
 
-def test_writer_refuses_a_replicate_twice(tmp_path):
-    config = small_config(replicates=6)
-    points = sweep_points(config)
-    writer = ResultsWriter(tmp_path / "x.h5", config, points)
-    writer.write(run_batch(points[1], 0, 3, config.experiment.seed))
-    with pytest.raises(ResultsError, match="replicates 3-4 of point 1 overlap shard p000001-r000000000"):
-        writer.write(run_batch(points[1], 3, 4, config.experiment.seed))
-    writer.release()
-    assert len(read_replicates(tmp_path / "x.h5")) == 4
+def test_same_config_and_seed_give_identical_datasets(config, tmp_path):
+    # The reproducibility promise (README): same config, seed and versions, same datasets.
+    a, b = tmp_path / "a.h5", tmp_path / "b.h5"
+    run_experiment(config, a, progress=False)
+    run_experiment(config, b, progress=False, batch_size=5)  # batching must not matter
+    da, db = _datasets(a), _datasets(b)
+    assert da.keys() == db.keys()
+    for name in da:
+        np.testing.assert_array_equal(da[name], db[name], err_msg=name)
 
 
-def test_a_corrupt_shard_is_redone_on_resume(tmp_path):
-    proc, config, out = start_stopped_run(tmp_path, "between-shards", n=3)
-    kill9(proc)
-    shard = sorted(parts_dir(out).glob("p*.h5"))[1]
-    shard.write_bytes(shard.read_bytes()[:200])  # e.g. damaged by a failing disk
-    reference = tmp_path / "ref.h5"
-    run_experiment(small_config(replicates=REPLICATES), reference, progress=False)
-    run_experiment(small_config(replicates=REPLICATES), out, resume=True, batch_size=BATCH, progress=False)
-    assert_same_datasets(reference, out)
+def test_a_replicate_can_be_rerun_alone(config, tmp_path):
+    path = tmp_path / "r.h5"
+    run_experiment(config, path, progress=False)
+    reps = read_replicates(path)
+    row = reps[(reps.point == 1) & (reps.replicate == 7)].iloc[0]
+    point = sweep_points(config)[1]
+    again = run_replicate(point, 7, config.experiment.seed)
+    assert again.outcome == row.outcome and again.steps == row.steps
+    traj = read_trajectories(path, points=[1], replicates=[7], by_age=False)
+    assert traj["step"].unique().tolist() == again.record_steps.tolist()
+    np.testing.assert_array_equal(
+        traj.pivot(index="step", columns="allele", values="count")[config.allele_names].to_numpy(),
+        again.trajectory.sum(axis=2),
+    )
+
+
+def test_layout_and_readers(config, tmp_path):
+    path = tmp_path / "r.h5"
+    summary = run_experiment(config, path, progress=False)
+    assert summary["replicates"].tolist() == [12, 12]
+    with h5py.File(path, "r") as f:  # plain h5py, as a user's script would
+        assert f.attrs["format"] == "broodline-results"
+        assert f["replicates/outcome"].shape == (24,)
+        assert f["trajectories/counts"].shape[1:] == (2, 1)
+        assert f["trajectories/counts"].compression == "gzip"
+        assert f["replicates/seed"][0] == 42
+    reps = read_replicates(path)
+    assert set(reps.outcome) <= {"mutant-fixed", "mutant-lost", "extinct", "undecided", "capped"}
+    assert (reps.spawn_key.map(tuple) == list(zip(reps.point, reps.replicate))).all()
+    fixed = reps[reps.outcome == "mutant-fixed"]
+    assert (fixed.winner == "one-shot").all() and (fixed.fixation_step <= fixed.steps).all()
+    assert read_points(path)["allele.one-shot.fecundity"].tolist() == [3.0, 6.0]
+    assert [c.allele[1].fecundity for c in read_point_configs(path)] == [3.0, 6.0]
+    assert read_attrs(path)["alleles"] == ["perennial", "one-shot"]
+    traj = read_trajectories(path)
+    assert set(traj.columns) == {"point", "replicate", "step", "allele", "age", "count"}
+    assert (traj.step % 3 == 0).sum() > 0
+
+
+def test_existing_results_are_not_overwritten(config, tmp_path):
+    path = tmp_path / "keep.h5"
+    path.write_bytes(b"precious")
+    with pytest.raises(FileExistsError, match="pass --overwrite"):
+        run_experiment(config, path, progress=False)
+    assert path.read_bytes() == b"precious"
+    run_experiment(config, path, progress=False, overwrite=True)
+    assert len(read_replicates(path)) == 24
+
+
+def test_capped_replicates_stop_and_are_marked(tmp_path):
+    config = make_config(
+        experiment={"replicates": 3, "max_steps": 200, "max_population": 500, "stop": "max-steps"},
+        density={"form": "none", "capacity": None},
+        invasion={"resident": "perennial", "mutant": "one-shot", "resident_count": 100},
+    )
+    path = tmp_path / "cap.h5"
+    run_experiment(config, path, progress=False)
+    reps = read_replicates(path)
+    # lambda = 1.5 without density dependence: every replicate passes 500 and is capped.
+    assert (reps.outcome == "capped").all()
+    assert (reps.final_census > 500).all() and (reps.steps < 20).all()
