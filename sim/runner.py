@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import threading
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -20,6 +21,7 @@ log = logging.getLogger(__name__)
 __all__ = [
     "OUTCOMES",
     "ExperimentInterrupted",
+    "request_stop",
     "fixed_outcome",
     "ReplicateResult",
     "replicate_rng",
@@ -148,6 +150,19 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None) -> p
     return table
 
 
+_STOP = threading.Event()
+
+
+def request_stop() -> None:
+    """Ask a running ``run_experiment`` to stop after saving its finished batches.
+
+    For signal handlers: besides raising KeyboardInterrupt (which Python may
+    swallow if it lands in a finalizer), they set this flag, which the run
+    checks after every batch.
+    """
+    _STOP.set()
+
+
 class ExperimentInterrupted(KeyboardInterrupt):
     """A run stopped by Ctrl-C (or SIGTERM) after saving its finished batches."""
 
@@ -236,6 +251,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
 
     points = preflight(config)
     seed = config.experiment.seed
+    _STOP.clear()
     pool = make_pool(workers=workers, cluster=cluster)  # a bad cluster address fails before any file
     try:
         writer = ResultsWriter(out, config, points, overwrite=overwrite, resume=resume)
@@ -254,6 +270,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         for batch, results in pool.run(tasks):
             writer.write(results)
             tracker.update(batch, results)
+            if _STOP.is_set():
+                raise KeyboardInterrupt
         writer.finalize()
     except BaseException as err:
         pool.shutdown(cancel=True)

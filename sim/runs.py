@@ -74,15 +74,31 @@ def _log_to_stderr() -> None:
     logger.setLevel(logging.INFO)
 
 
-def _interrupt_on_sigterm() -> None:
-    """Batch schedulers end jobs with SIGTERM: stop as on Ctrl-C, keeping finished work."""
+def _stop_on_signals() -> None:
+    """Ctrl-C, and the SIGTERM batch schedulers send at a time limit: stop, keeping finished work."""
+    from .runner import request_stop
+
     def handler(signum, frame):
+        request_stop()  # checked after every batch, in case this exception is swallowed
         raise KeyboardInterrupt
 
     try:
+        signal.signal(signal.SIGINT, handler)
         signal.signal(signal.SIGTERM, handler)
     except ValueError:  # not the main thread (e.g. called from a notebook's worker thread)
-        pass
+        return
+    previous = sys.unraisablehook
+    if getattr(previous, "broodline", False):
+        return
+
+    def quiet_stop(unraisable):
+        # the KeyboardInterrupt landed in a finalizer, which Python ignores: the run stops
+        # anyway (request_stop above), so do not print it as an error
+        if not isinstance(unraisable.exc_value, KeyboardInterrupt):
+            previous(unraisable)
+
+    quiet_stop.broodline = True
+    sys.unraisablehook = quiet_stop
 
 
 def _resume_command(config_path, out) -> str:
@@ -96,7 +112,7 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
     from .runner import ExperimentInterrupted, run_experiment
 
     _log_to_stderr()
-    _interrupt_on_sigterm()
+    _stop_on_signals()
     where = f"dask scheduler {cluster}" if cluster else \
         (f"{workers} worker processes" if workers > 1 else "1 process")
     logging.getLogger("sim.runner").info("running %s on %s", out, where)

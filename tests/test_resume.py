@@ -90,7 +90,9 @@ def _children(pid):
         return []
 
 
-def test_ctrl_c_saves_finished_work_and_prints_the_resume_command(reference, tmp_path):
+@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM], ids=["ctrl-c", "sigterm"])
+def test_ctrl_c_saves_finished_work_and_prints_the_resume_command(reference, tmp_path, signum):
+    # SIGINT is Ctrl-C; SIGTERM is what batch schedulers send at a job's time limit
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "run.h5"
     driver = tmp_path / "driver.py"
@@ -101,7 +103,7 @@ def test_ctrl_c_saves_finished_work_and_prints_the_resume_command(reference, tmp
                             cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     wait_for(lambda: len(list(parts_dir(out).glob("p*.h5"))) >= 3 or proc.poll() is not None,
              what="some finished batches")
-    proc.send_signal(signal.SIGINT)
+    proc.send_signal(signum)
     stdout, stderr = proc.communicate(timeout=60)
     assert proc.returncode == 130, stderr
     assert "Traceback" not in stderr
