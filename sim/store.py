@@ -153,7 +153,7 @@ class Shard:
         return self.last - self.first + 1
 
     @classmethod
-    def parse(cls, name: str) -> "Shard | None":
+    def parse(cls, name: str) -> Shard | None:
         m = cls._PATTERN.match(name)
         return None if m is None else cls(*(int(g) for g in m.groups()))
 

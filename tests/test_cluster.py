@@ -5,10 +5,10 @@ import socket
 
 import pytest
 
-from runs_support import assert_same_datasets, small_config
 from sim.cli import main
 from sim.parallel import ClusterError
 from sim.runner import run_experiment
+from tests.runs_support import assert_same_datasets, small_config
 
 distributed = pytest.importorskip("distributed")
 
@@ -32,7 +32,7 @@ def _free_port() -> int:
 
 def test_unreachable_scheduler_is_a_clear_error_and_touches_nothing(tmp_path, capsys):
     config = tmp_path / "c.toml"
-    from runs_support import small_text
+    from tests.runs_support import small_text
 
     config.write_text(small_text())
     out = tmp_path / "out.h5"

@@ -8,11 +8,11 @@ from pathlib import Path
 import pytest
 
 import sim.store as store
-from runs_support import BATCH, REPLICATES, assert_same_datasets, small_config, write_config
 from sim.cli import main
 from sim.config import parse_config
 from sim.runner import run_experiment
 from sim.store import ResultsError, parts_dir, read_replicates
+from tests.runs_support import BATCH, REPLICATES, assert_same_datasets, small_config, write_config
 
 
 def _mount_tmpfs(where: Path, options: str) -> bool:

@@ -8,7 +8,12 @@ import time
 from pathlib import Path
 
 import pytest
-from runs_support import (
+
+from sim.cli import main
+from sim.runner import run_experiment
+from sim.status import experiment_status
+from sim.store import ConfigMismatchError, ResultsWriter, parts_dir, read_replicates
+from tests.runs_support import (
     BATCH,
     DRIVER,
     REPLICATES,
@@ -22,11 +27,6 @@ from runs_support import (
     wait_for,
     write_config,
 )
-
-from sim.cli import main
-from sim.runner import run_experiment
-from sim.status import experiment_status
-from sim.store import ConfigMismatchError, ResultsWriter, parts_dir, read_replicates
 
 
 @pytest.fixture(scope="module")

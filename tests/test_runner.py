@@ -3,12 +3,12 @@
 import numpy as np
 import pandas as pd
 import pytest
-from runs_support import assert_same_datasets, datasets, small_config
 
 from sim.config import sweep_points
 from sim.parallel import Batch, plan_batches, run_batch
 from sim.runner import run_experiment, run_replicate
 from sim.store import read_attrs, read_replicates, read_trajectories
+from tests.runs_support import assert_same_datasets, datasets, small_config
 
 
 @pytest.fixture(scope="module")

@@ -5,12 +5,19 @@ import pandas as pd
 import pytest
 
 import sim.store as store
-from runs_support import BATCH, REPLICATES, assert_same_datasets, kill9, small_config, start_stopped_run
 from sim.config import sweep_points
 from sim.parallel import run_batch
 from sim.runner import run_experiment
-from sim.store import (ResultsError, ResultsWriter, parts_dir, read_attrs, read_points, read_replicates,
-                       read_trajectories)
+from sim.store import (
+    ResultsError,
+    ResultsWriter,
+    parts_dir,
+    read_attrs,
+    read_points,
+    read_replicates,
+    read_trajectories,
+)
+from tests.runs_support import BATCH, REPLICATES, assert_same_datasets, kill9, small_config, start_stopped_run
 
 
 def test_unfinished_file_reads_like_the_finished_one(tmp_path):

@@ -2,10 +2,10 @@
 
 import numpy as np
 
-from runs_support import BATCH, REPLICATES, kill9, start_stopped_run
 from sim.cli import main
 from sim.status import experiment_status
 from sim.store import read_replicates
+from tests.runs_support import BATCH, REPLICATES, kill9, start_stopped_run
 
 
 def test_status_while_running_after_a_crash_and_when_complete(tmp_path, capsys):

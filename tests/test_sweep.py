@@ -5,13 +5,13 @@ import tomllib
 
 import numpy as np
 import pytest
-from runs_support import small_text
 from scipy.optimize import brentq
 
 from sim.cli import main
 from sim.config import ConfigError, parse_config, sweep_points, swept_paths
 from sim.runner import run_experiment
 from sim.store import read_points, read_replicates, read_trajectories
+from tests.runs_support import small_text
 
 
 def _config(sweep_toml: str, base: str | None = None):
@@ -148,7 +148,7 @@ initial_count = 1
     assert set(reps["outcome"]) <= {"extinct", "capped"}
     n = 600
     for point, lam in enumerate([1.5, 2.0, 1.5]):
-        q = brentq(lambda x: x - math.exp(lam * (x - 1)), 0.0, 1.0 - 1e-9)
+        q = brentq(lambda x, lam=lam: x - math.exp(lam * (x - 1)), 0.0, 1.0 - 1e-9)
         observed = (reps[reps["point"] == point]["outcome"] == "extinct").mean()
         se = math.sqrt(q * (1 - q) / n)
         # 4 standard errors: a false failure about once in 16 000 runs per point
