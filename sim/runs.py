@@ -137,9 +137,13 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
 
 
 def cmd_status(args) -> int:
+    from .cli import UserError
     from .status import experiment_status
 
-    print(experiment_status(args.results))
+    try:
+        print(experiment_status(args.results))
+    except ValueError as err:  # not a results file
+        raise UserError(str(err)) from None
     return 0
 
 

@@ -667,7 +667,11 @@ def _open(path) -> h5py.File:
     path = Path(path)
     if not path.is_file():
         raise FileNotFoundError(f"results file {str(path)!r} not found")
-    f = h5py.File(path, "r")
+    try:
+        f = h5py.File(path, "r")
+    except OSError as err:
+        raise ValueError(f"{str(path)!r} is not a broodline results file (cannot open it as "
+                         f"HDF5: {err})") from None
     if f.attrs.get("format") != _FORMAT:
         f.close()
         raise ValueError(f"{str(path)!r} is not a broodline results file")

@@ -35,3 +35,11 @@ def test_status_while_running_after_a_crash_and_when_complete(tmp_path, capsys):
     done = experiment_status(out)
     assert (done.state, done.done) == ("complete", 4 * REPLICATES)
     assert done.table["done"].tolist() == [REPLICATES] * 4
+
+
+def test_status_of_something_else_is_a_clear_error(tmp_path, capsys):
+    (tmp_path / "notes.h5").write_text("not hdf5")
+    for name in ("missing.h5", "notes.h5"):
+        assert main(["status", str(tmp_path / name)]) == 2
+        err = capsys.readouterr().err
+        assert ("not found" in err or "is not a broodline results file" in err) and "Traceback" not in err
