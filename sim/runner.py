@@ -274,7 +274,10 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
                 raise KeyboardInterrupt
         writer.finalize()
     except BaseException as err:
-        pool.shutdown(cancel=True)
+        try:
+            pool.shutdown(cancel=True)
+        except Exception as cleanup:  # keep the error that stopped the run, not this one
+            log.warning("stopping the workers failed: %s", cleanup)
         writer.release()
         if isinstance(err, KeyboardInterrupt) and not isinstance(err, ExperimentInterrupted):
             raise ExperimentInterrupted(out, writer.done, writer.expected) from None
