@@ -46,18 +46,17 @@ def cmd_check(args) -> int:
     return 0
 
 
-def _run(config, out, *, overwrite, quiet):
-    from .runner import run_experiment
+def _run(config, out, *, overwrite, quiet, **options):
+    from .runs import run_from_command_line
 
-    summary = run_experiment(config, out, overwrite=overwrite, progress=not quiet)
-    print(f"\nResults: {out}")
-    _print_table(summary)
-    return summary
+    return run_from_command_line(config, out, overwrite=overwrite, quiet=quiet, **options)
 
 
 def cmd_run(args) -> int:
+    from .runs import run_options
+
     config = _load(args.config)
-    _run(config, args.output, overwrite=args.overwrite, quiet=args.quiet)
+    _run(config, args.output, overwrite=args.overwrite, quiet=args.quiet, **run_options(args))
     return 0
 
 
@@ -72,6 +71,9 @@ def cmd_demo(args) -> int:
     print(describe_experiment(config))
     print()
     _run(config, results, overwrite=True, quiet=args.quiet)
+    from analysis.commands import finish_demo  # sim imports analysis only here, lazily
+
+    finish_demo(results, out)
     print(f"\nNext, edit the demo's config and run it yourself:\n"
           f"  broodline check {config_path}\n"
           f"  broodline run {config_path} -o {out / 'my-run.h5'}")
@@ -83,7 +85,8 @@ def _register_core(sub) -> None:
     p.add_argument("config", help="experiment config (TOML)")
     p.add_argument("-o", "--output", required=True, help="results file to write (.h5)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing results file")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--quiet", action="store_true", help="no progress bar (per-point lines still logged)")
+    _add_run_options(p)
     p.set_defaults(func=cmd_run)
 
     p = sub.add_parser("check", help="validate a config and print the resolved experiment")
@@ -96,8 +99,26 @@ def _register_core(sub) -> None:
     p.set_defaults(func=cmd_demo)
 
 
+def _register_analysis(sub) -> None:
+    from analysis.commands import register  # lazily: sim does not import analysis otherwise
+
+    register(sub)
+
+
+def _add_run_options(parser) -> None:
+    from .runs import add_run_options
+
+    add_run_options(parser)
+
+
+def _register_runs(sub) -> None:
+    from .runs import register
+
+    register(sub)
+
+
 # Each entry adds its subcommands to the parser; other modules register theirs here.
-REGISTRARS = [_register_core, register_bench]
+REGISTRARS = [_register_core, _register_runs, _register_analysis, register_bench]
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -114,13 +135,20 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _run_errors() -> tuple:
+    from .parallel import PoolError
+    from .store import ResultsError
+
+    return (ResultsError, PoolError)
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     try:
         return args.func(args)
     except (ConfigError, NoEquilibriumError, UserError, FileExistsError, FileNotFoundError,
-            PermissionError, IsADirectoryError) as err:
+            PermissionError, IsADirectoryError, *_run_errors()) as err:
         print(f"broodline {args.command}: error: {err}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:

@@ -38,7 +38,10 @@ __all__ = [
     "load_config",
     "parse_config",
     "sweep_points",
+    "sweep_factors",
+    "swept_paths",
     "config_hash",
+    "config_differences",
 ]
 
 MAX_COUNT = 2**32 - 1  # census counts are stored as uint32
@@ -89,6 +92,7 @@ class ExperimentSection(_Section):
     record_every: int = Field(1, ge=1)
     engine: Literal["individual", "agents", "counts"] = "individual"
     max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT)
+    trajectory: Literal["by-age", "by-allele", "none"] = "by-age"
 
 
 class DensitySection(_Section):
@@ -253,12 +257,7 @@ class Config(_Section):
                     if abs(sum(row) - 1.0) > 1e-9:
                         problems.append(f"mutation.matrix[{i}]: row must sum to 1; got {sum(row):.12g}")
         if self.sweep is not None:
-            for path, values in self.sweep.items():
-                problem = _check_sweep_path(self, path)
-                if problem:
-                    problems.append(f"sweep.{path!r}: {problem}")
-                elif len(values) == 0:
-                    problems.append(f"sweep.{path!r}: needs at least one value")
+            problems += _check_sweep(self)
         if self.experiment.engine == "counts":
             problems += [f"experiment.engine: 'counts' is not exact for this config ({why}); "
                          "use engine = 'individual'" for why in counts_obstacles(self)]
@@ -320,9 +319,46 @@ def _check_sweep_path(config: Config, path: str) -> str | None:
         return f"[{parts[0]}] has no key {parts[1]!r}{_suggest(parts[1], section)}"
     if parts[0] == "invasion" and config.invasion is None:
         return "the config has no [invasion] table"
-    if path in ("experiment.seed", "experiment.replicates", "experiment.engine", "experiment.name"):
+    if path in ("experiment.seed", "experiment.replicates", "experiment.engine", "experiment.name",
+                "experiment.trajectory"):
         return "is set once per experiment and cannot be swept"
     return None
+
+
+LINKED = "linked"  # [[sweep.linked]]: groups of paths whose lists advance together
+
+
+def _check_sweep(config: Config) -> list[str]:
+    """Problems of the ``[sweep]`` table: paths naming nothing, empty or unequal lists."""
+    problems, seen = [], set()
+
+    def check_path(where: str, path: str, values) -> None:
+        problem = _check_sweep_path(config, path)
+        if problem:
+            problems.append(f"{where}: {problem}")
+        elif not isinstance(values, list) or len(values) == 0:
+            problems.append(f"{where}: needs a list of at least one value; got {values!r}")
+        elif path in seen:
+            problems.append(f"{where}: {path!r} is swept twice (a path belongs to one factor)")
+        seen.add(path)
+
+    for path, values in config.sweep.items():
+        if path != LINKED:
+            check_path(f"sweep.{path!r}", path, values)
+    groups = config.sweep.get(LINKED, [])
+    for g, group in enumerate(groups):
+        where = f"sweep.linked[{g}]"
+        if not isinstance(group, dict) or not group:
+            problems.append(f"{where}: write each linked group as a [[sweep.linked]] table of "
+                            f"path = [values]; got {group!r}")
+            continue
+        for path, values in group.items():
+            check_path(f"{where}.{path!r}", path, values)
+        lengths = {path: len(v) for path, v in group.items() if isinstance(v, list)}
+        if len(set(lengths.values())) > 1:
+            problems.append(f"{where}: linked lists must have equal length; got "
+                            + ", ".join(f"{p} has {n}" for p, n in lengths.items()))
+    return problems
 
 
 def _suggest(key: str, model) -> str:
@@ -351,21 +387,42 @@ class SweepPoint(BaseModel):
     config: Config
 
 
-def sweep_points(config: Config) -> list[SweepPoint]:
-    """Expand ``[sweep]`` into points: the cartesian product of the listed values.
+def sweep_factors(config: Config) -> list[dict[str, list]]:
+    """The factors of the sweep, each a dict of path -> values that vary together.
 
+    A plain ``[sweep]`` key is a factor of one path; a ``[[sweep.linked]]``
+    group is one factor whose equal-length lists are read in step. Plain
+    keys come first (in file order), then the linked groups (in file order).
+    """
+    if not config.sweep:
+        return []
+    factors = [{path: values} for path, values in config.sweep.items() if path != LINKED]
+    return factors + [dict(group) for group in config.sweep.get(LINKED, [])]
+
+
+def swept_paths(config: Config) -> list[str]:
+    """Every swept path, in the order of the points table's columns."""
+    return [path for factor in sweep_factors(config) for path in factor]
+
+
+def sweep_points(config: Config) -> list[SweepPoint]:
+    """Expand ``[sweep]`` into points: the cartesian product of its factors.
+
+    Each plain key is a factor; each ``[[sweep.linked]]`` group is one factor
+    whose lists advance together (a zip). The last factor varies fastest.
     Each point's config is validated on its own, so a swept value out of
     range is refused with the point and the key named. Without a sweep there
     is one point, the config itself.
     """
     base = config.model_dump(exclude={"sweep"}, exclude_none=True)
-    if not config.sweep:
+    factors = sweep_factors(config)
+    if not factors:
         return [SweepPoint(index=0, values={}, config=Config.model_validate(base))]
-    paths = list(config.sweep)
     points, problems = [], []
-    for i, combo in enumerate(itertools.product(*(config.sweep[p] for p in paths))):
+    levels = [range(len(next(iter(factor.values())))) for factor in factors]
+    for i, combo in enumerate(itertools.product(*levels)):
         raw = copy.deepcopy(base)
-        values = dict(zip(paths, combo))
+        values = {path: factor[path][k] for factor, k in zip(factors, combo) for path in factor}
         for path, value in values.items():
             _set_path(raw, path, value)
         try:
@@ -478,3 +535,31 @@ def config_hash(config: Config) -> str:
     """SHA-256 of the resolved config (canonical JSON); equal configs give equal hashes."""
     text = json.dumps(config.model_dump(mode="json"), sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _flatten(value, path: str = "") -> dict[str, Any]:
+    """Leaves of a JSON-like value by path (``allele[1].fecundity``); lists of scalars are leaves."""
+    if isinstance(value, dict):
+        out = {}
+        for key, item in value.items():
+            out.update(_flatten(item, f"{path}.{key}" if path else str(key)))
+        return out
+    if isinstance(value, list) and any(isinstance(v, (dict, list)) for v in value):
+        out = {}
+        for i, item in enumerate(value):
+            out.update(_flatten(item, f"{path}[{i}]"))
+        return out
+    return {path: value}
+
+
+def config_differences(old: Config | dict, new: Config | dict) -> list[str]:
+    """Lines ``path: OLD -> NEW`` for every key where two resolved configs differ."""
+    a, b = (_flatten(c.model_dump(mode="json") if isinstance(c, Config) else c) for c in (old, new))
+    missing = object()
+    lines = []
+    for path in sorted(set(a) | set(b)):
+        x, y = a.get(path, missing), b.get(path, missing)
+        if x != y:
+            show = [("(absent)" if v is missing else json.dumps(v)) for v in (x, y)]
+            lines.append(f"{path}: {show[0]} -> {show[1]}")
+    return lines

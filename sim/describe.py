@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from .aggregation import counts_obstacles
-from .config import Config, sweep_points
+from .config import Config, sweep_factors, sweep_points
 from .lifecycle import initial_census
 from .meanfield import growth_rate
 
@@ -68,12 +68,16 @@ def describe_experiment(config: Config) -> str:
     else:
         lines.append("start: " + ", ".join(f"{a.name} {a.initial_count}" for a in config.allele)
                      + " individuals at age 1")
-    lines.append(f"sweep points: {len(points)}")
+    factors = sweep_factors(config)
+    sizes = [f"{len(next(iter(f.values())))} ({' with '.join(f)})" for f in factors]
+    lines.append(f"sweep points: {len(points)}" + (f" = {' x '.join(sizes)}" if factors else ""))
     for p in points:
         if p.values:
             lines.append(f"  {p.index}: " + ", ".join(f"{k} = {v!r}" for k, v in p.values.items()))
     total = len(points) * exp.replicates
-    lines.append(f"replicates: {exp.replicates} per point, {total} in all")
+    seasons = sum(p.config.experiment.max_steps for p in points) * exp.replicates
+    lines.append(f"replicates: {exp.replicates} per point, {total} in all "
+                 f"(at most {seasons:,} seasons; trajectories {exp.trajectory})")
     lines.append(counts_engine_note(config))
     return "\n".join(lines)
 

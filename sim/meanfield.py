@@ -63,7 +63,10 @@ def stable_age_distribution(schedule: Schedule, factors: Factors = Factors()) ->
     """Right eigenvector of the dominant eigenvalue, normalised to sum 1."""
     a = projection_matrix(schedule, factors)
     vals, vecs = np.linalg.eig(a)
-    v = np.abs(np.real(vecs[:, np.argmax(np.abs(vals))]))
+    # The Perron root is real and has the largest real part; taking the largest
+    # modulus instead can pick a complex root of equal modulus when the matrix
+    # is imprimitive (e.g. semelparous with maturity_age > 1).
+    v = np.abs(np.real(vecs[:, np.argmax(np.real(vals))]))
     return v / v.sum()
 
 

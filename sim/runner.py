@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import logging
+import threading
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -12,10 +14,15 @@ from tqdm import tqdm
 from .config import Config, SweepPoint
 from .describe import preflight
 from .model import BroodModel
-from .store import ResultsWriter
+from .store import ResultsWriter, read_outcomes, read_points
+
+log = logging.getLogger(__name__)
 
 __all__ = [
     "OUTCOMES",
+    "ExperimentInterrupted",
+    "request_stop",
+    "fixed_outcome",
     "ReplicateResult",
     "replicate_rng",
     "classify",
@@ -150,32 +157,140 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None) -> p
     return table
 
 
-def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False,
-                   progress: bool = True, batch_size: int = 64) -> pd.DataFrame:
+_STOP = threading.Event()
+
+
+def request_stop() -> None:
+    """Ask a running ``run_experiment`` to stop after saving its finished batches.
+
+    For signal handlers: besides raising KeyboardInterrupt (which Python may
+    swallow if it lands in a finalizer), they set this flag, which the run
+    checks after every batch.
+    """
+    _STOP.set()
+
+
+class ExperimentInterrupted(KeyboardInterrupt):
+    """A run stopped by Ctrl-C (or SIGTERM) after saving its finished batches."""
+
+    def __init__(self, path, done: int, total: int):
+        super().__init__(f"{done} of {total} replicates are saved in {str(path)!r}")
+        self.path, self.done, self.total = Path(path), done, total
+
+
+def fixed_outcome(config: Config) -> str:
+    """The outcome counted as "fixed" in progress reports: the mutant's, with ``[invasion]``."""
+    return "mutant-fixed" if config.invasion is not None else "fixed"
+
+
+class _Progress:
+    """One bar for the whole experiment, and a log line as each sweep point completes."""
+
+    def __init__(self, writer: ResultsWriter, points, *, show: bool):
+        self.points = points
+        self.fixed_name = fixed_outcome(writer.config)
+        self.n_reps = writer.replicates
+        self.done = np.zeros(len(points), np.int64)
+        self.fixed = np.zeros(len(points), np.int64)
+        if writer.done:  # resuming: count what the shards already hold
+            so_far = read_outcomes(writer.path)
+            np.add.at(self.done, so_far["point"].to_numpy(), 1)
+            np.add.at(self.fixed, so_far["point"].to_numpy(), so_far["outcome"].to_numpy() == self.fixed_name)
+        self.bar = tqdm(total=writer.expected, initial=int(self.done.sum()), disable=not show,
+                        unit="rep", desc=writer.config.experiment.name, dynamic_ncols=True)
+        self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
+
+    def update(self, batch, results) -> None:
+        p = batch.point
+        self.done[p] += len(results)
+        self.fixed[p] += sum(r.outcome == self.fixed_name for r in results)
+        self.bar.update(len(results))
+        self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
+        if self.done[p] == self.n_reps:
+            values = self.points[p].values
+            where = f" ({', '.join(f'{k} = {v!r}' for k, v in values.items())})" if values else ""
+            log.info("point %d%s done: %d replicates, %s %d (%.3f)", p, where, self.n_reps,
+                     self.fixed_name, self.fixed[p], self.fixed[p] / self.n_reps)
+
+    def close(self) -> None:
+        self.bar.close()
+
+
+def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
+                   workers: int = 1, cluster: str | None = None, progress: bool = True,
+                   batch_size: int | None = None) -> pd.DataFrame:
     """Run every replicate of every sweep point, streaming results to an HDF5 file.
 
-    Results are written in batches of ``batch_size`` replicates and flushed,
-    so a run that stops early keeps what finished. Returns the per-point
-    summary (see ``summarize``).
+    Batches of replicates run in this process (``workers=1``), in local
+    worker processes, or on a dask cluster (``cluster``, a scheduler
+    address); this process alone writes the results. Each finished batch is
+    saved durably at once, so a run killed at any moment keeps what
+    finished, and ``resume=True`` runs only what is missing. The datasets
+    do not depend on ``workers``, ``cluster``, ``batch_size`` or resuming.
+
+    Parameters
+    ----------
+    config : Config
+    out : path-like
+        The results file (see ``sim.store`` for its layout).
+    overwrite, resume : bool
+        Replace an existing file, or finish one started with the same config.
+    workers : int
+        Local processes; ignored with ``cluster``.
+    cluster : str, optional
+        Address of a running dask.distributed scheduler, e.g. ``tcp://host:8786``.
+    progress : bool
+        Show a progress bar.
+    batch_size : int, optional
+        Replicates per batch (default: at most 64, about four batches per worker).
+
+    Returns
+    -------
+    DataFrame
+        The per-point summary (see ``summarize``).
+
+    Raises
+    ------
+    ExperimentInterrupted
+        On Ctrl-C: finished batches are saved; resume to finish.
     """
+    from .parallel import default_batch_size, make_pool, plan_batches
+
     points = preflight(config)
-    n_reps = config.experiment.replicates
     seed = config.experiment.seed
-    rows = []
-    with ResultsWriter(out, config, points, overwrite=overwrite) as writer, tqdm(
-        total=len(points) * n_reps, disable=not progress, unit="rep", desc=config.experiment.name,
-        dynamic_ncols=True,
-    ) as bar:
-        fixed = 0
-        for point in points:
-            for start in range(0, n_reps, batch_size):
-                batch = run_replicates(point, range(start, min(start + batch_size, n_reps)), seed)
-                writer.write(batch)
-                rows += [(r.point, r.outcome) for r in batch]
-                fixed += sum(r.outcome == "mutant-fixed" for r in batch)
-                bar.update(len(batch))
-                bar.set_postfix(mutant_fixed=fixed, refresh=False)
-    reps = pd.DataFrame(rows, columns=["point", "outcome"])
-    pts = pd.DataFrame({"point": [p.index for p in points],
-                        **{k: [p.values[k] for p in points] for k in (config.sweep or {})}})
-    return summarize(reps, pts)
+    _STOP.clear()
+    pool = make_pool(workers=workers, cluster=cluster)  # a bad cluster address fails before any file
+    try:
+        writer = ResultsWriter(out, config, points, overwrite=overwrite, resume=resume)
+    except BaseException:
+        pool.shutdown(cancel=True)
+        raise
+    tracker = None
+    try:
+        if writer.complete:
+            log.info("%s is already complete: nothing to run", out)
+        elif writer.done:
+            log.info("resuming %s: %d of %d replicates already saved", out, writer.done, writer.expected)
+        tracker = _Progress(writer, points, show=progress)
+        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots)
+        tasks = ((batch, points[batch.point], seed) for batch in plan_batches(writer.missing(), size))
+        for batch, results in pool.run(tasks):
+            writer.write(results)
+            tracker.update(batch, results)
+            if _STOP.is_set():
+                raise KeyboardInterrupt
+        writer.finalize()
+    except BaseException as err:
+        try:
+            pool.shutdown(cancel=True)
+        except Exception as cleanup:  # keep the error that stopped the run, not this one
+            log.warning("stopping the workers failed: %s", cleanup)
+        writer.release()
+        if isinstance(err, KeyboardInterrupt) and not isinstance(err, ExperimentInterrupted):
+            raise ExperimentInterrupted(out, writer.done, writer.expected) from None
+        raise
+    finally:
+        if tracker is not None:
+            tracker.close()
+    pool.shutdown()
+    return summarize(read_outcomes(out), read_points(out))

@@ -1,0 +1,335 @@
+"""A self-contained HTML report of an invasion experiment (figures embedded as base64 PNG)."""
+
+from __future__ import annotations
+
+import base64
+import html
+import tempfile
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from sim.store import read_attrs
+
+from .comparison import compare, compare_thresholds, experiment_config
+from .plots import plot
+
+__all__ = ["CAUTIONS", "report", "describe_allele", "verdict_text"]
+
+CAUTIONS = (
+    "broodline is a conceptual modelling tool for exploring life-history theory. This report "
+    "describes the model as configured, not any real population or species. It is not advice for "
+    "managing real populations: harvest, conservation or pest-control decisions need field data, "
+    "models fitted to them, and the local regulations and authorities that apply; defer to them."
+)
+
+_LIMITS = (
+    "The theory assumes a resident at its deterministic equilibrium and mutants rare enough not "
+    "to change it. Finite populations drift: near a threshold, observed fixation falls between "
+    "the neutral expectation and the establishment probability, points there are expected to be "
+    "inconclusive, and small populations can depart from the prediction."
+)
+
+_COUNTED = {
+    "census": "everyone at the census",
+    "breeders": "the breeders",
+    "offspring": "the offspring born",
+}
+
+_STYLE = """
+body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; max-width: 1100px;
+       margin: 2em auto; padding: 0 1em; color: #222; line-height: 1.45; }
+h1 { font-size: 1.6em; } h2 { font-size: 1.25em; margin-top: 1.6em; border-bottom: 1px solid #ddd; }
+table { border-collapse: collapse; font-size: 0.8em; margin: 0.8em 0; }
+th, td { border: 1px solid #ccc; padding: 0.2em 0.35em; text-align: right; }
+th { background: #f2f2f2; } td.text { text-align: left; white-space: nowrap; }
+td.agrees { background: #e3f4e3; } td.disagrees { background: #f8dcdc; }
+td.inconclusive { background: #f6f1dc; }
+div.scroll { overflow-x: auto; }
+figure { margin: 1em 0; } figure img { max-width: 100%; border: 1px solid #eee; }
+figcaption { font-size: 0.9em; color: #555; }
+.caution { background: #fff6e0; border-left: 4px solid #e0a800; padding: 0.6em 1em; }
+.verdict { background: #eef4fb; border-left: 4px solid #3a78c2; padding: 0.6em 1em; }
+footer { margin-top: 2em; font-size: 0.8em; color: #666; }
+"""
+
+
+def _g(v) -> str:
+    return f"{v:g}" if isinstance(v, (int, float)) else html.escape(str(v))
+
+
+def describe_allele(a) -> str:
+    """One allele's schedule in words (from its config section)."""
+    if a.breeding == "table":
+        return (
+            f"an age table: fecundity {_g(a.fecundity)} and survival {_g(a.adult_survival)} by "
+            f"census age, juvenile survival {_g(a.juvenile_survival)}"
+        )
+    at = f" at age {a.maturity_age}" if a.maturity_age > 1 else " from age 1"
+    if a.breeding == "semelparous":
+        return (
+            f"semelparous: breeds once{at} with mean fecundity {_g(a.fecundity)}, then dies; "
+            f"juvenile survival {_g(a.juvenile_survival)}"
+        )
+    return (
+        f"iteroparous: breeds every season{at} with mean fecundity {_g(a.fecundity)}, adult "
+        f"survival {_g(a.adult_survival)}, juvenile survival {_g(a.juvenile_survival)}"
+    )
+
+
+def _experiment_text(config) -> str:
+    inv, d, exp = config.invasion, config.density, config.experiment
+    alleles = {a.name: a for a in config.allele}
+    start = (
+        "at its equilibrium"
+        if inv.resident_count == "equilibrium"
+        else f"at {inv.resident_count} individuals"
+    )
+    if d.form == "none":
+        density = (
+            "no density dependence (both alleles grow without limit; the model has no equilibrium)"
+        )
+    else:
+        density = (
+            f"{d.form} density dependence with capacity K = {d.capacity:g}, acting on "
+            f"{d.placement}, the density index counting {_COUNTED[d.counted]}"
+        )
+    offspring = config.offspring.distribution + (
+        f" (dispersion {config.offspring.dispersion:g})" if config.offspring.dispersion else ""
+    )
+    sweep = ""
+    if config.sweep:
+        sweep = (
+            " The experiment sweeps "
+            + "; ".join(
+                f"<code>{html.escape(k)}</code> over {', '.join(_g(x) for x in v)}"
+                for k, v in config.sweep.items()
+            )
+            + "."
+        )
+    stop = "until one allele is left" if exp.stop == "fixation" else "for a fixed number of seasons"
+    return (
+        f"<p>A resident <b>{html.escape(inv.resident)}</b> "
+        f"({describe_allele(alleles[inv.resident])}) "
+        f"starts {start}. Into it, {inv.mutant_count} mutant"
+        f"{'s' if inv.mutant_count > 1 else ''} <b>{html.escape(inv.mutant)}</b> "
+        f"({describe_allele(alleles[inv.mutant])}) {'are' if inv.mutant_count > 1 else 'is'} "
+        f"introduced at age 1. The population has {density}; offspring numbers are {offspring}."
+        f"{sweep}</p><p>Each sweep point was run {exp.replicates} times ({exp.engine} engine), "
+        f"{stop}, at most {exp.max_steps} seasons, from seed {exp.seed}.</p>"
+    )
+
+
+def _prediction_text(table: pd.DataFrame, thresholds: pd.DataFrame, config) -> str:
+    parts = [
+        "<p>A rare mutant invades when its invasion fitness, the dominant eigenvalue of its "
+        "projection matrix in the resident's equilibrium environment, exceeds 1 (Metz, Nisbet "
+        "&amp; Geritz 1992). Where it invades, the chance that the introduced mutants escape "
+        "early loss is the survival probability of their branching process; where it does "
+        "not, it should fix less often than a neutral allele, whose chance is its share of "
+        "reproductive value.</p>"
+    ]
+    if config.density.form == "none":
+        parts.append(
+            "<p>Without density dependence the resident has no equilibrium: the invasion "
+            "fitness shown is the ratio of the mutant's to the resident's growth rate, and "
+            "both alleles grow, so few replicates can end with the mutant fixed.</p>"
+        )
+    if not table["problem"].eq("").all():
+        parts.append(
+            "<p>Some points have no prediction: "
+            + "; ".join(html.escape(p) for p in table["problem"].unique() if p)
+            + ".</p>"
+        )
+    if len(thresholds):
+        items = "".join(
+            f"<li>{html.escape(r.analytic_message)}"
+            f"{' (with ' + html.escape(r.at) + ')' if r.at != '{}' else ''}</li>"
+            for r in thresholds.itertuples()
+        )
+        parts.append(f"<p>Analytic thresholds:</p><ul>{items}</ul>")
+    return "".join(parts)
+
+
+def verdict_text(table: pd.DataFrame, thresholds: pd.DataFrame) -> str:
+    """The experiment's verdict in words: agreement counts and the thresholds side by side."""
+    counts = table["agreement"].value_counts()
+    n = len(table)
+    words = [
+        f"Of {n} sweep point{'s' if n != 1 else ''}, "
+        + ", ".join(
+            f"{counts.get(k, 0)} {word}"
+            for k, word in (
+                ("agrees", "agree"),
+                ("inconclusive", "are inconclusive"),
+                ("disagrees", "disagree"),
+            )
+        )
+        + " with the prediction (the 95% Wilson interval of the observed fixation against the "
+        "neutral expectation, on the side the invasion fitness predicts)."
+    ]
+    if counts.get("disagrees", 0):
+        bad = table.loc[table["agreement"] == "disagrees", "point"].tolist()
+        words.append(
+            f"Points that disagree: {bad}. Look at their replicates, the number of "
+            "replicates and the population size before drawing conclusions."
+        )
+    for r in thresholds.itertuples():
+        if np.isfinite(r.observed) and np.isfinite(r.analytic):
+            inside = "lies inside" if r.analytic_in_interval else "lies outside"
+            words.append(
+                f"Along <code>{html.escape(r.parameter)}</code> the observed threshold is "
+                f"{r.observed:.4g} (95% interval {_bound(r.observed_low)} to "
+                f"{_bound(r.observed_high)}); the analytic threshold {r.analytic:.4g} "
+                f"{inside} it."
+            )
+        else:
+            words.append(
+                f"Along <code>{html.escape(r.parameter)}</code>: "
+                f"{html.escape(r.observed_message)}; {html.escape(r.analytic_message)}."
+            )
+    return " ".join(words)
+
+
+def _bound(v) -> str:
+    return f"{v:.4g}" if np.isfinite(v) else "beyond the range"
+
+
+def _table_html(table: pd.DataFrame, swept: list[str]) -> str:
+    cols = [
+        "point",
+        *swept,
+        "replicates",
+        "mutant_fixed",
+        "fixed_fraction",
+        "fixed_low",
+        "fixed_high",
+        "invasion_fitness",
+        "verdict",
+        "establishment_probability",
+        "neutral_expectation",
+        "agreement",
+    ]
+    head = "".join(f"<th>{html.escape(c.replace('_', ' '))}</th>" for c in cols)
+    rows = []
+    for _, r in table.iterrows():
+        cells = []
+        for c in cols:
+            v = r[c]
+            if c in ("verdict", "agreement"):
+                cls = f"text {v}" if c == "agreement" else "text"
+                cells.append(f'<td class="{cls}">{html.escape(str(v))}</td>')
+            elif isinstance(v, (float, np.floating)):
+                cells.append(f"<td>{v:.4g}</td>")
+            else:
+                cells.append(f"<td>{html.escape(str(v))}</td>")
+        rows.append("<tr>" + "".join(cells) + "</tr>")
+    return (
+        f'<div class="scroll"><table><thead><tr>{head}</tr></thead>'
+        f"<tbody>{''.join(rows)}</tbody></table></div>"
+    )
+
+
+def _figure(png: Path, caption: str) -> str:
+    data = base64.b64encode(Path(png).read_bytes()).decode("ascii")
+    return (
+        f'<figure><img alt="{html.escape(caption)}" src="data:image/png;base64,{data}">'
+        f"<figcaption>{html.escape(caption)}</figcaption></figure>"
+    )
+
+
+_CAPTIONS = {
+    "fixation": "Observed fixation fraction of the mutant at each sweep point (95% Wilson "
+    "intervals), the branching-process establishment probability, the neutral "
+    "expectation, and the analytic and observed thresholds.",
+    "trajectories": "Mutant frequency in a sample of replicates (fixed and lost) at a few sweep "
+    "points, with the census size on the right axis.",
+    "invasion_fitness": "Invasion fitness of the mutant along the swept parameter; it invades "
+    "where the curve is above 1.",
+}
+
+
+def report(
+    path,
+    out,
+    *,
+    figures_dir=None,
+    table: pd.DataFrame | None = None,
+    thresholds: pd.DataFrame | None = None,
+) -> Path:
+    """Write one self-contained HTML page about a results file.
+
+    Parameters
+    ----------
+    path : path-like
+        A results file of an invasion experiment.
+    out : path-like
+        The HTML file to write (its folder must exist).
+    figures_dir : path-like, optional
+        Where to keep the PNG/SVG figures; by default they are drawn in a
+        temporary folder and only embedded.
+    table, thresholds : DataFrame, optional
+        ``compare(path)`` and ``compare_thresholds(path)``, if already computed.
+
+    Returns
+    -------
+    Path
+        ``out``.
+    """
+    out = Path(out)
+    if not out.parent.exists():
+        raise FileNotFoundError(f"output folder {str(out.parent)!r} does not exist")
+    config = experiment_config(path)
+    attrs = read_attrs(path)
+    table = compare(path) if table is None else table
+    thresholds = compare_thresholds(path, table) if thresholds is None else thresholds
+    swept = [c for c in (config.sweep or {})]
+    with tempfile.TemporaryDirectory() as tmp:
+        figs = plot(path, figures_dir or tmp, table=table, thresholds=thresholds)
+        figures = "".join(_figure(figs.png(name), _CAPTIONS[name]) for name in _CAPTIONS)
+    mutation = (
+        ""
+        if not config.mutation_model().active
+        else ("<p>Mutation is on in this experiment; the invasion theory above ignores it.</p>")
+    )
+    unresolved = int(table["unresolved"].sum())
+    unresolved_note = (
+        ""
+        if not unresolved
+        else (
+            f"<p>{unresolved} replicates ended neither fixed nor lost (undecided, extinct or "
+            "capped); they count as not fixed.</p>"
+        )
+    )
+    title = f"broodline report: {html.escape(config.experiment.name)}"
+    esc = html.escape
+    sections = {
+        "experiment": ("The experiment", _experiment_text(config)),
+        "prediction": ("The prediction", _prediction_text(table, thresholds, config) + mutation),
+        "results": ("Results", _table_html(table, swept) + unresolved_note),
+        "figures": ("Figures", figures),
+        "verdict": ("Verdict", f'<p class="verdict">{verdict_text(table, thresholds)}</p>'),
+        "cautions": ("Cautions", f'<p class="caution">{esc(CAUTIONS)}</p><p>{esc(_LIMITS)}</p>'),
+    }
+    body = "\n".join(
+        f'<section id="{key}"><h2>{head}</h2>{text}</section>'
+        for key, (head, text) in sections.items()
+    )
+    footer = (
+        f"Results file {esc(str(path))}; broodline {esc(str(attrs.get('software_version')))}; "
+        f"config hash {esc(str(attrs.get('config_hash', ''))[:12])}; "
+        f"created {esc(str(attrs.get('created')))}."
+    )
+    page = f"""<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8"><title>{title}</title>
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<style>{_STYLE}</style></head>
+<body>
+<h1>{title}</h1>
+{body}
+<footer>{footer}</footer>
+</body></html>
+"""
+    out.write_text(page, encoding="utf-8")
+    return out

@@ -1,0 +1,295 @@
+"""The threshold of a parameter: the value at which the mutant's invasion fitness is 1.
+
+A parameter is named by a sweep path (``allele.NAME.KEY``, ``density.capacity``,
+...) and set on a config with the sweep machinery of ``sim.config``, so a
+value is checked exactly as a swept value would be.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+from pydantic import ValidationError
+from scipy.optimize import brentq
+
+from sim.config import Config, ConfigError, parse_config, sweep_points
+from sim.meanfield import NoEquilibriumError
+
+from .invasion import invasion_fitness
+
+__all__ = ["ThresholdResult", "with_values", "parameter_value", "fitness_along", "threshold"]
+
+_GRID = 64  # intervals scanned for sign changes before the root is polished
+_MAX_UPPER = 1e6  # an open-ended bracket is extended geometrically up to here
+_ROUNDING = 1e-9  # |fitness - 1| below this is solver precision, not a side of the threshold
+
+
+@dataclass(frozen=True)
+class ThresholdResult:
+    """Where invasion fitness crosses 1 along one parameter.
+
+    Attributes
+    ----------
+    parameter : str
+        The sweep path.
+    value : float
+        The threshold (nan when none was found).
+    converged : bool
+        True when a crossing was found and polished to ``tol``.
+    bracket : tuple of float
+        The range searched.
+    fitness_at_bracket : tuple of float
+        Invasion fitness at both ends of ``bracket`` (nan where the resident
+        has no equilibrium).
+    invades_above : bool or None
+        True when the mutant invades above the threshold, False below it,
+        None without a threshold.
+    crossings : int
+        Sign changes of fitness - 1 seen on the scan grid (more than one: the
+        first is reported).
+    message : str
+        What was found, in words.
+    at : dict
+        Other swept parameters held fixed at these values (empty if none).
+    """
+
+    parameter: str
+    value: float
+    converged: bool
+    bracket: tuple[float, float]
+    fitness_at_bracket: tuple[float, float]
+    invades_above: bool | None
+    crossings: int
+    message: str
+    at: dict = field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        d = asdict(self)
+        d["bracket"], d["fitness_at_bracket"] = list(self.bracket), list(self.fitness_at_bracket)
+        return d
+
+
+def with_values(config: Config, values: dict) -> Config:
+    """``config`` with the given sweep paths set (its own sweep dropped).
+
+    Raises
+    ------
+    sim.config.ConfigError
+        Naming the path and the reason, for a path that names nothing or a
+        value out of range.
+    """
+    raw = config.model_dump(mode="python", exclude_none=True)
+    raw["sweep"] = {path: [value] for path, value in values.items()}
+    try:
+        return sweep_points(parse_config(raw))[0].config
+    except ConfigError as err:
+        where = ", ".join(f"{p} = {v!r}" for p, v in values.items())
+        raise ConfigError(
+            [
+                f"{where}: {m.split('): ', 1)[-1]}" if m.startswith("sweep point") else m
+                for m in err.problems
+            ]
+        ) from None
+
+
+def parameter_value(config: Config, parameter: str):
+    """The current value at a sweep path (None where the key is unset)."""
+    parts = parameter.split(".")
+    if parts[0] == "allele":
+        return getattr(config.allele[config.allele_index(parts[1])], parts[2])
+    return getattr(getattr(config, parts[0]), parts[1])
+
+
+def _check_parameter(config: Config, parameter: str) -> None:
+    """Refuse a path that names nothing, or a key that is not a real number."""
+    probe = config.model_dump(mode="python", exclude_none=True)
+    probe["sweep"] = {parameter: [0]}
+    try:
+        Config.model_validate(probe)  # checks the path only; values are checked per point
+    except ValidationError:
+        try:
+            parse_config(probe)
+        except ConfigError as err:  # reworded: the path is a parameter here, not a sweep key
+            prefix = f"sweep.{parameter!r}: "
+            raise ConfigError(
+                [f"parameter {parameter!r}: {m.removeprefix(prefix)}" for m in err.problems]
+            ) from None
+    current = parameter_value(config, parameter)
+    if isinstance(current, int) and not isinstance(current, bool):  # the schema's int fields
+        raise ConfigError(
+            f"{parameter}: takes whole numbers; a threshold needs a continuous parameter "
+            "(sweep it instead)"
+        )
+    if isinstance(current, list):
+        raise ConfigError(f"{parameter}: is a list by age; a threshold needs one number")
+    if current is not None and (isinstance(current, bool) or not isinstance(current, (int, float))):
+        raise ConfigError(f"{parameter}: is not a number (got {current!r})")
+
+
+def _is_probability(config: Config, parameter: str) -> bool:
+    parts = parameter.split(".")
+    if parts[0] == "allele":
+        return parts[2] in ("adult_survival", "juvenile_survival")
+    return parameter == "mutation.rate"
+
+
+def fitness_along(config: Config, parameter: str, values) -> np.ndarray:
+    """Invasion fitness at each value of ``parameter`` (nan: no resident equilibrium)."""
+    base = config.model_copy(update={"sweep": None})
+    out = np.empty(len(values))
+    for i, v in enumerate(values):
+        out[i] = _fitness(base, parameter, float(v))
+    return out
+
+
+def _fitness(base: Config, parameter: str, value: float) -> float:
+    point = sweep_points(base.model_copy(update={"sweep": {parameter: [value]}}))[0].config
+    try:
+        return invasion_fitness(point)
+    except NoEquilibriumError:
+        return float("nan")
+
+
+def _default_bracket(config: Config, parameter: str) -> tuple[float, float, bool]:
+    """(lo, hi, open_ended): the swept range, [0, 1] for a probability, else [0, extendable]."""
+    if config.sweep and parameter in config.sweep:
+        values = [float(v) for v in config.sweep[parameter]]
+        return min(values), max(values), False
+    if _is_probability(config, parameter):
+        return 0.0, 1.0, False
+    current = parameter_value(config, parameter)
+    return 0.0, max(2.0 * float(current or 0.0), 1.0), True
+
+
+def threshold(
+    config: Config, parameter: str, *, bracket=None, tol: float = 1e-10
+) -> ThresholdResult:
+    """The value of ``parameter`` at which the mutant's invasion fitness equals 1.
+
+    Parameters
+    ----------
+    config : Config
+        A config with ``[invasion]`` (its sweep, if any, is ignored except to
+        give the default bracket).
+    parameter : str
+        A sweep path naming a real-valued key, e.g. ``allele.one-shot.fecundity``,
+        ``allele.perennial.adult_survival`` or ``density.capacity``.
+    bracket : (float, float), optional
+        Range to search. By default the swept range when ``parameter`` is
+        swept, [0, 1] for a probability, otherwise [0, 2 x current value]
+        extended fourfold at a time (up to 1e6) until fitness - 1 changes sign.
+    tol : float, optional
+        Absolute tolerance of the root.
+
+    Returns
+    -------
+    ThresholdResult
+        ``converged`` is False, with the fitness at both ends, when no
+        crossing lies in the range: then there is no threshold there.
+
+    Notes
+    -----
+    Fitness - 1 is scanned on a grid of 64 intervals, and the first sign
+    change is polished with Brent's method (scipy.optimize.brentq). Points
+    where the resident has no equilibrium are skipped. Invasion fitness is
+    defined in ``analysis.invasion.invasion_fitness`` (Metz, Nisbet & Geritz
+    1992). Special cases with closed forms: Cole (1954) B_s = B_i + 1;
+    Charnov & Schaffer (1973) B_s = B_i + P / c; B_s = B_i / (1 - P) with
+    density dependence on recruitment (Mylius & Diekmann 1995).
+    """
+    if config.invasion is None:
+        raise ConfigError(
+            "invasion: a threshold needs an [invasion] table naming resident and mutant"
+        )
+    _check_parameter(config, parameter)
+    if bracket is None:
+        lo, hi, open_ended = _default_bracket(config, parameter)
+    else:
+        lo, hi = (float(b) for b in bracket)
+        open_ended = False
+        if not (math.isfinite(lo) and math.isfinite(hi) and lo < hi):
+            raise ConfigError(f"bracket: needs two finite numbers, low < high; got {bracket!r}")
+        with_values(config, {parameter: lo})  # refuse an out-of-range end now, naming it
+    if bracket is None:
+        try:
+            with_values(config, {parameter: lo})
+        except ConfigError:  # a key that must be > 0 (e.g. density.capacity)
+            lo = hi * 1e-3
+    with_values(config, {parameter: hi})
+    base = config.model_copy(update={"sweep": None})
+
+    def excess(v):
+        return _fitness(base, parameter, v) - 1.0
+
+    while True:
+        grid = np.linspace(lo, hi, _GRID + 1)
+        ex = np.array([excess(v) for v in grid])
+        crossings = _crossings(ex)
+        if crossings or not open_ended or hi >= _MAX_UPPER:
+            break
+        hi = min(hi * 4.0, _MAX_UPPER)
+    ends = (float(ex[0] + 1.0), float(ex[-1] + 1.0))
+    if not crossings:
+        f = ex[np.isfinite(ex)] + 1.0
+        signed = np.abs(f - 1.0) > _ROUNDING
+        if f.size == 0:
+            why = "the resident has no equilibrium anywhere in the range"
+        elif not signed.any():
+            why = "invasion fitness is 1 throughout (the mutant is neutral)"
+        else:
+            side = "above" if f[signed][0] > 1 else "below"
+            where = "throughout the range" if side == "above" else "nowhere in the range"
+            why = (
+                f"invasion fitness stays {side} 1 (from {f.min():.6g} to {f.max():.6g}), "
+                f"so the mutant invades {where}"
+            )
+        return ThresholdResult(
+            parameter,
+            float("nan"),
+            False,
+            (lo, hi),
+            ends,
+            None,
+            0,
+            f"no threshold of {parameter} in [{lo:g}, {hi:g}]: {why}",
+        )
+    i, j, invades_above = crossings[0]
+    value = (
+        grid[i]
+        if i == j
+        else brentq(excess, grid[i], grid[j], xtol=tol, rtol=4 * np.finfo(float).eps, maxiter=500)
+    )
+    side = "above" if invades_above else "below"
+    msg = f"{parameter} = {value:.10g}: the mutant invades {side} it"
+    if len(crossings) > 1:
+        msg += f" ({len(crossings)} crossings in [{lo:g}, {hi:g}]; the lowest is reported)"
+    return ThresholdResult(
+        parameter, float(value), True, (lo, hi), ends, invades_above, len(crossings), msg
+    )
+
+
+def _crossings(ex: np.ndarray) -> list[tuple[int, int, bool]]:
+    """Where fitness - 1 on the grid changes sign: (i, j, invades_above), in increasing order.
+
+    (i, j) brackets a strict sign change; (k, k) is a grid point within rounding of 1
+    where fitness leaves 1 (e.g. a threshold at the end of the range). Nan (no
+    equilibrium) points are skipped.
+    """
+    finite = [i for i in range(ex.size) if np.isfinite(ex[i])]
+    signed = [i for i in finite if abs(ex[i]) > _ROUNDING]
+    out = [
+        (i, j, bool(ex[j] > 0))
+        for i, j in zip(signed[:-1], signed[1:])
+        if (ex[i] > 0) != (ex[j] > 0)
+    ]
+    for k in finite:
+        if abs(ex[k]) > _ROUNDING or any(i < k < j for i, j, _ in out):
+            continue
+        after = [i for i in signed if i > k]
+        before = [i for i in signed if i < k]
+        next_to_signed = (after and after[0] == k + 1) or (before and before[-1] == k - 1)
+        if next_to_signed:
+            out.append((k, k, bool(ex[after[0]] > 0) if after else bool(ex[before[-1]] < 0)))
+    return sorted(out)

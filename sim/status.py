@@ -1,0 +1,94 @@
+"""Progress of an experiment's results file, read while it is written, after a crash, or when done."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .store import parts_dir, read_attrs, read_outcomes, read_points, writer_state
+
+__all__ = ["ExperimentStatus", "experiment_status"]
+
+
+@dataclass
+class ExperimentStatus:
+    """Where an experiment stands.
+
+    Attributes
+    ----------
+    path : Path
+    state : str
+        ``complete``, ``running`` (a broodline process is writing it) or
+        ``stopped`` (unfinished, nobody writing: finish with ``--resume``).
+    done, total : int
+        Replicates saved so far and in the whole experiment.
+    fixed : int
+        Replicates that ended in ``fixed_outcome`` so far.
+    fixed_outcome : str
+        ``mutant-fixed`` with ``[invasion]``, else ``fixed``.
+    table : DataFrame
+        Per point: ``point``, the swept values, ``done``, ``of``, ``fixed``,
+        ``fixed_fraction`` (of the replicates done), ``capped``.
+    writer : str
+        Who holds the writer's lock (``pid N on HOST``) while running.
+    """
+
+    path: Path
+    state: str
+    done: int
+    total: int
+    fixed: int
+    fixed_outcome: str
+    table: pd.DataFrame
+    writer: str = ""
+
+    def __str__(self) -> str:
+        share = f" ({self.done / self.total:.0%})" if self.total else ""
+        state = {"running": f"running ({self.writer})" if self.writer else "running",
+                 "stopped": "stopped before the end: finish it with "
+                            f"`broodline run CONFIG -o {self.path} --resume`",
+                 "complete": "complete"}[self.state]
+        head = (f"{self.path}: {state}\n{self.done} of {self.total} replicates done{share}, "
+                f"{self.fixed_outcome} so far {self.fixed}")
+        with pd.option_context("display.width", 120, "display.max_columns", 20,
+                               "display.float_format", "{:.3f}".format):
+            return head + "\n" + self.table.to_string(index=False)
+
+
+def experiment_status(path) -> ExperimentStatus:
+    """Progress per sweep point of a results file (finished, running or stopped).
+
+    Reads only the finished shards (or the merged file): safe while another
+    process writes the experiment.
+    """
+    path = Path(path)
+    state = writer_state(path)  # before reading: a run finishing meanwhile is then read whole
+    attrs = read_attrs(path)
+    points = read_points(path)
+    outcomes = read_outcomes(path)
+    fixed_name = "mutant-fixed" if attrs.get("mutant") else "fixed"
+    n = len(points)
+    done = np.bincount(outcomes["point"], minlength=n)
+    fixed = np.bincount(outcomes["point"], weights=outcomes["outcome"] == fixed_name, minlength=n)
+    capped = np.bincount(outcomes["point"], weights=outcomes["outcome"] == "capped", minlength=n)
+    per_point = attrs.get("replicates", attrs["config"]["experiment"]["replicates"])
+    table = points.copy()
+    table["done"] = done
+    table["of"] = per_point
+    table["fixed"] = fixed.astype(np.int64)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        table["fixed_fraction"] = np.where(done > 0, fixed / np.maximum(done, 1), np.nan)
+    if capped.any():
+        table["capped"] = capped.astype(np.int64)
+    writer = ""
+    if state == "running":
+        try:
+            writer = (parts_dir(path) / "lock").read_text().strip()
+        except OSError:
+            pass
+    return ExperimentStatus(path=path, state=state, done=int(done.sum()), total=int(per_point * n),
+                            fixed=int(fixed.sum()), fixed_outcome=fixed_name, table=table,
+                            writer=writer)

@@ -1,0 +1,227 @@
+"""The threshold, compare, plot and report commands (thin layers over the Python API)."""
+
+import json
+
+import pandas as pd
+import pytest
+
+from analysis.commands import finish_demo, jsonable
+from sim.cli import main
+from tests.invasion_configs import SMALL_SWEEP, write_small_results
+
+POINT_KEYS = {
+    "point",
+    "density_index",
+    "census_size",
+    "resident_growth_rate",
+    "mutant_growth_rate",
+    "invasion_fitness",
+    "verdict",
+    "establishment_probability",
+    "neutral_expectation",
+    "problem",
+}
+THRESHOLD_KEYS = {
+    "parameter",
+    "value",
+    "converged",
+    "bracket",
+    "fitness_at_bracket",
+    "invades_above",
+    "crossings",
+    "message",
+    "at",
+}
+COMPARE_KEYS = {
+    "point",
+    "replicates",
+    "mutant_fixed",
+    "mutant_lost",
+    "unresolved",
+    "fixed_fraction",
+    "fixed_low",
+    "fixed_high",
+    "invasion_fitness",
+    "verdict",
+    "establishment_probability",
+    "neutral_expectation",
+    "agreement",
+}
+COMPARE_THRESHOLD_KEYS = {
+    "parameter",
+    "at",
+    "analytic",
+    "analytic_message",
+    "observed",
+    "observed_low",
+    "observed_high",
+    "observed_message",
+    "analytic_in_interval",
+}
+
+CONFIG = """
+[experiment]
+name = "cli-test"
+replicates = 5
+[density]
+form = "beverton-holt"
+acts_on = "all-survival"
+capacity = 50
+[[allele]]
+name = "perennial"
+breeding = "iteroparous"
+fecundity = 2.0
+adult_survival = 0.5
+juvenile_survival = 0.5
+[[allele]]
+name = "one-shot"
+breeding = "semelparous"
+fecundity = 4.0
+juvenile_survival = 0.5
+[invasion]
+resident = "perennial"
+mutant = "one-shot"
+[sweep]
+"allele.one-shot.fecundity" = [2.0, 3.5, 5.0]
+"""
+
+
+@pytest.fixture(scope="module")
+def results(tmp_path_factory):
+    return write_small_results(tmp_path_factory.mktemp("cli") / "small.h5")
+
+
+@pytest.fixture
+def config(tmp_path):
+    path = tmp_path / "exp.toml"
+    path.write_text(CONFIG)
+    return path
+
+
+def test_threshold_text(config, capsys):
+    assert main(["threshold", str(config)]) == 0
+    out = capsys.readouterr().out
+    assert "resident 'perennial', mutant 'one-shot'" in out
+    # Charnov & Schaffer (1973) with density on all survival: B_i + P / c = 3
+    assert "allele.one-shot.fecundity = 3: the mutant invades above it" in out
+
+
+def test_threshold_json(config, capsys):
+    assert main(["threshold", str(config), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["resident"] == "perennial" and data["mutant"] == "one-shot"
+    assert len(data["points"]) == 3
+    assert POINT_KEYS | {"allele.one-shot.fecundity"} == set(data["points"][0])
+    assert THRESHOLD_KEYS == set(data["thresholds"][0])
+    assert data["thresholds"][0]["value"] == pytest.approx(3.0)
+
+
+def test_threshold_of_a_chosen_parameter_with_bracket(config, capsys):
+    assert (
+        main(
+            [
+                "threshold",
+                str(config),
+                "--json",
+                "--parameter",
+                "allele.perennial.fecundity",
+                "--bracket",
+                "0.5",
+                "10",
+            ]
+        )
+        == 0
+    )
+    data = json.loads(capsys.readouterr().out)
+    # one result per swept mutant fecundity B_s; B_i* = B_s - P / c = B_s - 1. For B_s = 2
+    # that is B_i = 1, where the resident itself stops being viable (P + B_i c = 1): below it
+    # there is no equilibrium, above it the mutant never invades, so no threshold.
+    first, *rest = data["thresholds"]
+    assert first["value"] is None and first["converged"] is False
+    assert "invades nowhere" in first["message"]
+    assert [t["value"] for t in rest] == pytest.approx([2.5, 4.0])
+    assert all(t["invades_above"] is False for t in rest)
+
+
+def test_compare_json_and_csv(results, tmp_path, capsys):
+    csv = tmp_path / "table.csv"
+    assert main(["compare", str(results), "--json", "--csv", str(csv)]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert COMPARE_KEYS <= set(data["points"][0])
+    assert COMPARE_THRESHOLD_KEYS == set(data["thresholds"][0])
+    table = pd.read_csv(csv)
+    assert list(table["allele.one-shot.fecundity"]) == SMALL_SWEEP
+    # an existing CSV is not replaced without --overwrite, and is left as it was
+    before = csv.read_bytes()
+    assert main(["compare", str(results), "--csv", str(csv)]) == 2
+    assert "pass --overwrite" in capsys.readouterr().err
+    assert csv.read_bytes() == before
+    assert main(["compare", str(results), "--csv", str(csv), "--overwrite"]) == 0
+    out = capsys.readouterr().out
+    assert "agreement" in out and "observed fixation" in out
+
+
+def test_plot_and_report(results, tmp_path, capsys):
+    figs = tmp_path / "figs"
+    assert main(["plot", str(results), "-o", str(figs)]) == 0
+    assert sorted(p.name for p in figs.iterdir()) == sorted(
+        f"{n}.{e}" for n in ("fixation", "trajectories", "invasion_fitness") for e in ("png", "svg")
+    )
+    assert main(["plot", str(results), "-o", str(figs)]) == 2
+    assert "pass --overwrite" in capsys.readouterr().err
+    page = tmp_path / "r.html"
+    assert main(["report", str(results), "-o", str(page)]) == 0
+    assert page.read_text().startswith("<!DOCTYPE html>")
+    assert main(["report", str(results), "-o", str(page)]) == 2
+
+
+@pytest.mark.parametrize(
+    "argv, message",
+    [
+        (["compare", "missing.h5"], "not found"),
+        (["plot", "missing.h5", "-o", "x"], "not found"),
+        (["threshold", "missing.toml"], "not found"),
+    ],
+)
+def test_user_errors_exit_2(argv, message, tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert message in err and "Traceback" not in err
+
+
+def test_not_a_results_file(config, capsys):
+    assert main(["compare", str(config)]) == 2
+    assert "cannot be read as a broodline results file" in capsys.readouterr().err
+
+
+def test_threshold_bad_parameter_and_no_invasion(config, tmp_path, capsys):
+    assert main(["threshold", str(config), "--parameter", "allele.one-shot.fecundty"]) == 2
+    assert "did you mean 'fecundity'" in capsys.readouterr().err
+    plain = tmp_path / "plain.toml"
+    plain.write_text(
+        CONFIG.split("[invasion]")[0].replace(
+            "juvenile_survival = 0.5\n[[allele]]",
+            "juvenile_survival = 0.5\ninitial_count = 5\n[[allele]]",
+        )
+    )
+    assert main(["threshold", str(plain)]) == 2
+    assert "needs an [invasion] table" in capsys.readouterr().err
+
+
+def test_finish_demo_prints_table_and_report(results, tmp_path, capsys):
+    page = finish_demo(results, tmp_path)
+    out = capsys.readouterr().out
+    assert "agreement" in out
+    assert f"Report:  {page}" in out
+    assert (tmp_path / "fixation.png").exists() and page.exists()
+
+
+def test_jsonable():
+    import numpy as np
+
+    assert jsonable({"a": np.float64("nan"), "b": [np.int64(3), float("inf")], "c": "x"}) == {
+        "a": None,
+        "b": [3, None],
+        "c": "x",
+    }

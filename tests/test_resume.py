@@ -1,0 +1,164 @@
+"""Crash-safe resume: kill -9 at several points of a real run, Ctrl-C, a changed config refused."""
+
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from sim.cli import main
+from sim.runner import run_experiment
+from sim.status import experiment_status
+from sim.store import ConfigMismatchError, ResultsWriter, parts_dir, read_replicates
+from tests.runs_support import (
+    BATCH,
+    DRIVER,
+    REPLICATES,
+    ROOT,
+    assert_same_datasets,
+    cli,
+    env,
+    kill9,
+    small_config,
+    start_stopped_run,
+    wait_for,
+    write_config,
+)
+
+
+@pytest.fixture(scope="module")
+def reference(tmp_path_factory):
+    """The uninterrupted run."""
+    folder = tmp_path_factory.mktemp("reference")
+    out = folder / "ref.h5"
+    run_experiment(small_config(replicates=REPLICATES), out, workers=1, progress=False)
+    return out
+
+
+def rows_so_far(out, reference):
+    """Rows readable after the crash: each must equal the uninterrupted run's row."""
+    now = read_replicates(out)
+    ref = read_replicates(reference).set_index(["point", "replicate"])
+    for row in now.drop(columns=["trajectory_start"]).itertuples(index=False):
+        expected = ref.loc[(row.point, row.replicate)]
+        assert (row.outcome, row.steps, row.final_census) == \
+               (expected.outcome, expected.steps, expected.final_census)
+    assert not now.duplicated(["point", "replicate"]).any()
+    return len(now)
+
+
+@pytest.mark.parametrize("where, n, saved", [
+    ("before-any-shard", 1, 0),
+    ("mid-shard-write", 4, 2 * BATCH),  # call 1 writes the header
+    ("shard-not-renamed", 5, 4 * BATCH),
+    ("between-shards", 9, 9 * BATCH),
+    ("mid-merge", 1, 4 * REPLICATES),
+    ("merged-before-cleanup", 1, 4 * REPLICATES),
+])
+def test_kill9_then_resume_gives_the_uninterrupted_datasets(reference, tmp_path, where, n, saved):
+    proc, config, out = start_stopped_run(tmp_path, where, n)
+    kill9(proc)
+    assert rows_so_far(out, reference) == saved  # the file stays readable, with what finished
+    resumed = main(["run", str(config), "-o", str(out), "--resume", "--workers", "1", "--quiet"])
+    assert resumed == 0
+    assert_same_datasets(reference, out)
+    assert not parts_dir(out).exists()
+    assert not list(tmp_path.glob("*.tmp"))
+
+
+def test_kill9_with_worker_processes_then_resume_from_the_command_line(reference, tmp_path):
+    proc, config, out = start_stopped_run(tmp_path, "between-shards", n=6, workers=2)
+    children = _children(proc.pid)
+    kill9(proc)
+    # the orphaned workers notice the writer is gone and exit
+    wait_for(lambda: not any(Path(f"/proc/{c}").exists() for c in children), timeout=20,
+             what="orphaned workers to exit")
+    done = cli("run", config, "-o", out, "--resume", "--workers", "2")
+    assert done.returncode == 0, done.stderr
+    assert "resuming" in done.stderr and f"of {4 * REPLICATES} replicates already saved" in done.stderr
+    assert_same_datasets(reference, out)
+
+
+def _children(pid):
+    try:
+        tasks = Path(f"/proc/{pid}/task").iterdir()
+        return [int(c) for t in tasks for c in (t / "children").read_text().split()]
+    except OSError:
+        return []
+
+
+@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM], ids=["ctrl-c", "sigterm"])
+def test_ctrl_c_saves_finished_work_and_prints_the_resume_command(reference, tmp_path, signum):
+    # SIGINT is Ctrl-C; SIGTERM is what batch schedulers send at a job's time limit
+    config = write_config(tmp_path, replicates=REPLICATES)
+    out = tmp_path / "run.h5"
+    driver = tmp_path / "driver.py"
+    driver.write_text(DRIVER)
+    proc = subprocess.Popen([sys.executable, str(driver), "slow-commits", "0", str(tmp_path / "x"),
+                             "run", str(config), "-o", str(out), "--workers", "2", "--batch-size", "1",
+                             "--quiet"],
+                            cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    wait_for(lambda: len(list(parts_dir(out).glob("p*.h5"))) >= 3 or proc.poll() is not None,
+             what="some finished batches")
+    proc.send_signal(signum)
+    stdout, stderr = proc.communicate(timeout=60)
+    assert proc.returncode == 130, stderr
+    assert "Traceback" not in stderr
+    assert f"broodline run {config} -o {out} --resume" in stderr
+    assert "replicates are saved in" in stderr
+    saved = rows_so_far(out, reference)
+    assert 3 <= saved < 4 * REPLICATES
+    assert experiment_status(out).state == "stopped"
+    assert main(["run", str(config), "-o", str(out), "--resume", "--workers", "1", "--quiet"]) == 0
+    assert_same_datasets(reference, out)
+
+
+def test_resume_refuses_a_changed_config_and_says_what_differs(tmp_path, capsys):
+    proc, config, out = start_stopped_run(tmp_path, "between-shards", n=2)
+    kill9(proc)
+    changed = small_config(replicates=REPLICATES + 1)
+    with pytest.raises(ConfigMismatchError) as err:
+        run_experiment(changed, out, resume=True, progress=False)
+    assert err.value.differences == [f"experiment.replicates: {REPLICATES} -> {REPLICATES + 1}"]
+    config.write_text(config.read_text().replace('capacity = 25', 'capacity = 26'))
+    assert main(["run", str(config), "-o", str(out), "--resume", "--quiet"]) == 2
+    message = capsys.readouterr().err
+    assert "it was started with another config" in message
+    assert "density.capacity: 25.0 -> 26.0" in message
+    assert "Traceback" not in message
+    assert len(read_replicates(out)) == 2 * BATCH  # nothing lost
+
+
+def test_run_refuses_an_unfinished_file_without_resume_and_a_second_writer(tmp_path, capsys):
+    proc, config, out = start_stopped_run(tmp_path, "between-shards", n=1)
+    try:
+        # while the first run is alive (holding the lock), a resume is refused
+        with pytest.raises(Exception, match="is being written by another broodline run"):
+            ResultsWriter(out, small_config(replicates=REPLICATES), _points(), resume=True)
+    finally:
+        kill9(proc)
+    assert main(["run", str(config), "-o", str(out), "--quiet"]) == 2
+    assert "it is unfinished: pass --resume to finish it, or --overwrite" in capsys.readouterr().err
+    assert main(["run", str(config), "-o", str(out), "--resume", "--overwrite"]) == 2
+    assert len(read_replicates(out)) == BATCH
+
+
+def test_resume_of_a_complete_file_runs_nothing(reference, tmp_path):
+    out = tmp_path / "done.h5"
+    out.write_bytes(reference.read_bytes())
+    before = out.stat().st_mtime_ns
+    time.sleep(0.01)
+    run_experiment(small_config(replicates=REPLICATES), out, resume=True, progress=False)
+    assert out.stat().st_mtime_ns == before
+    assert not parts_dir(out).exists()
+    assert main(["run", str(ROOT / "nowhere.toml"), "-o", str(out), "--resume"]) == 2
+    assert os.path.getsize(out) == os.path.getsize(reference)
+
+
+def _points():
+    from sim.config import sweep_points
+
+    return sweep_points(small_config(replicates=REPLICATES))

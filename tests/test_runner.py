@@ -1,0 +1,96 @@
+"""Running experiments: the datasets do not depend on workers or batching; trajectories as asked."""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from sim.config import sweep_points
+from sim.parallel import Batch, plan_batches, run_batch
+from sim.runner import run_experiment, run_replicate
+from sim.store import read_attrs, read_replicates, read_trajectories
+from tests.runs_support import assert_same_datasets, datasets, small_config
+
+
+@pytest.fixture(scope="module")
+def reference(tmp_path_factory):
+    """The experiment run in this process, one batch size."""
+    out = tmp_path_factory.mktemp("ref") / "ref.h5"
+    run_experiment(small_config(replicates=14), out, workers=1, batch_size=14, progress=False)
+    return out
+
+
+def test_one_and_two_workers_give_identical_datasets(reference, tmp_path):
+    out = tmp_path / "two.h5"
+    summary = run_experiment(small_config(replicates=14), out, workers=2, batch_size=3, progress=False)
+    assert_same_datasets(reference, out)
+    assert summary["replicates"].tolist() == [14, 14, 14, 14]
+
+
+@pytest.mark.parametrize("batch_size", [1, 5])
+def test_batch_size_does_not_change_datasets(reference, tmp_path, batch_size):
+    out = tmp_path / "b.h5"
+    run_experiment(small_config(replicates=14), out, workers=1, batch_size=batch_size, progress=False)
+    assert_same_datasets(reference, out)
+
+
+def test_file_is_canonical_and_complete(reference):
+    reps = read_replicates(reference)
+    assert read_attrs(reference)["complete"]
+    assert list(zip(reps["point"], reps["replicate"])) == [(p, r) for p in range(4) for r in range(14)]
+    assert reps["spawn_key"].tolist() == list(zip(reps["point"], reps["replicate"]))
+    # trajectories are stored back to back in the same order
+    ends = (reps["trajectory_start"] + reps["trajectory_length"]).to_numpy()
+    assert reps["trajectory_start"].iloc[0] == 0 and (ends[:-1] == reps["trajectory_start"].to_numpy()[1:]).all()
+
+
+def test_a_replicate_rerun_alone_matches_the_file(reference):
+    # each replicate's stream is SeedSequence(seed, spawn_key=(point, replicate)) (numpy docs),
+    # so replicate 9 of point 3 re-run on its own gives the stored row and trajectory
+    point = sweep_points(small_config(replicates=14))[3]
+    alone = run_replicate(point, 9, point.config.experiment.seed)
+    row = read_replicates(reference).query("point == 3 and replicate == 9").iloc[0]
+    assert (row.outcome, row.steps, row.final_census) == (alone.outcome, alone.steps, alone.final_census)
+    traj = read_trajectories(reference, points=[3], replicates=[9])
+    assert traj["step"].unique().tolist() == alone.record_steps.tolist()
+    counts = traj["count"].to_numpy().reshape(alone.trajectory.shape)
+    assert np.array_equal(counts, alone.trajectory)
+
+
+def test_plan_batches_cuts_runs_of_missing_replicates():
+    missing = {0: [range(0, 5)], 2: [range(3, 4), range(7, 12)]}
+    assert plan_batches(missing, 2) == [Batch(0, 0, 1), Batch(0, 2, 3), Batch(0, 4, 4), Batch(2, 3, 3),
+                                        Batch(2, 7, 8), Batch(2, 9, 10), Batch(2, 11, 11)]
+    with pytest.raises(ValueError, match="batch_size must be >= 1; got 0"):
+        plan_batches(missing, 0)
+
+
+def test_by_allele_is_the_sum_over_ages_and_none_keeps_no_trajectory(reference, tmp_path):
+    by_allele = tmp_path / "by-allele.h5"
+    none = tmp_path / "none.h5"
+    run_experiment(small_config(replicates=14, trajectory="by-allele"), by_allele, progress=False)
+    run_experiment(small_config(replicates=14, trajectory="none"), none, progress=False)
+    full = read_trajectories(reference, by_age=False)
+    pd.testing.assert_frame_equal(read_trajectories(by_allele, by_age=False), full)
+    with pytest.raises(ValueError, match="by_age=False"):
+        read_trajectories(by_allele)
+    assert read_trajectories(none).empty
+    assert datasets(none)["trajectories/counts"].shape[0] == 0
+    # outcomes do not depend on what is kept of the trajectories
+    cols = ["point", "replicate", "outcome", "steps", "fixation_step", "final_census"]
+    for other in (by_allele, none):
+        pd.testing.assert_frame_equal(read_replicates(other)[cols], read_replicates(reference)[cols])
+
+
+def test_record_every_thins_the_trajectory(tmp_path):
+    out = tmp_path / "thin.h5"
+    run_experiment(small_config(replicates=3, record_every=7), out, progress=False)
+    for (_, _), steps in read_trajectories(out, by_age=False).groupby(["point", "replicate"])["step"]:
+        s = np.unique(steps.to_numpy())
+        assert s[0] == 0 and all(x % 7 == 0 for x in s[:-1])  # the last season is always kept
+
+
+def test_run_batch_reduces_trajectories_in_the_worker():
+    point = sweep_points(small_config(replicates=4, trajectory="by-allele"))[0]
+    results = run_batch(point, 1, 3, point.config.experiment.seed)
+    assert [r.replicate for r in results] == [1, 2, 3]
+    assert all(r.trajectory.ndim == 2 and r.trajectory.dtype == np.uint32 for r in results)
