@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..lifecycle import LifeCycle
 from .season import OneReplicate, ReplicateBatch
 
 __all__ = ["CountsEngine", "CountsPopulations"]
@@ -30,20 +29,8 @@ __all__ = ["CountsEngine", "CountsPopulations"]
 class CountsPopulations(ReplicateBatch):
     """Replicate populations held as counts by (replicate, class).
 
-    Parameters
-    ----------
-    life : LifeCycle
-    census : ndarray, shape (n_replicates, n_alleles, n_ages)
-    rngs : list of numpy.random.Generator
-        One stream per replicate.
+    Parameters are those of ``ReplicateBatch``.
     """
-
-    def __init__(self, life: LifeCycle, census: np.ndarray, rngs):
-        super().__init__(life, census, rngs)
-        n = self.rules.n_classes
-        # ageing as a matrix on the class axis: survivors of class i move to aged[i]
-        self._ageing = np.zeros((n, n), dtype=np.int64)
-        self._ageing[np.arange(n), self.rules.aged] = 1
 
     @property
     def sizes(self) -> np.ndarray:
@@ -52,7 +39,7 @@ class CountsPopulations(ReplicateBatch):
 
     def state_bytes(self) -> int:
         """Bytes held between seasons (independent of the census size)."""
-        return self.counts.nbytes + self.recruits.nbytes + self._ageing.nbytes
+        return self.counts.nbytes + self.recruits.nbytes
 
     def step(self) -> None:
         """Advance every replicate one season."""
@@ -67,7 +54,8 @@ class CountsPopulations(ReplicateBatch):
             survivors[:, c] = [g.binomial(n, p) if n else 0 for n, p, g in
                                zip(counts[:, c].tolist(), (rules.survival[c] * f.adult).tolist(), rngs)]
         recruits = rules.recruits(counts, births, f, rngs)
-        aged = survivors @ self._ageing
+        aged = np.zeros_like(survivors)  # survivors of class i move to class aged[i]
+        np.add.at(aged, (slice(None), rules.aged), survivors)
         born = recruits.sum(axis=1)
         if rules.ceiling is None:
             aged[:, rules.first] += recruits
