@@ -13,8 +13,8 @@ chance that a correct engine fails for a seed picked at random.
   1e-5);
 - fractions (fixation): two-proportion z with pooled variance, |z| > 4.5.
 
-About 70 such checks run in the default suite, so a correct engine fails one
-with probability below 1e-3.
+About 130 such checks run in the default suite, so a correct engine fails one
+with probability below 2e-3.
 """
 
 import numpy as np
