@@ -80,9 +80,17 @@ def default_workers() -> int:
         return os.cpu_count() or 1
 
 
-def default_batch_size(n_replicates: int, slots: int) -> int:
-    """Replicates per batch: at most 64, small enough that every slot gets about four batches."""
-    return max(1, min(64, math.ceil(n_replicates / (4 * max(slots, 1)))))
+# Individuals a batch holds at once by default: enough that a batch's per-season Python
+# work (a few generator calls per replicate) is spread over many individuals, few enough
+# that a batch finishes (and is saved) quickly.
+BATCH_INDIVIDUALS = 100_000
+
+
+def default_batch_size(n_replicates: int, slots: int, census_size: int = 1) -> int:
+    """Replicates per batch: about ``BATCH_INDIVIDUALS`` individuals at the starting census
+    (at most 1024 replicates), and small enough that every slot gets about four batches."""
+    cap = max(1, min(1024, BATCH_INDIVIDUALS // max(census_size, 1)))
+    return max(1, min(cap, math.ceil(n_replicates / (4 * max(slots, 1)))))
 
 
 def plan_batches(missing: dict[int, list[range]], batch_size: int) -> list[Batch]:

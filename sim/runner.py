@@ -13,6 +13,7 @@ from tqdm import tqdm
 
 from .config import Config, SweepPoint
 from .describe import preflight
+from .lifecycle import initial_census
 from .model import BroodModel
 from .store import ResultsWriter, read_outcomes, read_points
 
@@ -242,7 +243,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     progress : bool
         Show a progress bar.
     batch_size : int, optional
-        Replicates per batch (default: at most 64, about four batches per worker).
+        Replicates per batch (default: about 10^5 individuals at the starting census,
+        at most 1024, and about four batches per worker).
 
     Returns
     -------
@@ -272,7 +274,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         elif writer.done:
             log.info("resuming %s: %d of %d replicates already saved", out, writer.done, writer.expected)
         tracker = _Progress(writer, points, show=progress)
-        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots)
+        census = max(int(initial_census(p.config).sum()) for p in points)
+        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
         tasks = ((batch, points[batch.point], seed) for batch in plan_batches(writer.missing(), size))
         for batch, results in pool.run(tasks):
             writer.write(results)

@@ -94,3 +94,13 @@ def test_run_batch_reduces_trajectories_in_the_worker():
     results = run_batch(point, 1, 3, point.config.experiment.seed)
     assert [r.replicate for r in results] == [1, 2, 3]
     assert all(r.trajectory.ndim == 2 and r.trajectory.dtype == np.uint32 for r in results)
+
+
+def test_default_batch_size_scales_with_the_census():
+    from sim.parallel import default_batch_size
+
+    # About 1e5 individuals a batch, at most 1024 replicates, about four batches per slot.
+    assert default_batch_size(100_000, 1, census_size=200) == 500
+    assert default_batch_size(100_000, 1, census_size=20) == 1024
+    assert default_batch_size(100_000, 1, census_size=10**6) == 1
+    assert default_batch_size(400, 2, census_size=200) == 50
