@@ -19,6 +19,7 @@ import numpy as np
 from .config import Config, SweepPoint
 from .engines import ENGINES
 from .lifecycle import LifeCycle, initial_census
+from .streams import keyed_generators
 
 __all__ = ["STATES", "classify_many", "run_batch", "batchable"]
 
@@ -97,7 +98,7 @@ def run_batch(point: SweepPoint, replicates, seed: int) -> list:
     -------
     list of ReplicateResult, in the order of ``replicates``.
     """
-    from .runner import ReplicateResult, replicate_rng
+    from .runner import ReplicateResult
 
     config = point.config
     exp = config.experiment
@@ -107,7 +108,7 @@ def run_batch(point: SweepPoint, replicates, seed: int) -> list:
         return []
     life = LifeCycle.from_config(config)
     start = initial_census(config, life)
-    rngs = [replicate_rng(seed, point.index, r) for r in reps]
+    rngs = keyed_generators(seed, point.index, reps)  # replicate_rng's, built together
     batch = ENGINES[exp.engine].populations(life, np.broadcast_to(start, (n, *start.shape)), rngs)
 
     outcome = np.full(n, -1)  # code into STATES, or len(STATES) for capped

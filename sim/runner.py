@@ -56,7 +56,8 @@ def replicate_rng(seed: int, point: int, replicate: int) -> np.random.Generator:
     """The replicate's own stream: ``SeedSequence(seed, spawn_key=(point, replicate))``.
 
     Keyed, not spawned, so any replicate can be re-run alone, on any worker,
-    in any order, with the same result.
+    in any order, with the same result. ``sim.streams.keyed_generators`` builds
+    the same generators for a whole batch at once.
     """
     return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(point, replicate)))
 

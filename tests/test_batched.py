@@ -15,6 +15,7 @@ from sim.batch import STATES, classify_many, run_batch
 from sim.config import parse_config, sweep_points
 from sim.model import BroodModel
 from sim.runner import classify, replicate_rng, run_replicate, run_replicates
+from sim.streams import keyed_generators
 
 RESIDENT = {"name": "perennial", "breeding": "iteroparous", "fecundity": 2.0,
             "adult_survival": 0.5, "juvenile_survival": 0.5}
@@ -165,6 +166,19 @@ def test_model_stream_starts_at_the_replicate_stream():
     config = _config()
     model = BroodModel(config, rng=replicate_rng(5, 0, 3))
     assert model.rng.bit_generator.state == replicate_rng(5, 0, 3).bit_generator.state
+
+
+@pytest.mark.parametrize("seed", [0, 11, 20261202, 2**32 - 1, 2**32, 2**70 + 5, 2**130 + 3])
+@pytest.mark.parametrize("point", [0, 7, 2**32 - 1, 2**32])
+def test_keyed_generators_are_numpys_keyed_streams(seed, point):
+    # numpy's own construction is the reference: default_rng(SeedSequence(seed, spawn_key=key));
+    # seeds of 1 to 5 words, key entries at the one-word limit and past it (numpy's path)
+    reps = [*range(40), 123_456_789, 2**32 - 1, 2**32 + 1]
+    for r, g in zip(reps, keyed_generators(seed, point, reps), strict=True):
+        ref = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(point, r)))
+        assert g.bit_generator.state == ref.bit_generator.state
+        assert np.array_equal(g.random(3), ref.random(3))
+        assert g.poisson(30.0) == ref.poisson(30.0)
 
 
 @pytest.mark.parametrize("invasion", [True, False])
