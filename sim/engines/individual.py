@@ -31,7 +31,10 @@ class IndividualPopulations(ReplicateBatch):
     survival (one uniform per individual, independent of its brood),
     recruitment, next census, then a ceiling's removal of random
     individuals. Each class's recruits are drawn as one total (exact: parents
-    within a class are exchangeable and pass on only their allele).
+    within a class are exchangeable and pass on only their allele). Where
+    ``ClassRules.recruit_uniforms`` is k > 0 (Poisson offspring), a replicate
+    draws its season's uniforms in one call: one per individual, then k for
+    its recruits (``ClassRules.recruits_from_uniforms``).
 
     Parameters are those of ``ReplicateBatch``.
     """
@@ -47,6 +50,7 @@ class IndividualPopulations(ReplicateBatch):
         self.cell = np.repeat(classes, counts.ravel())
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
         self._uniforms = np.empty(0)  # a batch's survival uniforms, reused season to season
+        self._k = self.rules.recruit_uniforms
 
     def state_bytes(self) -> int:
         """Bytes held between seasons: the individuals, their counts by class, and (batches
@@ -82,17 +86,20 @@ class IndividualPopulations(ReplicateBatch):
         # 3. survival (one uniform per individual), survivors one year older (the
         # plus-group stays)
         if n_reps == 1 and self._segments is None:
-            aged = self._survivors_streamed(cell, rngs[0], float(f.adult[0]))
+            aged, tails = self._survivors_streamed(cell, rngs[0], float(f.adult[0]))
             survivors = np.array([aged.size])
             by_class = np.bincount(aged, minlength=rules.n_classes)[None]
         else:
-            aged, survivors = self._survivors_batched(cell, f.adult)
+            aged, survivors, tails = self._survivors_batched(cell, f.adult)
             rep = np.repeat(np.arange(n_reps) * rules.n_classes, survivors)
             by_class = np.bincount(rep + aged, minlength=n_reps * rules.n_classes).reshape(
                 n_reps, rules.n_classes)
         self._segments = None
         # 4. recruitment
-        recruits = rules.recruits(counts, births, f, rngs)
+        if self._k:
+            recruits = rules.recruits_from_uniforms(counts, f, tails, rngs)
+        else:
+            recruits = rules.recruits(counts, births, f, rngs)
         # 5. next census: survivors, then recruits at age 1; a ceiling's removal
         born = recruits.sum(axis=1)
         cell = self._assemble(aged, survivors, recruits, born)
@@ -105,23 +112,30 @@ class IndividualPopulations(ReplicateBatch):
         self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
 
     def _survivors_batched(self, cell, f_adult):
-        """Survivors of every replicate, aged, in order, and their number per replicate.
+        """Survivors of every replicate, aged, in order, their number per replicate, and
+        each replicate's k recruit uniforms, (n_replicates, k).
 
-        Each replicate draws the uniforms of its own slice of ``cell``; slices
-        of replicates that left the batch get uniforms of 2 (no one survives).
+        Each replicate draws the uniforms of its own slice of ``cell``, then
+        its k more (saved before the next replicate's draws overwrite them);
+        slices of replicates that left the batch get uniforms of 2 (no one
+        survives).
         """
         sizes, kept = self._segments if self._segments is not None else (self.sizes, None)
         offsets = np.concatenate([[0], np.cumsum(sizes)])
-        if self._uniforms.size < cell.size:  # kept between seasons: no fresh pages to fault in
-            self._uniforms = np.empty(int(cell.size * 1.25))
+        k = self._k
+        if self._uniforms.size < cell.size + k:  # kept between seasons: no fresh pages to fault in
+            self._uniforms = np.empty(int(cell.size * 1.25) + k)
         u = self._uniforms
         starts, ends = offsets[:-1], offsets[1:]
         if kept is not None:
-            for a, b in zip(starts[~kept].tolist(), ends[~kept].tolist()):
-                u[a:b] = 2.0
             starts, ends = starts[kept], ends[kept]
+        tails = []
         for g, a, b in zip(self.rngs, starts.tolist(), ends.tolist()):
-            g.random(out=u[a:b])
+            g.random(out=u[a:b + k])
+            tails += u[b:b + k].tolist()
+        if kept is not None:
+            for a, b in zip(offsets[:-1][~kept].tolist(), offsets[1:][~kept].tolist()):
+                u[a:b] = 2.0
         survival = self.rules.survival
         if self.rules.adult_density:
             by_slice = np.ones(sizes.size)
@@ -139,7 +153,7 @@ class IndividualPopulations(ReplicateBatch):
         survivors = np.diff(np.searchsorted(alive, offsets))
         if kept is not None:
             survivors = survivors[kept]
-        return self._aged[cell[alive]], survivors
+        return self._aged[cell[alive]], survivors, np.array(tails).reshape(len(self.rngs), k)
 
     def _assemble(self, aged, survivors, recruits, born) -> np.ndarray:
         """The next census's array: per replicate, its aged survivors then its recruits by allele."""
@@ -157,12 +171,13 @@ class IndividualPopulations(ReplicateBatch):
         out[~from_survivors] = fill
         return out
 
-    def _survivors_streamed(self, cell, rng, f_adult: float) -> np.ndarray:
-        """One replicate's survivors, aged, drawn chunk by chunk (few bytes per individual at peak).
+    def _survivors_streamed(self, cell, rng, f_adult: float):
+        """One replicate's survivors, aged, drawn chunk by chunk (few bytes per individual at
+        peak), and its k recruit uniforms, (1, k).
 
         A generator's uniforms form one sequence however they are split into
         calls, so these are the very draws one call for the whole population
-        would make.
+        (and the k more) would make.
         """
         survival, aged_class = self.rules.survival, self._aged
         if self.rules.adult_density:
@@ -178,7 +193,7 @@ class IndividualPopulations(ReplicateBatch):
             kept = aged_class[np.compress(w < survival[c], c)]
             out[k:k + kept.size] = kept
             k += kept.size
-        return out[:k]
+        return out[:k], rng.random((1, self._k)) if self._k else None
 
     def _apply_ceiling(self, cell, sizes, survivors, born):
         """Remove random individuals down to the capacity (from recruits only, or anyone)."""

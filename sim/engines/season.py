@@ -60,6 +60,10 @@ class ClassRules:
         self._breeders = [(int(c), int(self.allele_of[c]), float(self.fecundity[c]),
                            float(self.juvenile[c])) for c in np.flatnonzero(self.fecundity > 0)]
         self._mutation = life.mutation if life.mutation.active else None
+        # uniforms a replicate draws per season for its recruits, one per allele, where an
+        # allele's recruits are one Poisson total drawn by inversion (see recruits_from_uniforms)
+        invertible = hasattr(life.offspring, "quantile") and not self.after_breeding
+        self.recruit_uniforms = n_alleles if invertible else 0
 
     # -- step 1: density ------------------------------------------------------------
     def factors(self, counts: np.ndarray) -> Factors:
@@ -119,10 +123,27 @@ class ClassRules:
             for c, allele, _, juvenile in self._breeders:
                 out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
                                    zip(births[:, c].tolist(), (juvenile * f.recruitment).tolist(), rngs)]
+        return self._mutated(out, rngs)
+
+    def recruits_from_uniforms(self, counts: np.ndarray, f: Factors, u: np.ndarray, rngs) -> np.ndarray:
+        """Recruits by (replicate, allele) from one uniform per allele, ``u`` (n_replicates, n_alleles).
+
+        For offspring distributions with a ``quantile`` (Poisson) and D known
+        before breeding (``recruit_uniforms`` > 0). A class's recruits are
+        Poisson(n m f_fec c f_rec); an allele's, the sum over its classes, are
+        Poisson with the summed mean (superposition), drawn by inversion of
+        the allele's uniform. Mutation follows, as in ``recruits``.
+        """
+        mean = np.zeros(u.shape)
+        for c, allele, fecundity, juvenile in self._breeders:  # elementwise: the same in any batch
+            mean[:, allele] += counts[:, c] * (fecundity * f.fecundity) * (juvenile * f.recruitment)
+        return self._mutated(self.life.offspring.quantile(u, mean), rngs)
+
+    def _mutated(self, recruits: np.ndarray, rngs) -> np.ndarray:
         if self._mutation is not None:
             for r, g in enumerate(rngs):
-                out[r] = self._mutation.mutate_counts(out[r], g)
-        return out
+                recruits[r] = self._mutation.mutate_counts(recruits[r], g)
+        return recruits
 
     # -- the ceiling ------------------------------------------------------------------
     def ceiling_excess(self, survivors: np.ndarray, recruits: np.ndarray):
