@@ -163,25 +163,13 @@ def cmd_compare(args) -> int:
     return 0
 
 
-_SHOWN = [
-    "replicates",
-    "mutant_fixed",
-    "fixed_fraction",
-    "fixed_low",
-    "fixed_high",
-    "invasion_fitness",
-    "verdict",
-    "establishment_probability",
-    "neutral_expectation",
-    "agreement",
-]
-
-
 def _print_compare(table, thresholds) -> None:
+    from .comparison import SHOWN_COLUMNS
+
     swept = [
         c
         for c in table.columns[1:]
-        if c not in _SHOWN
+        if c not in SHOWN_COLUMNS
         and c
         not in (
             "mutant_lost",
@@ -193,7 +181,7 @@ def _print_compare(table, thresholds) -> None:
             "problem",
         )
     ]
-    shown = table[["point", *swept, *_SHOWN]].rename(
+    shown = table[["point", *swept, *SHOWN_COLUMNS]].rename(
         columns={
             "replicates": "reps",
             "mutant_fixed": "fixed",

@@ -24,7 +24,7 @@ from sim.store import read_attrs, read_point_configs, read_points, read_replicat
 from .estimates import observed_threshold, wilson_interval
 from .sweep import predict_configs, sweep_thresholds
 
-__all__ = ["COMPARE_COLUMNS", "agreement", "experiment_config", "compare", "compare_thresholds"]
+__all__ = ["COMPARE_COLUMNS", "SHOWN_COLUMNS", "agreement", "experiment_config", "compare", "compare_thresholds"]
 
 COMPARE_COLUMNS = [
     "point",
@@ -41,6 +41,8 @@ COMPARE_COLUMNS = [
     "neutral_expectation",
     "agreement",
 ]
+# the columns a person reads (printed table, report): all but the point and the detail counts
+SHOWN_COLUMNS = [c for c in COMPARE_COLUMNS if c not in ("point", "mutant_lost", "unresolved")]
 
 
 def agreement(verdict: str, low: float, high: float, neutral: float) -> str:

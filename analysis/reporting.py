@@ -12,7 +12,7 @@ import pandas as pd
 
 from sim.store import read_attrs
 
-from .comparison import compare, compare_thresholds, experiment_config
+from .comparison import SHOWN_COLUMNS, compare, compare_thresholds, experiment_config
 from .plots import plot
 
 __all__ = ["CAUTIONS", "report", "describe_allele", "verdict_text"]
@@ -197,20 +197,7 @@ def _bound(v) -> str:
 
 
 def _table_html(table: pd.DataFrame, swept: list[str]) -> str:
-    cols = [
-        "point",
-        *swept,
-        "replicates",
-        "mutant_fixed",
-        "fixed_fraction",
-        "fixed_low",
-        "fixed_high",
-        "invasion_fitness",
-        "verdict",
-        "establishment_probability",
-        "neutral_expectation",
-        "agreement",
-    ]
+    cols = ["point", *swept, *SHOWN_COLUMNS]
     head = "".join(f"<th>{html.escape(c.replace('_', ' '))}</th>" for c in cols)
     rows = []
     for _, r in table.iterrows():

@@ -8,6 +8,7 @@ problem and exits with status 2, without a traceback.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -154,6 +155,11 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print(f"broodline {args.command}: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # the reader (e.g. `| head`) left early: not an error of ours (Python docs, signal module)
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":
