@@ -161,18 +161,21 @@ def run_batch(point: SweepPoint, replicates, seed: int) -> list:
 
     names = STATES + ("capped",)
     out = []
-    for i, (record_steps, trajectory) in enumerate(records.by_replicate(n)):
-        name = names[outcome[i]]
+    columns = (outcome.tolist(), winner_final.tolist(), steps.tolist(), since_final.tolist(),
+               final_census.tolist(), records.by_replicate(n))  # Python numbers: one conversion each
+    for i, (code, winner_i, steps_i, since_i, census_i, (record_steps, trajectory)) in enumerate(
+            zip(*columns, strict=True)):
+        name = names[code]
         out.append(ReplicateResult(
             point=point.index,
             replicate=reps[i],
             seed=seed,
             outcome=name,
-            winner=int(winner_final[i]) if name in _DECIDED_WINNER else -1,
-            steps=int(steps[i]),
-            fixation_step=int(since_final[i]) if name in _DECIDED_WINNER + ("extinct",) else -1,
-            final_census=int(final_census[i]),
-            record_steps=record_steps.astype(np.int32),
+            winner=winner_i if name in _DECIDED_WINNER else -1,
+            steps=steps_i,
+            fixation_step=since_i if name in _DECIDED_WINNER + ("extinct",) else -1,
+            final_census=census_i,
+            record_steps=record_steps,
             trajectory=trajectory,
         ))
     return out

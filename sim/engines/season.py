@@ -187,7 +187,7 @@ class ReplicateBatch:
     def keep(self, which) -> None:
         """Keep only the replicates where ``which`` (bool, one per replicate) is true."""
         which = np.asarray(which, dtype=bool)
-        self.rngs = [g for g, k in zip(self.rngs, which) if k]
+        self.rngs = [g for g, k in zip(self.rngs, which.tolist()) if k]
         self.counts, self.recruits = self.counts[which], self.recruits[which]
 
 
