@@ -69,13 +69,12 @@ class Poisson(_Replicated):
                             dtype=np.int64).reshape(shape)
         z = special.ndtri(np.maximum(u, 2.0**-53))  # the guess only: u = 0 would give -inf
         k = np.maximum(np.ceil(mean + np.sqrt(mean) * z + (z * z - 1.0) / 6.0 - 0.5), 0.0)
-        down = k > 0  # step down while P(X <= k - 1) > u
-        down[down] = special.pdtr(k[down] - 1.0, mean[down]) > u[down]
+        up = special.pdtr(k, mean) <= u  # these step up while P(X <= k) <= u
+        down = ~up & (k > 0)  # the others step down while P(X <= k - 1) > u
         while down.any():
-            k[down] -= 1.0
-            down[down] = k[down] > 0
             down[down] = special.pdtr(k[down] - 1.0, mean[down]) > u[down]
-        up = special.pdtr(k, mean) <= u  # step up while P(X <= k) <= u
+            k[down] -= 1.0
+            down &= k > 0
         while up.any():
             k[up] += 1.0
             up[up] = special.pdtr(k[up], mean[up]) <= u[up]
@@ -148,10 +147,13 @@ def _poisson_quantile(u: float, mean: float) -> int:
     """``Poisson.quantile`` for one pair of Python floats: the same search, the same result."""
     z = float(special.ndtri(max(u, 2.0**-53)))
     k = max(math.ceil(mean + math.sqrt(mean) * z + (z * z - 1.0) / 6.0 - 0.5), 0)
-    while k > 0 and special.pdtr(k - 1.0, mean) > u:
-        k -= 1
-    while special.pdtr(float(k), mean) <= u:
+    if special.pdtr(float(k), mean) <= u:
         k += 1
+        while special.pdtr(float(k), mean) <= u:
+            k += 1
+    else:
+        while k > 0 and special.pdtr(k - 1.0, mean) > u:
+            k -= 1
     return k
 
 
