@@ -6,18 +6,14 @@ that work with counts), draws that total already thinned by an independent
 per-offspring survival ``keep`` (``draw_thinned_total``: the recruits of a
 class; ``draw_thinned_totals`` does it for many replicates, each with its own
 generator) and gives its probability generating function (``pgf``, for
-branching-process calculations). ``Poisson.quantile`` turns a uniform into a
-Poisson draw by inversion, for engines that draw a replicate's uniforms in
-one call.
+branching-process calculations).
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
 
 __all__ = ["Poisson", "Fixed", "NegativeBinomial", "make_offspring"]
 
@@ -51,34 +47,6 @@ class Poisson(_Replicated):
     def draw_thinned_totals(self, n, mean, keep, rngs) -> list:
         # the batched engines' common case, written out: a call per replicate costs more than the draw
         return [g.poisson(lam) if lam else 0 for lam, g in zip((n * mean * keep).tolist(), rngs)]
-
-    def quantile(self, u, mean) -> np.ndarray:
-        """The least k with P(X <= k) > u, X ~ Poisson(mean), elementwise (int64).
-
-        Inversion: for u uniform on [0, 1) this is an exact Poisson(mean) draw
-        (Devroye 1986, ch. II.2), up to the double-precision rounding of the
-        distribution function (``scipy.special.pdtr``), as in any floating-point
-        sampler. A Cornish-Fisher guess starts the search; only the number of
-        steps depends on it, never the result.
-        """
-        u, mean = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(mean, dtype=float))
-        shape = u.shape
-        u, mean = u.ravel(), mean.ravel()
-        if u.size <= 4:  # a lone replicate's few draws: Python numbers cost less than arrays
-            return np.array([_poisson_quantile(a, m) for a, m in zip(u.tolist(), mean.tolist())],
-                            dtype=np.int64).reshape(shape)
-        z = special.ndtri(np.maximum(u, 2.0**-53))  # the guess only: u = 0 would give -inf
-        k = np.maximum(np.ceil(mean + np.sqrt(mean) * z + (z * z - 1.0) / 6.0 - 0.5), 0.0)
-        up = special.pdtr(k, mean) <= u  # these step up while P(X <= k) <= u
-        down = ~up & (k > 0)  # the others step down while P(X <= k - 1) > u
-        while down.any():
-            down[down] = special.pdtr(k[down] - 1.0, mean[down]) > u[down]
-            k[down] -= 1.0
-            down &= k > 0
-        while up.any():
-            k[up] += 1.0
-            up[up] = special.pdtr(k[up], mean[up]) <= u[up]
-        return k.astype(np.int64).reshape(shape)
 
     def pgf(self, s, mean):
         return np.exp(np.asarray(mean) * (np.asarray(s) - 1.0))
@@ -141,20 +109,6 @@ class NegativeBinomial(_Replicated):
     def pgf(self, s, mean):
         p = self._p(mean)
         return (p / (1.0 - (1.0 - p) * np.asarray(s, dtype=float))) ** self.dispersion
-
-
-def _poisson_quantile(u: float, mean: float) -> int:
-    """``Poisson.quantile`` for one pair of Python floats: the same search, the same result."""
-    z = float(special.ndtri(max(u, 2.0**-53)))
-    k = max(math.ceil(mean + math.sqrt(mean) * z + (z * z - 1.0) / 6.0 - 0.5), 0)
-    if special.pdtr(float(k), mean) <= u:
-        k += 1
-        while special.pdtr(float(k), mean) <= u:
-            k += 1
-    else:
-        while k > 0 and special.pdtr(k - 1.0, mean) > u:
-            k -= 1
-    return k
 
 
 def make_offspring(distribution: str = "poisson", dispersion: float | None = None):

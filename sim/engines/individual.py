@@ -1,21 +1,14 @@
-"""The default engine: each individual is an entry of a numpy array, one vectorised pass per season."""
+"""The default engine: each individual is an entry of a numpy array, one compiled pass per season."""
 
 from __future__ import annotations
 
 import numpy as np
 
 from ..lifecycle import LifeCycle
+from . import compiled
 from .season import OneReplicate, ReplicateBatch
 
 __all__ = ["IndividualEngine", "IndividualPopulations"]
-
-_CHUNK = 1 << 16  # individuals per survival chunk (its temporaries fit in cache)
-
-
-def _chunk(n: int) -> int:
-    """Chunk length for n individuals: at most _CHUNK, and a quarter of n down to 4096,
-    so a season's temporaries stay a small share of a mid-sized population."""
-    return min(_CHUNK, max(4096, n // 4))
 
 
 class IndividualPopulations(ReplicateBatch):
@@ -31,10 +24,11 @@ class IndividualPopulations(ReplicateBatch):
     survival (one uniform per individual, independent of its brood),
     recruitment, next census, then a ceiling's removal of random
     individuals. Each class's recruits are drawn as one total (exact: parents
-    within a class are exchangeable and pass on only their allele). Where
-    ``ClassRules.recruit_uniforms`` is k > 0 (Poisson offspring), a replicate
-    draws its season's uniforms in one call: one per individual, then k for
-    its recruits (``ClassRules.recruits_from_uniforms``).
+    within a class are exchangeable and pass on only their allele). The pass
+    over individuals is compiled (``compiled.survive``): one pass for every
+    replicate of the batch, each drawing from its own generator; where
+    ``ClassRules.recruits_in_pass`` (Poisson offspring), a replicate draws its
+    recruits of each allele in the same pass, right after its individuals.
 
     Parameters are those of ``ReplicateBatch``.
     """
@@ -49,13 +43,12 @@ class IndividualPopulations(ReplicateBatch):
         classes = np.tile(np.arange(rules.n_classes, dtype=self._dtype), len(self.rngs))
         self.cell = np.repeat(classes, counts.ravel())
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
-        self._uniforms = np.empty(0)  # a batch's survival uniforms, reused season to season
-        self._k = self.rules.recruit_uniforms
+        self._bitgens = compiled.bitgen_addresses(self.rngs)
 
     def state_bytes(self) -> int:
-        """Bytes held between seasons: the individuals, their counts by class, and (batches
-        of several replicates only) the buffer of survival uniforms."""
-        return self.cell.nbytes + self.counts.nbytes + self.sizes.nbytes + self._uniforms.nbytes
+        """Bytes held between seasons: the individuals, and counts by replicate and class."""
+        return (self.cell.nbytes + self.counts.nbytes + self.sizes.nbytes
+                + self._bitgens.nbytes)
 
     def keep(self, which) -> None:
         """Keep only the replicates where ``which`` (bool, one per replicate) is true.
@@ -72,6 +65,7 @@ class IndividualPopulations(ReplicateBatch):
             kept[kept] = which
             self._segments = (self._segments[0], kept)
         self.sizes = self.sizes[which]
+        self._bitgens = self._bitgens[which]
         super().keep(which)
 
     def step(self) -> None:
@@ -84,25 +78,25 @@ class IndividualPopulations(ReplicateBatch):
         # 1. density index from the census (or, counting offspring, 2. births first)
         births, f = rules.open_season(counts, rngs)
         # 3. survival (one uniform per individual), survivors one year older (the
-        # plus-group stays)
-        if n_reps == 1 and self._segments is None:
-            aged, tails = self._survivors_streamed(cell, rngs[0], float(f.adult[0]))
-            survivors = np.array([aged.size])
-            by_class = np.bincount(aged, minlength=rules.n_classes)[None]
-        else:
-            aged, survivors, tails = self._survivors_batched(cell, f.adult)
-            rep = np.repeat(np.arange(n_reps) * rules.n_classes, survivors)
-            by_class = np.bincount(rep + aged, minlength=n_reps * rules.n_classes).reshape(
-                n_reps, rules.n_classes)
+        # plus-group stays); 4. then, where the law allows, each replicate's recruits
+        slice_sizes, drawn = self._segments or (self.sizes, np.ones(n_reps, dtype=bool))
         self._segments = None
-        # 4. recruitment
-        if self._k:
-            recruits = rules.recruits_from_uniforms(counts, f, tails, rngs)
+        survived = np.empty(cell.size, dtype=self._dtype)
+        survivors = np.empty(n_reps, dtype=np.int64)
+        by_class = np.zeros((n_reps, rules.n_classes), dtype=np.int64)
+        means = rules.recruit_means(counts, f) if rules.recruits_in_pass else np.empty((n_reps, 0))
+        recruits = np.empty(means.shape, dtype=np.int64)
+        total = compiled.survive(cell, slice_sizes, drawn, self._bitgens, rules.survival,
+                                 np.ascontiguousarray(f.adult, dtype=float), self._aged,
+                                 survived, survivors, by_class, means, recruits)
+        if rules.recruits_in_pass:
+            recruits = rules.mutated(recruits, rngs)
         else:
             recruits = rules.recruits(counts, births, f, rngs)
         # 5. next census: survivors, then recruits at age 1; a ceiling's removal
         born = recruits.sum(axis=1)
-        cell = self._assemble(aged, survivors, recruits, born)
+        cell = np.empty(total + int(born.sum()), dtype=self._dtype)
+        compiled.assemble(survived, survivors, recruits, self._first, cell)
         by_class[:, rules.first] += recruits
         sizes = survivors + born
         if rules.ceiling is not None:
@@ -110,90 +104,6 @@ class IndividualPopulations(ReplicateBatch):
             by_class -= removed
             sizes = by_class.sum(axis=1)
         self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
-
-    def _survivors_batched(self, cell, f_adult):
-        """Survivors of every replicate, aged, in order, their number per replicate, and
-        each replicate's k recruit uniforms, (n_replicates, k).
-
-        Each replicate draws the uniforms of its own slice of ``cell``, then
-        its k more (saved before the next replicate's draws overwrite them);
-        slices of replicates that left the batch get uniforms of 2 (no one
-        survives).
-        """
-        sizes, kept = self._segments if self._segments is not None else (self.sizes, None)
-        offsets = np.concatenate([[0], np.cumsum(sizes)])
-        k = self._k
-        if self._uniforms.size < cell.size + k:  # kept between seasons: no fresh pages to fault in
-            self._uniforms = np.empty(int(cell.size * 1.25) + k)
-        u = self._uniforms
-        starts, ends = offsets[:-1], offsets[1:]
-        if kept is not None:
-            starts, ends = starts[kept], ends[kept]
-        tails = []
-        for g, a, b in zip(self.rngs, starts.tolist(), ends.tolist()):
-            g.random(out=u[a:b + k])
-            tails += u[b:b + k].tolist()
-        if kept is not None:
-            for a, b in zip(offsets[:-1][~kept].tolist(), offsets[1:][~kept].tolist()):
-                u[a:b] = 2.0
-        survival = self.rules.survival
-        if self.rules.adult_density:
-            by_slice = np.ones(sizes.size)
-            by_slice[slice(None) if kept is None else kept] = f_adult
-            slice_of = np.repeat(np.arange(sizes.size), sizes)
-        lives = np.empty(cell.size, dtype=bool)
-        step = _chunk(cell.size)
-        for a in range(0, cell.size, step):  # chunks keep the temporaries in cache
-            b = min(a + step, cell.size)
-            threshold = survival[cell[a:b]]
-            if self.rules.adult_density:
-                threshold *= by_slice[slice_of[a:b]]
-            np.less(u[a:b], threshold, out=lives[a:b])
-        alive = np.flatnonzero(lives)
-        survivors = np.diff(np.searchsorted(alive, offsets))
-        if kept is not None:
-            survivors = survivors[kept]
-        return self._aged[cell[alive]], survivors, np.array(tails).reshape(len(self.rngs), k)
-
-    def _assemble(self, aged, survivors, recruits, born) -> np.ndarray:
-        """The next census's array: per replicate, its aged survivors then its recruits by allele."""
-        n_reps = recruits.shape[0]
-        total_survivors = aged.size
-        out = np.empty(total_survivors + int(born.sum()), dtype=self._dtype)
-        fill = np.repeat(np.tile(self._first, n_reps), recruits.ravel())
-        if n_reps == 1:
-            out[:total_survivors] = aged
-            out[total_survivors:] = fill
-            return out
-        lengths = np.stack([survivors, born], axis=1).ravel()
-        from_survivors = np.repeat(np.tile([True, False], n_reps), lengths)
-        out[from_survivors] = aged
-        out[~from_survivors] = fill
-        return out
-
-    def _survivors_streamed(self, cell, rng, f_adult: float):
-        """One replicate's survivors, aged, drawn chunk by chunk (few bytes per individual at
-        peak), and its k recruit uniforms, (1, k).
-
-        A generator's uniforms form one sequence however they are split into
-        calls, so these are the very draws one call for the whole population
-        (and the k more) would make.
-        """
-        survival, aged_class = self.rules.survival, self._aged
-        if self.rules.adult_density:
-            survival = survival * f_adult
-        out = np.empty(cell.size, dtype=self._dtype)
-        step = _chunk(cell.size)
-        u = np.empty(min(cell.size, step))
-        k = 0
-        for a in range(0, cell.size, step):
-            c = cell[a:a + step]
-            w = u[:c.size]
-            rng.random(out=w)
-            kept = aged_class[np.compress(w < survival[c], c)]
-            out[k:k + kept.size] = kept
-            k += kept.size
-        return out[:k], rng.random((1, self._k)) if self._k else None
 
     def _apply_ceiling(self, cell, sizes, survivors, born):
         """Remove random individuals down to the capacity (from recruits only, or anyone)."""

@@ -19,6 +19,7 @@ import numpy as np
 
 from ..density import Factors
 from ..lifecycle import LifeCycle
+from ..offspring import Poisson
 
 __all__ = ["ClassRules", "ReplicateBatch", "OneReplicate"]
 
@@ -60,10 +61,9 @@ class ClassRules:
         self._breeders = [(int(c), int(self.allele_of[c]), float(self.fecundity[c]),
                            float(self.juvenile[c])) for c in np.flatnonzero(self.fecundity > 0)]
         self._mutation = life.mutation if life.mutation.active else None
-        # uniforms a replicate draws per season for its recruits, one per allele, where an
-        # allele's recruits are one Poisson total drawn by inversion (see recruits_from_uniforms)
-        invertible = hasattr(life.offspring, "quantile") and not self.after_breeding
-        self.recruit_uniforms = n_alleles if invertible else 0
+        # an allele's recruits are one Poisson total (see recruit_means), drawn by a compiled
+        # engine where births need not be drawn first
+        self.recruits_in_pass = isinstance(life.offspring, Poisson) and not self.after_breeding
 
     # -- step 1: density ------------------------------------------------------------
     def factors(self, counts: np.ndarray) -> Factors:
@@ -123,23 +123,21 @@ class ClassRules:
             for c, allele, _, juvenile in self._breeders:
                 out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
                                    zip(births[:, c].tolist(), (juvenile * f.recruitment).tolist(), rngs)]
-        return self._mutated(out, rngs)
+        return self.mutated(out, rngs)
 
-    def recruits_from_uniforms(self, counts: np.ndarray, f: Factors, u: np.ndarray, rngs) -> np.ndarray:
-        """Recruits by (replicate, allele) from one uniform per allele, ``u`` (n_replicates, n_alleles).
+    def recruit_means(self, counts: np.ndarray, f: Factors) -> np.ndarray:
+        """Mean recruits by (replicate, allele) under Poisson offspring, before mutation.
 
-        For offspring distributions with a ``quantile`` (Poisson) and D known
-        before breeding (``recruit_uniforms`` > 0). A class's recruits are
-        Poisson(n m f_fec c f_rec); an allele's, the sum over its classes, are
-        Poisson with the summed mean (superposition), drawn by inversion of
-        the allele's uniform. Mutation follows, as in ``recruits``.
+        A class's recruits are Poisson(n m f_fec c f_rec); an allele's, the sum
+        over its classes, are Poisson with the summed mean (superposition).
         """
-        mean = np.zeros(u.shape)
+        mean = np.zeros((counts.shape[0], self.n_alleles))
         for c, allele, fecundity, juvenile in self._breeders:  # elementwise: the same in any batch
             mean[:, allele] += counts[:, c] * (fecundity * f.fecundity) * (juvenile * f.recruitment)
-        return self._mutated(self.life.offspring.quantile(u, mean), rngs)
+        return mean
 
-    def _mutated(self, recruits: np.ndarray, rngs) -> np.ndarray:
+    def mutated(self, recruits: np.ndarray, rngs) -> np.ndarray:
+        """Recruits by (replicate, allele) after mutation (each replicate from its generator)."""
         if self._mutation is not None:
             for r, g in enumerate(rngs):
                 recruits[r] = self._mutation.mutate_counts(recruits[r], g)
@@ -168,14 +166,16 @@ class ReplicateBatch:
     life : LifeCycle
     census : ndarray, shape (n_replicates, n_alleles, n_ages)
         Starting counts.
-    rngs : list of numpy.random.Generator
-        One stream per replicate; replicate ``r`` draws only from ``rngs[r]``.
+    rngs : sequence of numpy.random.Generator
+        One stream per replicate; replicate ``r`` draws only from ``rngs[r]``
+        (held as an object array, so leaving replicates is one array operation).
     """
 
     def __init__(self, life: LifeCycle, census: np.ndarray, rngs):
         self.life = life
         self.rules = ClassRules(life)
-        self.rngs = list(rngs)
+        self.rngs = np.empty(len(rngs), dtype=object)
+        self.rngs[:] = list(rngs)
         self.counts = np.asarray(census, dtype=np.int64).reshape(
             len(self.rngs), self.rules.n_classes).copy()
         self.recruits = np.zeros(len(self.rngs), dtype=np.int64)
@@ -187,7 +187,7 @@ class ReplicateBatch:
     def keep(self, which) -> None:
         """Keep only the replicates where ``which`` (bool, one per replicate) is true."""
         which = np.asarray(which, dtype=bool)
-        self.rngs = [g for g, k in zip(self.rngs, which.tolist()) if k]
+        self.rngs = self.rngs[which]
         self.counts, self.recruits = self.counts[which], self.recruits[which]
 
 
