@@ -80,9 +80,9 @@ def default_workers() -> int:
         return os.cpu_count() or 1
 
 
-# Individuals a batch holds at once by default: enough that a batch's per-season Python
-# work (a few generator calls per replicate) is spread over many individuals, few enough
-# that a batch finishes (and is saved) quickly.
+# Individuals a batch holds at once by default: enough that a batch's fixed cost per season
+# (array calls around the compiled pass; numpy calls per replicate for some laws) is spread
+# over many individuals, few enough that a batch finishes (and is saved) quickly.
 BATCH_INDIVIDUALS = 100_000
 
 

@@ -181,24 +181,6 @@ def test_keyed_generators_are_numpys_keyed_streams(seed, point):
         assert g.poisson(30.0) == ref.poisson(30.0)
 
 
-def test_uniforms_split_into_calls_are_one_sequence():
-    # The engines rely on this (a lone replicate draws its survival uniforms chunk by chunk,
-    # a batched one in one call, then its recruit uniforms): PCG64 doubles take one 64-bit
-    # output each, nothing buffered between calls (numpy's next_double, from memory), so
-    # random(n1) then random(n2) are random(n1 + n2), whatever the form of the call.
-    whole = np.random.default_rng(20261202).random(70_000)
-    for splits in ([3, 7], [1, 0, 2], [65_536, 4_000, 2], [250, 2, 250, 2, 999]):
-        g = np.random.default_rng(20261202)
-        parts = []
-        for n in splits:
-            out = np.empty(n + 1)
-            g.random(out=out[1:])  # a slice of a larger buffer, as the engines fill
-            parts.append(out[1:])
-        parts.append(g.random((1, 4)).ravel())
-        drawn = np.concatenate(parts)
-        assert np.array_equal(drawn, whole[:drawn.size])
-
-
 @pytest.mark.parametrize("invasion", [True, False])
 def test_classify_many_matches_classify(invasion):
     config = _config() if invasion else _config(
