@@ -7,6 +7,10 @@ mean >= 10, the product of uniforms below); after a pass, numpy calls on the
 same generator carry on from where the pass stopped.
 """
 
+import subprocess
+import sys
+from pathlib import Path
+
 import numpy as np
 import pytest
 from scipy import stats
@@ -111,3 +115,21 @@ def test_assemble_puts_recruits_after_each_replicates_survivors():
     out = np.empty(survivors.sum() + recruits.sum(), dtype=np.uint8)
     assert compiled.assemble(survived, survivors, recruits, first, out) == out.size
     assert list(out) == [3, 3, 0, 5, 5, 4, 1, 0, 5]
+
+
+def test_engine_works_where_numba_finds_no_cache_directory():
+    # A read-only install with no writable home: numba refuses cache=True ("no locator
+    # available"); the passes are then compiled in each process instead. Simulated by
+    # emptying numba's list of cache locators, in a fresh interpreter.
+    script = (
+        "import numba.core.caching as c; c.CacheImpl._locator_classes = []\n"
+        "from sim.bench import bench_config\n"
+        "from sim.model import BroodModel\n"
+        "from sim.runner import replicate_rng\n"
+        "m = BroodModel(bench_config(300), rng=replicate_rng(1, 0, 0)); m.step(); m.step()\n"
+        "print(int(m.census().sum()) > 0)\n"
+    )
+    done = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True,
+                          cwd=Path(__file__).parents[1], timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == "True"

@@ -33,6 +33,16 @@ _capsule_pointer.argtypes = [ctypes.py_object, ctypes.c_char_p]
 _STATE, _NEXT_DOUBLE = 0, 3
 
 
+def _compiled(function):
+    """``numba.njit`` with the compiled code cached on disk where numba finds a writable place
+    (beside the module, or the user's cache directory; ``NUMBA_CACHE_DIR`` chooses another);
+    where it finds none (a read-only install and no writable home), compiled in each process."""
+    try:
+        return njit(cache=True, nogil=True)(function)
+    except RuntimeError:  # numba: "cannot cache function ...: no locator available"
+        return njit(nogil=True)(function)
+
+
 def bitgen_addresses(rngs) -> np.ndarray:
     """The address of each generator's ``bitgen_t`` (valid while the generator lives)."""
     return np.array([_capsule_pointer(g.bit_generator.capsule, b"BitGenerator") for g in rngs],
@@ -63,7 +73,7 @@ _STIRLING = np.array([8.333333333333333e-02, -2.777777777777778e-03, 7.936507936
 _LOG_2PI = 1.8378770664093453
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def _log_gamma(x):
     """log Gamma(x) for x >= 1 by the Stirling series, shifted up to x >= 7 by the recurrence
     (numpy draws Poisson variates with this same series, so acceptances agree to the bit)."""
@@ -82,7 +92,7 @@ def _log_gamma(x):
     return out
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def poisson(bitgen, mean):
     """A Poisson(mean) draw from the generator at ``bitgen``.
 
@@ -122,7 +132,7 @@ def poisson(bitgen, mean):
             return k
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def survive(cell, slice_sizes, drawn, bitgens, survival, factor, aged, out, survivors, by_class,
             recruit_means, recruits):
     """Survival of every individual of a batch, in one pass; returns the number of survivors.
@@ -184,7 +194,7 @@ def survive(cell, slice_sizes, drawn, bitgens, survival, factor, aged, out, surv
     return n
 
 
-@njit(cache=True, nogil=True)
+@_compiled
 def assemble(survived, survivors, recruits, first, out):
     """The next census: per replicate, its survivors (from ``survived``, consecutive by
     replicate) then ``recruits[r, allele]`` recruits of class ``first[allele]``."""
