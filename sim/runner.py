@@ -15,7 +15,7 @@ from .config import Config, SweepPoint
 from .describe import preflight
 from .lifecycle import initial_census
 from .model import BroodModel
-from .store import ResultsWriter, read_outcomes, read_points
+from .store import ResultsWriter, read_outcomes, read_points, software_version
 
 log = logging.getLogger(__name__)
 
@@ -274,6 +274,12 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
             log.info("%s is already complete: nothing to run", out)
         elif writer.done:
             log.info("resuming %s: %d of %d replicates already saved", out, writer.done, writer.expected)
+            if writer.resumed_from_version != software_version():
+                log.warning("%s was started by broodline %s and is finished by %s: replicates run now "
+                            "may differ from those %s would have drawn from the same seeds (each is "
+                            "still a valid draw; one version gives the same datasets however the run "
+                            "is split)", out, writer.resumed_from_version, software_version(),
+                            writer.resumed_from_version)
         tracker = _Progress(writer, points, show=progress)
         census = max(int(initial_census(p.config).sum()) for p in points)
         size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)

@@ -162,3 +162,18 @@ def _points():
     from sim.config import sweep_points
 
     return sweep_points(small_config(replicates=REPLICATES))
+
+
+def test_resume_by_another_version_warns_that_draws_may_differ(tmp_path, caplog):
+    # The promise is per version (README, Reproducibility): a run finished by another version
+    # of broodline is still valid, but not what one version alone would have given.
+    import h5py
+
+    proc, _, out = start_stopped_run(tmp_path, "between-shards", n=2)
+    kill9(proc)
+    with h5py.File(out, "r+") as f:
+        f.attrs["software_version"] = "0.0.1"
+    with caplog.at_level("WARNING", logger="sim.runner"):
+        run_experiment(small_config(replicates=REPLICATES), out, resume=True, progress=False)
+    assert "was started by broodline 0.0.1" in caplog.text
+    assert len(read_replicates(out)) == 4 * REPLICATES
