@@ -17,13 +17,14 @@ generator before and after carry on from where the pass stopped.
 from __future__ import annotations
 
 import ctypes
+import math
 
 import numpy as np
 from llvmlite import ir
 from numba import njit, types
 from numba.extending import intrinsic
 
-__all__ = ["bitgen_addresses", "poisson", "survive", "assemble"]
+__all__ = ["bitgen_addresses", "poisson", "binomial", "survive", "survive_counts", "assemble"]
 
 _capsule_pointer = ctypes.pythonapi.PyCapsule_GetPointer
 _capsule_pointer.restype = ctypes.c_void_p
@@ -130,6 +131,76 @@ def poisson(bitgen, mean):
         if (np.log(v) + np.log(inv_alpha) - np.log(a / (us * us) + b)
                 <= -mean + k * log_mean - _log_gamma(k + 1.0)):
             return k
+
+
+@_compiled
+def binomial(bitgen, n, p):
+    """A Binomial(n, p) draw from the generator at ``bitgen``, by inversion.
+
+    Exact up to double rounding (Devroye 1986, ch. II.2 and X.4). For p > 1/2
+    it draws the failures. With mean n p < 30 the search runs up from 0
+    (the pmf by its recurrence from (1 - p)^n); above, it runs outward from
+    the mode, alternating below and above (Kemp 1986's search from the mode),
+    so it takes about a standard deviation of steps. A uniform past the
+    total the rounded pmfs reach is drawn again.
+    """
+    if n <= 0 or p <= 0.0:
+        return 0
+    if p >= 1.0:
+        return n
+    if p > 0.5:
+        return n - binomial(bitgen, n, 1.0 - p)
+    q = 1.0 - p
+    ratio = p / q
+    if n * p < 30.0:
+        first = np.exp(n * np.log1p(-p))
+        while True:
+            u = _next_double(bitgen)
+            pmf = first
+            for k in range(n + 1):
+                if u < pmf:
+                    return k
+                u -= pmf
+                pmf *= ratio * (n - k) / (k + 1.0)
+    mode = int((n + 1) * p)
+    at_mode = np.exp(math.lgamma(n + 1.0) - math.lgamma(mode + 1.0) - math.lgamma(n - mode + 1.0)
+                     + mode * np.log(p) + (n - mode) * np.log1p(-p))
+    while True:
+        u = _next_double(bitgen)
+        if u < at_mode:
+            return mode
+        u -= at_mode
+        low, low_pmf = mode, at_mode  # the last k searched below the mode, and its pmf
+        high, high_pmf = mode, at_mode
+        while low > 0 or high < n:
+            if low > 0:
+                low_pmf *= low / ((n - low + 1.0) * ratio)
+                low -= 1
+                if u < low_pmf:
+                    return low
+                u -= low_pmf
+            if high < n:
+                high_pmf *= ratio * (n - high) / (high + 1.0)
+                high += 1
+                if u < high_pmf:
+                    return high
+                u -= high_pmf
+
+
+@_compiled
+def survive_counts(counts, bitgens, survival, factor, aged, out, recruit_means, recruits):
+    """Survivors of every replicate's classes, binomial, moved to their next class in ``out``
+    (zeros, the shape of ``counts``); then, where ``recruit_means`` has columns, each
+    replicate's recruits of each allele, Poisson with that mean, into ``recruits``."""
+    for r in range(counts.shape[0]):
+        g = bitgens[r]
+        f = factor[r]
+        for c in range(counts.shape[1]):
+            n = counts[r, c]
+            if n > 0 and survival[c] > 0.0:
+                out[r, aged[c]] += binomial(g, n, survival[c] * f)
+        for allele in range(recruit_means.shape[1]):
+            recruits[r, allele] = poisson(g, recruit_means[r, allele])
 
 
 @_compiled

@@ -13,6 +13,10 @@ to a class-level draw of known law:
 - a ceiling removes a uniformly random set of individuals, so the removed
   counts by class are multivariate hypergeometric.
 
+Survivors (and Poisson recruits) are drawn in one compiled pass for the
+whole batch (``compiled.survive_counts``), each replicate from its own
+generator; mutation and a ceiling's removal are numpy calls per replicate.
+
 ``sim.aggregation.counts_obstacles`` lists why a config would need
 individuals (none of the current options does).
 """
@@ -21,6 +25,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import compiled
 from .season import OneReplicate, ReplicateBatch
 
 __all__ = ["CountsEngine", "CountsPopulations"]
@@ -39,7 +44,7 @@ class CountsPopulations(ReplicateBatch):
 
     def state_bytes(self) -> int:
         """Bytes held between seasons (independent of the census size)."""
-        return self.counts.nbytes + self.recruits.nbytes
+        return self.counts.nbytes + self.recruits.nbytes + self.bitgens.nbytes
 
     def step(self) -> None:
         """Advance every replicate one season."""
@@ -49,13 +54,18 @@ class CountsPopulations(ReplicateBatch):
             return
         counts = self.counts
         births, f = rules.open_season(counts, rngs)
-        survivors = np.zeros_like(counts)
-        for c in np.flatnonzero((rules.survival > 0) & counts.any(axis=0)).tolist():
-            survivors[:, c] = [g.binomial(n, p) if n else 0 for n, p, g in
-                               zip(counts[:, c].tolist(), (rules.survival[c] * f.adult).tolist(), rngs)]
-        recruits = rules.recruits(counts, births, f, rngs)
-        aged = np.zeros_like(survivors)  # survivors of class i move to class aged[i]
-        np.add.at(aged, (slice(None), rules.aged), survivors)
+        # survivors (binomial, one compiled pass for the batch), moved to their next class;
+        # then, where the law allows, the recruits in the same pass
+        aged = np.zeros_like(counts)
+        means = rules.recruit_means(counts, f) if rules.recruits_in_pass else np.empty((n_reps, 0))
+        recruits = np.empty(means.shape, dtype=np.int64)
+        compiled.survive_counts(counts, self.bitgens, rules.survival,
+                                np.ascontiguousarray(f.adult, dtype=float), rules.aged, aged,
+                                means, recruits)
+        if rules.recruits_in_pass:
+            recruits = rules.mutated(recruits, rngs)
+        else:
+            recruits = rules.recruits(counts, births, f, rngs)
         born = recruits.sum(axis=1)
         if rules.ceiling is None:
             aged[:, rules.first] += recruits

@@ -43,12 +43,11 @@ class IndividualPopulations(ReplicateBatch):
         classes = np.tile(np.arange(rules.n_classes, dtype=self._dtype), len(self.rngs))
         self.cell = np.repeat(classes, counts.ravel())
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
-        self._bitgens = compiled.bitgen_addresses(self.rngs)
 
     def state_bytes(self) -> int:
         """Bytes held between seasons: the individuals, and counts by replicate and class."""
         return (self.cell.nbytes + self.counts.nbytes + self.sizes.nbytes
-                + self._bitgens.nbytes)
+                + self.bitgens.nbytes)
 
     def keep(self, which) -> None:
         """Keep only the replicates where ``which`` (bool, one per replicate) is true.
@@ -65,7 +64,6 @@ class IndividualPopulations(ReplicateBatch):
             kept[kept] = which
             self._segments = (self._segments[0], kept)
         self.sizes = self.sizes[which]
-        self._bitgens = self._bitgens[which]
         super().keep(which)
 
     def step(self) -> None:
@@ -86,7 +84,7 @@ class IndividualPopulations(ReplicateBatch):
         by_class = np.zeros((n_reps, rules.n_classes), dtype=np.int64)
         means = rules.recruit_means(counts, f) if rules.recruits_in_pass else np.empty((n_reps, 0))
         recruits = np.empty(means.shape, dtype=np.int64)
-        total = compiled.survive(cell, slice_sizes, drawn, self._bitgens, rules.survival,
+        total = compiled.survive(cell, slice_sizes, drawn, self.bitgens, rules.survival,
                                  np.ascontiguousarray(f.adult, dtype=float), self._aged,
                                  survived, survivors, by_class, means, recruits)
         if rules.recruits_in_pass:

@@ -20,6 +20,7 @@ import numpy as np
 from ..density import Factors
 from ..lifecycle import LifeCycle
 from ..offspring import Poisson
+from . import compiled
 
 __all__ = ["ClassRules", "ReplicateBatch", "OneReplicate"]
 
@@ -176,6 +177,8 @@ class ReplicateBatch:
         self.rules = ClassRules(life)
         self.rngs = np.empty(len(rngs), dtype=object)
         self.rngs[:] = list(rngs)
+        # their state's addresses, for compiled passes (valid while rngs holds the generators)
+        self.bitgens = compiled.bitgen_addresses(self.rngs)
         self.counts = np.asarray(census, dtype=np.int64).reshape(
             len(self.rngs), self.rules.n_classes).copy()
         self.recruits = np.zeros(len(self.rngs), dtype=np.int64)
@@ -187,7 +190,7 @@ class ReplicateBatch:
     def keep(self, which) -> None:
         """Keep only the replicates where ``which`` (bool, one per replicate) is true."""
         which = np.asarray(which, dtype=bool)
-        self.rngs = self.rngs[which]
+        self.rngs, self.bitgens = self.rngs[which], self.bitgens[which]
         self.counts, self.recruits = self.counts[which], self.recruits[which]
 
 
