@@ -1,10 +1,11 @@
-"""The individual engine's passes over individuals, compiled with numba.
+"""The array engines' passes over a batch, compiled with numba.
 
-A season touches each individual once: a uniform from its replicate's stream
-decides its survival, and a survivor moves on, one year older, into the next
-census. In numpy that pass costs a Python call per replicate per season
-(about a microsecond, as much as drawing for 200 individuals); compiled, one
-pass walks every replicate of a batch.
+A season touches each individual once (``individual``: a uniform from its
+replicate's stream decides its survival, and a survivor moves on, one year
+older, into the next census) or each class once (``counts``: its survivors
+are binomial). In numpy that costs Python calls per replicate per season
+(about a microsecond each, as much as drawing for 200 individuals);
+compiled, one pass walks every replicate of a batch.
 
 The draws are numpy's own: each replicate's uniforms come from its
 ``numpy.random.Generator``'s bit generator through numpy's C interface (the

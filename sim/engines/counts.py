@@ -57,15 +57,10 @@ class CountsPopulations(ReplicateBatch):
         # survivors (binomial, one compiled pass for the batch), moved to their next class;
         # then, where the law allows, the recruits in the same pass
         aged = np.zeros_like(counts)
-        means = rules.recruit_means(counts, f) if rules.recruits_in_pass else np.empty((n_reps, 0))
-        recruits = np.empty(means.shape, dtype=np.int64)
-        compiled.survive_counts(counts, self.bitgens, rules.survival,
-                                np.ascontiguousarray(f.adult, dtype=float), rules.aged, aged,
+        means, recruits = rules.pass_recruits(counts, f)
+        compiled.survive_counts(counts, self.bitgens, rules.survival, f.adult, rules.aged, aged,
                                 means, recruits)
-        if rules.recruits_in_pass:
-            recruits = rules.mutated(recruits, rngs)
-        else:
-            recruits = rules.recruits(counts, births, f, rngs)
+        recruits = rules.recruits_after_pass(recruits, counts, births, f, rngs)
         born = recruits.sum(axis=1)
         if rules.ceiling is None:
             aged[:, rules.first] += recruits

@@ -82,15 +82,10 @@ class IndividualPopulations(ReplicateBatch):
         survived = np.empty(cell.size, dtype=self._dtype)
         survivors = np.empty(n_reps, dtype=np.int64)
         by_class = np.zeros((n_reps, rules.n_classes), dtype=np.int64)
-        means = rules.recruit_means(counts, f) if rules.recruits_in_pass else np.empty((n_reps, 0))
-        recruits = np.empty(means.shape, dtype=np.int64)
-        total = compiled.survive(cell, slice_sizes, drawn, self.bitgens, rules.survival,
-                                 np.ascontiguousarray(f.adult, dtype=float), self._aged,
-                                 survived, survivors, by_class, means, recruits)
-        if rules.recruits_in_pass:
-            recruits = rules.mutated(recruits, rngs)
-        else:
-            recruits = rules.recruits(counts, births, f, rngs)
+        means, recruits = rules.pass_recruits(counts, f)
+        total = compiled.survive(cell, slice_sizes, drawn, self.bitgens, rules.survival, f.adult,
+                                 self._aged, survived, survivors, by_class, means, recruits)
+        recruits = rules.recruits_after_pass(recruits, counts, births, f, rngs)
         # 5. next census: survivors, then recruits at age 1; a ceiling's removal
         born = recruits.sum(axis=1)
         cell = np.empty(total + int(born.sum()), dtype=self._dtype)

@@ -90,7 +90,9 @@ class ClassRules:
 
     def _placed(self, d, n) -> Factors:
         f = self.life.density.placed(self.life.density.form.factor(d))
-        return Factors(*(np.broadcast_to(np.asarray(x, dtype=float), (n,)) for x in f))
+        # contiguous float arrays: what the compiled passes take
+        return Factors(*(np.ascontiguousarray(np.broadcast_to(np.asarray(x, dtype=float), (n,)))
+                         for x in f))
 
     # -- steps 2 and 4: births and recruits ------------------------------------------
     # Draws go class by class across the batch, each replicate from its own generator;
@@ -125,6 +127,22 @@ class ClassRules:
                 out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
                                    zip(births[:, c].tolist(), (juvenile * f.recruitment).tolist(), rngs)]
         return self.mutated(out, rngs)
+
+    def pass_recruits(self, counts: np.ndarray, f: Factors) -> tuple[np.ndarray, np.ndarray]:
+        """What a compiled pass takes for recruits: their means by (replicate, allele) and the
+        array it draws them into; both (n_replicates, 0) where the pass draws none
+        (``recruits_in_pass`` false: ``recruits_after_pass`` draws them)."""
+        n = counts.shape[0]
+        means = self.recruit_means(counts, f) if self.recruits_in_pass else np.empty((n, 0))
+        return means, np.empty(means.shape, dtype=np.int64)
+
+    def recruits_after_pass(self, drawn: np.ndarray, counts: np.ndarray, births, f: Factors,
+                            rngs) -> np.ndarray:
+        """Recruits by (replicate, allele) after mutation: the pass's draws ``drawn``, or,
+        where the pass drew none, drawn now (``recruits``)."""
+        if self.recruits_in_pass:
+            return self.mutated(drawn, rngs)
+        return self.recruits(counts, births, f, rngs)
 
     def recruit_means(self, counts: np.ndarray, f: Factors) -> np.ndarray:
         """Mean recruits by (replicate, allele) under Poisson offspring, before mutation.
