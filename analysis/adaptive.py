@@ -1,0 +1,477 @@
+"""Adaptive dynamics of reproductive effort: invasion fitness over pairs of efforts and singular efforts.
+
+A resident with effort x sits at its equilibrium (``sim.meanfield``); a rare
+mutant with effort y meets the density factors it sets there. The invasion
+fitness s(x, y) is the mutant's dominant eigenvalue in that environment
+(Metz, Nisbet & Geritz 1992); without density dependence it is the ratio of
+growth rates lambda(y) / lambda(x), as in ``analysis.invasion``. From s:
+
+- the pairwise invasibility plot: the sign of s(x, y) - 1 over a grid;
+- the selection gradient D(x) = ds/dy at y = x;
+- singular efforts (D = 0) and the ends E = 0, E = 1, classified by
+  the second derivatives of s (Geritz, Kisdi, Meszena & Metz 1998).
+
+Derivatives in the mutant's effort are exact: the projection matrix is
+linear in m(a) and s(a), so dA/dE is the projection matrix of the
+differentiated schedule, and the eigenvalue's first and second derivatives
+follow from perturbation theory (Caswell 2001, ch. 9). The derivative of
+D along the diagonal, which needs the resident's equilibrium to move, is a
+central difference of D.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import brentq
+
+from sim.density import DensityDependence, Factors, NoDensity
+from sim.meanfield import NoEquilibriumError, growth_rate, projection_matrix, solve_equilibrium
+from sim.schedules import Schedule
+from sim.tradeoff import TradeOff, check_effort
+
+from .demography import dominant_eigen
+
+__all__ = [
+    "EffortModel",
+    "EffortEnvironment",
+    "MutantSlopes",
+    "SingularStrategy",
+    "PairwiseInvasibility",
+    "AdaptiveAnalysis",
+    "classify_singular",
+    "pairwise_invasibility",
+    "selection_gradient",
+    "singular_strategies",
+    "analyse_effort",
+]
+
+DEGENERATE_TOLERANCE = 1e-9  # a second derivative or gradient slope below this is called 0
+DIAGONAL_STEP = 1e-5  # step of the central difference of D along the diagonal
+
+
+@dataclass(frozen=True)
+class EffortEnvironment:
+    """What a rare mutant meets in a resident population of effort x.
+
+    Attributes
+    ----------
+    resident : float
+        The resident's effort x.
+    status : str
+        "equilibrium" (density-regulated), "density-free" (no density
+        dependence: fitness is a ratio of growth rates), "extinct" (the
+        resident cannot grow from low density: the mutant meets the empty
+        environment) or "unregulated" (density dependence cannot stop the
+        resident's growth: invasion fitness undefined).
+    factors : Factors or None
+        Density factors on fecundity, adult survival and recruitment.
+    scale : float
+        The mutant's growth rate is divided by this (the resident's own
+        growth rate without density dependence, else 1).
+    """
+
+    resident: float
+    status: str
+    factors: Factors | None
+    scale: float = 1.0
+
+    @property
+    def resident_persists(self) -> bool:
+        """True where s(x, x) = 1: the resident is at equilibrium or density-free."""
+        return self.status in ("equilibrium", "density-free")
+
+
+@dataclass(frozen=True)
+class MutantSlopes:
+    """Invasion fitness s(x, y) and its first two derivatives in the mutant's y, at y = x."""
+
+    resident: float
+    fitness: float
+    gradient: float
+    curvature: float
+
+
+def _growth_rates(schedules, env: EffortEnvironment) -> np.ndarray:
+    """Each schedule's dominant eigenvalue in ``env``, divided by ``env.scale`` (NaN if undefined)."""
+    if env.factors is None or env.scale == 0:
+        return np.full(len(schedules), np.nan)
+    mats = np.array([projection_matrix(s, env.factors) for s in schedules])
+    return np.linalg.eigvals(mats).real.max(axis=-1) / env.scale  # the Perron root has the largest real part
+
+
+@dataclass(frozen=True)
+class EffortModel:
+    """Effort alleles on one trade-off, with one juvenile survival, maturity age and density dependence.
+
+    Parameters
+    ----------
+    tradeoff : TradeOff
+        B(E) and P(E).
+    juvenile_survival : float
+        c, in [0, 1].
+    maturity_age : int, optional
+        First breeding age (>= 1).
+    density : DensityDependence, optional
+        Form and placement (default: none).
+    """
+
+    tradeoff: TradeOff
+    juvenile_survival: float
+    maturity_age: int = 1
+    density: DensityDependence = field(default_factory=lambda: DensityDependence(NoDensity()))
+
+    def __post_init__(self):
+        if not isinstance(self.tradeoff, TradeOff):
+            raise TypeError(f"tradeoff must be a sim.tradeoff.TradeOff; got {type(self.tradeoff).__name__}")
+        if not isinstance(self.density, DensityDependence):
+            raise TypeError(f"density must be a sim.density.DensityDependence; got {type(self.density).__name__}")
+        self.schedule(0.5)  # validates juvenile_survival and maturity_age
+
+    def schedule(self, effort: float) -> Schedule:
+        """The schedule of an allele with this effort (``TradeOff.schedule``)."""
+        return self.tradeoff.schedule(effort, self.juvenile_survival, maturity_age=self.maturity_age)
+
+    def _derivative(self, effort: float, order: int) -> Schedule:
+        return self.tradeoff.schedule_derivative(
+            effort, self.juvenile_survival, maturity_age=self.maturity_age, order=order
+        )
+
+    def environment(self, resident: float) -> EffortEnvironment:
+        """The resident's equilibrium environment (see ``EffortEnvironment.status``)."""
+        x = float(check_effort(resident, "resident effort"))
+        schedule = self.schedule(x)
+        if isinstance(self.density.form, NoDensity):
+            return EffortEnvironment(x, "density-free", Factors(), growth_rate(schedule))
+        try:
+            return EffortEnvironment(x, "equilibrium", solve_equilibrium(schedule, self.density).factors)
+        except NoEquilibriumError:
+            empty = self.density.placed(1.0)  # every form gives f(0) = 1; a ceiling removes nobody
+            if growth_rate(schedule, empty) <= 1.0:
+                return EffortEnvironment(x, "extinct", empty)
+            return EffortEnvironment(x, "unregulated", None)
+
+    def invasion_fitness(self, resident: float, mutants, *, environment: EffortEnvironment | None = None):
+        """s(x, y) for one resident x and every mutant y (array of the mutants' shape).
+
+        NaN where the resident is unregulated.
+        """
+        y = check_effort(mutants, "mutant effort")
+        env = environment or self.environment(resident)
+        return _growth_rates([self.schedule(e) for e in y.ravel()], env).reshape(y.shape)
+
+    def slopes(self, resident: float, *, environment: EffortEnvironment | None = None) -> MutantSlopes:
+        """s(x, x), ds/dy and d2s/dy2 at y = x (exact; infinite where B or P has an infinite slope).
+
+        Notes
+        -----
+        With A(y) the mutant's projection matrix in the resident's
+        environment, w and v its right and left Perron vectors and
+        Z = (lambda I - A)^# the group inverse (Caswell 2001, sec. 9.7)::
+
+            lambda'  = v A' w / (v w)
+            lambda'' = (v A'' w + 2 v A' Z A' w) / (v w)
+            Z = (lambda I - A + w v / (v w))^-1 - w v / (v w)
+        """
+        x = float(check_effort(resident, "resident effort"))
+        env = environment or self.environment(x)
+        if env.factors is None or env.scale == 0:
+            return MutantSlopes(x, np.nan, np.nan, np.nan)
+        a = projection_matrix(self.schedule(x), env.factors)
+        d1 = projection_matrix(self._derivative(x, 1), env.factors)
+        d2 = projection_matrix(self._derivative(x, 2), env.factors)
+        lam, w, v = dominant_eigen(a)
+        vw = float(v @ w)
+        with np.errstate(invalid="ignore", over="ignore"):
+            first = float(v @ d1 @ w) / vw
+            projector = np.outer(w, v) / vw
+            try:
+                group_inverse = np.linalg.inv(lam * np.eye(a.shape[0]) - a + projector) - projector
+                second = (float(v @ d2 @ w) + 2.0 * float(v @ d1 @ group_inverse @ d1 @ w)) / vw
+            except np.linalg.LinAlgError:  # lambda not simple
+                second = np.nan
+        return MutantSlopes(x, lam / env.scale, first / env.scale, second / env.scale)
+
+    def gradient(self, resident: float) -> float:
+        """The selection gradient D(x) = ds(x, y)/dy at y = x."""
+        return self.slopes(resident).gradient
+
+    def parameters(self) -> dict:
+        """The model's inputs as plain values (for JSON)."""
+        form = self.density.form
+        return {
+            "tradeoff": {
+                "max_fecundity": self.tradeoff.max_fecundity,
+                "fecundity_shape": self.tradeoff.fecundity_shape,
+                "max_adult_survival": self.tradeoff.max_adult_survival,
+                "survival_shape": self.tradeoff.survival_shape,
+            },
+            "juvenile_survival": float(self.juvenile_survival),
+            "maturity_age": int(self.maturity_age),
+            "density": {
+                "form": type(form).__name__,
+                "capacity": getattr(form, "capacity", None),
+                "acts_on": self.density.acts_on,
+                "counted": self.density.counted,
+            },
+        }
+
+
+def efforts_grid(grid) -> np.ndarray:
+    """An int n (n evenly spaced efforts on [0, 1]) or increasing efforts in [0, 1] (>= 3 of them)."""
+    if isinstance(grid, (int, np.integer)) and not isinstance(grid, bool):
+        if grid < 3:
+            raise ValueError(f"grid must have at least 3 points; got {grid}")
+        return np.linspace(0.0, 1.0, int(grid))
+    e = check_effort(grid, "grid")
+    if e.ndim != 1 or e.size < 3 or np.any(np.diff(e) <= 0):
+        raise ValueError(f"grid must be at least 3 strictly increasing efforts; got {e.tolist()}")
+    return e
+
+
+@dataclass(frozen=True)
+class PairwiseInvasibility:
+    """Invasion fitness of every mutant effort in every resident effort's environment.
+
+    Attributes
+    ----------
+    efforts : ndarray
+        The grid of efforts (residents and mutants alike).
+    fitness : ndarray, shape (n, n)
+        s[i, j]: fitness of mutant ``efforts[j]`` in resident ``efforts[i]``.
+    status : tuple of str
+        Each resident's ``EffortEnvironment.status``.
+    """
+
+    efforts: np.ndarray
+    fitness: np.ndarray
+    status: tuple
+
+    @property
+    def sign(self) -> np.ndarray:
+        """sign(s - 1): +1 where the mutant invades, -1 where it does not (0 neutral, nan undefined)."""
+        out = np.sign(self.fitness - 1.0)
+        out[np.abs(self.fitness - 1.0) <= DEGENERATE_TOLERANCE] = 0.0
+        return out
+
+
+def pairwise_invasibility(model: EffortModel, *, grid=101) -> PairwiseInvasibility:
+    """The pairwise invasibility table s(x, y) over a grid of efforts.
+
+    Parameters
+    ----------
+    model : EffortModel
+    grid : int or array_like, optional
+        Number of evenly spaced efforts on [0, 1], or the efforts themselves.
+    """
+    e = efforts_grid(grid)
+    envs = [model.environment(x) for x in e]
+    mutants = [model.schedule(y) for y in e]
+    fitness = np.array([_growth_rates(mutants, env) for env in envs])
+    return PairwiseInvasibility(e, fitness, tuple(env.status for env in envs))
+
+
+def selection_gradient(model: EffortModel, efforts) -> np.ndarray:
+    """D(x) = ds(x, y)/dy at y = x for each resident effort x (NaN where unregulated)."""
+    e = check_effort(efforts, "efforts")
+    return np.array([model.gradient(x) for x in e.ravel()]).reshape(e.shape)
+
+
+def _gradient_slope(model: EffortModel, x: float, step: float = DIAGONAL_STEP) -> float:
+    """dD/dx along the diagonal: central difference (one-sided at the ends)."""
+    lo, hi = max(x - step, 0.0), min(x + step, 1.0)
+    return (model.gradient(hi) - model.gradient(lo)) / (hi - lo)
+
+
+@dataclass(frozen=True)
+class SingularStrategy:
+    """A singular effort (D = 0) or an end of the effort axis, classified.
+
+    Attributes
+    ----------
+    effort : float
+    position : str
+        "interior", "lower end" (E = 0) or "upper end" (E = 1).
+    gradient : float
+        D at the effort (about 0 for an interior singular effort).
+    mutant_curvature : float
+        d2s/dy2 at y = x: below 0, nearby mutants cannot invade.
+    resident_curvature : float
+        d2s/dx2 at y = x, from s(x, x) = 1: -2 dD/dx + d2s/dy2.
+    gradient_slope : float
+        dD/dx along the diagonal: below 0, nearby residents move towards it.
+    evolutionarily_stable, convergence_stable : bool
+    invades_when_rare, mutual_invasibility : bool or None
+        The other two properties of Geritz et al. (1998); None at an end
+        with a non-zero gradient.
+    kind : str
+        See ``classify_singular``; "not viable" where a resident with this
+        effort cannot persist.
+    """
+
+    effort: float
+    position: str
+    gradient: float
+    mutant_curvature: float
+    resident_curvature: float
+    gradient_slope: float
+    evolutionarily_stable: bool
+    convergence_stable: bool
+    invades_when_rare: bool | None
+    mutual_invasibility: bool | None
+    kind: str
+
+    def as_dict(self) -> dict:
+        """Plain values (non-finite numbers as None, for JSON)."""
+        out = {}
+        for k, v in self.__dict__.items():
+            if isinstance(v, (float, np.floating)):
+                v = float(v) if np.isfinite(v) else None
+            out[k] = v
+        return out
+
+
+KINDS = (
+    "evolutionarily stable attractor",
+    "branching point",
+    "Garden of Eden",
+    "repeller",
+    "degenerate",
+    "not viable",
+)
+
+
+def classify_singular(mutant_curvature: float, resident_curvature: float) -> dict:
+    """The four properties and the name of a singular strategy (Geritz, Kisdi, Meszena & Metz 1998).
+
+    Parameters
+    ----------
+    mutant_curvature : float
+        a = d2s/dy2 at the singular point.
+    resident_curvature : float
+        c = d2s/dx2 at the singular point.
+
+    Returns
+    -------
+    dict
+        ``evolutionarily_stable`` (a < 0), ``convergence_stable`` (c > a),
+        ``invades_when_rare`` (c > 0), ``mutual_invasibility`` (c > -a) and
+        ``kind``: "evolutionarily stable attractor" (ES and CS, a CSS),
+        "branching point" (CS, not ES), "Garden of Eden" (ES, not CS),
+        "repeller" (neither), or "degenerate" where a, c - a, c or c + a
+        is within 1e-9 of 0 (a higher-order case the test does not decide).
+    """
+    a, c = float(mutant_curvature), float(resident_curvature)
+    margins = np.array([a, c - a, c, c + a])
+    scale = max(abs(a), abs(c), 1.0)
+    if not np.all(np.isfinite(margins)) or np.any(np.abs(margins[:2]) <= DEGENERATE_TOLERANCE * scale):
+        kind = "degenerate"
+    else:
+        kind = {(True, True): KINDS[0], (False, True): KINDS[1], (True, False): KINDS[2], (False, False): KINDS[3]}[
+            (a < 0, c > a)
+        ]
+    near = np.abs(margins) <= DEGENERATE_TOLERANCE * scale
+    return {
+        "evolutionarily_stable": bool(a < 0 and not near[0]),
+        "convergence_stable": bool(c > a and not near[1]),
+        "invades_when_rare": None if near[2] or not np.isfinite(c) else bool(c > 0),
+        "mutual_invasibility": None if near[3] or not np.isfinite(c + a) else bool(c > -a),
+        "kind": kind,
+    }
+
+
+def _classified(model: EffortModel, x: float, position: str, gradient: float) -> SingularStrategy:
+    """Classify one point: by curvatures where D = 0, by the gradient's direction at an end."""
+    env = model.environment(x)
+    if not env.resident_persists:
+        return SingularStrategy(x, position, gradient, np.nan, np.nan, np.nan, False, False, None, None, "not viable")
+    curvature = model.slopes(x, environment=env).curvature
+    slope = _gradient_slope(model, x)
+    resident_curvature = -2.0 * slope + curvature
+    outward = {"lower end": -1.0, "upper end": 1.0}.get(position, 0.0) * gradient
+    if position != "interior" and not np.isnan(outward) and abs(gradient) > DEGENERATE_TOLERANCE:
+        # a boundary strategy: mutants can only lie inside; if the gradient points out of
+        # the axis, they do worse (ES) and nearby residents move towards the end (CS)
+        stable = bool(outward > 0)
+        kind = KINDS[0] if stable else KINDS[3]
+        return SingularStrategy(
+            x, position, gradient, curvature, resident_curvature, slope, stable, stable, None, None, kind
+        )
+    props = classify_singular(curvature, resident_curvature)
+    return SingularStrategy(x, position, gradient, curvature, resident_curvature, slope, **props)
+
+
+def singular_strategies(model: EffortModel, *, grid=101, xtol: float = 1e-12) -> list[SingularStrategy]:
+    """The ends E = 0 and E = 1 and every interior effort where the selection gradient is 0.
+
+    Roots are bracketed by sign changes of D between neighbouring grid
+    efforts (a root between two grid points where D does not change sign,
+    e.g. a double root, is missed) and refined with ``scipy.optimize.brentq``.
+    Interior roots where the resident cannot persist are left out (s(x, x)
+    is not 1 there, so D = 0 has no evolutionary meaning).
+
+    Returns
+    -------
+    list of SingularStrategy
+        Ordered by effort, the ends first and last.
+    """
+    e = efforts_grid(grid)
+    return _singular_on(model, e, selection_gradient(model, e), xtol)
+
+
+def _singular_on(model: EffortModel, e: np.ndarray, d: np.ndarray, xtol: float) -> list[SingularStrategy]:
+    out = [_classified(model, 0.0, "lower end", model.gradient(0.0))]
+    roots = []
+    for i in range(1, e.size - 1):
+        if d[i] == 0.0:
+            roots.append(e[i])
+    for i in range(e.size - 1):
+        lo, hi = d[i], d[i + 1]
+        if np.isfinite(lo) and np.isfinite(hi) and lo * hi < 0:
+            roots.append(brentq(model.gradient, e[i], e[i + 1], xtol=xtol, rtol=4 * np.finfo(float).eps))
+    for x in sorted(roots):
+        if model.environment(x).resident_persists:
+            out.append(_classified(model, float(x), "interior", model.gradient(x)))
+    out.append(_classified(model, 1.0, "upper end", model.gradient(1.0)))
+    return out
+
+
+@dataclass(frozen=True)
+class AdaptiveAnalysis:
+    """The pairwise invasibility table, the selection gradient and the classified singular efforts."""
+
+    model: EffortModel
+    invasibility: PairwiseInvasibility
+    gradient: np.ndarray
+    singular: list
+
+    @property
+    def attractors(self) -> list[float]:
+        """Efforts of the evolutionarily stable attractors (ends included)."""
+        return [s.effort for s in self.singular if s.kind == KINDS[0]]
+
+    def as_dict(self, *, fitness_table: bool = False) -> dict:
+        """JSON-ready: parameters, grid, gradient, singular efforts (and the s table if asked)."""
+
+        def plain(a):
+            return [float(v) if np.isfinite(v) else None for v in np.ravel(a)]
+
+        out = {
+            "parameters": self.model.parameters(),
+            "efforts": plain(self.invasibility.efforts),
+            "resident_status": list(self.invasibility.status),
+            "selection_gradient": plain(self.gradient),
+            "singular": [s.as_dict() for s in self.singular],
+            "attractors": self.attractors,
+        }
+        if fitness_table:
+            out["invasion_fitness"] = [plain(row) for row in self.invasibility.fitness]
+        return out
+
+
+def analyse_effort(model: EffortModel, *, grid=101) -> AdaptiveAnalysis:
+    """Invasibility table, selection gradient and classified singular efforts on one grid."""
+    pip = pairwise_invasibility(model, grid=grid)
+    gradient = selection_gradient(model, pip.efforts)
+    return AdaptiveAnalysis(model, pip, gradient, _singular_on(model, pip.efforts, gradient, 1e-12))
