@@ -26,7 +26,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.optimize import brentq
 
-from sim.density import DensityDependence, Factors, NoDensity
+from sim.density import FORMS, DensityDependence, Factors, NoDensity
 from sim.meanfield import NoEquilibriumError, growth_rate, projection_matrix, solve_equilibrium
 from sim.schedules import Schedule
 from sim.tradeoff import TradeOff, check_effort
@@ -210,7 +210,7 @@ class EffortModel:
             "juvenile_survival": float(self.juvenile_survival),
             "maturity_age": int(self.maturity_age),
             "density": {
-                "form": type(form).__name__,
+                "form": next((k for k, v in FORMS.items() if isinstance(form, v)), type(form).__name__),
                 "capacity": getattr(form, "capacity", None),
                 "acts_on": self.density.acts_on,
                 "counted": self.density.counted,

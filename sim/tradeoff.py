@@ -35,7 +35,7 @@ def check_effort(effort, path: str = "effort") -> np.ndarray:
     e = np.asarray(effort, dtype=float)
     bad = ~np.isfinite(e) | (e < 0) | (e > 1)
     if np.any(bad):
-        raise ValueError(f"{path} must be in [0, 1]; got {e[bad].ravel()[0]!r}")
+        raise ValueError(f"{path} must be in [0, 1]; got {float(e[bad].ravel()[0])!r}")
     return e
 
 

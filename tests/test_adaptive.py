@@ -1,0 +1,277 @@
+"""Adaptive dynamics of reproductive effort against published and derived results."""
+
+import json
+
+import numpy as np
+import pytest
+
+from analysis.adaptive import (
+    EffortModel,
+    analyse_effort,
+    classify_singular,
+    pairwise_invasibility,
+    selection_gradient,
+    singular_strategies,
+)
+from analysis.invasibility import invasibility
+from sim.density import DensityDependence
+from sim.tradeoff import TradeOff
+
+C = 0.5  # juvenile survival
+CONCAVE = TradeOff(max_fecundity=3.0, fecundity_shape=0.5, max_adult_survival=0.9, survival_shape=1.0)
+CONVEX = TradeOff(max_fecundity=1.5, fecundity_shape=2.0, max_adult_survival=0.9, survival_shape=1.0)
+NO_DENSITY = DensityDependence.from_names("none")
+
+
+def dd(form, acts_on, counted="census", capacity=100.0):
+    return DensityDependence.from_names(form, capacity, acts_on, counted)
+
+
+def kinds(strategies):
+    return [(s.position, s.kind) for s in strategies]
+
+
+# --- Schaffer 1974: linear trade-off, no density dependence --------------------------------------
+
+
+@pytest.mark.parametrize("max_fecundity, winner", [(2.2, 1.0), (1.4, 0.0)])
+def test_linear_tradeoff_without_density_goes_to_an_end(max_fecundity, winner):
+    # Schaffer 1974: lambda(E) = c B(E) + P(E) is linear in E, so the end point is E = 1 when
+    # c * max_fecundity > max_adult_survival (here 1.1 > 0.9) and E = 0 otherwise (0.7 < 0.9)
+    model = EffortModel(TradeOff(max_fecundity, 1.0, 0.9, 1.0), C)
+    strategies = singular_strategies(model, grid=21)
+    assert [s.position for s in strategies] == ["lower end", "upper end"]  # no interior singular effort
+    assert [s.effort for s in strategies if s.kind == "evolutionarily stable attractor"] == [winner]
+    # and the gradient is the constant slope of lambda, divided by the resident's lambda
+    e = np.linspace(0, 1, 11)
+    lam = C * max_fecundity * e + 0.9 * (1 - e)
+    np.testing.assert_allclose(selection_gradient(model, e), (C * max_fecundity - 0.9) / lam, rtol=1e-12)
+
+
+def test_fitness_without_density_is_the_ratio_of_growth_rates():
+    # lambda = c B + P (Charnov & Schaffer 1973); without regulation the invasion fitness is
+    # lambda_m / lambda_r (as in analysis.invasion)
+    pip = pairwise_invasibility(EffortModel(CONVEX, C), grid=11)
+    lam = C * CONVEX.fecundity(pip.efforts) + CONVEX.adult_survival(pip.efforts)
+    np.testing.assert_allclose(pip.fitness, lam[None, :] / lam[:, None], rtol=1e-12)
+
+
+# --- Mylius & Diekmann 1995: regulation on recruitment or fecundity maximises B / (1 - P) ---------
+
+
+@pytest.mark.parametrize(
+    "density, maturity_age",
+    [
+        (dd("beverton-holt", "recruitment"), 1),
+        (dd("ricker", "fecundity", "breeders"), 1),
+        (dd("beverton-holt", "recruitment", "offspring"), 2),
+        (dd("ceiling", "recruitment"), 3),
+    ],
+)
+def test_regulated_recruitment_maximises_the_ratio(density, maturity_age):
+    # Mylius & Diekmann 1995: where regulation acts on recruitment (or fecundity) alone, the mutant
+    # invades iff R0 is larger, and R0 is proportional to B(E) / (1 - P(E)) (derived: the years
+    # before maturity survive with P(0) whatever E, so they scale R0 by a constant)
+    model = EffortModel(CONCAVE, C, maturity_age, density)
+    pip = pairwise_invasibility(model, grid=21)
+    ratio = CONCAVE.fecundity(pip.efforts) / (1 - CONCAVE.adult_survival(pip.efforts))
+    persists = np.array([s == "equilibrium" for s in pip.status])
+    assert persists.sum() >= 15
+    expected = np.sign(ratio[None, :] - ratio[:, None])[persists]
+    got = np.sign(pip.fitness - 1)[persists]
+    off = np.abs(expected) > 0
+    np.testing.assert_array_equal(got[off], expected[off])
+
+
+def test_regulated_recruitment_moves_the_concave_optimum():
+    # derived from Mylius & Diekmann 1995: d/dE [sqrt(E) / (1 - p + p E)] = 0 at E = (1 - p) / p,
+    # not at the density-free optimum (c a / 2p)^2
+    model = EffortModel(CONCAVE, C, 1, dd("beverton-holt", "recruitment"))
+    interior = [s for s in singular_strategies(model, grid=21) if s.position == "interior"]
+    assert len(interior) == 1
+    assert interior[0].effort == pytest.approx(0.1 / 0.9, abs=1e-10)
+    assert interior[0].kind == "evolutionarily stable attractor"
+
+
+@pytest.mark.parametrize("max_fecundity", [2.4, 3.0, 5.0])
+def test_linear_tradeoff_under_regulated_recruitment_goes_to_full_effort(max_fecundity):
+    # derived: B / (1 - P) = a E / (1 - p + p E) has derivative a (1 - p) / (1 - p + p E)^2 > 0, so
+    # E = 1 wins for every linear curve (Mylius & Diekmann 1995 for what is maximised); a linear
+    # curve with c a <= 1 has lambda = p + (c a - p) E <= 1 at every effort (p < 1), so no
+    # resident persists there and the statement is about curves with c a > 1
+    model = EffortModel(TradeOff(max_fecundity, 1.0, 0.9, 1.0), C, 1, dd("beverton-holt", "recruitment"))
+    result = analyse_effort(model, grid=21)
+    assert result.attractors == [1.0]
+    ok = np.isfinite(result.gradient) & np.array([s == "equilibrium" for s in result.invasibility.status])
+    assert ok.sum() >= 10 and np.all(result.gradient[ok] > 0)
+
+
+# --- concave benefit: the interior CSS (derived) ---------------------------------------------------
+
+
+@pytest.mark.parametrize("density", [NO_DENSITY, dd("beverton-holt", "all-survival"), dd("ceiling", "all-survival")])
+def test_concave_benefit_has_a_stable_interior_effort(density):
+    # derived: lambda = c a sqrt(E) + p (1 - E), d/dE = c a / (2 sqrt E) - p = 0 at
+    # E* = (c a / (2 p))^2; d2/dE2 < 0, so E* is evolutionarily stable, and with regulation on all
+    # survival (one factor times lambda) the same E* is convergence stable
+    model = EffortModel(CONCAVE, C, 1, density)
+    expected = (C * 3.0 / (2 * 0.9)) ** 2
+    interior = [s for s in singular_strategies(model, grid=21) if s.position == "interior"]
+    assert len(interior) == 1
+    star = interior[0]
+    assert star.effort == pytest.approx(expected, abs=1e-10)
+    assert star.evolutionarily_stable and star.convergence_stable
+    assert star.kind == "evolutionarily stable attractor"
+
+
+def finite_difference_curvatures(model, x, h=1e-3):
+    """d2s/dy2 and d2s/dx2 at (x, x) by central differences of the invasion fitness itself."""
+    s = model.invasion_fitness
+    s_yy = (s(x, x + h) - 2 * s(x, x) + s(x, x - h)) / h**2
+    s_xx = (s(x + h, x) - 2 * s(x, x) + s(x - h, x)) / h**2
+    return float(s_yy), float(s_xx)
+
+
+@pytest.mark.parametrize(
+    "tradeoff, density, maturity_age",
+    [
+        (CONCAVE, NO_DENSITY, 1),
+        (CONCAVE, dd("beverton-holt", "all-survival"), 1),
+        (CONCAVE, dd("ricker", "recruitment"), 2),
+        (CONCAVE, dd("beverton-holt", "adult-survival", "offspring"), 3),
+        (CONVEX, NO_DENSITY, 2),
+    ],
+)
+def test_classification_agrees_with_finite_differences(tradeoff, density, maturity_age):
+    # the module's curvatures are exact (eigenvalue perturbation, Caswell 2001 ch. 9) and its
+    # resident curvature uses s(x, x) = 1; the reference here is a plain central difference of
+    # s(x, y) in each argument (error O(h^2) ~ 1e-6 relative, hence rtol 1e-4)
+    model = EffortModel(tradeoff, C, maturity_age, density)
+    interior = [s for s in singular_strategies(model, grid=21) if s.position == "interior"]
+    assert len(interior) == 1
+    star = interior[0]
+    s_yy, s_xx = finite_difference_curvatures(model, star.effort)
+    assert star.mutant_curvature == pytest.approx(s_yy, rel=1e-4)
+    assert star.resident_curvature == pytest.approx(s_xx, rel=1e-4, abs=1e-6)
+    props = classify_singular(s_yy, s_xx)
+    assert (star.evolutionarily_stable, star.convergence_stable, star.kind) == (
+        props["evolutionarily_stable"],
+        props["convergence_stable"],
+        props["kind"],
+    )
+
+
+def test_gradient_agrees_with_finite_differences_off_the_singular_point():
+    model = EffortModel(CONCAVE, C, 3, dd("beverton-holt", "fecundity"))
+    h = 1e-6
+    for x in (0.3, 0.55, 0.8):
+        fd = (model.invasion_fitness(x, x + h) - model.invasion_fitness(x, x - h)) / (2 * h)
+        assert model.gradient(x) == pytest.approx(float(fd), rel=1e-6)
+
+
+# --- Geritz, Kisdi, Meszena & Metz 1998: the classification -----------------------------------------
+
+
+@pytest.mark.parametrize(
+    "a, c, kind, rare, mutual",
+    [
+        (-1.0, 0.5, "evolutionarily stable attractor", True, False),
+        (-1.0, -0.5, "evolutionarily stable attractor", False, False),
+        (1.0, 2.0, "branching point", True, True),
+        (-1.0, -2.0, "Garden of Eden", False, False),
+        (1.0, 0.5, "repeller", True, True),
+        (1.0, -0.5, "repeller", False, True),
+        (1.0, -2.0, "repeller", False, False),
+        (0.0, 1.0, "degenerate", True, True),
+    ],
+)
+def test_classification_table(a, c, kind, rare, mutual):
+    # Geritz et al. 1998: ES iff a = s_yy < 0; convergence stable iff c = s_xx > a; invades when
+    # rare iff c > 0; mutual invasibility iff c > -a
+    props = classify_singular(a, c)
+    assert props["kind"] == kind
+    assert (props["invades_when_rare"], props["mutual_invasibility"]) == (rare, mutual)
+
+
+# --- the invasibility plot's sign pattern matches the classification ------------------------------
+
+
+def grid_with(point, n=41):
+    grid = np.linspace(0, 1, n)
+    return np.sort(np.concatenate([grid[np.abs(grid - point) > 1e-9], [point]]))
+
+
+def neighbour_signs(pip, i):
+    """sign(s - 1) for the mutants just below and just above resident i."""
+    sign = pip.sign
+    return sign[i, i - 1] if i > 0 else None, sign[i, i + 1] if i + 1 < pip.efforts.size else None
+
+
+def test_pip_of_an_attractor():
+    # evolutionarily stable: no mutant invades the singular resident; convergence stable: below it
+    # mutants with more effort invade, above it mutants with less (Geritz et al. 1998)
+    model = EffortModel(CONCAVE, C)
+    star = (C * 3.0 / (2 * 0.9)) ** 2
+    pip = pairwise_invasibility(model, grid=grid_with(star))
+    k = int(np.flatnonzero(pip.efforts == star)[0])
+    others = np.arange(pip.efforts.size) != k
+    assert np.all(pip.sign[k, others] == -1)
+    for i in range(1, pip.efforts.size - 1):
+        below, above = neighbour_signs(pip, i)
+        if i < k:
+            assert (below, above) == (-1, 1)
+        elif i > k:
+            assert (below, above) == (1, -1)
+
+
+def test_pip_of_a_repeller_between_two_stable_ends():
+    # convex benefit: lambda = c a E^2 + p (1 - E) has a minimum at E* = p / (2 c a) = 0.6 (derived):
+    # every mutant invades there, residents move away from it, and each end is stable against
+    # its neighbours (the gradient points out of the axis)
+    model = EffortModel(CONVEX, C)
+    result = analyse_effort(model, grid=grid_with(0.6))
+    assert kinds(result.singular) == [
+        ("lower end", "evolutionarily stable attractor"),
+        ("interior", "repeller"),
+        ("upper end", "evolutionarily stable attractor"),
+    ]
+    assert result.singular[1].effort == pytest.approx(0.6, abs=1e-10)
+    pip = result.invasibility
+    k = int(np.flatnonzero(pip.efforts == 0.6)[0])
+    others = np.arange(pip.efforts.size) != k
+    assert np.all(pip.sign[k, others] == 1)
+    for i in range(1, pip.efforts.size - 1):
+        if i != k:
+            assert neighbour_signs(pip, i) == ((1, -1) if i < k else (-1, 1))
+    assert pip.sign[0, 1] == -1 and pip.sign[-1, -2] == -1
+
+
+def test_invasibility_writes_figures_table_and_json(tmp_path):
+    model = EffortModel(CONCAVE, C, 1, dd("beverton-holt", "recruitment"))
+    out = invasibility(model, tmp_path / "pip", grid=11)
+    for key in ("pairwise_invasibility_png", "pairwise_invasibility_svg", "selection_gradient_png",
+                "selection_gradient_svg", "invasion_fitness_csv", "json"):
+        assert out.files[key].stat().st_size > 0
+    data = json.loads(out.files["json"].read_text())
+    assert data["parameters"]["density"] == {"form": "beverton-holt", "capacity": 100.0,
+                                             "acts_on": "recruitment", "counted": "census"}
+    assert data["attractors"] == [pytest.approx(0.1 / 0.9)]
+    assert [s["kind"] for s in data["singular"]] == ["not viable", "evolutionarily stable attractor", "repeller"]
+    table = np.loadtxt(out.files["invasion_fitness_csv"], delimiter=",", skiprows=1)
+    np.testing.assert_allclose(table[:, 1:], out.analysis.invasibility.fitness, rtol=1e-10)
+
+
+@pytest.mark.parametrize(
+    "build, error, match",
+    [
+        (lambda: EffortModel("curve", C), TypeError, "tradeoff must be a sim.tradeoff.TradeOff"),
+        (lambda: EffortModel(CONCAVE, 2.0), ValueError, r"juvenile_survival must be in \[0, 1\]"),
+        (lambda: EffortModel(CONCAVE, C, density="ricker"), TypeError, "density must be"),
+        (lambda: pairwise_invasibility(EffortModel(CONCAVE, C), grid=2), ValueError, "at least 3 points"),
+        (lambda: pairwise_invasibility(EffortModel(CONCAVE, C), grid=[0, 0.5, 0.4]), ValueError, "increasing"),
+        (lambda: invasibility({"tradeoff": CONCAVE}, "x"), TypeError, "needs an analysis.adaptive.EffortModel"),
+    ],
+)
+def test_bad_input(build, error, match):
+    with pytest.raises(error, match=match):
+        build()
