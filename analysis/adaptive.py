@@ -307,7 +307,8 @@ class SingularStrategy:
         with a non-zero gradient.
     kind : str
         See ``classify_singular``; "not viable" where a resident with this
-        effort cannot persist.
+        effort cannot persist, "unregulated" where density dependence cannot
+        stop its growth (no equilibrium, so no invasion fitness).
     """
 
     effort: float
@@ -339,6 +340,7 @@ KINDS = (
     "repeller",
     "degenerate",
     "not viable",
+    "unregulated",
 )
 
 
@@ -385,7 +387,8 @@ def _classified(model: EffortModel, x: float, position: str, gradient: float) ->
     """Classify one point: by curvatures where D = 0, by the gradient's direction at an end."""
     env = model.environment(x)
     if not env.resident_persists:
-        return SingularStrategy(x, position, gradient, np.nan, np.nan, np.nan, False, False, None, None, "not viable")
+        kind = "unregulated" if env.status == "unregulated" else "not viable"
+        return SingularStrategy(x, position, gradient, np.nan, np.nan, np.nan, False, False, None, None, kind)
     curvature = model.slopes(x, environment=env).curvature
     slope = _gradient_slope(model, x)
     resident_curvature = -2.0 * slope + curvature

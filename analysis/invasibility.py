@@ -39,6 +39,11 @@ _MARKERS = {
     "repeller": ("o", "white"),
     "degenerate": ("x", "tab:orange"),
     "not viable": ("x", "tab:red"),
+    "unregulated": ("x", "tab:blue"),
+}
+_HATCHES = {  # resident status -> (colour, legend label)
+    "extinct": ("tab:red", "resident cannot persist"),
+    "unregulated": ("tab:blue", "resident unregulated (fitness undefined)"),
 }
 
 
@@ -60,7 +65,8 @@ def _mark_singular(ax, analysis: AdaptiveAnalysis, y_of) -> None:
         marker, colour = _MARKERS[s.kind]
         label = None if s.kind in seen else s.kind
         seen.add(s.kind)
-        ax.plot([s.effort], [y_of(s.effort)], marker=marker, color=colour, markeredgecolor="black",
+        edge = colour if marker == "x" else "black"
+        ax.plot([s.effort], [y_of(s.effort)], marker=marker, color=colour, markeredgecolor=edge,
                 markersize=8, linestyle="none", label=label, clip_on=False, zorder=5)
 
 
@@ -72,10 +78,10 @@ def invasibility_figure(analysis: AdaptiveAnalysis):
     sign = np.where(np.isnan(pip.fitness), np.nan, (pip.fitness > 1.0).astype(float))
     fig, ax = plt.subplots(figsize=(6.0, 5.6))
     ax.pcolormesh(edges, edges, sign.T, cmap=ListedColormap(["white", "0.55"]), vmin=0, vmax=1, shading="flat")
-    gone = np.array([not s for s in (st in ("equilibrium", "density-free") for st in pip.status)])
-    if gone.any():
-        for i in np.flatnonzero(gone):
-            ax.axvspan(edges[i], edges[i + 1], facecolor="none", edgecolor="tab:red", hatch="//", linewidth=0)
+    for i, status in enumerate(pip.status):
+        if status in _HATCHES:
+            colour = _HATCHES[status][0]
+            ax.axvspan(edges[i], edges[i + 1], facecolor="none", edgecolor=colour, hatch="//", linewidth=0)
     ax.plot([0, 1], [0, 1], color="black", linewidth=1)
     _mark_singular(ax, analysis, lambda x: x)
     ax.set_xlim(0, 1)
@@ -86,8 +92,9 @@ def invasibility_figure(analysis: AdaptiveAnalysis):
     ax.set_title("Pairwise invasibility: shaded where the mutant invades")
     handles, labels = ax.get_legend_handles_labels()
     handles.append(Patch(facecolor="0.55", label="mutant invades (fitness > 1)"))
-    if gone.any():
-        handles.append(Patch(facecolor="none", edgecolor="tab:red", hatch="//", label="resident cannot persist"))
+    for status, (colour, label) in _HATCHES.items():
+        if status in pip.status:
+            handles.append(Patch(facecolor="none", edgecolor=colour, hatch="//", label=label))
     ax.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=2, fontsize=8, frameon=False)
     fig.tight_layout()
     return fig

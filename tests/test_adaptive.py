@@ -275,3 +275,41 @@ def test_invasibility_writes_figures_table_and_json(tmp_path):
 def test_bad_input(build, error, match):
     with pytest.raises(error, match=match):
         build()
+
+
+def test_unregulated_residents_have_no_fitness():
+    # density on adult survival alone cannot regulate a resident whose recruits alone replace it
+    # (c B(E) > 1 here for E > 4/9): no equilibrium (sim.meanfield), so no invasion fitness
+    model = EffortModel(CONCAVE, C, 1, dd("beverton-holt", "adult-survival"))
+    result = analyse_effort(model, grid=12)  # no grid point on c B(E) = 1 itself
+    status = np.array(result.invasibility.status)
+    e = result.invasibility.efforts
+    np.testing.assert_array_equal(status[1:] == "unregulated", C * CONCAVE.fecundity(e[1:]) > 1)
+    assert np.all(np.isnan(result.invasibility.fitness[status == "unregulated"]))
+    assert kinds(result.singular)[-1] == ("upper end", "unregulated")
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("maturity_age", [1, 2, 4])
+@pytest.mark.parametrize("form", ["beverton-holt", "ricker", "ceiling"])
+@pytest.mark.parametrize("acts_on", ["recruitment", "fecundity", "all-survival"])
+def test_what_is_maximised_on_a_fine_grid(form, acts_on, maturity_age):
+    # Mylius & Diekmann 1995: regulation on recruitment or fecundity alone -> the mutant invades iff
+    # B / (1 - P) is larger; on all survival (one factor times the whole matrix) -> iff lambda in
+    # the empty environment is larger. Checked over every viable pair of a 101-point grid.
+    if form == "ceiling" and acts_on == "fecundity":
+        pytest.skip("a ceiling removes individuals after recruitment")
+    model = EffortModel(CONCAVE, C, maturity_age, dd(form, acts_on))
+    pip = pairwise_invasibility(model, grid=101)
+    e = pip.efforts
+    if acts_on == "all-survival":
+        score = np.array([float(model.invasion_fitness(0.0, x)) for x in e])  # empty environment
+        if maturity_age == 1:
+            np.testing.assert_allclose(score, C * CONCAVE.fecundity(e) + CONCAVE.adult_survival(e))
+    else:
+        score = CONCAVE.fecundity(e) / (1 - CONCAVE.adult_survival(e))
+    persists = np.array([s == "equilibrium" for s in pip.status])
+    expected = np.sign(score[None, :] - score[:, None])[persists]
+    got = pip.sign[persists]
+    off = np.abs(score[None, :] - score[:, None])[persists] > 1e-9
+    np.testing.assert_array_equal(got[off], expected[off])
