@@ -124,6 +124,13 @@ def test_concave_benefit_has_a_stable_interior_effort(density):
     assert star.kind == "evolutionarily stable attractor"
 
 
+def test_singular_effort_next_to_an_infinite_gradient_is_found():
+    # E* = (c a / 2p)^2 = (0.3 / 1.8)^2 lies in the first grid interval, where D(0) = +inf
+    model = EffortModel(TradeOff(0.6, 0.5, 0.9, 1.0), C)
+    interior = [s for s in singular_strategies(model, grid=11) if s.position == "interior"]
+    assert [s.effort for s in interior] == [pytest.approx((0.3 / 1.8) ** 2, abs=1e-10)]
+
+
 def finite_difference_curvatures(model, x, h=1e-3):
     """d2s/dy2 and d2s/dx2 at (x, x) by central differences of the invasion fitness itself."""
     s = model.invasion_fitness
