@@ -430,13 +430,14 @@ def _singular_on(model: EffortModel, e: np.ndarray, d: np.ndarray, xtol: float) 
         if d[i] == 0.0:
             roots.append(e[i])
     for i in range(e.size - 1):
-        a, b = e[i], e[i + 1]
+        (a, lo), (b, hi) = (e[i], d[i]), (e[i + 1], d[i + 1])
         # an infinite slope at an end of the curve (shape < 1): bracket from just inside instead
-        if np.isinf(d[i]):
+        if np.isinf(lo):
             a = a + 1e-9 * (b - a)
-        if np.isinf(d[i + 1]):
-            b = b - 1e-9 * (b - a)
-        lo, hi = model.gradient(a) if a != e[i] else d[i], model.gradient(b) if b != e[i + 1] else d[i + 1]
+            lo = model.gradient(a)
+        if np.isinf(hi):
+            b = b - 1e-9 * (b - e[i])
+            hi = model.gradient(b)
         if np.isfinite(lo) and np.isfinite(hi) and lo * hi < 0:
             roots.append(brentq(model.gradient, a, b, xtol=xtol, rtol=4 * np.finfo(float).eps))
     for x in sorted(roots):

@@ -266,6 +266,8 @@ def test_invasibility_writes_figures_table_and_json(tmp_path):
     assert [s["kind"] for s in data["singular"]] == ["not viable", "evolutionarily stable attractor", "repeller"]
     table = np.loadtxt(out.files["invasion_fitness_csv"], delimiter=",", skiprows=1)
     np.testing.assert_allclose(table[:, 1:], out.analysis.invasibility.fitness, rtol=1e-10)
+    full = json.loads(json.dumps(out.analysis.as_dict(fitness_table=True)))
+    np.testing.assert_allclose(np.array(full["invasion_fitness"], float), table[:, 1:], rtol=1e-10)
 
 
 @pytest.mark.parametrize(
