@@ -126,14 +126,17 @@ def year_matrices(schedule: Schedule, years: YearTypes, factors: Factors = Facto
     return fert * (factors.fecundity * factors.recruitment) + surv * factors.adult
 
 
-def _log_increments(fert, surv, seq, f_fert=None, f_surv=None) -> np.ndarray:
-    """log(total after / total before) of each season of a normalised matrix product.
+def _log_increments(fert, surv, seq, f_fert=None, f_surv=None, weights=None) -> np.ndarray:
+    """log(size after / size before) of each season of a normalised matrix product.
 
     ``f_fert`` and ``f_surv`` (shape of ``seq``) are density factors per season
-    (f_fec f_rec and f_adult); all 1 when omitted.
+    (f_fec f_rec and f_adult); all 1 when omitted. Size is ``x @ weights``
+    (default: the total); any positive weights give the same long-run mean,
+    since the sums telescope to log(size at the end / size at the start).
     """
     n_b, n_t = seq.shape
-    x = np.full((n_b, fert.shape[1]), 1.0 / fert.shape[1])
+    w = np.ones(fert.shape[1]) if weights is None else np.asarray(weights, dtype=float)
+    x = np.full((n_b, fert.shape[1]), 1.0 / float(w.sum()))  # size 1
     out = np.empty((n_b, n_t))
     with np.errstate(divide="ignore", invalid="ignore"):
         for t in range(n_t):
@@ -141,9 +144,9 @@ def _log_increments(fert, surv, seq, f_fert=None, f_surv=None) -> np.ndarray:
             a = fert[y] if f_fert is None else fert[y] * f_fert[:, t, None, None]
             a = a + (surv[y] if f_surv is None else surv[y] * f_surv[:, t, None, None])
             x = np.einsum("bij,bj->bi", a, x)
-            total = x.sum(axis=1)
-            out[:, t] = np.log(total)
-            x = x / np.where(total > 0, total, 1.0)[:, None]
+            size = x @ w
+            out[:, t] = np.log(size)
+            x = x / np.where(size > 0, size, 1.0)[:, None]
     return out
 
 
@@ -218,6 +221,22 @@ def small_noise_approximation(schedule: Schedule, years: YearTypes, factors: Fac
     return float(np.log(lam) - tau2 / (2.0 * lam**2))
 
 
+def _linear_term(schedule: Schedule, years: YearTypes, factors: Factors):
+    """Z_k = S : (A_k - A_bar) / lambda_1 for each year type (mean 0 under the law), and weights.
+
+    The weights are the reproductive values v of A_bar where all are positive
+    (else None: the total): measured by v, a season's log growth is Z_t plus
+    terms of second order in the noise.
+    """
+    mats = year_matrices(schedule, years, factors)
+    mean = np.tensordot(years.stationary_law(), mats, axes=1)
+    lam, w, v = dominant_eigen(mean)
+    if lam <= 0 or float(v @ w) <= 0 or np.any(v <= 0):
+        return None, None
+    sens = np.outer(v, w) / float(v @ w)
+    return np.einsum("ij,kij->k", sens, mats - mean) / lam, v
+
+
 def stochastic_growth_rate(
     schedule: Schedule, years: YearTypes, sequences: YearSequences, *, factors: Factors = Factors()
 ) -> StochasticGrowth:
@@ -235,15 +254,26 @@ def stochastic_growth_rate(
     Notes
     -----
     log lambda_s = lim (1/t) log ||A_t ... A_1 x|| exists and does not depend on
-    x for an ergodic year sequence (Furstenberg & Kesten 1960; Tuljapurkar
-    1990, ch. 2). A one-class schedule has a scalar matrix, so log lambda_s is
-    exactly sum_k pi_k log lambda_k (Lewontin & Cohen 1969).
+    x or on the norm for an ergodic year sequence (Furstenberg & Kesten 1960;
+    Tuljapurkar 1990, ch. 2). A one-class schedule has a scalar matrix, so
+    log lambda_s is exactly sum_k pi_k log lambda_k (Lewontin & Cohen 1969).
+
+    Size is measured by the reproductive values v of the mean matrix. For iid
+    years the season's first-order term Z_t = S : (A_t - A_bar) / lambda_1
+    (the linear term of Tuljapurkar's expansion, of mean exactly 0) is then
+    subtracted from each increment as a control variate: the estimate stays
+    unbiased and its variance falls from order sigma^2 to order sigma^4 in
+    the noise sigma (control variates: Asmussen & Glynn 2007, ch. V).
     """
     fert, surv = _parts(schedule, years)
+    linear, values = _linear_term(schedule, years, factors)
     inc = _log_increments(
-        fert * (factors.fecundity * factors.recruitment), surv * factors.adult, sequences.indices
-    )
-    est, se = _batch_estimate(inc[:, sequences.burn_in :])
+        fert * (factors.fecundity * factors.recruitment), surv * factors.adult, sequences.indices,
+        weights=values,
+    )[:, sequences.burn_in :]
+    if years.switching == "iid" and linear is not None and np.all(np.isfinite(inc)):
+        inc = inc - linear[sequences.recorded]
+    est, se = _batch_estimate(inc)
     return StochasticGrowth(
         schedule.name, est, se, small_noise_approximation(schedule, years, factors),
         sequences.n_batches, sequences.batch_length, sequences.burn_in,
@@ -388,14 +418,31 @@ def _regulated(density) -> bool:
     return density is not None and not isinstance(density.form, NoDensity)
 
 
-def _log_fitness_increments(resident, mutant, years, density, sequences):
-    """Per-season log growth of the mutant minus the resident's (recorded seasons) and the path."""
+def _same_schedule(a: Schedule, b: Schedule) -> bool:
+    return (a.juvenile_survival == b.juvenile_survival and np.array_equal(a.fecundity, b.fecundity)
+            and np.array_equal(a.survival, b.survival))
+
+
+def _log_fitness_increments(resident, mutant, years, density, sequences, cache=None):
+    """Per-season log growth of the mutant minus the resident's (recorded seasons) and the path.
+
+    ``cache`` (a dict) keeps the resident's path or increments between calls
+    with the same resident (a threshold along a mutant's parameter).
+    """
     fert_m, surv_m = _parts(mutant, years)
+    cache = {} if cache is None else cache
+    if "resident" in cache and _same_schedule(cache["resident"], resident):
+        resident_part = cache["part"]
+    else:
+        if _regulated(density):
+            resident_part = resident_path(resident, years, density, sequences)
+        else:
+            resident_part = _log_increments(*_parts(resident, years), sequences.indices)
+        cache.update(resident=resident, part=resident_part)
     if not _regulated(density):
-        fert_r, surv_r = _parts(resident, years)
-        inc = _log_increments(fert_m, surv_m, sequences.indices) - _log_increments(fert_r, surv_r, sequences.indices)
+        inc = _log_increments(fert_m, surv_m, sequences.indices) - resident_part
         return inc[:, sequences.burn_in :], None
-    path = resident_path(resident, years, density, sequences)
+    path = resident_part
     inc = _log_increments(fert_m, surv_m, sequences.indices, path.fertility_factor, path.factors.adult)
     return inc[:, sequences.burn_in :], path
 
@@ -503,9 +550,11 @@ def stochastic_threshold(
     theta and g' by a central difference on the same sequences (e.g.
     Asmussen & Glynn 2007, ch. III on smooth functions of estimates).
     """
+    cache: dict = {}
+
     def increments(v):
         r, m = pair(float(v))
-        return _log_fitness_increments(r, m, years, density, sequences)[0]
+        return _log_fitness_increments(r, m, years, density, sequences, cache)[0]
 
     def g(v):
         return float(increments(v).mean())
