@@ -136,7 +136,8 @@ def _log_increments(fert, surv, seq, f_fert=None, f_surv=None, weights=None) -> 
     """
     n_b, n_t = seq.shape
     w = np.ones(fert.shape[1]) if weights is None else np.asarray(weights, dtype=float)
-    x = np.full((n_b, fert.shape[1]), 1.0 / float(w.sum()))  # size 1
+    x = np.zeros((n_b, fert.shape[1]))
+    x[:, 0] = 1.0 / w[0]  # one recruit (age 1) of size 1: see the notes of stochastic_growth_rate
     out = np.empty((n_b, n_t))
     with np.errstate(divide="ignore", invalid="ignore"):
         for t in range(n_t):
@@ -258,20 +259,26 @@ def stochastic_growth_rate(
     Tuljapurkar 1990, ch. 2). A one-class schedule has a scalar matrix, so
     log lambda_s is exactly sum_k pi_k log lambda_k (Lewontin & Cohen 1969).
 
-    Size is measured by the reproductive values v of the mean matrix. For iid
-    years the season's first-order term Z_t = S : (A_t - A_bar) / lambda_1
+    The product starts from one age-1 individual, so it follows the lineage
+    of a recruit: for an imprimitive (cyclic) schedule, such as semelparity
+    at an age above 1, a start spread over all ages would make two or more
+    cohort lines whose size ratio wanders like a random walk, biasing each
+    batch's mean upward by order 1/sqrt(batch_length).
+
+    For iid years size is measured by the reproductive values v of the mean
+    matrix, and the season's first-order term Z_t = S : (A_t - A_bar) / lambda_1
     (the linear term of Tuljapurkar's expansion, of mean exactly 0) is then
     subtracted from each increment as a control variate: the estimate stays
     unbiased and its variance falls from order sigma^2 to order sigma^4 in
     the noise sigma (control variates: Asmussen & Glynn 2007, ch. V).
     """
     fert, surv = _parts(schedule, years)
-    linear, values = _linear_term(schedule, years, factors)
+    linear, values = _linear_term(schedule, years, factors) if years.switching == "iid" else (None, None)
     inc = _log_increments(
         fert * (factors.fecundity * factors.recruitment), surv * factors.adult, sequences.indices,
         weights=values,
     )[:, sequences.burn_in :]
-    if years.switching == "iid" and linear is not None and np.all(np.isfinite(inc)):
+    if linear is not None and np.all(np.isfinite(inc)):
         inc = inc - linear[sequences.recorded]
     est, se = _batch_estimate(inc)
     return StochasticGrowth(
