@@ -46,6 +46,7 @@ __all__ = [
     "resident_path",
     "StochasticInvasion",
     "stochastic_invasion",
+    "InvasionSetting",
     "StochasticThreshold",
     "stochastic_threshold",
     "StochasticEstablishment",
@@ -69,10 +70,17 @@ class YearSequences:
     indices : ndarray of int, shape (n_batches, burn_in + batch_length)
     burn_in : int
         Leading seasons of each batch that are lived through but not recorded.
+    uniforms : ndarray, optional
+        The uniforms the indices were made from (``YearTypes.from_uniforms``),
+        kept so that other year laws can be applied to the same draws.
+    years : YearTypes, optional
+        The law the indices follow.
     """
 
     indices: np.ndarray
     burn_in: int
+    uniforms: np.ndarray | None = None
+    years: YearTypes | None = None
 
     def __post_init__(self):
         idx = np.asarray(self.indices)
@@ -95,6 +103,24 @@ class YearSequences:
         """The recorded seasons' year indices, shape (n_batches, batch_length)."""
         return self.indices[:, self.burn_in :]
 
+    def for_years(self, years: YearTypes) -> YearSequences:
+        """The same draws under the law of ``years`` (itself when that law is already theirs).
+
+        Raises
+        ------
+        ValueError
+            When no uniforms are kept and ``years`` is another law.
+        """
+        if self.years is None and self.uniforms is None:
+            if int(self.indices.max()) >= len(years):
+                raise ValueError(f"year sequences index {int(self.indices.max()) + 1} types; years has {len(years)}")
+            return self
+        if self.years == years:
+            return self
+        if self.uniforms is None:
+            raise ValueError("year sequences: drawn for another law and no uniforms kept to redraw them")
+        return YearSequences(years.from_uniforms(self.uniforms), self.burn_in, self.uniforms, years)
+
 
 def draw_year_sequences(
     years: YearTypes, rng: np.random.Generator, *, n_batches: int = 50, batch_length: int = 2000,
@@ -106,7 +132,8 @@ def draw_year_sequences(
             f"need n_batches >= 2, batch_length >= 1, burn_in >= 0; got {n_batches}, "
             f"{batch_length}, {burn_in}"
         )
-    return YearSequences(years.draw(burn_in + batch_length, rng, n_sequences=n_batches), burn_in)
+    u = rng.random((n_batches, burn_in + batch_length))
+    return YearSequences(years.from_uniforms(u), burn_in, u, years)
 
 
 # --------------------------------------------------------------------------- matrices by year
@@ -272,6 +299,7 @@ def stochastic_growth_rate(
     unbiased and its variance falls from order sigma^2 to order sigma^4 in
     the noise sigma (control variates: Asmussen & Glynn 2007, ch. V).
     """
+    sequences = sequences.for_years(years)
     fert, surv = _parts(schedule, years)
     linear, values = _linear_term(schedule, years, factors) if years.switching == "iid" else (None, None)
     inc = _log_increments(
@@ -344,6 +372,7 @@ def resident_path(
         raise ValueError("density.form: a ceiling in a variable environment is not covered by the theory yet")
     if isinstance(density.form, NoDensity):
         raise NoEquilibriumError(f"resident {resident.name!r}: no density dependence, so no regulated path")
+    sequences = sequences.for_years(years)
     fert, surv = _parts(resident, years)
     scaled_m = np.array([scaled_schedule(resident, y).fecundity for y in years.types])
     weights = density.index_weights(scaled_m)  # (n_types, n_ages)
@@ -436,16 +465,18 @@ def _log_fitness_increments(resident, mutant, years, density, sequences, cache=N
     ``cache`` (a dict) keeps the resident's path or increments between calls
     with the same resident (a threshold along a mutant's parameter).
     """
+    sequences = sequences.for_years(years)
     fert_m, surv_m = _parts(mutant, years)
     cache = {} if cache is None else cache
-    if "resident" in cache and _same_schedule(cache["resident"], resident):
+    key = (years, density, id(sequences.indices))
+    if cache.get("key") == key and _same_schedule(cache["resident"], resident):
         resident_part = cache["part"]
     else:
         if _regulated(density):
             resident_part = resident_path(resident, years, density, sequences)
         else:
             resident_part = _log_increments(*_parts(resident, years), sequences.indices)
-        cache.update(resident=resident, part=resident_part)
+        cache.update(key=key, resident=resident, part=resident_part)
     if not _regulated(density):
         inc = _log_increments(fert_m, surv_m, sequences.indices) - resident_part
         return inc[:, sequences.burn_in :], None
@@ -496,6 +527,16 @@ def stochastic_invasion(
 
 
 @dataclass(frozen=True)
+class InvasionSetting:
+    """Everything a stochastic invasion depends on at one parameter value."""
+
+    resident: Schedule
+    mutant: Schedule
+    years: YearTypes
+    density: DensityDependence | None = None
+
+
+@dataclass(frozen=True)
 class StochasticThreshold:
     """Where the stochastic invasion fitness crosses 1 along one parameter.
 
@@ -528,9 +569,7 @@ class StochasticThreshold:
 
 
 def stochastic_threshold(
-    pair: Callable[[float], tuple[Schedule, Schedule]],
-    years: YearTypes,
-    density: DensityDependence | None,
+    setting: Callable[[float], InvasionSetting],
     sequences: YearSequences,
     *,
     bracket: tuple[float, float],
@@ -540,12 +579,15 @@ def stochastic_threshold(
 
     Parameters
     ----------
-    pair : callable
-        ``pair(value) -> (resident, mutant)`` schedules at a trial value.
-    years, density, sequences
-        As for ``stochastic_invasion``; the same sequences serve every trial
-        value (common random numbers), so the estimated log fitness g(value)
-        is a smooth function that the root finder can polish.
+    setting : callable
+        ``setting(value) -> InvasionSetting``: schedules, years and density at
+        a trial value (any parameter: an allele's rate, a capacity, a year
+        type's multiplier or probability).
+    sequences : YearSequences
+        The same draws serve every trial value (common random numbers; under
+        another year law they are re-read from the same uniforms), so the
+        estimated log fitness g(value) is smooth in rates and multipliers,
+        and has only steps of order 1 / (seasons drawn) in probabilities.
     bracket : (float, float)
         Values with g of opposite signs.
     xtol : float, optional
@@ -554,14 +596,14 @@ def stochastic_threshold(
     -----
     The threshold theta solves g(theta) = 0. Its standard error is the delta
     method's se(g(theta)) / |g'(theta)|, with se(g) from the batch means at
-    theta and g' by a central difference on the same sequences (e.g.
-    Asmussen & Glynn 2007, ch. III on smooth functions of estimates).
+    theta and g' by a central difference on the same draws (e.g. Asmussen &
+    Glynn 2007, ch. III, on smooth functions of estimates).
     """
     cache: dict = {}
 
     def increments(v):
-        r, m = pair(float(v))
-        return _log_fitness_increments(r, m, years, density, sequences, cache)[0]
+        s = setting(float(v))
+        return _log_fitness_increments(s.resident, s.mutant, s.years, s.density, sequences, cache)[0]
 
     def g(v):
         return float(increments(v).mean())
@@ -575,7 +617,9 @@ def stochastic_threshold(
         )
     root = brentq(g, lo, hi, xtol=xtol, rtol=1e-12, maxiter=200)
     _, se = _batch_estimate(increments(root))
-    h = 1e-4 * (hi - lo)
+    # a wide step: g has steps of order 1 / (seasons drawn) when a probability varies, and a
+    # central difference's error in a smooth g is only of order h^2
+    h = 1e-2 * (hi - lo)
     slope = (g(root + h) - g(root - h)) / (2 * h)
     err = se / abs(slope) if slope != 0 else float("inf")
     side = "above" if g_hi > 0 else "below"
@@ -664,6 +708,7 @@ def establishment_in_years(
     """
     if not 1 <= age:
         raise ValueError(f"age must be >= 1; got {age}")
+    sequences = sequences.for_years(years)
     seq = sequences.indices
     if _regulated(density):
         f_fec, f_adult, f_rec = resident_path(resident, years, density, sequences).factors

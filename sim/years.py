@@ -194,25 +194,37 @@ class YearTypes:
 
         Notes
         -----
-        iid: one ``rng.choice`` call. markov: one uniform per season, the next
-        type found by inverting the cumulative row of the current type.
+        One uniform per season (``rng.random``), turned into year types by
+        ``from_uniforms``.
         """
         shape = (1 if n_sequences is None else int(n_sequences), int(n_seasons))
-        if self.switching == "iid":
-            seq = rng.choice(len(self), size=shape, p=self.probabilities)
-        else:
-            seq = np.empty(shape, dtype=np.int64)
-            cum = np.cumsum(np.asarray(self.transitions), axis=1)
-            cum[:, -1] = 1.0
-            first = np.cumsum(self.start_law())
-            first[-1] = 1.0
-            u = rng.random(shape)
-            if shape[1]:
-                seq[:, 0] = np.searchsorted(first, u[:, 0], side="right")
-            for t in range(1, shape[1]):
-                seq[:, t] = (u[:, t, None] >= cum[seq[:, t - 1]]).sum(axis=1)
-        seq = seq.astype(np.int64)
+        seq = self.from_uniforms(rng.random(shape))
         return seq[0] if n_sequences is None else seq
+
+    def from_uniforms(self, u: np.ndarray) -> np.ndarray:
+        """Year-type indices from uniforms ``u[sequence, season]`` by inverting cumulative laws.
+
+        iid: every season inverts the probabilities. markov: the first season
+        inverts the start law, each later one the row of the type before. The
+        same uniforms under nearby laws give mostly the same years (common
+        random numbers when a probability is varied).
+        """
+        u = np.atleast_2d(np.asarray(u, dtype=float))
+        seq = np.empty(u.shape, dtype=np.int64)
+        k = len(self)
+        if self.switching == "iid":
+            cum = np.cumsum(self.probabilities)
+            cum[-1] = 1.0
+            return np.minimum(np.searchsorted(cum, u, side="right"), k - 1).astype(np.int64)
+        cum = np.cumsum(np.asarray(self.transitions), axis=1)
+        cum[:, -1] = 1.0
+        first = np.cumsum(self.start_law())
+        first[-1] = 1.0
+        if u.shape[1]:
+            seq[:, 0] = np.minimum(np.searchsorted(first, u[:, 0], side="right"), k - 1)
+        for t in range(1, u.shape[1]):
+            seq[:, t] = (u[:, t, None] >= cum[seq[:, t - 1]]).sum(axis=1)
+        return seq
 
     def multipliers(self) -> np.ndarray:
         """Array ``[type, (fecundity, adult_survival, juvenile_survival)]``."""

@@ -11,6 +11,7 @@ import pytest
 from analysis.branching import establishment_probability, offspring_pgf
 from analysis.invasion import invasion_fitness
 from analysis.stochastic import (
+    InvasionSetting,
     _pgf_batch,
     _starting_census,
     draw_year_sequences,
@@ -46,6 +47,10 @@ def _sequences(years, seed, n_batches=40, batch_length=1000, burn_in=100):
     )
 
 
+def _semelparous_setting(years, density=None):
+    return lambda b: InvasionSetting(RESIDENT, semelparous("one-shot", b, 1.0), years, density)
+
+
 def _semelparous_pair(b):
     return RESIDENT, semelparous("one-shot", b, 1.0)
 
@@ -76,7 +81,7 @@ def test_semelparous_threshold_constant_environment():
     # Constant environment with the mean survival c = 0.45: lambda_s = B c versus
     # B_i c + P, threshold B_i + P / c = 3.11 (Charnov & Schaffer 1973).
     years = constant_years(YearType("average", juvenile_survival=C_YEARS.mean()))
-    th = stochastic_threshold(_semelparous_pair, years, None, _sequences(years, 2, 2, 50, 0), bracket=(2.5, 8.0))
+    th = stochastic_threshold(_semelparous_setting(years), _sequences(years, 2, 2, 50, 0), bracket=(2.5, 8.0))
     assert th.value == pytest.approx(2.0 + 0.5 / C_YEARS.mean(), abs=1e-8)
     assert round(th.value, 2) == 3.11
     assert th.standard_error == 0.0  # every season alike: no sampling error
@@ -88,7 +93,7 @@ def test_semelparous_threshold_rises_in_the_variable_environment():
     closed = np.exp(np.mean(np.log(2.0 * C_YEARS + 0.5)) - np.mean(np.log(C_YEARS)))
     assert round(closed, 2) == 4.29
     seqs = _sequences(TWO_YEARS, 3, 200, 200, 0)  # one class: no burn-in needed
-    th = stochastic_threshold(_semelparous_pair, TWO_YEARS, None, seqs, bracket=(2.5, 8.0))
+    th = stochastic_threshold(_semelparous_setting(TWO_YEARS), seqs, bracket=(2.5, 8.0))
     assert th.converged and th.standard_error < 0.02
     assert abs(th.value - closed) < 4 * th.standard_error
     # common random numbers: the root is the same closed form over the realised years
@@ -251,7 +256,7 @@ def test_beverton_holt_threshold_in_two_year_types():
     #   B* >= exp(E log(B_i c + P) - E log c) = 4.29 (the density-free threshold);
     # B_i c f + P <= f (B_i c + P / f_min) gives B* <= exp(E log(B_i c + P / f_min) - E log c).
     seqs = _sequences(TWO_YEARS, 11, 100, 300, 50)
-    th = stochastic_threshold(_semelparous_pair, TWO_YEARS, BH, seqs, bracket=(3.0, 12.0))
+    th = stochastic_threshold(_semelparous_setting(TWO_YEARS, BH), seqs, bracket=(3.0, 12.0))
     assert th.converged and th.log_fitness_at_bracket[1] > 0  # invades above the threshold
     assert th.standard_error < 0.005 * th.value
     f = resident_path(RESIDENT, TWO_YEARS, BH, seqs).factors.recruitment[:, seqs.burn_in :]
@@ -307,3 +312,44 @@ def test_one_class_poisson_establishment_against_direct_simulation():
     got = establishment_in_years(None, mutant, TWO_YEARS, None, Poisson(), _sequences(TWO_YEARS, 15, 20_000, horizon, 0))
     assert abs(got.establishment_probability - p_direct) < 4 * np.hypot(se_direct, got.standard_error)
     assert 0.05 < p_direct < 0.95  # a real test: neither sure loss nor sure escape
+
+
+# --------------------------------------------------------------------------- year laws
+
+
+def test_threshold_in_a_year_probability_with_common_uniforms():
+    # Density-free, one class: g(p) = (1 - p) log(B c_g / (B_i c_g + P)) + p log(B c_b / (B_i c_b + P))
+    # (Lewontin & Cohen 1969), zero at p* = a / (a - b). The same uniforms are re-read under
+    # each trial probability of the bad year.
+    b_s = 4.0
+    a, b = np.log(b_s * C_YEARS / (2.0 * C_YEARS + 0.5))
+    p_star = a / (a - b)
+
+    def setting(p):
+        years = YearTypes(TWO_YEARS.types, "iid", (1.0 - p, p))
+        return InvasionSetting(RESIDENT, semelparous("one-shot", b_s, 1.0), years)
+
+    seqs = _sequences(TWO_YEARS, 16, 200, 200, 0)
+    th = stochastic_threshold(setting, seqs, bracket=(0.05, 0.95), xtol=1e-6)
+    assert th.converged and th.standard_error < 0.01
+    assert abs(th.value - p_star) < 4 * th.standard_error
+
+
+def test_markov_with_equal_rows_is_iid():
+    # a chain whose rows are all the same law forgets its state: iid years (definition)
+    iid = YearTypes(TWO_YEARS.types, "iid", (0.3, 0.7))
+    markov = YearTypes(TWO_YEARS.types, "markov", transitions=[[0.3, 0.7], [0.3, 0.7]])
+    seqs = _sequences(iid, 17, 100, 300, 30)
+    g_iid = stochastic_growth_rate(TABLE, iid, seqs)
+    g_markov = stochastic_growth_rate(TABLE, markov, seqs)  # same uniforms, re-read as a chain
+    np.testing.assert_array_equal(seqs.for_years(markov).indices, seqs.indices)
+    assert abs(g_iid.stochastic_growth_rate - g_markov.stochastic_growth_rate) < 4 * g_markov.stochastic_growth_rate_se
+
+
+def test_sequences_without_uniforms_refuse_another_law():
+    from analysis.stochastic import YearSequences
+
+    seqs = YearSequences(np.zeros((2, 5), dtype=int), 0)
+    assert seqs.for_years(TWO_YEARS) is seqs
+    with pytest.raises(ValueError, match="years has 1"):
+        YearSequences(np.ones((2, 5), dtype=int), 0).for_years(constant_years())
