@@ -353,3 +353,22 @@ def test_sequences_without_uniforms_refuse_another_law():
     assert seqs.for_years(TWO_YEARS) is seqs
     with pytest.raises(ValueError, match="years has 1"):
         YearSequences(np.ones((2, 5), dtype=int), 0).for_years(constant_years())
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("density", [None, BH], ids=["density-free", "beverton-holt"])
+def test_threshold_standard_error_matches_the_spread_over_independent_draws(density):
+    # 20 thresholds from independent year draws: their standard deviation against the mean
+    # reported SE. Under a correct SE, (n - 1) s^2 / SE^2 ~ chi^2(19), so s / SE lies in
+    # [0.52, 1.60] with probability 0.999 (chi^2 quantiles, scipy.stats.chi2).
+    from scipy.stats import chi2
+
+    values, ses = [], []
+    for seed in range(20):
+        seqs = _sequences(TWO_YEARS, 100 + seed, 50, 200, 30)
+        th = stochastic_threshold(_semelparous_setting(TWO_YEARS, density), seqs, bracket=(3.0, 12.0), xtol=1e-8)
+        values.append(th.value)
+        ses.append(th.standard_error)
+    ratio = np.std(values, ddof=1) / np.mean(ses)
+    low, high = np.sqrt(chi2.ppf([0.0005, 0.9995], 19) / 19)
+    assert low < ratio < high
