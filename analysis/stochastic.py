@@ -29,8 +29,14 @@ import numpy as np
 from scipy.optimize import brentq
 
 from sim.density import Ceiling, DensityDependence, Factors, NoDensity
-from sim.meanfield import NoEquilibriumError, projection_matrix, solve_equilibrium, stable_age_distribution
-from sim.schedules import Schedule
+from sim.meanfield import (
+    NoEquilibriumError,
+    mean_field_step,
+    projection_matrix,
+    solve_equilibrium,
+    stable_age_distribution,
+)
+from sim.schedules import Schedule, stack_schedules
 from sim.years import YearType, YearTypes, scaled_schedule
 
 from .demography import dominant_eigen
@@ -361,18 +367,22 @@ def resident_path(
     the projection ``A(year, f)``. Batches start from the resident's
     equilibrium in the average year; the burn-in lets them forget it.
 
+    A ceiling's removal is not a factor of D: there each season is
+    ``mean_field_step`` itself (one batch at a time, so slower), and the
+    removal fraction phi is read off as the ratio of the census it leaves to
+    the census without removal, placed like the ceiling (recruits only, or
+    everyone).
+
     Raises
     ------
-    ValueError
-        For a ceiling (its removal is not a factor of D; not covered yet).
     sim.meanfield.NoEquilibriumError
-        When the resident dies out along the path.
+        Without density dependence, or when the resident dies out along the path.
     """
-    if isinstance(density.form, Ceiling):
-        raise ValueError("density.form: a ceiling in a variable environment is not covered by the theory yet")
     if isinstance(density.form, NoDensity):
         raise NoEquilibriumError(f"resident {resident.name!r}: no density dependence, so no regulated path")
     sequences = sequences.for_years(years)
+    if isinstance(density.form, Ceiling):
+        return _ceiling_path(resident, years, density, sequences)
     fert, surv = _parts(resident, years)
     scaled_m = np.array([scaled_schedule(resident, y).fecundity for y in years.types])
     weights = density.index_weights(scaled_m)  # (n_types, n_ages)
@@ -391,6 +401,35 @@ def resident_path(
     if not np.all(size[:, -1] > 1e-200):
         raise NoEquilibriumError(f"resident {resident.name!r}: dies out in the variable environment")
     return ResidentPath(Factors(*f), size)
+
+
+def _ceiling_path(resident, years, density, sequences) -> ResidentPath:
+    rates = [stack_schedules([scaled_schedule(resident, y)]) for y in years.types]
+    free = DensityDependence(NoDensity(), density.acts_on, density.counted)
+    recruits_only = density.acts_on == "recruitment"
+    seq = sequences.indices
+    n_b, n_t = seq.shape
+    start = _starting_census(resident, years, density)[None, :]
+    phi = np.ones((n_b, n_t))
+    size = np.empty((n_b, n_t))
+    for b in range(n_b):
+        x = start
+        for t in range(n_t):
+            size[b, t] = x.sum()
+            m, s, c = rates[seq[b, t]]
+            kept = mean_field_step(x, m, s, c, density)
+            unchecked = mean_field_step(x, m, s, c, free)
+            if recruits_only:  # recruits share age 1 with survivors when there is one class
+                survivors = mean_field_step(x, m, s, 0.0 * c, free)[0, 0]
+                room, need = kept[0, 0] - survivors, unchecked[0, 0] - survivors
+            else:
+                room, need = kept.sum(), unchecked.sum()
+            phi[b, t] = room / need if need > 0 else 1.0
+            x = kept
+    if not np.all(size[:, -1] > 1e-200):
+        raise NoEquilibriumError(f"resident {resident.name!r}: dies out in the variable environment")
+    fec, adult, rec = density.placed(phi)
+    return ResidentPath(Factors(*(np.broadcast_to(v, phi.shape) for v in (fec, adult, rec))), size)
 
 
 @dataclass(frozen=True)

@@ -225,6 +225,19 @@ def test_constant_environment_equals_the_equilibrium_invasion_fitness(acts_on, c
         assert got.invasion_fitness == pytest.approx(expected, abs=1e-9)
 
 
+@pytest.mark.parametrize("acts_on", ["recruitment", "all-survival"])
+@pytest.mark.parametrize("maturity_age", [1, 2])
+def test_ceiling_in_a_constant_environment_equals_the_equilibrium_invasion_fitness(acts_on, maturity_age):
+    # the removal fraction read off mean_field_step against analysis.invasion's phi
+    config = invasion_config(
+        form="ceiling", acts_on=acts_on, maturity_age=maturity_age, fecundity=3.0, mutant_fecundity=5.0
+    )
+    resident, mutant = config.schedules()
+    years = constant_years()
+    got = stochastic_invasion(resident, mutant, years, config.density_dependence(), _sequences(years, 18, 2, 50, 200))
+    assert got.invasion_fitness == pytest.approx(invasion_fitness(config), abs=1e-9)
+
+
 @pytest.mark.parametrize(
     "acts_on, counted", [("recruitment", "census"), ("all-survival", "breeders"), ("adult-survival", "offspring")]
 )
@@ -242,10 +255,30 @@ def test_resident_path_is_the_mean_field_season_map(acts_on, counted):
             x = mean_field_step(x, M, S, C, density)
 
 
-def test_resident_against_itself_is_neutral():
-    seqs = _sequences(TWO_YEARS, 10)
-    inv = stochastic_invasion(RESIDENT, RESIDENT, TWO_YEARS, BH, seqs)
+@pytest.mark.parametrize(
+    "density",
+    [BH, DensityDependence.from_names("ceiling", 100.0, "all-survival")],
+    ids=["beverton-holt", "ceiling"],
+)
+def test_resident_against_itself_is_neutral(density):
+    # the resident's own Lyapunov exponent on its regulated path is 0 (its census neither
+    # grows nor vanishes in the long run; Ferriere & Gatto 1995)
+    seqs = _sequences(TWO_YEARS, 10, 10, 150, 30)
+    inv = stochastic_invasion(RESIDENT, RESIDENT, TWO_YEARS, density, seqs)
     assert abs(np.log(inv.invasion_fitness)) <= 4 * inv.log_invasion_fitness_se + 1e-12
+    assert inv.log_invasion_fitness_se < 0.01
+
+
+@pytest.mark.parametrize("k", [0, 1])
+def test_markov_identity_with_density_is_the_equilibrium_of_that_year(k):
+    years = YearTypes(TWO_YEARS.types, "markov", transitions=[[1, 0], [0, 1]], start=TWO_YEARS.names[k])
+    resident = iteroparous("perennial", 8.0, 0.5, 1.0)  # persists in the bad year too
+    mutant = table("aged", [0.0, 12.0, 14.0], [0.6, 0.7, 0.4], 0.5)
+    year = years.types[k]
+    eq = solve_equilibrium(scaled_schedule(resident, year), BH)
+    want = growth_rate(scaled_schedule(mutant, year), eq.factors)
+    got = stochastic_invasion(resident, mutant, years, BH, _sequences(years, 19, 2, 100, 300))
+    assert got.invasion_fitness == pytest.approx(want, abs=1e-9)
 
 
 def test_beverton_holt_threshold_in_two_year_types():
