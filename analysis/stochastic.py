@@ -16,7 +16,7 @@ independent batches (``YearSequences``): each batch lives through its own
 burn-in, then ``batch_length`` recorded seasons. The standard error is the
 spread of the batch means over sqrt(n_batches) (the method of batch means,
 here with independent batches; e.g. Asmussen & Glynn 2007, Stochastic
-Simulation, ch. IV). Passing the same ``YearSequences`` to every call is what
+Simulation, ch. IV, from memory). Passing the same ``YearSequences`` to every call is what
 makes comparisons and thresholds use common random numbers.
 """
 
@@ -231,15 +231,15 @@ def small_noise_approximation(schedule: Schedule, years: YearTypes, factors: Fac
     Notes
     -----
     With mean matrix A_bar = sum_k p_k A_k, its dominant eigenvalue lambda_1
-    and sensitivities S_ij = v_i w_j / <v, w> (Caswell 2001, sec. 9.1)::
+    and sensitivities S_ij = v_i w_j / <v, w> (Caswell 2001, ch. 9)::
 
         log lambda_s ~ log lambda_1 - tau^2 / (2 lambda_1^2),
         tau^2 = sum_k p_k (sum_ij S_ij (A_k - A_bar)_ij)^2
 
     i.e. tau^2 is the sensitivities applied to the covariances of the entries
-    (Tuljapurkar 1982, Theor. Pop. Biol. 21: 141; Tuljapurkar 1990, Population
-    Dynamics in Variable Environments, ch. 11; Caswell 2001, eq. 14.67). The
-    error is of third order in the noise.
+    (Tuljapurkar 1982, Theor. Pop. Biol. 21; Tuljapurkar 1990, Population
+    Dynamics in Variable Environments; Caswell 2001, ch. 14; references from
+    memory). The error is of third order in the noise.
     """
     if years.switching != "iid":
         return float("nan")
@@ -303,7 +303,7 @@ def stochastic_growth_rate(
     (the linear term of Tuljapurkar's expansion, of mean exactly 0) is then
     subtracted from each increment as a control variate: the estimate stays
     unbiased and its variance falls from order sigma^2 to order sigma^4 in
-    the noise sigma (control variates: Asmussen & Glynn 2007, ch. V).
+    the noise sigma (control variates: Asmussen & Glynn 2007, ch. V, from memory).
     """
     sequences = sequences.for_years(years)
     fert, surv = _parts(schedule, years)
@@ -723,30 +723,43 @@ def _quenched_extinction(mutant, years, seq, f_fec, f_adult, f_rec, offspring, s
 
 
 def establishment_in_years(
-    resident: Schedule, mutant: Schedule, years: YearTypes, density: DensityDependence | None,
+    resident: Schedule | None, mutant: Schedule, years: YearTypes, density: DensityDependence | None,
     offspring, sequences: YearSequences, *, count: int = 1, age: int = 1,
 ) -> StochasticEstablishment:
     """Establishment probability of ``count`` mutants of census age ``age`` in a random environment.
 
-    Each batch gives one environment: the years and the resident's density
-    factors from the end of its burn-in on; the mutants arrive then, and the
-    recorded seasons are the horizon.
+    Parameters
+    ----------
+    resident : Schedule or None
+        Sets the density factors along its path (unused, may be None,
+        without density dependence).
+    mutant : Schedule
+    years : YearTypes
+    density : DensityDependence or None
+    offspring : Poisson | Fixed | NegativeBinomial
+        Anything with ``pgf(s, mean)``.
+    sequences : YearSequences
+        Each batch gives one environment: the years and the resident's
+        density factors from the end of its burn-in on; the mutants arrive
+        then, and the recorded seasons are the horizon H.
+    count, age : int, optional
+        Founders and their census age.
 
     Notes
     -----
     Given the environment, the mutants form a branching process in a varying
     environment whose extinction probability by season t0 + H is the
     composition q = G_t0(G_t0+1(... G_t0+H-1(0))) of the seasons' offspring
-    generating functions (Athreya & Karlin 1971, Ann. Math. Stat. 42: 1499;
-    Smith & Wilkinson 1969). It increases to the extinction probability as H
+    generating functions (Smith & Wilkinson 1969, Ann. Math. Stat. 40: 814;
+    Athreya & Karlin 1971, Ann. Math. Stat. 42: 1499; from memory). It increases to the extinction probability as H
     grows. Averaging 1 - q^count over independent environments is a Monte
     Carlo estimate whose standard error is the spread over sqrt(n); computing
     q exactly given each environment (rather than simulating lineages) removes
     the demographic part of the sampling error (a conditional expectation has
     the smaller variance: Rao-Blackwell).
     """
-    if not 1 <= age:
-        raise ValueError(f"age must be >= 1; got {age}")
+    if age < 1 or count < 1:
+        raise ValueError(f"age and count must be >= 1; got age {age}, count {count}")
     sequences = sequences.for_years(years)
     seq = sequences.indices
     if _regulated(density):

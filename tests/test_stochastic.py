@@ -179,7 +179,7 @@ def _autocorrelated(a):
 
 
 def test_autocorrelated_bad_years_and_the_two_life_histories():
-    # Tuljapurkar & Haridas 2006 (Ecol. Lett. 9: 327) on autocorrelation; here we test what
+    # Tuljapurkar & Haridas 2006 (Ecol. Lett. 9: 327, from memory) on autocorrelation; we test what
     # holds exactly for these schedules. A semelparous type maturing at 2 lives on a cycle:
     # each cohort line's log growth is an ergodic mean of per-season factors, so
     # log lambda_s = E log(B c s) / 2 whatever the autocorrelation. The age-structured

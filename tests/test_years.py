@@ -66,7 +66,7 @@ def test_iid_frequencies_match_probabilities():
 
 def test_markov_stationary_law_and_transition_frequencies():
     # two-state chain: pi_bad = a / (a + b) for P(good -> bad) = a, P(bad -> good) = b
-    # (e.g. Norris 1997, Markov Chains, ex. 1.1; standard result)
+    # (a standard result for two-state chains, e.g. Norris 1997, Markov Chains, ch. 1; from memory)
     a, b = 0.1, 0.3
     years = YearTypes((GOOD, BAD), "markov", transitions=[[1 - a, a], [b, 1 - b]])
     np.testing.assert_allclose(years.stationary_law(), [b / (a + b), a / (a + b)], atol=1e-12)
