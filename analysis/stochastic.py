@@ -48,6 +48,7 @@ __all__ = [
     "StochasticGrowth",
     "stochastic_growth_rate",
     "small_noise_approximation",
+    "regulated",
     "ResidentPath",
     "resident_path",
     "StochasticInvasion",
@@ -55,8 +56,6 @@ __all__ = [
     "InvasionSetting",
     "StochasticThreshold",
     "stochastic_threshold",
-    "StochasticEstablishment",
-    "establishment_in_years",
 ]
 
 
@@ -348,8 +347,7 @@ class ResidentPath:
 
 def _starting_census(resident: Schedule, years: YearTypes, density: DensityDependence) -> np.ndarray:
     """The resident's equilibrium in the average year (a start for the burn-in)."""
-    law = years.stationary_law() if (years.switching == "iid" or years.start == "stationary") else years.start_law()
-    mean = YearType("mean", *(law @ years.multipliers()))
+    mean = YearType("mean", *(years.start_law() @ years.multipliers()))
     try:
         return solve_equilibrium(scaled_schedule(resident, mean), density).census
     except (NoEquilibriumError, ValueError):
@@ -489,7 +487,8 @@ class StochasticInvasion:
         })
 
 
-def _regulated(density) -> bool:
+def regulated(density: DensityDependence | None) -> bool:
+    """True when ``density`` regulates the resident (not None, not the form "none")."""
     return density is not None and not isinstance(density.form, NoDensity)
 
 
@@ -511,12 +510,12 @@ def _log_fitness_increments(resident, mutant, years, density, sequences, cache=N
     if cache.get("key") == key and _same_schedule(cache["resident"], resident):
         resident_part = cache["part"]
     else:
-        if _regulated(density):
+        if regulated(density):
             resident_part = resident_path(resident, years, density, sequences)
         else:
             resident_part = _log_increments(*_parts(resident, years), sequences.indices)
         cache.update(key=key, resident=resident, part=resident_part)
-    if not _regulated(density):
+    if not regulated(density):
         inc = _log_increments(fert_m, surv_m, sequences.indices) - resident_part
         return inc[:, sequences.burn_in :], None
     path = resident_part
@@ -667,114 +666,3 @@ def stochastic_threshold(
         f"invades {side} {root:.6g} (SE {err:.2g}; {sequences.n_batches} batches of "
         f"{sequences.batch_length} seasons)",
     )
-
-
-# --------------------------------------------------------------------------- establishment
-
-
-@dataclass(frozen=True)
-class StochasticEstablishment:
-    """Probability that introduced mutants escape early loss in a random environment.
-
-    Attributes
-    ----------
-    establishment_probability : float
-        1 - E[q(env)^count], averaged over environments at introduction.
-    standard_error : float
-        Monte Carlo standard error over the sampled environments.
-    horizon_gap : float
-        Mean increase of the extinction probability from half the horizon to
-        the full one (a guide to the truncation error, which it exceeds when
-        convergence is geometric with ratio below 1/2 per half-horizon).
-    n_samples, horizon : int
-    """
-
-    establishment_probability: float
-    standard_error: float
-    horizon_gap: float
-    n_samples: int
-    horizon: int
-
-    def as_dict(self) -> dict:
-        return _plain(asdict(self))
-
-
-def _pgf_batch(s, fecundity, survival, juvenile, f_fec, f_adult, f_rec, offspring):
-    """``analysis.branching.offspring_pgf`` for many environments at once (rows of ``s``)."""
-    n = s.shape[1]
-    nxt = np.minimum(np.arange(n) + 1, n - 1)
-    sigma = survival * f_adult[:, None]
-    p = (juvenile * f_rec)[:, None]
-    births = offspring.pgf(1.0 - p + p * s[:, :1], fecundity * f_fec[:, None])
-    return (1.0 - sigma + sigma * s[:, nxt]) * births
-
-
-def _quenched_extinction(mutant, years, seq, f_fec, f_adult, f_rec, offspring, start, stop):
-    """P(lineage of one mutant of each age, born at season ``start``, is gone by ``stop`` | years)."""
-    scaled = [scaled_schedule(mutant, y) for y in years.types]
-    m = np.array([s.fecundity for s in scaled])
-    sv = np.array([s.survival for s in scaled])
-    c = np.array([s.juvenile_survival for s in scaled])
-    q = np.zeros((seq.shape[0], mutant.n_ages))
-    for t in range(stop - 1, start - 1, -1):
-        y = seq[:, t]
-        q = _pgf_batch(q, m[y], sv[y], c[y], f_fec[:, t], f_adult[:, t], f_rec[:, t], offspring)
-    return q
-
-
-def establishment_in_years(
-    resident: Schedule | None, mutant: Schedule, years: YearTypes, density: DensityDependence | None,
-    offspring, sequences: YearSequences, *, count: int = 1, age: int = 1,
-) -> StochasticEstablishment:
-    """Establishment probability of ``count`` mutants of census age ``age`` in a random environment.
-
-    Parameters
-    ----------
-    resident : Schedule or None
-        Sets the density factors along its path (unused, may be None,
-        without density dependence).
-    mutant : Schedule
-    years : YearTypes
-    density : DensityDependence or None
-    offspring : Poisson | Fixed | NegativeBinomial
-        Anything with ``pgf(s, mean)``.
-    sequences : YearSequences
-        Each batch gives one environment: the years and the resident's
-        density factors from the end of its burn-in on; the mutants arrive
-        then, and the recorded seasons are the horizon H.
-    count, age : int, optional
-        Founders and their census age.
-
-    Notes
-    -----
-    Given the environment, the mutants form a branching process in a varying
-    environment whose extinction probability by season t0 + H is the
-    composition q = G_t0(G_t0+1(... G_t0+H-1(0))) of the seasons' offspring
-    generating functions (Smith & Wilkinson 1969, Ann. Math. Stat. 40: 814;
-    Athreya & Karlin 1971, Ann. Math. Stat. 42: 1499; from memory). It increases to the extinction probability as H
-    grows. Averaging 1 - q^count over independent environments is a Monte
-    Carlo estimate whose standard error is the spread over sqrt(n); computing
-    q exactly given each environment (rather than simulating lineages) removes
-    the demographic part of the sampling error (a conditional expectation has
-    the smaller variance: Rao-Blackwell).
-    """
-    if age < 1 or count < 1:
-        raise ValueError(f"age and count must be >= 1; got age {age}, count {count}")
-    sequences = sequences.for_years(years)
-    seq = sequences.indices
-    if _regulated(density):
-        f_fec, f_adult, f_rec = resident_path(resident, years, density, sequences).factors
-    else:
-        f_fec = f_adult = f_rec = np.ones(seq.shape)
-    start, stop = sequences.burn_in, seq.shape[1]
-    half = start + (stop - start) // 2
-    args = (mutant, years, seq, f_fec, f_adult, f_rec, offspring)
-    q = _quenched_extinction(*args, start, stop)
-    q_half = _quenched_extinction(*args, start, half)
-    col = min(age, mutant.n_ages) - 1
-    est = 1.0 - q[:, col] ** count
-    gap = float(np.mean(q[:, col] - q_half[:, col]))
-    return StochasticEstablishment(
-        float(est.mean()), float(est.std(ddof=1) / np.sqrt(est.size)), gap, est.size, stop - start
-    )
-

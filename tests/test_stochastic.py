@@ -10,12 +10,11 @@ import pytest
 
 from analysis.branching import establishment_probability, offspring_pgf
 from analysis.invasion import invasion_fitness
+from analysis.random_branching import _pgf_batch, establishment_in_years
 from analysis.stochastic import (
     InvasionSetting,
-    _pgf_batch,
     _starting_census,
     draw_year_sequences,
-    establishment_in_years,
     resident_path,
     small_noise_approximation,
     stochastic_growth_rate,
@@ -342,7 +341,8 @@ def test_one_class_poisson_establishment_against_direct_simulation():
         z[alive] = rng.poisson(4.0 * C_YEARS[years[alive, t]] * z[alive])
     p_direct = np.mean(z > 0)
     se_direct = np.sqrt(p_direct * (1 - p_direct) / n)
-    got = establishment_in_years(None, mutant, TWO_YEARS, None, Poisson(), _sequences(TWO_YEARS, 15, 20_000, horizon, 0))
+    seqs = _sequences(TWO_YEARS, 15, 20_000, horizon, 0)
+    got = establishment_in_years(None, mutant, TWO_YEARS, None, Poisson(), seqs)
     assert abs(got.establishment_probability - p_direct) < 4 * np.hypot(se_direct, got.standard_error)
     assert 0.05 < p_direct < 0.95  # a real test: neither sure loss nor sure escape
 
