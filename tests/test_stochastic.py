@@ -405,3 +405,27 @@ def test_threshold_standard_error_matches_the_spread_over_independent_draws(dens
     ratio = np.std(values, ddof=1) / np.mean(ses)
     low, high = np.sqrt(chi2.ppf([0.0005, 0.9995], 19) / 19)
     assert low < ratio < high
+
+
+def test_establishment_with_density_against_direct_simulation_on_the_resident_path():
+    # Beverton-Holt on recruitment: a one-class semelparous mutant's recruits are
+    # Poisson(B c_t f_t Z_t), f_t from the resident's path. Lineages simulated on paths of
+    # their own (one per batch) against the generating-function average over other draws;
+    # both estimate P(Z_H > 0). Difference within 4 combined SE (binomial and Monte Carlo).
+    mutant = semelparous("one-shot", 6.0, 1.0)
+    horizon, burn_in, n = 30, 30, 8000
+    own = _sequences(TWO_YEARS, 20, n, horizon, burn_in)
+    f = resident_path(RESIDENT, TWO_YEARS, BH, own).factors.recruitment[:, burn_in:]
+    c = C_YEARS[own.recorded]
+    rng = np.random.default_rng(21)
+    z = np.ones(n, dtype=np.int64)
+    big = 10**12
+    for t in range(horizon):
+        alive = (z > 0) & (z < big)
+        z[alive] = rng.poisson(6.0 * c[alive, t] * f[alive, t] * z[alive])
+    p_direct = np.mean(z > 0)
+    se_direct = np.sqrt(p_direct * (1 - p_direct) / n)
+    seqs = _sequences(TWO_YEARS, 22, n, horizon, burn_in)
+    got = establishment_in_years(RESIDENT, mutant, TWO_YEARS, BH, Poisson(), seqs)
+    assert abs(got.establishment_probability - p_direct) < 4 * np.hypot(se_direct, got.standard_error)
+    assert 0.05 < p_direct < 0.95
