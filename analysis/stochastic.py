@@ -1,0 +1,668 @@
+"""Invasion theory in a variable environment: stochastic growth rates, Lyapunov exponents, establishment.
+
+Years follow one another by the law of a ``sim.years.YearTypes``; a year
+multiplies every allele's rates (``sim.years.scaled_schedule``) before the
+density factors apply, and the year's projection matrix is then
+``sim.meanfield.projection_matrix`` of the scaled schedule. Since that matrix
+is linear in each factor, it is split once per year type into its fertility
+part F (first row) and survival part T::
+
+    A(year, f) = F_year f_fec f_rec + T_year f_adult
+
+so many seasons and batches are advanced at once without restating the model.
+
+Every estimate here is a time average over seasons drawn in ``n_batches``
+independent batches (``YearSequences``): each batch lives through its own
+burn-in, then ``batch_length`` recorded seasons. The standard error is the
+spread of the batch means over sqrt(n_batches) (the method of batch means,
+here with independent batches; e.g. Asmussen & Glynn 2007, Stochastic
+Simulation, ch. IV, from memory). Passing the same ``YearSequences`` to every call is what
+makes comparisons and thresholds use common random numbers.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+from typing import Callable
+
+import numpy as np
+from scipy.optimize import brentq
+
+from sim.density import Ceiling, DensityDependence, Factors, NoDensity
+from sim.meanfield import (
+    NoEquilibriumError,
+    mean_field_step,
+    projection_matrix,
+    solve_equilibrium,
+    stable_age_distribution,
+)
+from sim.schedules import Schedule, stack_schedules
+from sim.years import YearType, YearTypes, scaled_schedule
+
+from .demography import dominant_eigen
+
+__all__ = [
+    "YearSequences",
+    "draw_year_sequences",
+    "year_matrices",
+    "StochasticGrowth",
+    "stochastic_growth_rate",
+    "small_noise_approximation",
+    "regulated",
+    "ResidentPath",
+    "resident_path",
+    "StochasticInvasion",
+    "stochastic_invasion",
+    "InvasionSetting",
+    "StochasticThreshold",
+    "stochastic_threshold",
+]
+
+
+def _plain(d: dict) -> dict:
+    return {k: (v.item() if isinstance(v, np.generic) else v) for k, v in d.items()}
+
+
+# --------------------------------------------------------------------------- year sequences
+
+
+@dataclass(frozen=True)
+class YearSequences:
+    """Year-type indices of ``n_batches`` independent batches of seasons.
+
+    Attributes
+    ----------
+    indices : ndarray of int, shape (n_batches, burn_in + batch_length)
+    burn_in : int
+        Leading seasons of each batch that are lived through but not recorded.
+    uniforms : ndarray, optional
+        The uniforms the indices were made from (``YearTypes.from_uniforms``),
+        kept so that other year laws can be applied to the same draws.
+    years : YearTypes, optional
+        The law the indices follow.
+    """
+
+    indices: np.ndarray
+    burn_in: int
+    uniforms: np.ndarray | None = None
+    years: YearTypes | None = None
+
+    def __post_init__(self):
+        idx = np.asarray(self.indices)
+        if idx.ndim != 2 or idx.shape[0] < 2:
+            raise ValueError(f"year sequences: need shape (n_batches >= 2, seasons); got {idx.shape}")
+        if not 0 <= self.burn_in < idx.shape[1]:
+            raise ValueError(f"burn_in must be in [0, {idx.shape[1]}); got {self.burn_in}")
+        object.__setattr__(self, "indices", idx.astype(np.int64))
+
+    @property
+    def n_batches(self) -> int:
+        return self.indices.shape[0]
+
+    @property
+    def batch_length(self) -> int:
+        return self.indices.shape[1] - self.burn_in
+
+    @property
+    def recorded(self) -> np.ndarray:
+        """The recorded seasons' year indices, shape (n_batches, batch_length)."""
+        return self.indices[:, self.burn_in :]
+
+    def for_years(self, years: YearTypes) -> YearSequences:
+        """The same draws under the law of ``years`` (itself when that law is already theirs).
+
+        Raises
+        ------
+        ValueError
+            When no uniforms are kept and ``years`` is another law.
+        """
+        if self.years is None and self.uniforms is None:
+            if int(self.indices.max()) >= len(years):
+                raise ValueError(f"year sequences index {int(self.indices.max()) + 1} types; years has {len(years)}")
+            return self
+        if self.years == years:
+            return self
+        if self.uniforms is None:
+            raise ValueError("year sequences: drawn for another law and no uniforms kept to redraw them")
+        return YearSequences(years.from_uniforms(self.uniforms), self.burn_in, self.uniforms, years)
+
+
+def draw_year_sequences(
+    years: YearTypes, rng: np.random.Generator, *, n_batches: int = 50, batch_length: int = 2000,
+    burn_in: int = 200,
+) -> YearSequences:
+    """Draw independent batches of seasons (each started from ``years.start_law()``)."""
+    if n_batches < 2 or batch_length < 1 or burn_in < 0:
+        raise ValueError(
+            f"need n_batches >= 2, batch_length >= 1, burn_in >= 0; got {n_batches}, "
+            f"{batch_length}, {burn_in}"
+        )
+    u = rng.random((n_batches, burn_in + batch_length))
+    return YearSequences(years.from_uniforms(u), burn_in, u, years)
+
+
+# --------------------------------------------------------------------------- matrices by year
+
+
+def _parts(schedule: Schedule, years: YearTypes) -> tuple[np.ndarray, np.ndarray]:
+    """Fertility and survival parts of each year type's matrix, each (n_types, n, n)."""
+    scaled = [scaled_schedule(schedule, y) for y in years.types]
+    fert = np.array([projection_matrix(s, Factors(1.0, 0.0, 1.0)) for s in scaled])
+    surv = np.array([projection_matrix(s, Factors(0.0, 1.0, 1.0)) for s in scaled])
+    return fert, surv
+
+
+def year_matrices(schedule: Schedule, years: YearTypes, factors: Factors = Factors()) -> np.ndarray:
+    """Projection matrix of each year type at fixed density factors, shape (n_types, n, n)."""
+    fert, surv = _parts(schedule, years)
+    return fert * (factors.fecundity * factors.recruitment) + surv * factors.adult
+
+
+def _log_increments(fert, surv, seq, f_fert=None, f_surv=None, weights=None) -> np.ndarray:
+    """log(size after / size before) of each season of a normalised matrix product.
+
+    ``f_fert`` and ``f_surv`` (shape of ``seq``) are density factors per season
+    (f_fec f_rec and f_adult); all 1 when omitted. Size is ``x @ weights``
+    (default: the total); any positive weights give the same long-run mean,
+    since the sums telescope to log(size at the end / size at the start).
+    """
+    n_b, n_t = seq.shape
+    w = np.ones(fert.shape[1]) if weights is None else np.asarray(weights, dtype=float)
+    x = np.zeros((n_b, fert.shape[1]))
+    x[:, 0] = 1.0 / w[0]  # one recruit (age 1) of size 1: see the notes of stochastic_growth_rate
+    out = np.empty((n_b, n_t))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        for t in range(n_t):
+            y = seq[:, t]
+            a = fert[y] if f_fert is None else fert[y] * f_fert[:, t, None, None]
+            a = a + (surv[y] if f_surv is None else surv[y] * f_surv[:, t, None, None])
+            x = np.einsum("bij,bj->bi", a, x)
+            size = x @ w
+            out[:, t] = np.log(size)
+            x = x / np.where(size > 0, size, 1.0)[:, None]
+    return out
+
+
+def _batch_estimate(increments: np.ndarray) -> tuple[float, float]:
+    """Mean over everything and the batch-means standard error."""
+    means = increments.mean(axis=1)
+    if not np.all(np.isfinite(means)):
+        return float(np.mean(means)), float("nan")
+    return float(means.mean()), float(means.std(ddof=1) / np.sqrt(means.size))
+
+
+# --------------------------------------------------------------------------- density-free
+
+
+@dataclass(frozen=True)
+class StochasticGrowth:
+    """An allele's density-free long-run growth in a variable environment.
+
+    Attributes
+    ----------
+    allele : str
+    stochastic_growth_rate : float
+        log lambda_s, the long-run mean of log(N_{t+1} / N_t), by simulation
+        of the random matrix product.
+    stochastic_growth_rate_se : float
+        Its batch-means standard error.
+    small_noise_approximation : float
+        Tuljapurkar's (1982) approximation of log lambda_s (nan for Markov
+        switching).
+    n_batches, batch_length, burn_in : int
+    """
+
+    allele: str
+    stochastic_growth_rate: float
+    stochastic_growth_rate_se: float
+    small_noise_approximation: float
+    n_batches: int
+    batch_length: int
+    burn_in: int
+
+    def as_dict(self) -> dict:
+        return _plain(asdict(self))
+
+
+def small_noise_approximation(schedule: Schedule, years: YearTypes, factors: Factors = Factors()) -> float:
+    """Tuljapurkar's small-noise approximation of log lambda_s for iid years (nan for Markov).
+
+    Notes
+    -----
+    With mean matrix A_bar = sum_k p_k A_k, its dominant eigenvalue lambda_1
+    and sensitivities S_ij = v_i w_j / <v, w> (Caswell 2001, ch. 9)::
+
+        log lambda_s ~ log lambda_1 - tau^2 / (2 lambda_1^2),
+        tau^2 = sum_k p_k (sum_ij S_ij (A_k - A_bar)_ij)^2
+
+    i.e. tau^2 is the sensitivities applied to the covariances of the entries
+    (Tuljapurkar 1982, Theor. Pop. Biol. 21; Tuljapurkar 1990, Population
+    Dynamics in Variable Environments; Caswell 2001, ch. 14; references from
+    memory). The error is of third order in the noise.
+    """
+    if years.switching != "iid":
+        return float("nan")
+    mats = year_matrices(schedule, years, factors)
+    p = np.asarray(years.probabilities)
+    mean = np.tensordot(p, mats, axes=1)
+    lam, w, v = dominant_eigen(mean)
+    if lam <= 0:
+        return float("-inf")
+    sens = np.outer(v, w) / float(v @ w)
+    dev = np.einsum("ij,kij->k", sens, mats - mean)
+    tau2 = float(p @ dev**2)
+    return float(np.log(lam) - tau2 / (2.0 * lam**2))
+
+
+def _linear_term(schedule: Schedule, years: YearTypes, factors: Factors):
+    """Z_k = S : (A_k - A_bar) / lambda_1 for each year type (mean 0 under the law), and weights.
+
+    The weights are the reproductive values v of A_bar where all are positive
+    (else None: the total): measured by v, a season's log growth is Z_t plus
+    terms of second order in the noise.
+    """
+    mats = year_matrices(schedule, years, factors)
+    mean = np.tensordot(years.stationary_law(), mats, axes=1)
+    lam, w, v = dominant_eigen(mean)
+    if lam <= 0 or float(v @ w) <= 0 or np.any(v <= 0):
+        return None, None
+    sens = np.outer(v, w) / float(v @ w)
+    return np.einsum("ij,kij->k", sens, mats - mean) / lam, v
+
+
+def stochastic_growth_rate(
+    schedule: Schedule, years: YearTypes, sequences: YearSequences, *, factors: Factors = Factors()
+) -> StochasticGrowth:
+    """log lambda_s of one schedule by simulating the random matrix product.
+
+    Parameters
+    ----------
+    schedule : Schedule
+    years : YearTypes
+    sequences : YearSequences
+        The seasons lived through (the same object for every allele compared).
+    factors : Factors, optional
+        Fixed density factors (all 1: the density-free growth rate).
+
+    Notes
+    -----
+    log lambda_s = lim (1/t) log ||A_t ... A_1 x|| exists and does not depend on
+    x or on the norm for an ergodic year sequence (Furstenberg & Kesten 1960;
+    Tuljapurkar 1990, ch. 2). A one-class schedule has a scalar matrix, so
+    log lambda_s is exactly sum_k pi_k log lambda_k (Lewontin & Cohen 1969).
+
+    The product starts from one age-1 individual, so it follows the lineage
+    of a recruit: for an imprimitive (cyclic) schedule, such as semelparity
+    at an age above 1, a start spread over all ages would make two or more
+    cohort lines whose size ratio wanders like a random walk, biasing each
+    batch's mean upward by order 1/sqrt(batch_length).
+
+    For iid years size is measured by the reproductive values v of the mean
+    matrix, and the season's first-order term Z_t = S : (A_t - A_bar) / lambda_1
+    (the linear term of Tuljapurkar's expansion, of mean exactly 0) is then
+    subtracted from each increment as a control variate: the estimate stays
+    unbiased and its variance falls from order sigma^2 to order sigma^4 in
+    the noise sigma (control variates: Asmussen & Glynn 2007, ch. V, from memory).
+    """
+    sequences = sequences.for_years(years)
+    fert, surv = _parts(schedule, years)
+    linear, values = _linear_term(schedule, years, factors) if years.switching == "iid" else (None, None)
+    inc = _log_increments(
+        fert * (factors.fecundity * factors.recruitment), surv * factors.adult, sequences.indices,
+        weights=values,
+    )[:, sequences.burn_in :]
+    if linear is not None and np.all(np.isfinite(inc)):
+        inc = inc - linear[sequences.recorded]
+    est, se = _batch_estimate(inc)
+    return StochasticGrowth(
+        schedule.name, est, se, small_noise_approximation(schedule, years, factors),
+        sequences.n_batches, sequences.batch_length, sequences.burn_in,
+    )
+
+
+# --------------------------------------------------------------------------- density-dependent
+
+
+@dataclass(frozen=True)
+class ResidentPath:
+    """The resident's mean-field dynamics driven by the year sequence.
+
+    Attributes
+    ----------
+    factors : Factors
+        Density factors of every season (burn-in included), each an array of
+        shape (n_batches, seasons).
+    census_size : ndarray, shape (n_batches, seasons)
+        The resident's census at the start of each season.
+    """
+
+    factors: Factors
+    census_size: np.ndarray
+
+    @property
+    def fertility_factor(self) -> np.ndarray:
+        """f_fec f_rec of each season (the factor on the fertility row)."""
+        return self.factors.fecundity * self.factors.recruitment
+
+
+def _starting_census(resident: Schedule, years: YearTypes, density: DensityDependence) -> np.ndarray:
+    """The resident's equilibrium in the average year (a start for the burn-in)."""
+    mean = YearType("mean", *(years.start_law() @ years.multipliers()))
+    try:
+        return solve_equilibrium(scaled_schedule(resident, mean), density).census
+    except (NoEquilibriumError, ValueError):
+        return density.form.capacity * stable_age_distribution(resident)
+
+
+def resident_path(
+    resident: Schedule, years: YearTypes, density: DensityDependence, sequences: YearSequences
+) -> ResidentPath:
+    """Run the resident's deterministic season map through each batch's years.
+
+    Each season is the mean-field step of ``sim.meanfield.mean_field_step``
+    with the year's scaled rates: D from the census (weights
+    ``density.index_weights`` of the year's fecundities), factors f(D), then
+    the projection ``A(year, f)``. Batches start from the resident's
+    equilibrium in the average year; the burn-in lets them forget it.
+
+    A ceiling's removal is not a factor of D: there each season is
+    ``mean_field_step`` itself (one batch at a time, so slower), and the
+    removal fraction phi is read off as the ratio of the census it leaves to
+    the census without removal, placed like the ceiling (recruits only, or
+    everyone).
+
+    Raises
+    ------
+    sim.meanfield.NoEquilibriumError
+        Without density dependence, or when the resident dies out along the path.
+    """
+    if isinstance(density.form, NoDensity):
+        raise NoEquilibriumError(f"resident {resident.name!r}: no density dependence, so no regulated path")
+    sequences = sequences.for_years(years)
+    if isinstance(density.form, Ceiling):
+        return _ceiling_path(resident, years, density, sequences)
+    fert, surv = _parts(resident, years)
+    scaled_m = np.array([scaled_schedule(resident, y).fecundity for y in years.types])
+    weights = density.index_weights(scaled_m)  # (n_types, n_ages)
+    seq = sequences.indices
+    n_b, n_t = seq.shape
+    x = np.tile(_starting_census(resident, years, density), (n_b, 1))
+    f = np.empty((3, n_b, n_t))  # fecundity, adult, recruitment factors
+    size = np.empty((n_b, n_t))
+    for t in range(n_t):
+        y = seq[:, t]
+        d = np.einsum("bj,bj->b", weights[y], x)
+        f[0, :, t], f[1, :, t], f[2, :, t] = density.placed(density.form.factor(d))
+        size[:, t] = x.sum(axis=1)
+        a = fert[y] * (f[0, :, t] * f[2, :, t])[:, None, None] + surv[y] * f[1, :, t, None, None]
+        x = np.einsum("bij,bj->bi", a, x)
+    if not np.all(size[:, -1] > 1e-200):
+        raise NoEquilibriumError(f"resident {resident.name!r}: dies out in the variable environment")
+    return ResidentPath(Factors(*f), size)
+
+
+def _ceiling_path(resident, years, density, sequences) -> ResidentPath:
+    rates = [stack_schedules([scaled_schedule(resident, y)]) for y in years.types]
+    free = DensityDependence(NoDensity(), density.acts_on, density.counted)
+    recruits_only = density.acts_on == "recruitment"
+    seq = sequences.indices
+    n_b, n_t = seq.shape
+    start = _starting_census(resident, years, density)[None, :]
+    phi = np.ones((n_b, n_t))
+    size = np.empty((n_b, n_t))
+    for b in range(n_b):
+        x = start
+        for t in range(n_t):
+            size[b, t] = x.sum()
+            m, s, c = rates[seq[b, t]]
+            kept = mean_field_step(x, m, s, c, density)
+            unchecked = mean_field_step(x, m, s, c, free)
+            if recruits_only:  # recruits share age 1 with survivors when there is one class
+                survivors = mean_field_step(x, m, s, 0.0 * c, free)[0, 0]
+                room, need = kept[0, 0] - survivors, unchecked[0, 0] - survivors
+            else:
+                room, need = kept.sum(), unchecked.sum()
+            phi[b, t] = room / need if need > 0 else 1.0
+            x = kept
+    if not np.all(size[:, -1] > 1e-200):
+        raise NoEquilibriumError(f"resident {resident.name!r}: dies out in the variable environment")
+    fec, adult, rec = density.placed(phi)
+    return ResidentPath(Factors(*(np.broadcast_to(v, phi.shape) for v in (fec, adult, rec))), size)
+
+
+@dataclass(frozen=True)
+class StochasticInvasion:
+    """A rare mutant's invasion fitness in a variable environment.
+
+    Attributes
+    ----------
+    resident, mutant : str
+    regulated : bool
+        True: the resident's density-regulated path sets the mutant's
+        environment; False: density-free (ratio of stochastic growth rates).
+    invasion_fitness : float
+        exp(mutant's long-run log growth - resident's); > 1: invades.
+    log_invasion_fitness_se : float
+        Batch-means standard error of log(invasion fitness).
+    invasion_fitness_se : float
+        Delta method: invasion_fitness x log_invasion_fitness_se.
+    resident_growth, mutant_growth : StochasticGrowth
+        Density-free stochastic growth rates (with the small-noise
+        approximation).
+    mean_census_size : float
+        The resident's mean census over the recorded seasons (nan without
+        density dependence).
+    """
+
+    resident: str
+    mutant: str
+    regulated: bool
+    invasion_fitness: float
+    log_invasion_fitness_se: float
+    invasion_fitness_se: float
+    resident_growth: StochasticGrowth
+    mutant_growth: StochasticGrowth
+    mean_census_size: float
+
+    @property
+    def log_invasion_fitness(self) -> float:
+        return float(np.log(self.invasion_fitness))
+
+    def as_dict(self) -> dict:
+        """Flat JSON-ready keys; ``stochastic_growth_rate*`` and ``small_noise_approximation`` are the mutant's."""
+        return _plain({
+            "resident": self.resident,
+            "mutant": self.mutant,
+            "regulated": self.regulated,
+            "invasion_fitness": self.invasion_fitness,
+            "invasion_fitness_se": self.invasion_fitness_se,
+            "log_invasion_fitness_se": self.log_invasion_fitness_se,
+            "stochastic_growth_rate": self.mutant_growth.stochastic_growth_rate,
+            "stochastic_growth_rate_se": self.mutant_growth.stochastic_growth_rate_se,
+            "small_noise_approximation": self.mutant_growth.small_noise_approximation,
+            "resident_stochastic_growth_rate": self.resident_growth.stochastic_growth_rate,
+            "resident_stochastic_growth_rate_se": self.resident_growth.stochastic_growth_rate_se,
+            "resident_small_noise_approximation": self.resident_growth.small_noise_approximation,
+            "mean_census_size": self.mean_census_size,
+        })
+
+
+def regulated(density: DensityDependence | None) -> bool:
+    """True when ``density`` regulates the resident (not None, not the form "none")."""
+    return density is not None and not isinstance(density.form, NoDensity)
+
+
+def _same_schedule(a: Schedule, b: Schedule) -> bool:
+    return (a.juvenile_survival == b.juvenile_survival and np.array_equal(a.fecundity, b.fecundity)
+            and np.array_equal(a.survival, b.survival))
+
+
+def _log_fitness_increments(resident, mutant, years, density, sequences, cache=None):
+    """Per-season log growth of the mutant minus the resident's (recorded seasons) and the path.
+
+    ``cache`` (a dict) keeps the resident's path or increments between calls
+    with the same resident (a threshold along a mutant's parameter).
+    """
+    sequences = sequences.for_years(years)
+    fert_m, surv_m = _parts(mutant, years)
+    cache = {} if cache is None else cache
+    key = (years, density, id(sequences.indices))
+    if cache.get("key") == key and _same_schedule(cache["resident"], resident):
+        resident_part = cache["part"]
+    else:
+        if regulated(density):
+            resident_part = resident_path(resident, years, density, sequences)
+        else:
+            resident_part = _log_increments(*_parts(resident, years), sequences.indices)
+        cache.update(key=key, resident=resident, part=resident_part)
+    if not regulated(density):
+        inc = _log_increments(fert_m, surv_m, sequences.indices) - resident_part
+        return inc[:, sequences.burn_in :], None
+    path = resident_part
+    inc = _log_increments(fert_m, surv_m, sequences.indices, path.fertility_factor, path.factors.adult)
+    return inc[:, sequences.burn_in :], path
+
+
+def stochastic_invasion(
+    resident: Schedule, mutant: Schedule, years: YearTypes, density: DensityDependence | None,
+    sequences: YearSequences,
+) -> StochasticInvasion:
+    """The mutant's invasion fitness in the resident's fluctuating environment.
+
+    Parameters
+    ----------
+    resident, mutant : Schedule
+    years : YearTypes
+    density : DensityDependence or None
+        None or a ``NoDensity`` form: density-free.
+    sequences : YearSequences
+        The seasons (common random numbers for both alleles).
+
+    Notes
+    -----
+    With density dependence the resident follows its mean-field dynamics
+    through the years (``resident_path``) and the invasion fitness is
+    exp(mutant's Lyapunov exponent) in that fluctuating environment: a rare
+    mutant invades iff it is > 1 (Metz, Nisbet & Geritz 1992, TREE 7: 198;
+    Ferriere & Gatto 1995, Theor. Pop. Biol. 48: 126). Without density
+    dependence it is exp(log lambda_s(mutant) - log lambda_s(resident)), so
+    "above 1" still means the mutant's share grows; its standard error comes
+    from the paired batch means of the difference (common random numbers).
+    """
+    inc, path = _log_fitness_increments(resident, mutant, years, density, sequences)
+    log_fit, se = _batch_estimate(inc)
+    fitness = float(np.exp(log_fit))
+    mean_size = float(path.census_size[:, sequences.burn_in :].mean()) if path is not None else float("nan")
+    return StochasticInvasion(
+        resident.name, mutant.name, path is not None, fitness, se, fitness * se,
+        stochastic_growth_rate(resident, years, sequences),
+        stochastic_growth_rate(mutant, years, sequences),
+        mean_size,
+    )
+
+
+# --------------------------------------------------------------------------- thresholds
+
+
+@dataclass(frozen=True)
+class InvasionSetting:
+    """Everything a stochastic invasion depends on at one parameter value."""
+
+    resident: Schedule
+    mutant: Schedule
+    years: YearTypes
+    density: DensityDependence | None = None
+
+
+@dataclass(frozen=True)
+class StochasticThreshold:
+    """Where the stochastic invasion fitness crosses 1 along one parameter.
+
+    Attributes
+    ----------
+    value : float
+        The threshold (nan when none was found).
+    standard_error : float
+        Its standard error from the year sampling (delta method).
+    converged : bool
+    bracket : tuple of float
+    log_fitness_at_bracket : tuple of float
+    slope : float
+        d log(invasion fitness) / d parameter at the threshold.
+    message : str
+    """
+
+    value: float
+    standard_error: float
+    converged: bool
+    bracket: tuple[float, float]
+    log_fitness_at_bracket: tuple[float, float]
+    slope: float
+    message: str
+
+    def as_dict(self) -> dict:
+        d = _plain(asdict(self))
+        d["bracket"], d["log_fitness_at_bracket"] = list(self.bracket), list(self.log_fitness_at_bracket)
+        return d
+
+
+def stochastic_threshold(
+    setting: Callable[[float], InvasionSetting],
+    sequences: YearSequences,
+    *,
+    bracket: tuple[float, float],
+    xtol: float = 1e-10,
+) -> StochasticThreshold:
+    """The parameter value at which the mutant's stochastic invasion fitness is 1.
+
+    Parameters
+    ----------
+    setting : callable
+        ``setting(value) -> InvasionSetting``: schedules, years and density at
+        a trial value (any parameter: an allele's rate, a capacity, a year
+        type's multiplier or probability).
+    sequences : YearSequences
+        The same draws serve every trial value (common random numbers; under
+        another year law they are re-read from the same uniforms), so the
+        estimated log fitness g(value) is smooth in rates and multipliers,
+        and has only steps of order 1 / (seasons drawn) in probabilities.
+    bracket : (float, float)
+        Values with g of opposite signs.
+    xtol : float, optional
+
+    Notes
+    -----
+    The threshold theta solves g(theta) = 0. Its standard error is the delta
+    method's se(g(theta)) / |g'(theta)|, with se(g) from the batch means at
+    theta and g' by a central difference on the same draws (e.g. Asmussen &
+    Glynn 2007, ch. III, on smooth functions of estimates).
+    """
+    cache: dict = {}
+
+    def increments(v):
+        s = setting(float(v))
+        return _log_fitness_increments(s.resident, s.mutant, s.years, s.density, sequences, cache)[0]
+
+    def g(v):
+        return float(increments(v).mean())
+
+    lo, hi = map(float, bracket)
+    g_lo, g_hi = g(lo), g(hi)
+    if not (np.isfinite(g_lo) and np.isfinite(g_hi)) or g_lo * g_hi > 0:
+        return StochasticThreshold(
+            float("nan"), float("nan"), False, (lo, hi), (g_lo, g_hi), float("nan"),
+            f"log invasion fitness has the same sign at both ends: {g_lo:.6g}, {g_hi:.6g}",
+        )
+    root = brentq(g, lo, hi, xtol=xtol, rtol=1e-12, maxiter=200)
+    _, se = _batch_estimate(increments(root))
+    # a wide step: g has steps of order 1 / (seasons drawn) when a probability varies, and a
+    # central difference's error in a smooth g is only of order h^2
+    h = 1e-2 * (hi - lo)
+    slope = (g(root + h) - g(root - h)) / (2 * h)
+    err = se / abs(slope) if slope != 0 else float("inf")
+    side = "above" if g_hi > 0 else "below"
+    return StochasticThreshold(
+        float(root), float(err), True, (lo, hi), (g_lo, g_hi), float(slope),
+        f"invades {side} {root:.6g} (SE {err:.2g}; {sequences.n_batches} batches of "
+        f"{sequences.batch_length} seasons)",
+    )
