@@ -121,6 +121,7 @@ DRIVER = r'''
 import os, sys, time
 from pathlib import Path
 import sim.store as store
+import sim.store.durable as durable
 
 where, n, marker = (sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])) if __name__ == "__main__" \
     else ("", 0, None)
@@ -141,28 +142,28 @@ if where == "before-any-shard":
         stop_here()
     W._write_shard = patched
 elif where == "mid-shard-write":  # the .tmp shard half written to disk
-    original = store._write_file
+    original = durable._write_file
     def patched(path, data):
         if nth():
             with open(path, "wb") as f:
                 f.write(data[: len(data) // 2])
             stop_here()
         original(path, data)
-    store._write_file = patched
+    durable._write_file = patched
 elif where == "shard-not-renamed":  # the .tmp shard complete and fsynced, not yet renamed
-    original = store._commit
+    original = durable._commit
     def patched(tmp, path):
         if path.parent.name.endswith(".parts") and nth():
             stop_here()
         original(tmp, path)
-    store._commit = patched
+    durable._commit = patched
 elif where == "between-shards":
-    original = store._commit
+    original = durable._commit
     def patched(tmp, path):
         original(tmp, path)
         if path.parent.name.endswith(".parts") and nth():
             stop_here()
-    store._commit = patched
+    durable._commit = patched
 elif where == "mid-merge":  # the merged .tmp file half written
     original = W._merge
     def patched(self, out, shards):
@@ -171,11 +172,11 @@ elif where == "mid-merge":  # the merged .tmp file half written
         stop_here()
     W._merge = patched
 elif where == "slow-commits":  # every shard takes a while: time to press Ctrl-C mid-run
-    original = store._commit
+    original = durable._commit
     def patched(tmp, path):
         time.sleep(0.15)
         original(tmp, path)
-    store._commit = patched
+    durable._commit = patched
 elif where == "merged-before-cleanup":  # the merged file in place, the shards not yet removed
     original = W._remove_parts
     def patched(self):

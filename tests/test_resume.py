@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 from sim.cli import main
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.status import experiment_status
 from sim.store import ConfigMismatchError, ResultsWriter, parts_dir, read_replicates
 from tests.runs_support import (
@@ -173,7 +173,7 @@ def test_resume_by_another_version_warns_that_draws_may_differ(tmp_path, caplog)
     kill9(proc)
     with h5py.File(out, "r+") as f:
         f.attrs["software_version"] = "0.0.1"
-    with caplog.at_level("WARNING", logger="sim.runner"):
+    with caplog.at_level("WARNING", logger="sim.experiment"):
         run_experiment(small_config(replicates=REPLICATES), out, resume=True, progress=False)
     assert "was started by broodline 0.0.1" in caplog.text
     assert len(read_replicates(out)) == 4 * REPLICATES

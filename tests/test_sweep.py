@@ -9,7 +9,7 @@ from scipy.optimize import brentq
 
 from sim.cli import main
 from sim.config import ConfigError, parse_config, sweep_points, swept_paths
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.store import read_points, read_replicates, read_trajectories
 from tests.runs_support import small_text
 
