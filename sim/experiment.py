@@ -21,7 +21,7 @@ from .describe import preflight
 from .lifecycle import initial_census
 from .outcomes import fixed_outcome, summarize
 from .parallel import default_batch_size, make_pool, plan_batches
-from .store import ResultsWriter, parts_dir, read_outcomes, read_points, software_version
+from .store import ResultsWriter, read_outcomes, read_points, software_version
 
 log = logging.getLogger(__name__)
 
@@ -100,7 +100,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     out : path-like
         The results file (see ``sim.store`` for its layout).
     overwrite, resume : bool
-        Replace an existing file, or finish one started with the same config.
+        Replace an existing file, or finish one started with the same config
+        (with ``resume`` and no file yet, the run starts from the beginning).
     workers : int
         Local processes; ignored with ``cluster``.
     cluster : str, optional
@@ -132,7 +133,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         raise
     tracker = None
     try:
-        if writer.complete:
+        if resume and writer.fresh:
+            log.info("nothing to resume at %s: starting", out)
+        elif writer.complete:
             log.info("%s is already complete: nothing to run", out)
         elif writer.done:
             log.info("resuming %s: %d of %d replicates already saved", out, writer.done, writer.expected)

@@ -189,16 +189,20 @@ if __name__ == "__main__":  # spawned worker processes import this file too
 '''
 
 
-def start_stopped_run(tmp_path, where, n=1, workers=1):
-    """Start a run that stops at ``where``; return (process, config path, output path) once it has stopped there."""
+def start_stopped_run(tmp_path, where, n=1, workers=1, options=()):
+    """Start a run that stops at ``where``; return (process, config path, output path) once it has stopped there.
+
+    ``options``: more command-line options of ``run`` (e.g. ``["--resume"]``).
+    """
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "run.h5"
     marker = tmp_path / "stopped"
+    marker.unlink(missing_ok=True)
     driver = tmp_path / "driver.py"
     driver.write_text(DRIVER)
     proc = subprocess.Popen(
         [sys.executable, str(driver), where, str(n), str(marker), "run", str(config), "-o", str(out),
-         "--workers", str(workers), "--batch-size", str(BATCH), "--quiet"],
+         "--workers", str(workers), "--batch-size", str(BATCH), "--quiet", *options],
         cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     try:
         wait_for(lambda: marker.exists() or proc.poll() is not None, what=f"the run to reach {where}")

@@ -62,7 +62,10 @@ class ResultsWriter:
     points : list of SweepPoint
     overwrite, resume : bool
         ``resume`` refuses a file written by another config
-        (``ConfigMismatchError``, naming each difference).
+        (``ConfigMismatchError``, naming each difference); with no file and
+        no shards there is nothing to resume, and the file is started
+        (``fresh`` is then True), so one command line serves a job that a
+        batch scheduler may requeue at any moment.
     """
 
     def __init__(self, path, config, points, *, overwrite: bool = False, resume: bool = False):
@@ -82,10 +85,11 @@ class ResultsWriter:
         self._check_target(overwrite=overwrite, resume=resume)
         self._lock()
         try:
-            if resume:
-                self._open_existing()
-            else:
+            self.fresh = not (resume and self._resumable())
+            if self.fresh:
                 self._create()
+            else:
+                self._open_existing()
             self.shards = {} if self.complete else self._scan()
         except BaseException:
             self._unlock()
@@ -101,8 +105,6 @@ class ResultsWriter:
             raise ResultsError(f"cannot write {where!r}: {str(folder)!r} is not a folder")
         if self.path.is_dir():
             raise ResultsError(f"cannot write {where!r}: it is a folder")
-        if resume and not self.path.exists():
-            raise ResultsError(f"nothing to resume: {where!r} does not exist (run without --resume)")
         if self.path.exists() and not (overwrite or resume):
             done = is_complete(self.path)
             hint = ("pass overwrite=True to replace it" if done is not False else
@@ -111,6 +113,16 @@ class ResultsWriter:
         if not os.access(folder, os.W_OK):
             raise PermissionError(f"cannot write {where!r}: the folder {str(folder)!r} is not writable "
                                   "(no permission, or a read-only file system)")
+
+    def _resumable(self) -> bool:
+        """True when there is something to resume: the file (shards alone cannot be checked)."""
+        if self.path.exists():
+            return True
+        if list_shards(self.parts):
+            raise ResultsError(f"cannot resume {str(self.path)!r}: it is missing, but "
+                               f"{str(self.parts)!r} holds finished batches; restore the file, "
+                               "or pass overwrite=True to start again")
+        return False
 
     def _lock(self) -> None:
         try:
