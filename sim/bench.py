@@ -6,7 +6,7 @@ survival 0.5) at its equilibrium, one tenth as many semelparous mutants
 K = N (so the resident's equilibrium census is N), Poisson offspring.
 
 Speed is individual-steps per second: the census size summed over the
-seasons stepped, divided by the wall time of the steps (DESIGN.md). Each
+seasons stepped, divided by the wall time of the steps (README, "Performance"). Each
 engine is set against, at the same N,
 
 - the *floor*: numpy drawing one uniform per individual (its survival) and

@@ -1,6 +1,6 @@
 """Configs for the analysis tests: an iteroparous resident against a semelparous mutant.
 
-The defaults are the example of DESIGN.md: resident B_i = 2, P = 0.5, c = 0.5.
+The defaults are the worked example of the tests: resident B_i = 2, P = 0.5, c = 0.5.
 """
 
 from __future__ import annotations
