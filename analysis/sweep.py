@@ -87,8 +87,7 @@ def factor_of(config: Config, path: str) -> SweepFactor | None:
 
 def other_swept_paths(config: Config, path: str | None) -> list[str]:
     """Swept paths outside the factor of ``path`` (all swept paths when ``path`` is None)."""
-    own = factor_of(config, path) if path is not None else None
-    return [p for f in sweep_factors(config) if f is not own for p in f.paths]
+    return [p for f in sweep_factors(config) if path not in f.values for p in f.paths]
 
 
 def sweep_thresholds(config: Config, *, parameters=None, bracket=None) -> list[ThresholdResult]:

@@ -22,7 +22,7 @@ allocates), each divided by the census size.
 
 The small-population experiment times a whole invasion experiment at K = 200
 (one mutant, to fixation, every season recorded) through
-``runner.run_replicates`` on one worker, batched, against the rate of the
+``replicates.run_replicates`` on one worker, batched, against the rate of the
 ``individual`` engine at N = 1e6 (or the largest N run, without 1e6).
 """
 

@@ -201,3 +201,14 @@ def test_threshold_along_a_linked_group_is_reported_along_the_group(tmp_path, ca
     assert t["linked"]["allele.one-shot.fecundity"] == pytest.approx(expected, abs=1e-6)
     assert main(["threshold", str(path)]) == 0
     assert "along the linked group, axis allele.one-shot.fecundity" in capsys.readouterr().out
+
+
+def test_other_swept_paths_leave_out_the_whole_linked_group():
+    from analysis.sweep import numeric_sweep_paths, other_swept_paths
+
+    config = _config(LINKED_THRESHOLD)
+    assert numeric_sweep_paths(config) == ["density.capacity", "allele.one-shot.fecundity"]
+    assert other_swept_paths(config, "allele.one-shot.juvenile_survival") == ["density.capacity"]
+    assert other_swept_paths(config, "density.capacity") == [
+        "allele.one-shot.fecundity", "allele.one-shot.juvenile_survival"]
+    assert other_swept_paths(config, None) == swept_paths(config)

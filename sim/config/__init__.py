@@ -6,52 +6,10 @@
 ``provenance`` hashes a config and lists the differences between two.
 """
 
-from .loading import load_config, parse_config
-from .provenance import config_differences, config_hash
-from .schema import (
-    LINKED,
-    MAX_COUNT,
-    AlleleSection,
-    Config,
-    ConfigError,
-    DensitySection,
-    ExperimentSection,
-    InvasionSection,
-    MutationSection,
-    OffspringSection,
-)
-from .sweep import (
-    SweepFactor,
-    SweepPoint,
-    get_path,
-    set_path,
-    sweep_factors,
-    sweep_points,
-    swept_paths,
-    with_values,
-)
+from . import loading, provenance, schema, sweep
+from .loading import *  # noqa: F403 (each module's __all__ is the package's)
+from .provenance import *  # noqa: F403
+from .schema import *  # noqa: F403
+from .sweep import *  # noqa: F403
 
-__all__ = [
-    "ConfigError",
-    "Config",
-    "ExperimentSection",
-    "DensitySection",
-    "OffspringSection",
-    "AlleleSection",
-    "InvasionSection",
-    "MutationSection",
-    "MAX_COUNT",
-    "LINKED",
-    "SweepPoint",
-    "SweepFactor",
-    "load_config",
-    "parse_config",
-    "sweep_points",
-    "sweep_factors",
-    "swept_paths",
-    "get_path",
-    "set_path",
-    "with_values",
-    "config_hash",
-    "config_differences",
-]
+__all__ = [*schema.__all__, *sweep.__all__, *loading.__all__, *provenance.__all__]

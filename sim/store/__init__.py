@@ -6,37 +6,10 @@ format); ``durable`` writes files that exist whole or not at all;
 read a finished file or the shards of one still being written.
 """
 
-from .layout import (
-    FORMAT_VERSION,
-    ConfigMismatchError,
-    ResultsError,
-    Shard,
-    parts_dir,
-    software_version,
-)
-from .readers import (
-    read_attrs,
-    read_outcomes,
-    read_point_configs,
-    read_points,
-    read_replicates,
-    read_trajectories,
-)
+from . import layout, readers, writer
+from .layout import FORMAT_VERSION, ConfigMismatchError, ResultsError, Shard, parts_dir, software_version
+from .readers import *  # noqa: F403 (the readers' __all__ is the package's)
 from .writer import ResultsWriter, writer_state
 
-__all__ = [
-    "FORMAT_VERSION",
-    "ResultsError",
-    "ConfigMismatchError",
-    "Shard",
-    "ResultsWriter",
-    "parts_dir",
-    "software_version",
-    "read_attrs",
-    "read_points",
-    "read_replicates",
-    "read_trajectories",
-    "read_point_configs",
-    "read_outcomes",
-    "writer_state",
-]
+__all__ = ["FORMAT_VERSION", "ResultsError", "ConfigMismatchError", "Shard", "ResultsWriter",
+           "parts_dir", "software_version", "writer_state", *readers.__all__]

@@ -148,15 +148,6 @@ def list_shards(parts: Path) -> list[Shard]:
     return sorted(s for s in map(Shard.parse, names) if s is not None)
 
 
-def list_shards(parts: Path) -> list[Shard]:
-    """Finished shards in canonical order (point, first replicate)."""
-    try:
-        names = os.listdir(parts)
-    except FileNotFoundError:
-        return []
-    return sorted(s for s in map(Shard.parse, names) if s is not None)
-
-
 def _column(group, name, dtype, shape, chunk, data=None):
     if data is not None and len(data) > 0:
         chunk = min(chunk, len(data))
