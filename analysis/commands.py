@@ -1,7 +1,8 @@
 """The analysis commands: ``threshold``, ``compare``, ``plot`` and ``report``.
 
 Each is a thin layer over a Python function of this package; ``register``
-adds them to the ``broodline`` parser (``sim.cli.REGISTRARS`` calls it).
+adds them to the ``broodline`` parser (``sim.cli.COMMANDS`` names it, so sim
+never imports this package except in its command-line entry).
 Heavy imports (matplotlib) happen inside the commands.
 """
 
@@ -11,13 +12,9 @@ import json
 import math
 from pathlib import Path
 
+from sim.errors import UserError
+
 __all__ = ["register", "finish_demo", "threshold_report", "jsonable"]
-
-
-def _user_error(message: str):
-    from sim.cli import UserError
-
-    return UserError(message)
 
 
 def jsonable(value):
@@ -56,7 +53,7 @@ def _results(path) -> Path:
     except FileNotFoundError:
         raise
     except (OSError, ValueError, KeyError) as err:
-        raise _user_error(
+        raise UserError(
             f"{str(path)!r} cannot be read as a broodline results file ({err})"
         ) from None
     return path
@@ -99,7 +96,7 @@ def cmd_threshold(args) -> int:
 
     config = load_config(args.config)
     if config.invasion is None:
-        raise _user_error(
+        raise UserError(
             f"{args.config}: needs an [invasion] table naming the resident and the mutant"
         )
     result = threshold_report(
@@ -208,7 +205,7 @@ def cmd_plot(args) -> int:
     path = _results(args.results)
     out = Path(args.output)
     if out.exists() and not out.is_dir():
-        raise _user_error(f"-o {out}: exists and is not a folder")
+        raise UserError(f"-o {out}: exists and is not a folder")
     _free(
         [out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
         args.overwrite,

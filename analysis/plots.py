@@ -21,7 +21,7 @@ from matplotlib.ticker import MaxNLocator  # noqa: E402
 from sim.store import read_replicates, read_trajectories  # noqa: E402
 
 from .comparison import compare, compare_thresholds, experiment_config  # noqa: E402
-from .sweep import numeric_sweep_paths  # noqa: E402
+from .sweep import factor_of, numeric_sweep_paths, other_swept_paths  # noqa: E402
 from .thresholds import fitness_along  # noqa: E402
 
 __all__ = ["FIGURES", "Figures", "plot", "fixation_figure", "trajectory_figure", "fitness_figure"]
@@ -50,7 +50,7 @@ def _axis(table: pd.DataFrame, config) -> tuple[str | None, np.ndarray, str]:
 
 def _groups(table: pd.DataFrame, config, xpath):
     """Rows grouped by the other swept parameters: (values as a dict, label, rows) per group."""
-    others = [p for p in (config.sweep or {}) if p != xpath]
+    others = other_swept_paths(config, xpath)
     if not others:
         return [({}, "", table)]
     out = []
@@ -208,11 +208,12 @@ def fitness_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config, *, res
     """Invasion fitness along the swept parameter: theory curve, sweep points, the line at 1."""
     xpath, x, xlabel = _axis(table, config)
     fig, ax = plt.subplots(figsize=(7.5, 4.2))
-    if xpath is not None and not config.sweep.keys() - {xpath}:
+    if xpath is not None and not other_swept_paths(config, xpath):
         grid = np.linspace(x.min(), x.max(), resolution)
+        group = factor_of(config, xpath)
         ax.plot(
             grid,
-            fitness_along(config, xpath, grid),
+            fitness_along(config, xpath, grid, group=group if group.linked else None),
             "-",
             color="C0",
             label="invasion fitness (theory)",

@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from sim.config import sweep_factors, swept_paths
 from sim.store import read_attrs
 
 from .comparison import SHOWN_COLUMNS, compare, compare_thresholds, experiment_config
@@ -104,7 +105,8 @@ def _experiment_text(config) -> str:
             " The experiment sweeps "
             + "; ".join(
                 f"<code>{html.escape(k)}</code> over {', '.join(_g(x) for x in v)}"
-                for k, v in config.sweep.items()
+                for f in sweep_factors(config)
+                for k, v in f.values.items()
             )
             + "."
         )
@@ -271,7 +273,7 @@ def report(
     attrs = read_attrs(path)
     table = compare(path) if table is None else table
     thresholds = compare_thresholds(path, table) if thresholds is None else thresholds
-    swept = [c for c in (config.sweep or {})]
+    swept = swept_paths(config)
     with tempfile.TemporaryDirectory() as tmp:
         figs = plot(path, figures_dir or tmp, table=table, thresholds=thresholds)
         figures = "".join(_figure(figs.png(name), _CAPTIONS[name]) for name in _CAPTIONS)

@@ -1,17 +1,19 @@
 """Theory over an experiment's sweep: a prediction per point, a threshold per swept parameter.
 
-``broodline threshold CONFIG`` prints these two tables.
+``broodline threshold CONFIG`` prints these two tables. Sweeps are read only
+through ``sim.config``'s sweep mechanism (``sweep_factors``), so a
+``[[sweep.linked]]`` group is one factor here too: its threshold is sought
+along the group, with one member as the axis (``SweepFactor.axis``) and the
+others moving with it.
 """
 
 from __future__ import annotations
 
 import itertools
-import math
 
-import numpy as np
 import pandas as pd
 
-from sim.config import Config, sweep_points
+from sim.config import Config, SweepFactor, sweep_factors, sweep_points
 from sim.meanfield import NoEquilibriumError
 
 from .environment import invasion_pair
@@ -23,6 +25,8 @@ __all__ = [
     "predict_configs",
     "predict_sweep",
     "numeric_sweep_paths",
+    "factor_of",
+    "other_swept_paths",
     "sweep_thresholds",
 ]
 
@@ -71,18 +75,19 @@ def predict_sweep(config: Config) -> pd.DataFrame:
 
 
 def numeric_sweep_paths(config: Config) -> list[str]:
-    """Swept paths whose values are all real numbers (the ones a threshold can be sought along)."""
-    out = []
-    for path, values in (config.sweep or {}).items():
-        if (
-            all(
-                isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
-                for v in values
-            )
-            and len(set(values)) > 1
-        ):
-            out.append(path)
-    return out
+    """The axis of each swept factor whose values are real numbers in order (the paths a
+    threshold can be sought, or a figure drawn, along); for a linked group, its axis member."""
+    return [f.axis for f in sweep_factors(config) if f.axis is not None]
+
+
+def factor_of(config: Config, path: str) -> SweepFactor | None:
+    """The sweep factor ``path`` belongs to (None if it is not swept)."""
+    return next((f for f in sweep_factors(config) if path in f.values), None)
+
+
+def other_swept_paths(config: Config, path: str | None) -> list[str]:
+    """Swept paths outside the factor of ``path`` (all swept paths when ``path`` is None)."""
+    return [p for f in sweep_factors(config) if path not in f.values for p in f.paths]
 
 
 def sweep_thresholds(config: Config, *, parameters=None, bracket=None) -> list[ThresholdResult]:
@@ -93,7 +98,9 @@ def sweep_thresholds(config: Config, *, parameters=None, bracket=None) -> list[T
     config : Config
         A config with ``[invasion]``.
     parameters : list of str, optional
-        Sweep paths; by default every numeric swept path.
+        Paths; by default the axis of every numeric swept factor. A member of
+        a ``[[sweep.linked]]`` group means a threshold along the group, with
+        that member as the axis.
     bracket : (float, float), optional
         Range to search (for all ``parameters``); by default each one's swept
         range, see ``analysis.threshold``.
@@ -101,22 +108,27 @@ def sweep_thresholds(config: Config, *, parameters=None, bracket=None) -> list[T
     Returns
     -------
     list of ThresholdResult
-        For a sweep over several parameters, one result per combination of
-        the other swept values (recorded in ``at``).
+        For a sweep over several factors, one result per combination of the
+        other factors' values (recorded in ``at``). Along a linked group,
+        ``parameter`` is the axis and ``linked`` gives the other members'
+        values at the threshold (read linearly between the listed levels).
     """
     invasion_pair(config)
     parameters = numeric_sweep_paths(config) if parameters is None else list(parameters)
+    factors = sweep_factors(config)
     out = []
     for path in parameters:
-        others = {k: v for k, v in (config.sweep or {}).items() if k != path}
-        for combo in itertools.product(*others.values()):
-            at = dict(zip(others, combo))
+        own = factor_of(config, path)
+        if own is not None and own.linked and own.axis != path:
+            own = SweepFactor({path: own.values[path]} | own.values)  # the asked member leads
+        others = [f for f in factors if own is None or f.values != own.values]
+        for combo in itertools.product(*(range(f.levels) for f in others)):
+            at = {p: v for f, k in zip(others, combo) for p, v in f.level(k).items()}
             base = with_values(config, at) if at else config
-            if bracket is None and config.sweep and path in config.sweep:
-                values = np.asarray(config.sweep[path], dtype=float)
-                this = (float(values.min()), float(values.max()))
-            else:
-                this = bracket
-            result = threshold(base, path, bracket=this)
+            this = bracket
+            if bracket is None and own is not None:
+                values = [float(v) for v in own.values[path]]
+                this = (min(values), max(values))
+            result = threshold(base, path, bracket=this, group=own if own is not None and own.linked else None)
             out.append(ThresholdResult(**{**result.__dict__, "at": at}))
     return out

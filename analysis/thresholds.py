@@ -14,7 +14,15 @@ import numpy as np
 from pydantic import ValidationError
 from scipy.optimize import brentq
 
-from sim.config import Config, ConfigError, parse_config, sweep_points
+from sim.config import (
+    Config,
+    ConfigError,
+    SweepFactor,
+    get_path,
+    parse_config,
+    sweep_points,
+    with_values,
+)
 from sim.meanfield import NoEquilibriumError
 
 from .invasion import invasion_fitness
@@ -53,6 +61,9 @@ class ThresholdResult:
         What was found, in words.
     at : dict
         Other swept parameters held fixed at these values (empty if none).
+    linked : dict
+        Along a ``[[sweep.linked]]`` group: the other members' values at the
+        threshold (``parameter`` is the group's axis); empty otherwise.
     """
 
     parameter: str
@@ -64,42 +75,19 @@ class ThresholdResult:
     crossings: int
     message: str
     at: dict = field(default_factory=dict)
+    linked: dict = field(default_factory=dict)
 
     def as_dict(self) -> dict:
         d = asdict(self)
         d["bracket"], d["fitness_at_bracket"] = list(self.bracket), list(self.fitness_at_bracket)
+        if not self.linked:  # the key appears only for a threshold along a linked group
+            del d["linked"]
         return d
-
-
-def with_values(config: Config, values: dict) -> Config:
-    """``config`` with the given sweep paths set (its own sweep dropped).
-
-    Raises
-    ------
-    sim.config.ConfigError
-        Naming the path and the reason, for a path that names nothing or a
-        value out of range.
-    """
-    raw = config.model_dump(mode="python", exclude_none=True)
-    raw["sweep"] = {path: [value] for path, value in values.items()}
-    try:
-        return sweep_points(parse_config(raw))[0].config
-    except ConfigError as err:
-        where = ", ".join(f"{p} = {v!r}" for p, v in values.items())
-        raise ConfigError(
-            [
-                f"{where}: {m.split('): ', 1)[-1]}" if m.startswith("sweep point") else m
-                for m in err.problems
-            ]
-        ) from None
 
 
 def parameter_value(config: Config, parameter: str):
     """The current value at a sweep path (None where the key is unset)."""
-    parts = parameter.split(".")
-    if parts[0] == "allele":
-        return getattr(config.allele[config.allele_index(parts[1])], parts[2])
-    return getattr(getattr(config, parts[0]), parts[1])
+    return get_path(config, parameter)
 
 
 def _check_parameter(config: Config, parameter: str) -> None:
@@ -135,17 +123,30 @@ def _is_probability(config: Config, parameter: str) -> bool:
     return parameter == "mutation.rate"
 
 
-def fitness_along(config: Config, parameter: str, values) -> np.ndarray:
-    """Invasion fitness at each value of ``parameter`` (nan: no resident equilibrium)."""
+def fitness_along(config: Config, parameter: str, values, *, group: SweepFactor | None = None
+                  ) -> np.ndarray:
+    """Invasion fitness at each value of ``parameter`` (nan: no resident equilibrium).
+
+    With ``group`` (a linked sweep factor whose axis is ``parameter``), the
+    other members move with it (``SweepFactor.along``).
+    """
     base = config.model_copy(update={"sweep": None})
     out = np.empty(len(values))
     for i, v in enumerate(values):
-        out[i] = _fitness(base, parameter, float(v))
+        out[i] = _fitness(base, _setting(parameter, group), float(v))
     return out
 
 
-def _fitness(base: Config, parameter: str, value: float) -> float:
-    point = sweep_points(base.model_copy(update={"sweep": {parameter: [value]}}))[0].config
+def _setting(parameter: str, group: SweepFactor | None):
+    """value -> the paths to set: the parameter alone, or every member of its linked group."""
+    if group is None:
+        return lambda value: {parameter: value}
+    return group.along
+
+
+def _fitness(base: Config, setting, value: float) -> float:
+    sweep = {path: [v] for path, v in setting(value).items()}
+    point = sweep_points(base.model_copy(update={"sweep": sweep}))[0].config  # checked as a point
     try:
         return invasion_fitness(point)
     except NoEquilibriumError:
@@ -164,7 +165,8 @@ def _default_bracket(config: Config, parameter: str) -> tuple[float, float, bool
 
 
 def threshold(
-    config: Config, parameter: str, *, bracket=None, tol: float = 1e-10
+    config: Config, parameter: str, *, bracket=None, tol: float = 1e-10,
+    group: SweepFactor | None = None,
 ) -> ThresholdResult:
     """The value of ``parameter`` at which the mutant's invasion fitness equals 1.
 
@@ -182,6 +184,10 @@ def threshold(
         extended fourfold at a time (up to 1e6) until fitness - 1 changes sign.
     tol : float, optional
         Absolute tolerance of the root.
+    group : SweepFactor, optional
+        A ``[[sweep.linked]]`` group whose axis is ``parameter``: the other
+        members move with it, read linearly between the group's levels (held
+        at the end levels beyond them); the result names them in ``linked``.
 
     Returns
     -------
@@ -204,6 +210,14 @@ def threshold(
             "invasion: a threshold needs an [invasion] table naming resident and mutant"
         )
     _check_parameter(config, parameter)
+    if group is not None:
+        if group.axis != parameter:
+            raise ConfigError(f"{parameter}: not the axis of the linked group {group.paths} "
+                              f"(its axis is {group.axis})")
+        for member in group.paths:
+            if member != parameter:
+                _check_parameter(config, member)
+    setting = _setting(parameter, group)
     if bracket is None:
         lo, hi, open_ended = _default_bracket(config, parameter)
     else:
@@ -211,17 +225,17 @@ def threshold(
         open_ended = False
         if not (math.isfinite(lo) and math.isfinite(hi) and lo < hi):
             raise ConfigError(f"bracket: needs two finite numbers, low < high; got {bracket!r}")
-        with_values(config, {parameter: lo})  # refuse an out-of-range end now, naming it
+        with_values(config, setting(lo))  # refuse an out-of-range end now, naming it
     if bracket is None:
         try:
-            with_values(config, {parameter: lo})
+            with_values(config, setting(lo))
         except ConfigError:  # a key that must be > 0 (e.g. density.capacity)
             lo = hi * 1e-3
-    with_values(config, {parameter: hi})
+    with_values(config, setting(hi))
     base = config.model_copy(update={"sweep": None})
 
     def excess(v):
-        return _fitness(base, parameter, v) - 1.0
+        return _fitness(base, setting, v) - 1.0
 
     while True:
         grid = np.linspace(lo, hi, _GRID + 1)
@@ -262,11 +276,16 @@ def threshold(
         else brentq(excess, grid[i], grid[j], xtol=tol, rtol=4 * np.finfo(float).eps, maxiter=500)
     )
     side = "above" if invades_above else "below"
+    linked = {p: v for p, v in setting(float(value)).items() if p != parameter}
     msg = f"{parameter} = {value:.10g}: the mutant invades {side} it"
+    if linked:
+        msg += (" (along the linked group, axis " + parameter + ": there "
+                + ", ".join(f"{p} = {v:.10g}" for p, v in linked.items()) + ")")
     if len(crossings) > 1:
         msg += f" ({len(crossings)} crossings in [{lo:g}, {hi:g}]; the lowest is reported)"
     return ThresholdResult(
-        parameter, float(value), True, (lo, hi), ends, invades_above, len(crossings), msg
+        parameter, float(value), True, (lo, hi), ends, invades_above, len(crossings), msg,
+        linked=linked,
     )
 
 

@@ -12,7 +12,8 @@ from .meanfield import (
     stable_age_distribution,
 )
 from .model import BroodModel
-from .runner import ReplicateResult, replicate_rng, run_experiment, run_replicate
+from .experiment import run_experiment
+from .replicates import ReplicateResult, replicate_rng, run_replicate, run_replicates
 from .schedules import Schedule, iteroparous, semelparous, table
 from .store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
 
@@ -22,6 +23,7 @@ __all__ = [
     "Equilibrium", "NoEquilibriumError", "growth_rate", "projection_matrix",
     "solve_equilibrium", "stable_age_distribution",
     "BroodModel", "ReplicateResult", "replicate_rng", "run_experiment", "run_replicate",
+    "run_replicates",
     "Schedule", "iteroparous", "semelparous", "table",
     "read_attrs", "read_point_configs", "read_points", "read_replicates", "read_trajectories",
 ]

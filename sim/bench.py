@@ -6,7 +6,7 @@ survival 0.5) at its equilibrium, one tenth as many semelparous mutants
 K = N (so the resident's equilibrium census is N), Poisson offspring.
 
 Speed is individual-steps per second: the census size summed over the
-seasons stepped, divided by the wall time of the steps (DESIGN.md). Each
+seasons stepped, divided by the wall time of the steps (README, "Performance"). Each
 engine is set against, at the same N,
 
 - the *floor*: numpy drawing one uniform per individual (its survival) and
@@ -22,14 +22,12 @@ allocates), each divided by the census size.
 
 The small-population experiment times a whole invasion experiment at K = 200
 (one mutant, to fixation, every season recorded) through
-``runner.run_replicates`` on one worker, batched, against the rate of the
+``replicates.run_replicates`` on one worker, batched, against the rate of the
 ``individual`` engine at N = 1e6 (or the largest N run, without 1e6).
 """
 
 from __future__ import annotations
 
-import argparse
-import json
 import textwrap
 import time
 import tracemalloc
@@ -38,6 +36,8 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 
 from .config import Config, parse_config, sweep_points
+from .model import BroodModel
+from .replicates import replicate_rng, run_replicate, run_replicates
 
 __all__ = [
     "DEFAULT_SIZES",
@@ -47,7 +47,6 @@ __all__ = [
     "ExperimentRecord",
     "bench_config",
     "format_report",
-    "register_bench",
     "run_bench",
     "traced_peak",
 ]
@@ -169,8 +168,6 @@ def _time_engine(config: Config, seasons: int, seed: int, min_time: float = 0.0)
     Returns wall seconds of the steps, census sizes and recruits season by
     season, and (state, peak) bytes per individual.
     """
-    from .model import BroodModel
-    from .runner import replicate_rng
 
     sizes, recruits, wall = [], [], 0.0
     block = 0
@@ -238,7 +235,6 @@ def _record(engine, n, sizes, wall, memory):
 # -- the small-population experiment -------------------------------------------------------
 def _time_experiment(engine: str, replicates: int, capacity: int, seed: int, *,
                      one_at_a_time: bool = False) -> ExperimentRecord:
-    from .runner import run_replicate, run_replicates
 
     config = bench_config(capacity, engine=engine, mutant_count=1, replicates=replicates,
                           seed=seed)
@@ -364,75 +360,3 @@ def format_report(report: BenchReport) -> str:
         if report.reference_size:
             lines.append(f"x individual: against the individual engine at N = {report.reference_size:,}.")
     return "\n".join(lines)
-
-
-# -- command line ------------------------------------------------------------------------------
-def _size(text: str) -> int:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"a census size must be a number; got {text!r}") from None
-    if value != int(value) or not 10 <= value <= 1e8:
-        raise argparse.ArgumentTypeError(f"a census size must be a whole number in [10, 1e8]; got {text!r}")
-    return int(value)
-
-
-def _seconds(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a number of seconds; got {text!r}") from None
-    if not 0 <= value <= 3600:
-        raise argparse.ArgumentTypeError(f"must be in [0, 3600] seconds; got {text!r}")
-    return value
-
-
-def _count(low: int):
-    def parse(text: str) -> int:
-        try:
-            value = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"must be a whole number; got {text!r}") from None
-        if value < low:
-            raise argparse.ArgumentTypeError(f"must be >= {low}; got {value}")
-        return value
-    return parse
-
-
-def cmd_bench(args) -> int:
-    import sys
-
-    sizes = list(args.sizes or DEFAULT_SIZES)
-    if args.large and LARGE_SIZE not in sizes:
-        sizes.append(LARGE_SIZE)
-    say = None if args.json else (lambda m: print(f"  timing {m} ...", file=sys.stderr, flush=True))
-    report = run_bench(sizes, seasons=args.seasons, min_time=args.min_time,
-                       agents_max=args.agents_max,
-                       replicates=args.replicates, capacity=args.capacity,
-                       sequential=args.sequential or None, progress=say)
-    if args.json:
-        print(json.dumps(report.to_records(), indent=1))
-    else:
-        print(format_report(report))
-    return 0
-
-
-def register_bench(sub) -> None:
-    """Add ``broodline bench`` to the command line."""
-    p = sub.add_parser("bench", help="time the engines against the random-number floor and Mesa")
-    p.add_argument("--sizes", nargs="+", type=_size, metavar="N",
-                   help="census sizes (default: 1e3 1e4 1e5 1e6)")
-    p.add_argument("--large", action="store_true", help="also N = 1e7")
-    p.add_argument("--seasons", type=_count(1), default=20,
-                   help="seasons per timed block, each from the starting census (default 20)")
-    p.add_argument("--min-time", type=_seconds, default=1.0,
-                   help="least seconds of stepping timed per engine and size (default 1)")
-    p.add_argument("--agents-max", type=_count(0), default=10_000,
-                   help="largest N the slow Mesa engine runs at (default 1e4)")
-    p.add_argument("--replicates", type=_count(0), default=10_000,
-                   help="replicates of the K = 200 invasion experiment (0 skips it)")
-    p.add_argument("--capacity", type=_count(10), default=200, help="K of the invasion experiment")
-    p.add_argument("--sequential", type=_count(0), default=1_000,
-                   help="replicates also run one at a time, for comparison (0 skips)")
-    p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
-    p.set_defaults(func=cmd_bench)

@@ -62,7 +62,7 @@ _CHILD = """
 import json, resource, sys, time
 import h5py
 from sim.config import load_config
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.store import read_outcomes
 if __name__ == "__main__":
     config, out, workers = sys.argv[1], sys.argv[2], int(sys.argv[3])

@@ -69,7 +69,7 @@ def describe_experiment(config: Config) -> str:
         lines.append("start: " + ", ".join(f"{a.name} {a.initial_count}" for a in config.allele)
                      + " individuals at age 1")
     factors = sweep_factors(config)
-    sizes = [f"{len(next(iter(f.values())))} ({' with '.join(f)})" for f in factors]
+    sizes = [f"{f.levels} ({' with '.join(f.paths)})" for f in factors]
     lines.append(f"sweep points: {len(points)}" + (f" = {' x '.join(sizes)}" if factors else ""))
     for p in points:
         if p.values:

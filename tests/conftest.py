@@ -7,7 +7,7 @@ import pytest
 from sim.config import parse_config
 
 # A resident iteroparous perennial (B_i = 2, P = 0.5, c = 0.5) against a semelparous mutant:
-# the worked example of DESIGN.md (thresholds 4 under recruitment, 3 under all-survival).
+# the worked example of the invasion tests (thresholds 4 under recruitment, 3 under all-survival).
 BASE = {
     "experiment": {"name": "test", "seed": 7, "replicates": 10, "max_steps": 50},
     "density": {"form": "beverton-holt", "acts_on": "recruitment", "capacity": 50},

@@ -1,6 +1,6 @@
 """Configs for the analysis tests: an iteroparous resident against a semelparous mutant.
 
-The defaults are the example of DESIGN.md: resident B_i = 2, P = 0.5, c = 0.5.
+The defaults are the worked example of the tests: resident B_i = 2, P = 0.5, c = 0.5.
 """
 
 from __future__ import annotations
@@ -86,7 +86,7 @@ SMALL_SWEEP = [2.5, 3.5, 4.5, 6.0]
 
 def write_small_results(path, *, replicates=60, seed=3):
     """Run a small invasion sweep (census 30, Beverton-Holt on recruitment) into ``path``."""
-    from sim.runner import run_experiment
+    from sim.experiment import run_experiment
 
     config = invasion_config(
         capacity=30.0,

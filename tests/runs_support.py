@@ -121,6 +121,7 @@ DRIVER = r'''
 import os, sys, time
 from pathlib import Path
 import sim.store as store
+import sim.store.durable as durable
 
 where, n, marker = (sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])) if __name__ == "__main__" \
     else ("", 0, None)
@@ -141,28 +142,28 @@ if where == "before-any-shard":
         stop_here()
     W._write_shard = patched
 elif where == "mid-shard-write":  # the .tmp shard half written to disk
-    original = store._write_file
+    original = durable._write_file
     def patched(path, data):
         if nth():
             with open(path, "wb") as f:
                 f.write(data[: len(data) // 2])
             stop_here()
         original(path, data)
-    store._write_file = patched
+    durable._write_file = patched
 elif where == "shard-not-renamed":  # the .tmp shard complete and fsynced, not yet renamed
-    original = store._commit
+    original = durable._commit
     def patched(tmp, path):
         if path.parent.name.endswith(".parts") and nth():
             stop_here()
         original(tmp, path)
-    store._commit = patched
+    durable._commit = patched
 elif where == "between-shards":
-    original = store._commit
+    original = durable._commit
     def patched(tmp, path):
         original(tmp, path)
         if path.parent.name.endswith(".parts") and nth():
             stop_here()
-    store._commit = patched
+    durable._commit = patched
 elif where == "mid-merge":  # the merged .tmp file half written
     original = W._merge
     def patched(self, out, shards):
@@ -171,11 +172,11 @@ elif where == "mid-merge":  # the merged .tmp file half written
         stop_here()
     W._merge = patched
 elif where == "slow-commits":  # every shard takes a while: time to press Ctrl-C mid-run
-    original = store._commit
+    original = durable._commit
     def patched(tmp, path):
         time.sleep(0.15)
         original(tmp, path)
-    store._commit = patched
+    durable._commit = patched
 elif where == "merged-before-cleanup":  # the merged file in place, the shards not yet removed
     original = W._remove_parts
     def patched(self):
@@ -188,16 +189,20 @@ if __name__ == "__main__":  # spawned worker processes import this file too
 '''
 
 
-def start_stopped_run(tmp_path, where, n=1, workers=1):
-    """Start a run that stops at ``where``; return (process, config path, output path) once it has stopped there."""
+def start_stopped_run(tmp_path, where, n=1, workers=1, options=()):
+    """Start a run that stops at ``where``; return (process, config path, output path) once it has stopped there.
+
+    ``options``: more command-line options of ``run`` (e.g. ``["--resume"]``).
+    """
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "run.h5"
     marker = tmp_path / "stopped"
+    marker.unlink(missing_ok=True)
     driver = tmp_path / "driver.py"
     driver.write_text(DRIVER)
     proc = subprocess.Popen(
         [sys.executable, str(driver), where, str(n), str(marker), "run", str(config), "-o", str(out),
-         "--workers", str(workers), "--batch-size", str(BATCH), "--quiet"],
+         "--workers", str(workers), "--batch-size", str(BATCH), "--quiet", *options],
         cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     try:
         wait_for(lambda: marker.exists() or proc.poll() is not None, what=f"the run to reach {where}")

@@ -225,3 +225,19 @@ def test_jsonable():
         "b": [3, None],
         "c": "x",
     }
+
+
+def test_compare_plot_and_report_read_a_linked_sweep(tmp_path, capsys):
+    # the sweep of tests/runs_support.SMALL has a [[sweep.linked]] group beside a plain key
+    from sim.experiment import run_experiment
+    from tests.runs_support import small_config
+
+    out = tmp_path / "linked.h5"
+    run_experiment(small_config(replicates=4), out, workers=1, progress=False)
+    assert main(["compare", str(out), "--json"]) == 0
+    thresholds = json.loads(capsys.readouterr().out)["thresholds"]
+    assert [t["parameter"] for t in thresholds] == ["density.capacity"] * 2 + [
+        "allele.one-shot.fecundity"] * 2
+    assert main(["plot", str(out), "-o", str(tmp_path / "figs")]) == 0
+    assert main(["report", str(out), "-o", str(tmp_path / "r.html")]) == 0
+    assert "allele.one-shot.juvenile_survival" in (tmp_path / "r.html").read_text()

@@ -1,21 +1,73 @@
 """Replicates advanced together give each replicate exactly its result when run alone.
 
-``runner.run_replicates`` hands batchable engines to ``sim.batch.run_batch``,
-which keeps every replicate on its own stream
-``SeedSequence(seed, spawn_key=(point, replicate))``. These tests compare it
-field by field with ``runner.run_replicate`` (the BroodModel loop, one
-replicate), and check that the grouping of replicates into batches changes
-nothing.
+``sim.replicates.run_replicates`` applies the stop rule to a whole batch, each
+replicate on its own stream ``SeedSequence(seed, spawn_key=(point, replicate))``.
+These tests compare it field by field with a plain single-replicate loop
+written here (``_one_replicate_plainly``: BroodModel stepped season by season,
+the stop rule as the README states it), and check that the grouping of
+replicates into batches changes nothing.
 """
 
 import numpy as np
 import pytest
 
-from sim.batch import STATES, classify_many, run_batch
 from sim.config import parse_config, sweep_points
 from sim.model import BroodModel
-from sim.runner import classify, replicate_rng, run_replicate, run_replicates
+from sim.outcomes import OUTCOMES, classify
+from sim.replicates import ReplicateResult, replicate_rng, run_replicate, run_replicates
 from sim.streams import keyed_generators
+
+
+def _state(totals, config):
+    """The state of one census by allele, as the README words it: (outcome so far, winner)."""
+    present = np.flatnonzero(totals)
+    if present.size == 0:
+        return "extinct", -1
+    winner = int(present[0]) if present.size == 1 else -1
+    if config.invasion is not None:
+        mutant = config.allele_index(config.invasion.mutant)
+        if totals[mutant] == 0:
+            return "mutant-lost", winner
+        if present.size == 1:
+            return "mutant-fixed", winner
+        return "undecided", -1
+    return ("fixed", winner) if present.size == 1 else ("undecided", -1)
+
+
+def _one_replicate_plainly(point, replicate, seed):
+    """One replicate, one season at a time: the reference the batched stop rule must match."""
+    config = point.config
+    exp = config.experiment
+    model = BroodModel(config, rng=replicate_rng(seed, point.index, replicate))
+    census = model.census()
+    steps, records = [0], [census]
+    state, winner = _state(census.sum(axis=1), config)
+    since, outcome = 0, None
+    while model.season < exp.max_steps:
+        if state != "undecided" and (exp.stop == "fixation" or state == "extinct"):
+            break
+        model.step()
+        census = model.census()
+        new_state, winner = _state(census.sum(axis=1), config)
+        if new_state != state:
+            state, since = new_state, model.season
+        if int(census.sum()) > exp.max_population:
+            outcome = "capped"
+            break
+        if model.season % exp.record_every == 0:
+            steps.append(model.season)
+            records.append(census)
+    if steps[-1] != model.season:
+        steps.append(model.season)
+        records.append(census)
+    outcome = outcome or state
+    return ReplicateResult(
+        point=point.index, replicate=replicate, seed=seed, outcome=outcome,
+        winner=winner if outcome in ("mutant-fixed", "mutant-lost", "fixed") else -1,
+        steps=model.season,
+        fixation_step=since if outcome in ("mutant-fixed", "mutant-lost", "fixed", "extinct") else -1,
+        final_census=int(census.sum()), record_steps=np.asarray(steps, dtype=np.int32),
+        trajectory=np.asarray(records, dtype=np.uint32))
 
 RESIDENT = {"name": "perennial", "breeding": "iteroparous", "fecundity": 2.0,
             "adult_survival": 0.5, "juvenile_survival": 0.5}
@@ -93,7 +145,7 @@ def test_batched_equals_one_replicate_at_a_time(engine, name):
     config = _config(engine, **_with_initial_counts(name, CONFIGS[name]))
     point = sweep_points(config)[0]
     reps = list(range(14))
-    alone = [run_replicate(point, r, 5) for r in reps]
+    alone = [_one_replicate_plainly(point, r, 5) for r in reps]
     together = run_replicates(point, reps, 5)
     assert [r.replicate for r in together] == reps
     for a, b in zip(alone, together):
@@ -130,7 +182,7 @@ def test_batch_grouping_and_order_do_not_matter(engine):
     point = sweep_points(config)[0]
     whole = {r.replicate: r for r in run_replicates(point, range(20), 9)}
     pieces = run_replicates(point, [7], 9) + run_replicates(point, [19, 3, 11, 0], 9) \
-        + run_batch(point, range(12, 19), 9)
+        + run_replicates(point, range(12, 19), 9) + [run_replicate(point, 2, 9)]
     for r in pieces:
         assert _same(r, whole[r.replicate])
 
@@ -152,17 +204,18 @@ def test_points_and_seeds_key_the_streams():
     assert any(not np.array_equal(x.trajectory, y.trajectory) for x, y in zip(a, c))
 
 
-def test_agents_engine_falls_back_to_one_at_a_time():
-    config = _config("agents", density={"form": "beverton-holt", "capacity": 12})
+@pytest.mark.parametrize("name", ["bh-recruitment", "no-density-capped", "ages-mutation-max-steps"])
+def test_agents_engine_runs_each_replicate_as_a_batch_of_one(name):
+    config = _config("agents", **_with_initial_counts(name, CONFIGS[name]))
     point = sweep_points(config)[0]
-    together = run_replicates(point, [0, 1], 2)
-    for r, rep in zip(together, (0, 1)):
-        assert _same(r, run_replicate(point, rep, 2))
+    together = run_replicates(point, [0, 1, 2], 2)
+    for r, rep in zip(together, (0, 1, 2)):
+        assert _same(r, _one_replicate_plainly(point, rep, 2))
 
 
 def test_model_stream_starts_at_the_replicate_stream():
     # mesa 3.3 draws from the generator it is given; BroodModel rewinds it so the engine
-    # uses the replicate's stream from its first draw, as run_batch does
+    # uses the replicate's stream from its first draw, as run_replicates does
     config = _config()
     model = BroodModel(config, rng=replicate_rng(5, 0, 3))
     assert model.rng.bit_generator.state == replicate_rng(5, 0, 3).bit_generator.state
@@ -182,11 +235,11 @@ def test_keyed_generators_are_numpys_keyed_streams(seed, point):
 
 
 @pytest.mark.parametrize("invasion", [True, False])
-def test_classify_many_matches_classify(invasion):
+def test_classify_matches_the_plain_statement(invasion):
     config = _config() if invasion else _config(
         invasion=None, allele=[dict(RESIDENT, initial_count=3), dict(MUTANT, initial_count=2)])
     rng = np.random.default_rng(0)
     totals = rng.integers(0, 3, size=(500, 2)) * rng.integers(0, 2, size=(500, 2))
-    states, winners = classify_many(totals, config)
+    states, winners = classify(totals, config)
     for row, s, w in zip(totals, states, winners):
-        assert (STATES[s], int(w)) == classify(row, config)
+        assert (OUTCOMES[s], int(w)) == _state(row, config)

@@ -7,7 +7,7 @@ import pytest
 
 from sim.cli import main
 from sim.parallel import ClusterError
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from tests.runs_support import assert_same_datasets, small_config
 
 distributed = pytest.importorskip("distributed")
@@ -104,7 +104,7 @@ def test_a_lost_worker_batch_is_rerun_without_duplicate_rows(tmp_path):
 def test_scheduler_file_gives_the_address(tmp_path):
     import json
 
-    from sim.parallel import _scheduler_address
+    from sim.parallel.cluster import _scheduler_address
 
     f = tmp_path / "scheduler.json"
     f.write_text(json.dumps({"type": "Scheduler", "address": "tcp://10.0.0.7:8786"}))

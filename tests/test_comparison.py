@@ -8,7 +8,7 @@ import pytest
 from analysis import agreement, compare, compare_thresholds
 from analysis.comparison import COMPARE_COLUMNS
 from sim.config import ConfigError, parse_config
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.store import read_replicates
 from tests.invasion_configs import SMALL_SWEEP, invasion_config, write_small_results
 

@@ -125,7 +125,7 @@ def test_engine_works_where_numba_finds_no_cache_directory():
         "import numba.core.caching as c; c.CacheImpl._locator_classes = []\n"
         "from sim.bench import bench_config\n"
         "from sim.model import BroodModel\n"
-        "from sim.runner import replicate_rng\n"
+        "from sim.replicates import replicate_rng\n"
         "m = BroodModel(bench_config(300), rng=replicate_rng(1, 0, 0)); m.step(); m.step()\n"
         "print(int(m.census().sum()) > 0)\n"
     )

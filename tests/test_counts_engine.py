@@ -29,7 +29,7 @@ from sim.describe import describe_experiment
 from sim.engines import CountsPopulations, IndividualPopulations
 from sim.lifecycle import LifeCycle, initial_census
 from sim.offspring import Fixed, NegativeBinomial, Poisson
-from sim.runner import run_replicates
+from sim.replicates import run_replicates
 
 Z_MAX = 4.5
 P_MIN = 1e-5

@@ -10,7 +10,7 @@ from sim.config import SweepPoint, parse_config
 from sim.lifecycle import round_preserving_total
 from sim.meanfield import growth_rate, projection_matrix, stable_age_distribution
 from sim.model import BroodModel
-from sim.runner import run_replicate
+from sim.replicates import run_replicate
 from tests.conftest import BASE
 
 ENGINES = ["individual", "agents"]

@@ -10,7 +10,7 @@ import pytest
 import sim.store as store
 from sim.cli import main
 from sim.config import parse_config
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.store import ResultsError, parts_dir, read_replicates
 from tests.runs_support import BATCH, REPLICATES, assert_same_datasets, small_config, write_config
 

@@ -11,7 +11,7 @@ from scipy.stats import norm
 
 from analysis import predict, wilson_interval
 from sim.config import parse_config, sweep_points
-from sim.runner import run_replicate
+from sim.replicates import run_replicate
 from tests.invasion_configs import invasion_config
 
 Z4 = 1.0 - 2.0 * norm.sf(4.0)  # two-sided coverage of +-4 standard errors
@@ -151,7 +151,7 @@ def test_observed_threshold_follows_the_placement(tmp_path, acts_on, capacity, a
     # Intervals at 99.9% (bootstrap of analysis.estimates.observed_threshold), so a correct
     # theory fails a check with probability about 1e-3.
     from analysis import compare, compare_thresholds
-    from sim.runner import run_experiment
+    from sim.experiment import run_experiment
 
     sweep = [2.5, 2.75, 3.0, 3.25, 3.5, 3.75, 4.0, 4.25, 4.5]
     config = invasion_config(

@@ -10,9 +10,9 @@ from pathlib import Path
 import pytest
 
 from sim.cli import main
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.status import experiment_status
-from sim.store import ConfigMismatchError, ResultsWriter, parts_dir, read_replicates
+from sim.store import ConfigMismatchError, ResultsError, ResultsWriter, parts_dir, read_replicates
 from tests.runs_support import (
     BATCH,
     DRIVER,
@@ -173,7 +173,60 @@ def test_resume_by_another_version_warns_that_draws_may_differ(tmp_path, caplog)
     kill9(proc)
     with h5py.File(out, "r+") as f:
         f.attrs["software_version"] = "0.0.1"
-    with caplog.at_level("WARNING", logger="sim.runner"):
+    with caplog.at_level("WARNING", logger="sim.experiment"):
         run_experiment(small_config(replicates=REPLICATES), out, resume=True, progress=False)
     assert "was started by broodline 0.0.1" in caplog.text
     assert len(read_replicates(out)) == 4 * REPLICATES
+
+
+def test_one_command_line_with_resume_survives_kills_at_any_moment(reference, tmp_path, caplog):
+    """A batch scheduler's requeued job: ``run CONFIG -o OUT --resume``, killed and rerun as is."""
+    config = write_config(tmp_path, replicates=REPLICATES)
+    out = tmp_path / "run.h5"
+    argv = ["run", config, "-o", out, "--workers", "1", "--batch-size", BATCH, "--quiet", "--resume"]
+    # killed 0.1 s after the start: still starting up, no results file yet
+    proc = subprocess.Popen([sys.executable, "-m", "sim", *map(str, argv)], cwd=ROOT, env=env(),
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    time.sleep(0.1)
+    kill9(proc)
+    assert not out.exists()
+    # killed while the header is written (call 1 of the byte writer: a half-written .tmp)
+    proc, _, _ = start_stopped_run(tmp_path, "mid-shard-write", 1, options=["--resume"])
+    kill9(proc)
+    assert not out.exists() and out.with_name(out.name + ".tmp").exists()
+    # killed between shards, then during the merge: the same command line each time
+    for where, n, saved in (("between-shards", 3, 3 * BATCH), ("mid-merge", 1, 4 * REPLICATES)):
+        proc, _, _ = start_stopped_run(tmp_path, where, n, options=["--resume"])
+        kill9(proc)
+        assert rows_so_far(out, reference) == saved
+    assert main([str(a) for a in argv]) == 0
+    assert_same_datasets(reference, out)
+    assert not parts_dir(out).exists() and not list(tmp_path.glob("*.tmp"))
+
+
+def test_resume_with_nothing_to_resume_starts_and_says_so(reference, tmp_path, caplog):
+    out = tmp_path / "new.h5"
+    with caplog.at_level("INFO", logger="sim.experiment"):
+        run_experiment(small_config(replicates=REPLICATES), out, resume=True, progress=False)
+    assert f"nothing to resume at {out}: starting" in caplog.text
+    assert_same_datasets(reference, out)
+    # finished batches without their results file cannot be checked against the config: refused
+    parts_dir(out).mkdir()
+    (parts_dir(out) / "p000000-r000000000-000000002.h5").write_bytes(b"")
+    out.unlink()
+    with pytest.raises(ResultsError, match="holds finished batches"):
+        run_experiment(small_config(replicates=REPLICATES), out, resume=True, progress=False)
+
+
+def test_two_requeued_copies_at_once_the_lock_refuses_the_second(reference, tmp_path, capsys):
+    # the first copy holds the writer's lock (stopped before its first shard); the second,
+    # the same command line, is refused without touching the file, and exits with status 2
+    proc, config, out = start_stopped_run(tmp_path, "before-any-shard", options=["--resume"])
+    try:
+        argv = ["run", str(config), "-o", str(out), "--resume", "--quiet", "--workers", "1"]
+        assert main(argv) == 2
+        assert "is being written by another broodline run" in capsys.readouterr().err
+    finally:
+        kill9(proc)
+    assert main(argv) == 0
+    assert_same_datasets(reference, out)

@@ -6,7 +6,8 @@ import pytest
 
 from sim.config import sweep_points
 from sim.parallel import Batch, plan_batches, run_batch
-from sim.runner import run_experiment, run_replicate
+from sim.experiment import run_experiment
+from sim.replicates import run_replicate
 from sim.store import read_attrs, read_replicates, read_trajectories
 from tests.runs_support import assert_same_datasets, datasets, small_config
 
@@ -104,3 +105,24 @@ def test_default_batch_size_scales_with_the_census():
     assert default_batch_size(100_000, 1, census_size=20) == 1024
     assert default_batch_size(100_000, 1, census_size=10**6) == 1
     assert default_batch_size(400, 2, census_size=200) == 50
+
+
+def test_summary_counts_fixed_without_invasion(tmp_path):
+    # without [invasion] the outcome that counts is "fixed" (one allele left), as `status` says
+    import tomllib
+
+    from sim.config import parse_config
+    from sim.status import experiment_status
+    from tests.runs_support import small_text
+
+    text = small_text(replicates=10).replace('juvenile_survival = 0.5\n\n[invasion]',
+                                             'juvenile_survival = 0.5\ninitial_count = 3\n\n[x]')
+    raw = tomllib.loads(text)
+    del raw["x"]
+    raw["allele"][0]["initial_count"] = 6
+    out = tmp_path / "noinv.h5"
+    summary = run_experiment(parse_config(raw), out, workers=1, progress=False)
+    status = experiment_status(out)
+    assert summary["fixed"].sum() > 0
+    assert np.allclose(summary["fixed_fraction"], summary["fixed"] / summary["replicates"])
+    assert np.allclose(summary["fixed_fraction"], status.table["fixed_fraction"])

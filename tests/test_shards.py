@@ -7,7 +7,7 @@ import pytest
 import sim.store as store
 from sim.config import sweep_points
 from sim.parallel import run_batch
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.store import (
     ResultsError,
     ResultsWriter,
@@ -49,8 +49,8 @@ def test_merge_in_small_pieces_gives_the_same_file(tmp_path, monkeypatch):
     config = small_config(replicates=7)
     whole = tmp_path / "whole.h5"
     run_experiment(config, whole, batch_size=2, progress=False)
-    monkeypatch.setattr(store, "_MERGE_ROWS", 3)
-    monkeypatch.setattr(store, "_MERGE_RECORDS", 10)
+    monkeypatch.setattr(store.writer, "_MERGE_ROWS", 3)
+    monkeypatch.setattr(store.writer, "_MERGE_RECORDS", 10)
     pieces = tmp_path / "pieces.h5"
     run_experiment(config, pieces, batch_size=2, progress=False)
     assert_same_datasets(whole, pieces)

@@ -5,7 +5,8 @@ import numpy as np
 import pytest
 
 from sim.config import sweep_points
-from sim.runner import run_experiment, run_replicate
+from sim.experiment import run_experiment
+from sim.replicates import run_replicate
 from sim.store import (
     read_attrs,
     read_point_configs,
@@ -85,7 +86,7 @@ def test_layout_and_readers(config, tmp_path):
 def test_existing_results_are_not_overwritten(config, tmp_path):
     path = tmp_path / "keep.h5"
     path.write_bytes(b"precious")
-    with pytest.raises(FileExistsError, match="pass --overwrite"):
+    with pytest.raises(FileExistsError, match="pass overwrite=True"):
         run_experiment(config, path, progress=False)
     assert path.read_bytes() == b"precious"
     run_experiment(config, path, progress=False, overwrite=True)

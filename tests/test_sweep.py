@@ -9,7 +9,7 @@ from scipy.optimize import brentq
 
 from sim.cli import main
 from sim.config import ConfigError, parse_config, sweep_points, swept_paths
-from sim.runner import run_experiment
+from sim.experiment import run_experiment
 from sim.store import read_points, read_replicates, read_trajectories
 from tests.runs_support import small_text
 
@@ -157,3 +157,58 @@ initial_count = 1
     assert abs(lost[0] - lost[2]) < 4 * math.sqrt(2) * math.sqrt(0.417 * 0.583 / n)
     # q(1.5) = 0.417 (value from memory) pins the root finder to the intended root, not q = 1
     assert np.isclose(brentq(lambda x: x - math.exp(1.5 * (x - 1)), 0, 1 - 1e-9), 0.417, atol=1e-3)
+
+
+# A linked group along which the threshold has a closed form. Resident: iteroparous,
+# B_i = 2, P = 0.5, c = 0.5; Beverton-Holt on recruitment. At the resident's equilibrium
+# R0 = c f B_i / (1 - P) = 1, so recruits survive with f = (1 - P) / (c B_i); a semelparous
+# mutant breeding at age 1 has R0 = c_s f B_s and invades iff c_s B_s > c B_i / (1 - P) = 2
+# (R0 under recruitment regulation, Mylius & Diekmann 1995). The group moves B_s from 3 to 6
+# and c_s from 0.5 to 0.4 linearly, so c_s = 0.5 - (B_s - 3) / 30 and the threshold solves
+# B_s (0.6 - B_s / 30) = 2: B_s = 9 - sqrt(21).
+LINKED_THRESHOLD = """
+[sweep]
+"density.capacity" = [15, 25]
+
+[[sweep.linked]]
+"allele.one-shot.fecundity" = [3.0, 4.0, 6.0]
+"allele.one-shot.juvenile_survival" = [0.5, 0.4666666666666667, 0.4]
+"""
+
+
+def test_threshold_along_a_linked_group_is_reported_along_the_group(tmp_path, capsys):
+    import json
+
+    path = tmp_path / "linked.toml"
+    path.write_text(small_text().split("[sweep]")[0] + LINKED_THRESHOLD)
+    assert main(["threshold", str(path), "--json"]) == 0
+    found = [t for t in json.loads(capsys.readouterr().out)["thresholds"]
+             if t["parameter"] != "density.capacity"]  # (capacity has no threshold here)
+    expected = 9 - math.sqrt(21)
+    assert [t["at"] for t in found] == [{"density.capacity": 15}, {"density.capacity": 25}]
+    for t in found:
+        assert t["parameter"] == "allele.one-shot.fecundity"  # the axis: the group's first member
+        assert t["value"] == pytest.approx(expected, abs=1e-8)
+        assert t["linked"]["allele.one-shot.juvenile_survival"] == pytest.approx(
+            0.5 - (expected - 3) / 30, abs=1e-8)
+        assert t["invades_above"] is True
+    # the other member as the axis: the same crossing, read along juvenile survival
+    assert main(["threshold", str(path), "--json", "--parameter",
+                 "allele.one-shot.juvenile_survival"]) == 0
+    t = json.loads(capsys.readouterr().out)["thresholds"][0]
+    assert t["parameter"] == "allele.one-shot.juvenile_survival"
+    assert t["value"] == pytest.approx(0.5 - (expected - 3) / 30, abs=1e-8)
+    assert t["linked"]["allele.one-shot.fecundity"] == pytest.approx(expected, abs=1e-6)
+    assert main(["threshold", str(path)]) == 0
+    assert "along the linked group, axis allele.one-shot.fecundity" in capsys.readouterr().out
+
+
+def test_other_swept_paths_leave_out_the_whole_linked_group():
+    from analysis.sweep import numeric_sweep_paths, other_swept_paths
+
+    config = _config(LINKED_THRESHOLD)
+    assert numeric_sweep_paths(config) == ["density.capacity", "allele.one-shot.fecundity"]
+    assert other_swept_paths(config, "allele.one-shot.juvenile_survival") == ["density.capacity"]
+    assert other_swept_paths(config, "density.capacity") == [
+        "allele.one-shot.fecundity", "allele.one-shot.juvenile_survival"]
+    assert other_swept_paths(config, None) == swept_paths(config)

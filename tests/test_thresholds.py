@@ -75,7 +75,7 @@ def test_mylius_diekmann_1995_recruitment(form, acts_on, b_i, p, c):
 
 
 def test_placement_moves_the_threshold():
-    # DESIGN.md example: 4 under recruitment, 3 under all survival.
+    # the worked example (tests/conftest.py): 4 under recruitment, 3 under all survival.
     rec = threshold(invasion_config(acts_on="recruitment"), MUTANT_FECUNDITY, bracket=(1, 10))
     alls = threshold(invasion_config(acts_on="all-survival"), MUTANT_FECUNDITY, bracket=(1, 10))
     assert rec.value == pytest.approx(4.0, abs=1e-8)

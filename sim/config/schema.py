@@ -1,31 +1,28 @@
-"""Experiment configuration: the TOML vocabulary, its constraints, and sweep points.
+"""The config schema: the TOML vocabulary and every constraint on it, declared once.
 
-Constraints are declared once, here, and checked when a config is loaded:
-engines never see an invalid config. Every refusal names the key's path, the
-rule and the value received, e.g. ``allele[1].adult_survival must be in
-[0, 1]; got 1.3``.
+Constraints are checked when a config is loaded: engines and domain objects
+never see an invalid config. Every refusal names the key's path, the rule and
+the value received, e.g. ``allele[1].adult_survival must be in [0, 1]; got
+1.3`` (``sim.config.messages`` words pydantic's errors that way).
 """
 
 from __future__ import annotations
 
-import copy
 import difflib
-import hashlib
-import itertools
-import json
-import tomllib
-from pathlib import Path
 from typing import Annotated, Any, Literal
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, ValidationError, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
 
-from .aggregation import counts_obstacles
-from .density import DensityDependence
-from .mutation import Mutation, uniform_mutation
-from .offspring import make_offspring
-from .schedules import Schedule, iteroparous, semelparous, table
+from .. import vocabulary as words
+from ..aggregation import counts_obstacles
+from ..density import DensityDependence
+from ..mutation import Mutation, uniform_mutation
+from ..offspring import make_offspring
+from ..schedules import Schedule, iteroparous, semelparous, table
 
 __all__ = [
+    "MAX_COUNT",
+    "LINKED",
     "ConfigError",
     "Config",
     "ExperimentSection",
@@ -34,14 +31,8 @@ __all__ = [
     "AlleleSection",
     "InvasionSection",
     "MutationSection",
-    "SweepPoint",
-    "load_config",
-    "parse_config",
-    "sweep_points",
-    "sweep_factors",
-    "swept_paths",
-    "config_hash",
-    "config_differences",
+    "SECTIONS",
+    "check_sweep_path",
 ]
 
 MAX_COUNT = 2**32 - 1  # census counts are stored as uint32
@@ -88,19 +79,19 @@ class ExperimentSection(_Section):
     seed: int = Field(0, ge=0)
     replicates: int = Field(100, ge=1)
     max_steps: int = Field(1000, ge=1)
-    stop: Literal["fixation", "max-steps"] = "fixation"
+    stop: Literal[words.STOP_RULES] = "fixation"
     record_every: int = Field(1, ge=1)
-    engine: Literal["individual", "agents", "counts"] = "individual"
+    engine: Literal[words.ENGINES] = "individual"
     max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT)
-    trajectory: Literal["by-age", "by-allele", "none"] = "by-age"
+    trajectory: Literal[words.TRAJECTORY_MODES] = "by-age"
 
 
 class DensitySection(_Section):
     """``[density]``: the form of density dependence, where it acts, who is counted."""
 
-    form: Literal["none", "beverton-holt", "ricker", "ceiling"] = "none"
-    acts_on: Literal["recruitment", "fecundity", "adult-survival", "all-survival"] | None = None
-    counted: Literal["census", "breeders", "offspring"] = "census"
+    form: Literal[words.DENSITY_FORMS] = "none"
+    acts_on: Literal[words.PLACEMENTS] | None = None
+    counted: Literal[words.COUNTED] = "census"
     capacity: float | None = Field(None, gt=0)
 
     @model_validator(mode="after")
@@ -131,7 +122,7 @@ class DensitySection(_Section):
 class OffspringSection(_Section):
     """``[offspring]``: the offspring-number distribution."""
 
-    distribution: Literal["poisson", "fixed", "negative-binomial"] = "poisson"
+    distribution: Literal[words.DISTRIBUTIONS] = "poisson"
     dispersion: float | None = Field(None, gt=0)
 
     @model_validator(mode="after")
@@ -147,7 +138,7 @@ class AlleleSection(_Section):
     """``[[allele]]``: one heritable breeding schedule."""
 
     name: str = Field(min_length=1)
-    breeding: Literal["semelparous", "iteroparous", "table"]
+    breeding: Literal[words.BREEDING]
     fecundity: NonNegative | list[NonNegative]
     adult_survival: Probability | list[Probability] | None = None
     juvenile_survival: Probability
@@ -290,8 +281,8 @@ class Config(_Section):
         return self.allele_names.index(name)
 
 
-# -- sweep paths ------------------------------------------------------------------
-_SECTIONS = {
+# -- the [sweep] table --------------------------------------------------------------
+SECTIONS = {
     "experiment": ExperimentSection,
     "density": DensitySection,
     "offspring": OffspringSection,
@@ -300,7 +291,7 @@ _SECTIONS = {
 }
 
 
-def _check_sweep_path(config: Config, path: str) -> str | None:
+def check_sweep_path(config: Config, path: str) -> str | None:
     """Why ``path`` names nothing in ``config``, or None if it names a key."""
     parts = path.split(".")
     if parts[0] == "allele":
@@ -309,14 +300,14 @@ def _check_sweep_path(config: Config, path: str) -> str | None:
         if parts[1] not in config.allele_names:
             return f"no allele is named {parts[1]!r} (alleles: {config.allele_names})"
         if parts[2] == "name" or parts[2] not in AlleleSection.model_fields:
-            return f"allele has no sweepable key {parts[2]!r}{_suggest(parts[2], AlleleSection)}"
+            return f"allele has no sweepable key {parts[2]!r}{suggest(parts[2], AlleleSection)}"
         return None
-    if parts[0] not in _SECTIONS or len(parts) != 2:
+    if parts[0] not in SECTIONS or len(parts) != 2:
         return ("a path reads SECTION.KEY or allele.NAME.KEY "
                 "(sections: experiment, density, offspring, invasion, mutation)")
-    section = _SECTIONS[parts[0]]
+    section = SECTIONS[parts[0]]
     if parts[1] not in section.model_fields:
-        return f"[{parts[0]}] has no key {parts[1]!r}{_suggest(parts[1], section)}"
+        return f"[{parts[0]}] has no key {parts[1]!r}{suggest(parts[1], section)}"
     if parts[0] == "invasion" and config.invasion is None:
         return "the config has no [invasion] table"
     if path in ("experiment.seed", "experiment.replicates", "experiment.engine", "experiment.name",
@@ -333,7 +324,7 @@ def _check_sweep(config: Config) -> list[str]:
     problems, seen = [], set()
 
     def check_path(where: str, path: str, values) -> None:
-        problem = _check_sweep_path(config, path)
+        problem = check_sweep_path(config, path)
         if problem:
             problems.append(f"{where}: {problem}")
         elif not isinstance(values, list) or len(values) == 0:
@@ -361,205 +352,6 @@ def _check_sweep(config: Config) -> list[str]:
     return problems
 
 
-def _suggest(key: str, model) -> str:
+def suggest(key: str, model) -> str:
     close = difflib.get_close_matches(key, list(model.model_fields), n=1)
     return f"; did you mean {close[0]!r}?" if close else ""
-
-
-def _set_path(raw: dict, path: str, value) -> None:
-    parts = path.split(".")
-    if parts[0] == "allele":
-        for allele in raw["allele"]:
-            if allele.get("name") == parts[1]:
-                allele[parts[2]] = value
-                return
-        raise KeyError(path)
-    raw.setdefault(parts[0], {})[parts[1]] = value
-
-
-class SweepPoint(BaseModel):
-    """One point of an experiment: its index, the swept values and the full config there."""
-
-    model_config = ConfigDict(frozen=True)
-
-    index: int
-    values: dict[str, Any]
-    config: Config
-
-
-def sweep_factors(config: Config) -> list[dict[str, list]]:
-    """The factors of the sweep, each a dict of path -> values that vary together.
-
-    A plain ``[sweep]`` key is a factor of one path; a ``[[sweep.linked]]``
-    group is one factor whose equal-length lists are read in step. Plain
-    keys come first (in file order), then the linked groups (in file order).
-    """
-    if not config.sweep:
-        return []
-    factors = [{path: values} for path, values in config.sweep.items() if path != LINKED]
-    return factors + [dict(group) for group in config.sweep.get(LINKED, [])]
-
-
-def swept_paths(config: Config) -> list[str]:
-    """Every swept path, in the order of the points table's columns."""
-    return [path for factor in sweep_factors(config) for path in factor]
-
-
-def sweep_points(config: Config) -> list[SweepPoint]:
-    """Expand ``[sweep]`` into points: the cartesian product of its factors.
-
-    Each plain key is a factor; each ``[[sweep.linked]]`` group is one factor
-    whose lists advance together (a zip). The last factor varies fastest.
-    Each point's config is validated on its own, so a swept value out of
-    range is refused with the point and the key named. Without a sweep there
-    is one point, the config itself.
-    """
-    base = config.model_dump(exclude={"sweep"}, exclude_none=True)
-    factors = sweep_factors(config)
-    if not factors:
-        return [SweepPoint(index=0, values={}, config=Config.model_validate(base))]
-    points, problems = [], []
-    levels = [range(len(next(iter(factor.values())))) for factor in factors]
-    for i, combo in enumerate(itertools.product(*levels)):
-        raw = copy.deepcopy(base)
-        values = {path: factor[path][k] for factor, k in zip(factors, combo) for path in factor}
-        for path, value in values.items():
-            _set_path(raw, path, value)
-        try:
-            points.append(SweepPoint(index=i, values=values, config=Config.model_validate(raw)))
-        except ValidationError as err:
-            where = ", ".join(f"{p} = {v!r}" for p, v in values.items())
-            problems += [f"sweep point {i} ({where}): {m}" for m in _messages(err)]
-    if problems:
-        raise ConfigError(problems)
-    return points
-
-
-# -- loading and messages ---------------------------------------------------------
-def _loc(loc: tuple) -> str:
-    out = ""
-    for part in loc:
-        if isinstance(part, int):
-            out += f"[{part}]"
-        elif part in ("float", "list[float]", "int", "list[constrained-float]", "constrained-float") \
-                or part.startswith(("list[", "function-after", "literal[", "constrained-int")):
-            continue  # pydantic's union-branch labels, not keys
-        else:
-            out += f".{part}" if out else str(part)
-    return out
-
-
-def _wrong_union_branch(e) -> bool:
-    """True for the error of a scalar-or-list union's branch the input plainly was not meant for."""
-    labels = [p for p in e["loc"] if isinstance(p, str) and ("[" in p or p in ("float", "int"))]
-    if not labels:
-        return False
-    list_branch = labels[0].startswith("list[")
-    return list_branch != isinstance(e.get("input"), list) and e["type"] in (
-        "list_type", "float_type", "float_parsing", "int_type", "int_parsing", "literal_error")
-
-
-def _messages(err: ValidationError) -> list[str]:
-    seen, out = set(), []
-    for e in err.errors(include_url=False):
-        if _wrong_union_branch(e):
-            continue
-        path = _loc(e["loc"])
-        kind = e["type"]
-        got = e.get("input")
-        if kind == "extra_forbidden":
-            msg = f"unknown key {path}"
-            parent, _, key = path.rpartition(".")
-            model = _model_at(parent)
-            if model is not None:
-                msg += _suggest(key, model) or f" (known keys: {', '.join(model.model_fields)})"
-        elif kind == "value_error":
-            text = e["msg"].removeprefix("Value error, ")
-            if text.startswith("must"):
-                msg = f"{path} {text}; got {got!r}"
-            else:  # a model-level check: lines of 'key: reason', keys relative to its path
-                for line in text.splitlines():
-                    line = f"{path}.{line}" if path else line
-                    if line not in seen:
-                        seen.add(line)
-                        out.append(line)
-                continue
-        elif kind == "missing":
-            msg = f"{path} is required"
-        elif kind == "literal_error":
-            msg = f"{path} must be {e['msg'].removeprefix('Input should be ')}; got {got!r}"
-        elif kind in ("greater_than_equal", "greater_than", "less_than_equal", "less_than"):
-            op = {"greater_than_equal": ">=", "greater_than": ">", "less_than_equal": "<=", "less_than": "<"}[kind]
-            bound = next(iter(e["ctx"].values()))
-            msg = f"{path} must be {op} {bound}; got {got!r}"
-        else:
-            msg = f"{path}: {e['msg'].lower()}; got {got!r}"
-        if msg not in seen:
-            seen.add(msg)
-            out.append(msg)
-    return out
-
-
-def _model_at(path: str):
-    head = path.split("[")[0].split(".")[0]
-    if path == "":
-        return Config
-    if head == "allele":
-        return AlleleSection
-    return _SECTIONS.get(head)
-
-
-def parse_config(raw: dict) -> Config:
-    """Validate a config given as a dict (as TOML would load it)."""
-    try:
-        config = Config.model_validate(raw)
-    except ValidationError as err:
-        raise ConfigError(_messages(err)) from None
-    sweep_points(config)  # a swept value out of range is refused now, not mid-run
-    return config
-
-
-def load_config(path: str | Path) -> Config:
-    """Read and validate a TOML config file; raise ConfigError naming each problem."""
-    path = Path(path)
-    if not path.is_file():
-        raise ConfigError(f"config file {str(path)!r} not found")
-    try:
-        raw = tomllib.loads(path.read_text())
-    except tomllib.TOMLDecodeError as err:
-        raise ConfigError(f"{path}: not valid TOML: {err}") from None
-    return parse_config(raw)
-
-
-def config_hash(config: Config) -> str:
-    """SHA-256 of the resolved config (canonical JSON); equal configs give equal hashes."""
-    text = json.dumps(config.model_dump(mode="json"), sort_keys=True, separators=(",", ":"))
-    return hashlib.sha256(text.encode()).hexdigest()
-
-
-def _flatten(value, path: str = "") -> dict[str, Any]:
-    """Leaves of a JSON-like value by path (``allele[1].fecundity``); lists of scalars are leaves."""
-    if isinstance(value, dict):
-        out = {}
-        for key, item in value.items():
-            out.update(_flatten(item, f"{path}.{key}" if path else str(key)))
-        return out
-    if isinstance(value, list) and any(isinstance(v, (dict, list)) for v in value):
-        out = {}
-        for i, item in enumerate(value):
-            out.update(_flatten(item, f"{path}[{i}]"))
-        return out
-    return {path: value}
-
-
-def config_differences(old: Config | dict, new: Config | dict) -> list[str]:
-    """Lines ``path: OLD -> NEW`` for every key where two resolved configs differ."""
-    a, b = (_flatten(c.model_dump(mode="json") if isinstance(c, Config) else c) for c in (old, new))
-    missing = object()
-    lines = []
-    for path in sorted(set(a) | set(b)):
-        x, y = a.get(path, missing), b.get(path, missing)
-        if x != y:
-            show = [("(absent)" if v is missing else json.dumps(v)) for v in (x, y)]
-            lines.append(f"{path}: {show[0]} -> {show[1]}")
-    return lines

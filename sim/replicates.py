@@ -1,66 +1,78 @@
-"""Many replicates of one sweep point advanced together, with ``run_replicate``'s results.
+"""Replicates of one sweep point, run to the stop rule: a single replicate is a batch of one.
 
 Small populations spend their time in per-season overhead, not in
 individuals; advancing a batch of replicates as one set of arrays shares that
 overhead. Each replicate still draws only from its own stream
 ``SeedSequence(seed, spawn_key=(point, replicate))`` and consumes it exactly as
-it does alone (the single-replicate engine is the batch code with one
-replicate), so a replicate's result does not depend on its batch or worker.
-The stop rules, outcomes and records are ``run_replicate``'s, applied to the
-whole batch with array operations; finished replicates leave the batch.
+it does alone, so a replicate's result does not depend on its batch or
+worker. The stop rule, the outcomes and the records are applied to the whole
+batch with array operations (``run_replicates``); finished replicates leave
+the batch. An engine without a batch form (the agents engine) runs each
+replicate as a batch of one ``BroodModel``.
 """
 
 from __future__ import annotations
 
 import gc
 from contextlib import contextmanager
+from dataclasses import dataclass
 from itertools import pairwise
 
 import numpy as np
 
-from .config import Config, SweepPoint
+from .config import SweepPoint
 from .engines import ENGINES
 from .lifecycle import LifeCycle, initial_census
+from .model import BroodModel
+from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, classify
 from .streams import keyed_generators
 
-__all__ = ["STATES", "classify_many", "run_batch", "batchable"]
+__all__ = ["ReplicateResult", "replicate_rng", "run_replicates", "run_replicate"]
 
-# codes for the state of a census; index into this tuple
-STATES = ("undecided", "mutant-fixed", "mutant-lost", "fixed", "extinct")
-_UNDECIDED, _MUTANT_FIXED, _MUTANT_LOST, _FIXED, _EXTINCT = range(5)
-_DECIDED_WINNER = ("mutant-fixed", "mutant-lost", "fixed")
+_UNDECIDED, _EXTINCT, _CAPPED = CODES["undecided"], CODES["extinct"], CODES["capped"]
 
 
-def batchable(config: Config) -> bool:
-    """True when the config's engine can advance a batch of replicates together."""
-    return hasattr(ENGINES[config.experiment.engine], "populations")
+@dataclass
+class ReplicateResult:
+    """What one replicate left: its outcome and its recorded census trajectory."""
+
+    point: int
+    replicate: int
+    seed: int
+    outcome: str
+    winner: int
+    steps: int
+    fixation_step: int
+    final_census: int
+    record_steps: np.ndarray  # (n_records,)
+    trajectory: np.ndarray  # (n_records, n_alleles, n_ages) uint32
 
 
-def classify_many(totals: np.ndarray, config: Config) -> tuple[np.ndarray, np.ndarray]:
-    """``runner.classify`` for many censuses at once.
+def replicate_rng(seed: int, point: int, replicate: int) -> np.random.Generator:
+    """The replicate's own stream: ``SeedSequence(seed, spawn_key=(point, replicate))``.
 
-    Parameters
-    ----------
-    totals : ndarray, shape (n, n_alleles)
-        Counts by allele, one row per census.
-
-    Returns
-    -------
-    states : ndarray of int
-        Index into ``STATES``.
-    winners : ndarray of int
-        The only allele present, or -1.
+    Keyed, not spawned, so any replicate can be re-run alone, on any worker,
+    in any order, with the same result. ``sim.streams.keyed_generators`` builds
+    the same generators for a whole batch at once.
     """
-    present = totals > 0
-    n_present = present.sum(axis=1)
-    winners = np.where(n_present == 1, present.argmax(axis=1), -1)
-    one = np.where(n_present == 1, _FIXED, _UNDECIDED)
-    if config.invasion is not None:
-        mutant = config.allele_index(config.invasion.mutant)
-        one = np.where(n_present == 1, _MUTANT_FIXED, _UNDECIDED)
-        one = np.where(totals[:, mutant] == 0, _MUTANT_LOST, one)
-    states = np.where(n_present == 0, _EXTINCT, one)
-    return states, winners
+    return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(point, replicate)))
+
+
+class _Models:
+    """Replicates of an engine without a batch form, one ``BroodModel`` each, as a batch."""
+
+    def __init__(self, config, rngs):
+        self.models = [BroodModel(config, rng=rng) for rng in rngs]
+
+    def step(self) -> None:
+        for model in self.models:
+            model.step()
+
+    def census(self) -> np.ndarray:
+        return np.stack([model.census() for model in self.models])
+
+    def keep(self, which: np.ndarray) -> None:
+        self.models = [m for m, k in zip(self.models, which, strict=True) if k]
 
 
 class _Records:
@@ -103,8 +115,13 @@ def _cycle_collection_paused():
             gc.enable()
 
 
-def run_batch(point: SweepPoint, replicates, seed: int) -> list:
-    """Run replicates of one sweep point together; the same results as ``run_replicate`` on each.
+def run_replicates(point: SweepPoint, replicates, seed: int) -> list[ReplicateResult]:
+    """Run replicates of one sweep point to the stop rule (the unit of work a worker takes).
+
+    Engines that hold replicates as an array dimension (``individual``,
+    ``counts``) advance the replicates together; the others run each as a
+    batch of one. Either way each replicate draws from its own keyed stream,
+    so the results do not depend on how replicates are grouped.
 
     Parameters
     ----------
@@ -118,38 +135,50 @@ def run_batch(point: SweepPoint, replicates, seed: int) -> list:
     -------
     list of ReplicateResult, in the order of ``replicates``.
     """
+    reps = [int(r) for r in replicates]
     with _cycle_collection_paused():
-        return _run_batch(point, replicates, seed)
+        if hasattr(ENGINES[point.config.experiment.engine], "populations"):
+            return _run_batch(point, reps, seed)
+        return [result for rep in reps for result in _run_batch(point, [rep], seed)]
 
 
-def _run_batch(point: SweepPoint, replicates, seed: int) -> list:
-    from .runner import ReplicateResult
+def run_replicate(point: SweepPoint, replicate: int, seed: int) -> ReplicateResult:
+    """Run one replicate of one sweep point to the stop rule: a batch of one."""
+    return run_replicates(point, [replicate], seed)[0]
 
+
+def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateResult]:
+    """The stop rule, applied to a batch: stop a replicate when its outcome is decided
+    (``stop = "fixation"``; extinction always stops), at ``max_steps``, or when its
+    census passes ``max_population`` (capped); record every ``record_every`` seasons
+    and at the end."""
     config = point.config
     exp = config.experiment
-    reps = [int(r) for r in replicates]
     n = len(reps)
     if n == 0:
         return []
-    life = LifeCycle.from_config(config)
-    start = initial_census(config, life)
     rngs = keyed_generators(seed, point.index, reps)  # replicate_rng's, built together
-    batch = ENGINES[exp.engine].populations(life, np.broadcast_to(start, (n, *start.shape)), rngs)
+    engine = ENGINES[exp.engine]
+    if hasattr(engine, "populations"):
+        life = LifeCycle.from_config(config)
+        start = initial_census(config, life)
+        batch = engine.populations(life, np.broadcast_to(start, (n, *start.shape)), rngs)
+    else:
+        batch = _Models(config, rngs)
 
-    outcome = np.full(n, -1)  # code into STATES, or len(STATES) for capped
-    capped_code = len(STATES)
+    outcome = np.full(n, -1)  # codes into OUTCOMES
     steps, since_final, winner_final, final_census = (np.zeros(n, dtype=np.int64) for _ in range(4))
     records = _Records()
 
     active = np.arange(n)
     census = batch.census()
-    state, winner = classify_many(census.sum(axis=2), config)
+    state, winner = classify(census.sum(axis=2), config)
     since = np.zeros(n, dtype=np.int64)
     records.add(active, 0, census)
     season = 0
     stop_decided = exp.stop == "fixation"
 
-    def finish(done: np.ndarray, codes: np.ndarray, recorded: np.ndarray) -> None:
+    def finish(done: np.ndarray, codes, recorded: np.ndarray) -> None:
         ids = active[done]
         outcome[ids], steps[ids] = codes, season
         since_final[ids], winner_final[ids] = since[done], winner[done]
@@ -172,33 +201,32 @@ def _run_batch(point: SweepPoint, replicates, seed: int) -> list:
         batch.step()
         season += 1
         census = batch.census()
-        new_state, winner = classify_many(census.sum(axis=2), config)
+        new_state, winner = classify(census.sum(axis=2), config)
         since = np.where(new_state != state, season, since)
         state = new_state
         capped = census.sum(axis=(1, 2)) > exp.max_population
         if season % exp.record_every == 0:
             records.add(active[~capped], season, census[~capped])
         if capped.any():
-            finish(capped, capped_code, np.zeros(int(capped.sum()), dtype=bool))
+            finish(capped, _CAPPED, np.zeros(int(capped.sum()), dtype=bool))
             keep = ~capped
             active, state, winner, since, census = (x[keep] for x in (active, state, winner, since, census))
             batch.keep(keep)
 
-    names = STATES + ("capped",)
     out = []
     columns = (outcome.tolist(), winner_final.tolist(), steps.tolist(), since_final.tolist(),
                final_census.tolist(), records.by_replicate(n))  # Python numbers: one conversion each
     for i, (code, winner_i, steps_i, since_i, census_i, (record_steps, trajectory)) in enumerate(
             zip(*columns, strict=True)):
-        name = names[code]
+        name = OUTCOMES[code]
         out.append(ReplicateResult(
             point=point.index,
             replicate=reps[i],
             seed=seed,
             outcome=name,
-            winner=winner_i if name in _DECIDED_WINNER else -1,
+            winner=winner_i if name in DECIDED_WITH_WINNER else -1,
             steps=steps_i,
-            fixation_step=since_i if name in _DECIDED_WINNER + ("extinct",) else -1,
+            fixation_step=since_i if name in DECIDED else -1,
             final_census=census_i,
             record_steps=record_steps,
             trajectory=trajectory,

@@ -1,12 +1,12 @@
-"""The command line of long experiments: ``run``'s options (workers, cluster, resume), ``status``
-and ``bench-memory``.
+"""``broodline run``: run an experiment config; its options (workers, cluster, resume, batch size).
 
-A thin layer over ``runner.run_experiment``, ``status.experiment_status`` and
-``bench_memory.measure_memory``.
+A thin layer over ``sim.experiment.run_experiment``: log lines, the summary
+table, and the command that finishes an interrupted run.
 """
 
 from __future__ import annotations
 
+import argparse
 import logging
 import shlex
 import signal
@@ -15,12 +15,16 @@ import sys
 import pandas as pd
 from tqdm import tqdm
 
-__all__ = ["add_run_options", "run_options", "run_from_command_line", "register"]
+from ..config import load_config
+from ..errors import UserError
+from ..experiment import ExperimentInterrupted, request_stop, run_experiment
+from ..parallel import default_workers
+
+__all__ = ["register", "add_run_options", "run_options", "run_from_command_line", "positive"]
 
 
-def _positive(text: str) -> int:
-    import argparse
-
+def positive(text: str) -> int:
+    """argparse type: a whole number >= 1."""
     try:
         value = int(text)
     except ValueError:
@@ -32,7 +36,7 @@ def _positive(text: str) -> int:
 
 def add_run_options(parser) -> None:
     """Add ``--workers``, ``--cluster``, ``--resume`` and ``--batch-size`` to a ``run`` parser."""
-    parser.add_argument("--workers", type=_positive, default=None, metavar="N",
+    parser.add_argument("--workers", type=positive, default=None, metavar="N",
                         help="local worker processes (default: the cores this process may use)")
     parser.add_argument("--cluster", metavar="ADDRESS", default=None,
                         help="run the batches on a running dask scheduler: its address "
@@ -40,15 +44,13 @@ def add_run_options(parser) -> None:
                              "pip install 'broodline[cluster]'")
     parser.add_argument("--resume", action="store_true",
                         help="finish an unfinished results file (same config), skipping what is done")
-    parser.add_argument("--batch-size", type=_positive, default=None, metavar="N",
-                        help="replicates per batch of work (default: at most 64; results do not depend on it)")
+    parser.add_argument("--batch-size", type=positive, default=None, metavar="N",
+                        help="replicates per batch of work (default: about 1e5 individuals, at most 1024 "
+                             "replicates; results do not depend on it)")
 
 
 def run_options(args) -> dict:
     """The keyword arguments of ``run_experiment`` that ``run``'s options give."""
-    from .cli import UserError
-    from .parallel import default_workers
-
     if args.cluster is not None and args.workers is not None:
         raise UserError("--workers applies to local runs; with --cluster the cluster's workers "
                         "run the batches (give one of the two)")
@@ -76,8 +78,6 @@ def _log_to_stderr() -> None:
 
 def _stop_on_signals() -> None:
     """Ctrl-C, and the SIGTERM batch schedulers send at a time limit: stop, keeping finished work."""
-    from .runner import request_stop
-
     def handler(signum, frame):
         request_stop()  # checked after every batch, in case this exception is swallowed
         raise KeyboardInterrupt
@@ -109,13 +109,11 @@ def _resume_command(config_path, out) -> str:
 def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=1, cluster=None,
                           resume=False, batch_size=None, config_path=None) -> pd.DataFrame:
     """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint."""
-    from .runner import ExperimentInterrupted, run_experiment
-
     _log_to_stderr()
     _stop_on_signals()
     where = f"dask scheduler {cluster}" if cluster else \
         (f"{workers} worker processes" if workers > 1 else "1 process")
-    logging.getLogger("sim.runner").info("running %s on %s", out, where)
+    logging.getLogger("sim.experiment").info("running %s on %s", out, where)
     try:
         summary = run_experiment(config, out, overwrite=overwrite, resume=resume, workers=workers,
                                  cluster=cluster, progress=not quiet, batch_size=batch_size)
@@ -136,34 +134,21 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
     return summary
 
 
-def cmd_status(args) -> int:
-    from .cli import UserError
-    from .status import experiment_status
-
-    try:
-        print(experiment_status(args.results))
-    except ValueError as err:  # not a results file
-        raise UserError(str(err)) from None
-    return 0
 
 
-def cmd_bench_memory(args) -> int:
-    from .bench_memory import measure_memory
-
-    report = measure_memory(args.replicates, workers=args.workers)
-    print(report)
+def cmd_run(args) -> int:
+    config = load_config(args.config)
+    run_from_command_line(config, args.output, overwrite=args.overwrite, quiet=args.quiet,
+                          **run_options(args))
     return 0
 
 
 def register(sub) -> None:
-    """Add ``status`` and ``bench-memory`` to the command line."""
-    p = sub.add_parser("status", help="progress per sweep point of a results file, also while it runs")
-    p.add_argument("results", help="results file (.h5)")
-    p.set_defaults(func=cmd_status)
-
-    p = sub.add_parser("bench-memory", help="peak memory of runs of growing size (is it flat?)")
-    p.add_argument("--replicates", type=_positive, nargs="+", default=[1000, 10000], metavar="N",
-                   help="experiment sizes to measure (default: 1000 10000)")
-    p.add_argument("--workers", type=_positive, default=1, metavar="N",
-                   help="local worker processes for each run (default: 1)")
-    p.set_defaults(func=cmd_bench_memory)
+    """Add ``run`` to the command line."""
+    p = sub.add_parser("run", help="run an experiment config and write an HDF5 results file")
+    p.add_argument("config", help="experiment config (TOML)")
+    p.add_argument("-o", "--output", required=True, help="results file to write (.h5)")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing results file")
+    p.add_argument("--quiet", action="store_true", help="no progress bar (per-point lines still logged)")
+    add_run_options(p)
+    p.set_defaults(func=cmd_run)

@@ -1,0 +1,78 @@
+"""The ``broodline`` command line: a thin layer over the Python API.
+
+Every command calls a function a user could call from a notebook. A user's
+mistake (bad config, missing file, existing output) prints one message per
+problem and exits with status 2, without a traceback.
+
+Each subcommand module has a ``register(subparsers)``; ``COMMANDS`` names
+them as ``"module:function"`` and ``build_parser`` imports them by name, so
+the analysis layer's commands join the command line without sim importing
+analysis anywhere but here, and without analysis importing this package.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import os
+import sys
+
+from ..config import ConfigError
+from ..errors import UserError
+from ..meanfield import NoEquilibriumError
+from ..parallel import PoolError
+from ..store import ResultsError, software_version
+
+__all__ = ["main", "build_parser", "COMMANDS"]
+
+# Who adds subcommands, in the order of ``broodline --help``.
+COMMANDS = [
+    "sim.cli.run:register",
+    "sim.cli.check:register",
+    "sim.cli.demo:register",
+    "sim.cli.status:register",
+    "analysis.commands:register",
+    "sim.cli.bench:register",
+]
+
+# Library messages name the Python parameters; at the command line they are these options.
+_OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite"}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="broodline",
+        description="Simulate the evolution of breeding schedules in finite populations.",
+    )
+    parser.add_argument("--version", action="version", version=f"broodline {software_version()}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    for entry in COMMANDS:
+        module, _, function = entry.partition(":")
+        getattr(importlib.import_module(module), function)(sub)
+    return parser
+
+
+def as_options(message: str) -> str:
+    """A library message in the command line's words (``resume=True`` -> ``--resume``)."""
+    for parameter, option in _OPTIONS.items():
+        message = message.replace(parameter, option)
+    return message
+
+
+def main(argv=None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except (ConfigError, NoEquilibriumError, UserError, FileExistsError, FileNotFoundError,
+            PermissionError, IsADirectoryError, ResultsError, PoolError) as err:
+        print(f"broodline {args.command}: error: {as_options(str(err))}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"broodline {args.command}: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        # the reader (e.g. `| head`) left early: not an error of ours (Python docs, signal module)
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0

@@ -1,0 +1,95 @@
+"""``broodline bench`` and ``bench-memory``: speed against the random-number floor, peak memory."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+
+from ..bench import DEFAULT_SIZES, LARGE_SIZE, format_report, run_bench
+from ..bench_memory import measure_memory
+from .run import positive
+
+__all__ = ["register"]
+
+
+def _size(text: str) -> int:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"a census size must be a number; got {text!r}") from None
+    if value != int(value) or not 10 <= value <= 1e8:
+        raise argparse.ArgumentTypeError(f"a census size must be a whole number in [10, 1e8]; got {text!r}")
+    return int(value)
+
+
+def _seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a number of seconds; got {text!r}") from None
+    if not 0 <= value <= 3600:
+        raise argparse.ArgumentTypeError(f"must be in [0, 3600] seconds; got {text!r}")
+    return value
+
+
+def _count(low: int):
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"must be a whole number; got {text!r}") from None
+        if value < low:
+            raise argparse.ArgumentTypeError(f"must be >= {low}; got {value}")
+        return value
+    return parse
+
+
+def cmd_bench(args) -> int:
+    sizes = list(args.sizes or DEFAULT_SIZES)
+    if args.large and LARGE_SIZE not in sizes:
+        sizes.append(LARGE_SIZE)
+    say = None if args.json else (lambda m: print(f"  timing {m} ...", file=sys.stderr, flush=True))
+    report = run_bench(sizes, seasons=args.seasons, min_time=args.min_time,
+                       agents_max=args.agents_max,
+                       replicates=args.replicates, capacity=args.capacity,
+                       sequential=args.sequential or None, progress=say)
+    if args.json:
+        print(json.dumps(report.to_records(), indent=1))
+    else:
+        print(format_report(report))
+    return 0
+
+
+def cmd_bench_memory(args) -> int:
+    report = measure_memory(args.replicates, workers=args.workers)
+    print(report)
+    return 0
+
+
+def register(sub) -> None:
+    """Add ``bench`` and ``bench-memory`` to the command line."""
+    p = sub.add_parser("bench", help="time the engines against the random-number floor and Mesa")
+    p.add_argument("--sizes", nargs="+", type=_size, metavar="N",
+                   help="census sizes (default: 1e3 1e4 1e5 1e6)")
+    p.add_argument("--large", action="store_true", help="also N = 1e7")
+    p.add_argument("--seasons", type=_count(1), default=20,
+                   help="seasons per timed block, each from the starting census (default 20)")
+    p.add_argument("--min-time", type=_seconds, default=1.0,
+                   help="least seconds of stepping timed per engine and size (default 1)")
+    p.add_argument("--agents-max", type=_count(0), default=10_000,
+                   help="largest N the slow Mesa engine runs at (default 1e4)")
+    p.add_argument("--replicates", type=_count(0), default=10_000,
+                   help="replicates of the K = 200 invasion experiment (0 skips it)")
+    p.add_argument("--capacity", type=_count(10), default=200, help="K of the invasion experiment")
+    p.add_argument("--sequential", type=_count(0), default=1_000,
+                   help="replicates also run one at a time, for comparison (0 skips)")
+    p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
+    p.set_defaults(func=cmd_bench)
+
+    p = sub.add_parser("bench-memory", help="peak memory of runs of growing size (is it flat?)")
+    p.add_argument("--replicates", type=positive, nargs="+", default=[1000, 10000], metavar="N",
+                   help="experiment sizes to measure (default: 1000 10000)")
+    p.add_argument("--workers", type=positive, default=1, metavar="N",
+                   help="local worker processes for each run (default: 1)")
+    p.set_defaults(func=cmd_bench_memory)

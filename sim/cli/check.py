@@ -1,0 +1,20 @@
+"""``broodline check``: validate a config and print the resolved experiment."""
+
+from __future__ import annotations
+
+from ..config import load_config
+from ..describe import describe_experiment
+
+__all__ = ["register"]
+
+
+def cmd_check(args) -> int:
+    print(describe_experiment(load_config(args.config)))
+    return 0
+
+
+def register(sub) -> None:
+    """Add ``check`` to the command line."""
+    p = sub.add_parser("check", help="validate a config and print the resolved experiment")
+    p.add_argument("config")
+    p.set_defaults(func=cmd_check)

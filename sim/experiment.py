@@ -1,0 +1,171 @@
+"""The experiment loop: every replicate of every sweep point, streamed to one results file.
+
+``run_experiment`` is one loop in one process, the only writer: it asks the
+``ResultsWriter`` which replicates are missing, cuts them into batches, hands
+them to a pool (``sim.parallel``) and writes each batch as it comes back
+(DEVELOPERS.md, "Long runs: batches, workers, the results file").
+"""
+
+from __future__ import annotations
+
+import logging
+import threading
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from tqdm import tqdm
+
+from .config import Config
+from .describe import preflight
+from .lifecycle import initial_census
+from .outcomes import fixed_outcome, summarize
+from .parallel import default_batch_size, make_pool, plan_batches
+from .store import ResultsWriter, read_outcomes, read_points, software_version
+
+log = logging.getLogger(__name__)
+
+__all__ = ["ExperimentInterrupted", "request_stop", "run_experiment"]
+
+
+_STOP = threading.Event()
+
+
+def request_stop() -> None:
+    """Ask a running ``run_experiment`` to stop after saving its finished batches.
+
+    For signal handlers: besides raising KeyboardInterrupt (which Python may
+    swallow if it lands in a finalizer), they set this flag, which the run
+    checks after every batch.
+    """
+    _STOP.set()
+
+
+class ExperimentInterrupted(KeyboardInterrupt):
+    """A run stopped by Ctrl-C (or SIGTERM) after saving its finished batches."""
+
+    def __init__(self, path, done: int, total: int):
+        super().__init__(f"{done} of {total} replicates are saved in {str(path)!r}")
+        self.path, self.done, self.total = Path(path), done, total
+
+
+class _Progress:
+    """One bar for the whole experiment, and a log line as each sweep point completes."""
+
+    def __init__(self, writer: ResultsWriter, points, *, show: bool):
+        self.points = points
+        self.fixed_name = fixed_outcome(writer.config)
+        self.n_reps = writer.replicates
+        self.done = np.zeros(len(points), np.int64)
+        self.fixed = np.zeros(len(points), np.int64)
+        if writer.done:  # resuming: count what the shards already hold
+            so_far = read_outcomes(writer.path)
+            np.add.at(self.done, so_far["point"].to_numpy(), 1)
+            np.add.at(self.fixed, so_far["point"].to_numpy(), so_far["outcome"].to_numpy() == self.fixed_name)
+        self.bar = tqdm(total=writer.expected, initial=int(self.done.sum()), disable=not show,
+                        unit="rep", desc=writer.config.experiment.name, dynamic_ncols=True)
+        self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
+
+    def update(self, batch, results) -> None:
+        p = batch.point
+        self.done[p] += len(results)
+        self.fixed[p] += sum(r.outcome == self.fixed_name for r in results)
+        self.bar.update(len(results))
+        self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
+        if self.done[p] == self.n_reps:
+            values = self.points[p].values
+            where = f" ({', '.join(f'{k} = {v!r}' for k, v in values.items())})" if values else ""
+            log.info("point %d%s done: %d replicates, %s %d (%.3f)", p, where, self.n_reps,
+                     self.fixed_name, self.fixed[p], self.fixed[p] / self.n_reps)
+
+    def close(self) -> None:
+        self.bar.close()
+
+
+def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
+                   workers: int = 1, cluster: str | None = None, progress: bool = True,
+                   batch_size: int | None = None) -> pd.DataFrame:
+    """Run every replicate of every sweep point, streaming results to an HDF5 file.
+
+    Batches of replicates run in this process (``workers=1``), in local
+    worker processes, or on a dask cluster (``cluster``, a scheduler
+    address); this process alone writes the results. Each finished batch is
+    saved durably at once, so a run killed at any moment keeps what
+    finished, and ``resume=True`` runs only what is missing. The datasets
+    do not depend on ``workers``, ``cluster``, ``batch_size`` or resuming.
+
+    Parameters
+    ----------
+    config : Config
+    out : path-like
+        The results file (see ``sim.store`` for its layout).
+    overwrite, resume : bool
+        Replace an existing file, or finish one started with the same config
+        (with ``resume`` and no file yet, the run starts from the beginning).
+    workers : int
+        Local processes; ignored with ``cluster``.
+    cluster : str, optional
+        Address of a running dask.distributed scheduler, e.g. ``tcp://host:8786``.
+    progress : bool
+        Show a progress bar.
+    batch_size : int, optional
+        Replicates per batch (default: about 10^5 individuals at the starting census,
+        at most 1024, and about four batches per worker).
+
+    Returns
+    -------
+    DataFrame
+        The per-point summary (see ``summarize``).
+
+    Raises
+    ------
+    ExperimentInterrupted
+        On Ctrl-C: finished batches are saved; resume to finish.
+    """
+    points = preflight(config)
+    seed = config.experiment.seed
+    _STOP.clear()
+    pool = make_pool(workers=workers, cluster=cluster)  # a bad cluster address fails before any file
+    try:
+        writer = ResultsWriter(out, config, points, overwrite=overwrite, resume=resume)
+    except BaseException:
+        pool.shutdown(cancel=True)
+        raise
+    tracker = None
+    try:
+        if resume and writer.fresh:
+            log.info("nothing to resume at %s: starting", out)
+        elif writer.complete:
+            log.info("%s is already complete: nothing to run", out)
+        elif writer.done:
+            log.info("resuming %s: %d of %d replicates already saved", out, writer.done, writer.expected)
+            if writer.resumed_from_version != software_version():
+                log.warning("%s was started by broodline %s and is finished by %s: replicates run now "
+                            "may differ from those %s would have drawn from the same seeds (each is "
+                            "still a valid draw; one version gives the same datasets however the run "
+                            "is split)", out, writer.resumed_from_version, software_version(),
+                            writer.resumed_from_version)
+        tracker = _Progress(writer, points, show=progress)
+        census = max(int(initial_census(p.config).sum()) for p in points)
+        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
+        tasks = ((batch, points[batch.point], seed) for batch in plan_batches(writer.missing(), size))
+        for batch, results in pool.run(tasks):
+            writer.write(results)
+            tracker.update(batch, results)
+            if _STOP.is_set():
+                raise KeyboardInterrupt
+        writer.finalize()
+    except BaseException as err:
+        try:
+            pool.shutdown(cancel=True)
+        except Exception as cleanup:  # keep the error that stopped the run, not this one
+            log.warning("stopping the workers failed: %s", cleanup)
+        writer.release()
+        if isinstance(err, KeyboardInterrupt) and not isinstance(err, ExperimentInterrupted):
+            raise ExperimentInterrupted(out, writer.done, writer.expected) from None
+        raise
+    finally:
+        if tracker is not None:
+            tracker.close()
+    pool.shutdown()
+    return summarize(read_outcomes(out), read_points(out), fixed=fixed_outcome(config))

@@ -1,0 +1,87 @@
+"""Outcomes of a replicate: the state of a census, and the per-point count of outcomes.
+
+The outcome names are declared once, in ``sim.vocabulary.OUTCOMES``; here a
+census's state is coded as an index into that tuple, so the stop rule works
+on arrays of codes (``classify``) and names appear only when results are made.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .config import Config
+from .vocabulary import DECIDED, DECIDED_WITH_WINNER, OUTCOMES
+
+__all__ = ["OUTCOMES", "DECIDED", "DECIDED_WITH_WINNER", "CODES", "classify", "fixed_outcome",
+           "summarize"]
+
+CODES = {name: code for code, name in enumerate(OUTCOMES)}  # outcome name -> code
+_MUTANT_FIXED, _MUTANT_LOST, _FIXED, _EXTINCT, _UNDECIDED = (
+    CODES[n] for n in ("mutant-fixed", "mutant-lost", "fixed", "extinct", "undecided"))
+
+
+def classify(totals: np.ndarray, config: Config) -> tuple[np.ndarray, np.ndarray]:
+    """The state of each census given as counts by allele: codes into ``OUTCOMES`` and winners.
+
+    With ``[invasion]``: mutant-fixed when only the mutant is left, mutant-lost
+    when the mutant is gone; otherwise ``fixed`` when one allele is left.
+    Extinct when no one is left; undecided while several alleles remain.
+
+    Parameters
+    ----------
+    totals : ndarray, shape (n, n_alleles)
+        Counts by allele, one row per census.
+
+    Returns
+    -------
+    states : ndarray of int
+        Index into ``OUTCOMES``.
+    winners : ndarray of int
+        The only allele present, or -1.
+    """
+    totals = np.asarray(totals)
+    present = totals > 0
+    n_present = present.sum(axis=1)
+    winners = np.where(n_present == 1, present.argmax(axis=1), -1)
+    one = np.where(n_present == 1, _FIXED, _UNDECIDED)
+    if config.invasion is not None:
+        mutant = config.allele_index(config.invasion.mutant)
+        one = np.where(n_present == 1, _MUTANT_FIXED, _UNDECIDED)
+        one = np.where(totals[:, mutant] == 0, _MUTANT_LOST, one)
+    states = np.where(n_present == 0, _EXTINCT, one)
+    return states, winners
+
+
+def fixed_outcome(config: Config) -> str:
+    """The outcome counted as "fixed": the mutant's with ``[invasion]``, else ``fixed``."""
+    return "mutant-fixed" if config.invasion is not None else "fixed"
+
+
+def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
+              fixed: str = "mutant-fixed") -> pd.DataFrame:
+    """Per sweep point: replicates, the count of each outcome, and the fraction ``fixed``.
+
+    Parameters
+    ----------
+    replicates : DataFrame
+        At least ``point`` and ``outcome`` (``sim.store.read_outcomes``).
+    points : DataFrame, optional
+        The sweep points (``sim.store.read_points``), merged in by ``point``.
+    fixed : str
+        The outcome ``fixed_fraction`` counts: ``fixed_outcome(config)``
+        ("fixed" for an experiment without ``[invasion]``).
+    """
+    counts = pd.crosstab(replicates["point"], replicates["outcome"])
+    for name in OUTCOMES:
+        if name not in counts:
+            counts[name] = 0
+    table = pd.DataFrame({"replicates": counts.sum(axis=1)})
+    for name in OUTCOMES:
+        if counts[name].any() or name in ("mutant-fixed", "mutant-lost"):
+            table[name] = counts[name]
+    table["fixed_fraction"] = counts[fixed] / table["replicates"]
+    table = table.reset_index()
+    if points is not None and points.shape[1] > 1:
+        table = points.merge(table, on="point", how="right")
+    return table

@@ -1,0 +1,140 @@
+"""The dask pool: batches farmed out to a running dask.distributed scheduler (an optional extra)."""
+
+from __future__ import annotations
+
+import json
+import socket
+import uuid
+from pathlib import Path
+
+from .work import ClusterError, run_batch
+
+__all__ = ["DaskPool", "CLUSTER_INSTALL"]
+
+CLUSTER_INSTALL = "pip install 'broodline[cluster]'"
+
+
+def _scheduler_address(address: str) -> str:
+    """An address as given, or the one in a scheduler file (``dask scheduler --scheduler-file``)."""
+    path = Path(address)
+    if not address.endswith(".json") or not path.is_file():
+        return address
+    try:
+        return json.loads(path.read_text())["address"]
+    except (OSError, ValueError, KeyError, TypeError) as err:
+        raise ClusterError(f"cluster: cannot read a scheduler address from {address!r}: "
+                           f"{type(err).__name__}: {err}") from None
+
+
+def _check_reachable(address: str, timeout: float) -> None:
+    """Refuse a malformed or unreachable TCP scheduler address quickly, with a plain message."""
+    from distributed.comm import parse_address, parse_host_port
+
+    try:
+        scheme, location = parse_address(address)
+    except (ValueError, TypeError) as err:
+        raise ClusterError(f"cluster: {address!r} is not a dask scheduler address "
+                           f"(e.g. tcp://HOST:8786): {err}") from None
+    if scheme not in ("tcp", "tls"):
+        return
+    try:
+        host, port = parse_host_port(location, default_port=8786)
+    except ValueError as err:
+        raise ClusterError(f"cluster: {address!r} is not a dask scheduler address "
+                           f"(e.g. tcp://HOST:8786): {err}") from None
+    try:
+        socket.create_connection((host, port), timeout=timeout).close()
+    except OSError as err:
+        reason = getattr(err, "strerror", None) or str(err) or type(err).__name__
+        raise ClusterError(f"cannot reach the dask scheduler at {address!r}: {reason}. "
+                           "Is it running, and is the address (host and port) right?") from None
+
+
+class DaskPool:
+    """Batches farmed out to an existing dask.distributed scheduler and its workers.
+
+    Each batch is one task with its own key, so no two batches are merged. A
+    worker lost mid-batch has its task rerun elsewhere by the scheduler (up
+    to its ``allowed-failures``); the result still comes back once, so no
+    row is written twice.
+    """
+
+    def __init__(self, address: str, *, timeout: float = 10.0):
+        try:
+            from distributed import Client
+        except ImportError:
+            raise ClusterError(f"a dask cluster needs dask.distributed, an optional extra: "
+                               f"{CLUSTER_INSTALL}") from None
+        address = _scheduler_address(address)
+        _check_reachable(address, timeout)
+        try:
+            self.client = Client(address, timeout=timeout, set_as_default=False)
+        except (OSError, TimeoutError, ValueError) as err:
+            raise ClusterError(f"cannot reach the dask scheduler at {address!r}: {err}") from None
+        self.address = address
+        self.description = f"dask scheduler {address}"
+        self._run_id = uuid.uuid4().hex[:8]
+        self._futures = {}
+
+    @property
+    def slots(self) -> int:
+        """Threads of the workers connected now (at least 1: workers may join later)."""
+        return max(1, sum(self.client.nthreads().values()))
+
+    def run(self, tasks):
+        from distributed import as_completed
+        from distributed.client import FutureCancelledError
+        from distributed.scheduler import KilledWorker
+
+        tasks = iter(tasks)
+        queue = as_completed(loop=self.client.loop)
+        futures = self._futures
+
+        def submit_next() -> None:
+            for batch, point, seed in tasks:
+                key = f"broodline-{self._run_id}-p{batch.point}-r{batch.first}-{batch.last}"
+                future = self.client.submit(run_batch, point, batch.first, batch.last, seed,
+                                            key=key, pure=False)
+                futures[future.key] = (future, batch)
+                queue.add(future)
+                return
+
+        slots = self.slots
+        for _ in range(2 * slots):
+            submit_next()
+        for n, future in enumerate(queue, 1):
+            _, batch = futures.pop(future.key)
+            where = f"point {batch.point}, replicates {batch.first}-{batch.last}"
+            try:
+                results = future.result()
+            except KilledWorker as err:
+                raise ClusterError(f"the cluster lost {where} with its worker too many times "
+                                   f"({err}); finished batches are saved") from None
+            except FutureCancelledError:
+                raise ClusterError(f"the cluster cancelled {where}; finished batches are saved") from None
+            except ImportError as err:
+                raise ClusterError(f"a dask worker cannot import broodline ({err}); install "
+                                   "broodline on every worker") from None
+            except RuntimeError as err:
+                if "deserializ" not in str(err):
+                    raise
+                raise ClusterError(
+                    "the dask scheduler cannot read broodline's tasks: install broodline (the "
+                    "same version) where the scheduler and the workers run, then resume") from None
+            future.release()
+            yield batch, results
+            if n % 16 == 0:
+                slots = self.slots
+            while len(futures) < 2 * slots:
+                before = len(futures)
+                submit_next()
+                if len(futures) == before:
+                    break
+
+    def shutdown(self, *, cancel: bool = False) -> None:
+        try:
+            if cancel and self._futures:
+                self.client.cancel([f for f, _ in self._futures.values()])
+        finally:
+            self._futures.clear()
+            self.client.close()

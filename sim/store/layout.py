@@ -1,0 +1,205 @@
+"""The results file's layout: its tables and columns, shard names, and how to open one.
+
+A finished experiment is one HDF5 file. While it runs, finished batches of
+replicates are kept as shard files in the folder ``NAME.parts`` beside it and
+merged into the file at the end; the readers below open either form, so a
+file can be read while it is being written, or after its run was killed.
+
+Layout of the finished file (``format_version`` 2; every table is a group of
+equal-length column datasets, chunked and gzip-compressed)::
+
+    /                      attrs: format = "broodline-results", format_version,
+                                  software_version, created, config (resolved TOML
+                                  as JSON), config_hash, seed, alleles, n_ages,
+                                  resident, mutant ("" without [invasion]),
+                                  trajectory ("by-age" | "by-allele" | "none"),
+                                  n_points, replicates (per point),
+                                  complete (True once every replicate is in)
+    /points/               one row per sweep point
+        index              int32
+        config             the point's full config as JSON (str)
+        <swept path>       one column per swept key, e.g. "allele.one-shot.fecundity"
+    /replicates/           one row per replicate, ordered by (point, replicate)
+        point, replicate   int32
+        seed               uint64  (the experiment seed)
+        spawn_key          int64 (n, 2): the SeedSequence spawn key (point, replicate)
+        outcome            str: mutant-fixed | mutant-lost | fixed | extinct | undecided | capped
+        winner             int16: allele index left alone at the end, -1 if none
+        steps              int32: seasons run
+        fixation_step      int32: season from which the final outcome held, -1 if undecided
+        final_census       int64: census size at the last season
+        trajectory_start   int64: first row of this replicate in /trajectories
+        trajectory_length  int32
+    /trajectories/         census every record_every seasons, the first and last included
+        step               int32 (n_records,)
+        counts             uint32 (n_records, n_alleles, n_ages) by age,
+                           (n_records, n_alleles) by allele, no rows for "none"
+
+While running (or after a run was stopped) the file holds the attributes and
+/points with ``complete = False`` and empty tables; each finished batch is a
+shard ``NAME.parts/pPPPPPP-rFFFFFFFFF-LLLLLLLLL.h5`` (point P, replicates F to
+L) with the same /replicates and /trajectories groups (``trajectory_start``
+counted within the shard). A shard is written as ``.tmp``, flushed, fsynced,
+closed and renamed into place, so a shard either exists whole or not at all;
+the final file is built the same way and replaces the running one in one
+rename. ``NAME.parts/lock`` is held (``flock``) by the one writing process.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from dataclasses import dataclass
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+__all__ = [
+    "FORMAT_VERSION",
+    "REPLICATE_COLUMNS",
+    "ResultsError",
+    "ConfigMismatchError",
+    "Shard",
+    "parts_dir",
+    "list_shards",
+    "software_version",
+    "open_results",
+    "is_complete",
+]
+
+FORMAT_VERSION = 2
+_FORMAT = "broodline-results"
+_STR = h5py.string_dtype()
+_COMPRESSION = dict(compression="gzip", compression_opts=4, shuffle=True)
+
+# name: (dtype, trailing shape)
+REPLICATE_COLUMNS = {
+    "point": (np.int32, ()),
+    "replicate": (np.int32, ()),
+    "seed": (np.uint64, ()),
+    "spawn_key": (np.int64, (2,)),
+    "outcome": (_STR, ()),
+    "winner": (np.int16, ()),
+    "steps": (np.int32, ()),
+    "fixation_step": (np.int32, ()),
+    "final_census": (np.int64, ()),
+    "trajectory_start": (np.int64, ()),
+    "trajectory_length": (np.int32, ()),
+}
+
+
+class ResultsError(Exception):
+    """A results file cannot be written, resumed or read as asked (the message says why)."""
+
+
+class ConfigMismatchError(ResultsError):
+    """Resuming a file with a config other than the one that started it."""
+
+    def __init__(self, message: str, differences: list[str]):
+        super().__init__(message)
+        self.differences = differences
+
+
+def software_version() -> str:
+    try:
+        return version("broodline")
+    except PackageNotFoundError:  # running from a source tree
+        return "0+unknown"
+
+
+def parts_dir(path) -> Path:
+    """The folder of shards beside a results file: ``NAME.parts``."""
+    path = Path(path)
+    return path.with_name(path.name + ".parts")
+
+
+@dataclass(frozen=True, order=True)
+class Shard:
+    """One finished batch on disk: replicates ``first`` to ``last`` of sweep point ``point``."""
+
+    point: int
+    first: int
+    last: int
+
+    _PATTERN = re.compile(r"^p(\d+)-r(\d+)-(\d+)\.h5$")
+
+    @property
+    def name(self) -> str:
+        return f"p{self.point:06d}-r{self.first:09d}-{self.last:09d}.h5"
+
+    @property
+    def size(self) -> int:
+        return self.last - self.first + 1
+
+    @classmethod
+    def parse(cls, name: str) -> Shard | None:
+        m = cls._PATTERN.match(name)
+        return None if m is None else cls(*(int(g) for g in m.groups()))
+
+
+def list_shards(parts: Path) -> list[Shard]:
+    """Finished shards in canonical order (point, first replicate)."""
+    try:
+        names = os.listdir(parts)
+    except FileNotFoundError:
+        return []
+    return sorted(s for s in map(Shard.parse, names) if s is not None)
+
+
+def _column(group, name, dtype, shape, chunk, data=None):
+    if data is not None and len(data) > 0:
+        chunk = min(chunk, len(data))
+    ds = group.create_dataset(name, shape=(0, *shape), maxshape=(None, *shape), dtype=dtype,
+                              chunks=(chunk, *shape), **_COMPRESSION)
+    if data is not None:
+        _append(ds, data)
+    return ds
+
+
+def _append(ds, values) -> None:
+    values = np.asarray(values, dtype=object if ds.dtype == _STR else ds.dtype)
+    if len(values) == 0:
+        return
+    n = ds.shape[0]
+    ds.resize(n + len(values), axis=0)
+    ds[n:] = values
+
+
+def _pad_ages(trajectory: np.ndarray, n_ages: int) -> np.ndarray:
+    """Pad a point's trajectory to the file's age axis (points may differ in schedule length)."""
+    extra = n_ages - trajectory.shape[-1]
+    if extra == 0:
+        return trajectory
+    return np.concatenate([trajectory, np.zeros((*trajectory.shape[:-1], extra), trajectory.dtype)], -1)
+
+
+def _counts_shape(mode: str, n_alleles: int, n_ages: int) -> tuple:
+    return (n_alleles,) if mode == "by-allele" else (n_alleles, n_ages)
+
+
+def is_complete(path: Path) -> bool | None:
+    """The file's ``complete`` flag; None if it is not a readable broodline results file."""
+    try:
+        with h5py.File(path, "r") as f:
+            if f.attrs.get("format") != _FORMAT:
+                return None
+            return bool(f.attrs.get("complete", True))
+    except OSError:
+        return None
+
+
+def open_results(path) -> h5py.File:
+    path = Path(path)
+    if not path.is_file():
+        raise FileNotFoundError(f"results file {str(path)!r} not found")
+    try:
+        f = h5py.File(path, "r")
+    except OSError as err:
+        raise ValueError(f"{str(path)!r} is not a broodline results file (cannot open it as "
+                         f"HDF5: {err})") from None
+    if f.attrs.get("format") != _FORMAT:
+        f.close()
+        raise ValueError(f"{str(path)!r} is not a broodline results file")
+    return f

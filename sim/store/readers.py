@@ -1,0 +1,174 @@
+"""Readers of a results file, finished or still being written (then its shards are read)."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pandas as pd
+
+from ..config import Config
+from .layout import _STR, REPLICATE_COLUMNS, list_shards, open_results, parts_dir
+
+__all__ = [
+    "read_attrs",
+    "read_points",
+    "read_replicates",
+    "read_trajectories",
+    "read_point_configs",
+    "read_outcomes",
+]
+
+
+class _Blocks:
+    """The tables of a results file as blocks: the file itself when complete, else its shards.
+
+    ``offsets`` are each block's first row in the concatenated /trajectories,
+    so ``trajectory_start`` means the same in both forms.
+    """
+
+    def __init__(self, path):
+        self.path = Path(path)
+        with open_results(self.path) as f:
+            self.complete = bool(f.attrs.get("complete", True))
+        self.files = [self.path] if self.complete else \
+            [parts_dir(self.path) / s.name for s in list_shards(parts_dir(self.path))]
+
+    def __iter__(self):
+        offset = 0
+        for name in self.files:
+            with h5py.File(name, "r") as f:
+                yield f, offset
+                offset += f["trajectories"]["step"].shape[0]
+
+
+def _read_blocks(path, read):
+    """``read(file, offset)`` over every block, retried if the run finished (and merged) meanwhile."""
+    for attempt in range(3):
+        blocks = _Blocks(path)
+        try:
+            return [read(f, offset) for f, offset in blocks]
+        except FileNotFoundError:
+            if attempt == 2:
+                raise
+    raise AssertionError("unreachable")
+
+
+def read_attrs(path) -> dict:
+    """File-level metadata: versions, seed, alleles and the resolved config (as a dict)."""
+    with open_results(path) as f:
+        attrs = {k: (v.item() if hasattr(v, "item") else v) for k, v in f.attrs.items()}
+    attrs["config"] = json.loads(attrs["config"])
+    attrs["alleles"] = json.loads(attrs["alleles"])
+    attrs.setdefault("complete", True)  # format 1 files were written whole
+    attrs.setdefault("trajectory", "by-age")
+    return attrs
+
+
+def read_points(path) -> pd.DataFrame:
+    """The sweep points: ``point`` and one column per swept key."""
+    with open_results(path) as f:
+        g = f["points"]
+        data = {"point": g["index"][:]}
+        for key in g:
+            if key not in ("index", "config"):
+                col = g[key][:]
+                data[key] = [json.loads(v) for v in col.astype(str)] if col.dtype.kind in "OS" else col
+    return pd.DataFrame(data)
+
+
+def read_point_configs(path) -> list:
+    """Each sweep point's full config, validated again as a ``Config``."""
+    with open_results(path) as f:
+        texts = f["points"]["config"].asstr()[:]
+    return [Config.model_validate(json.loads(t)) for t in texts]
+
+
+def _replicate_columns(f, offset, names) -> dict:
+    g = f["replicates"]
+    out = {}
+    for name in names:
+        col = g[name]
+        out[name] = col.asstr()[:] if name == "outcome" else col[:]
+    if "trajectory_start" in out:
+        out["trajectory_start"] = out["trajectory_start"] + offset
+    return out
+
+
+def read_outcomes(path) -> pd.DataFrame:
+    """Only ``point``, ``replicate`` and ``outcome`` of every replicate written so far (cheap)."""
+    parts = _read_blocks(path, lambda f, o: _replicate_columns(f, o, ("point", "replicate", "outcome")))
+    if not parts:
+        return pd.DataFrame({"point": np.zeros(0, np.int32), "replicate": np.zeros(0, np.int32),
+                             "outcome": np.zeros(0, object)})
+    return pd.DataFrame({k: np.concatenate([p[k] for p in parts]) for k in parts[0]})
+
+
+def read_replicates(path) -> pd.DataFrame:
+    """One row per replicate: point, replicate, seed, spawn key, outcome, winner name, steps...
+
+    Ordered by (point, replicate). For a run still going (or stopped before
+    the end), the replicates finished so far.
+    """
+    alleles = read_attrs(path)["alleles"]
+    parts = _read_blocks(path, lambda f, o: _replicate_columns(f, o, REPLICATE_COLUMNS))
+    data = {}
+    for name, (dtype, shape) in REPLICATE_COLUMNS.items():
+        cols = [p[name] for p in parts]
+        data[name] = np.concatenate(cols) if cols else np.zeros((0, *shape), object if dtype == _STR else dtype)
+    data["spawn_key"] = [tuple(k) for k in data["spawn_key"]]
+    df = pd.DataFrame(data)
+    df["winner"] = [alleles[w] if w >= 0 else "" for w in df["winner"]]
+    return df
+
+
+def read_trajectories(path, *, points=None, replicates=None, by_age: bool = True) -> pd.DataFrame:
+    """Census trajectories in long form: point, replicate, step, allele, [age,] count.
+
+    ``points`` and ``replicates`` (lists of indices) select replicates before
+    anything is expanded; ``by_age=False`` sums over ages. A file written with
+    ``trajectory = "by-allele"`` needs ``by_age=False``; one written with
+    ``"none"`` has no trajectories (an empty table).
+    """
+    attrs = read_attrs(path)
+    alleles = attrs["alleles"]
+    if attrs["trajectory"] == "by-allele" and by_age:
+        raise ValueError(f"{str(path)!r} stores trajectories by allele (experiment.trajectory = "
+                         "'by-allele'); call read_trajectories(..., by_age=False)")
+
+    def read(f, offset):
+        reps = _replicate_columns(f, 0, ("point", "replicate", "trajectory_start", "trajectory_length"))
+        keep = np.ones(reps["point"].size, bool)
+        if points is not None:
+            keep &= np.isin(reps["point"], list(points))
+        if replicates is not None:
+            keep &= np.isin(reps["replicate"], list(replicates))
+        steps_ds, counts_ds = f["trajectories"]["step"], f["trajectories"]["counts"]
+        frames = []
+        for i in np.flatnonzero(keep):
+            start = int(reps["trajectory_start"][i])
+            sl = slice(start, start + int(reps["trajectory_length"][i]))
+            steps, counts = steps_ds[sl], counts_ds[sl].astype(np.int64)
+            if counts.ndim == 2:
+                counts = counts[:, :, None]
+            elif not by_age:
+                counts = counts.sum(axis=2, keepdims=True)
+            t, a, g = counts.shape
+            frame = pd.DataFrame({
+                "point": reps["point"][i],
+                "replicate": reps["replicate"][i],
+                "step": np.repeat(steps, a * g),
+                "allele": np.tile(np.repeat(np.array(alleles, dtype=object), g), t),
+                "age": np.tile(np.arange(1, g + 1), t * a),
+                "count": counts.ravel(),
+            })
+            frames.append(frame if by_age else frame.drop(columns="age"))
+        return frames
+
+    frames = [frame for block in _read_blocks(path, read) for frame in block]
+    if not frames:
+        cols = ["point", "replicate", "step", "allele", "age", "count"]
+        return pd.DataFrame(columns=cols if by_age else [c for c in cols if c != "age"])
+    return pd.concat(frames, ignore_index=True)

@@ -1,0 +1,435 @@
+"""The single writer of an experiment's results file: header, durable shards, lock, merge."""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import socket
+from datetime import UTC, datetime
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from ..config import config_differences, config_hash
+from . import durable
+from .layout import (
+    _FORMAT,
+    _STR,
+    FORMAT_VERSION,
+    REPLICATE_COLUMNS,
+    ConfigMismatchError,
+    ResultsError,
+    Shard,
+    _append,
+    _column,
+    _counts_shape,
+    _pad_ages,
+    is_complete,
+    list_shards,
+    parts_dir,
+    software_version,
+)
+from .readers import read_attrs
+
+try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
+    import fcntl
+except ImportError:  # pragma: no cover
+    fcntl = None
+
+__all__ = ["ResultsWriter", "writer_state"]
+
+# rows buffered while merging shards: bounds the merge's memory whatever the experiment's size
+_MERGE_ROWS = 16384
+_MERGE_RECORDS = 1 << 16
+
+
+class ResultsWriter:
+    """The single writer of an experiment's results file.
+
+    Creates the file (attributes and sweep points), keeps each finished batch
+    as a durable shard, and merges the shards into the one file, ordered by
+    (point, replicate), once every replicate is in.
+
+    Parameters
+    ----------
+    path : path-like
+        The results file. An existing file is refused unless ``overwrite``
+        (start again) or ``resume`` (finish it).
+    config : Config
+        The experiment config (with its sweep).
+    points : list of SweepPoint
+    overwrite, resume : bool
+        ``resume`` refuses a file written by another config
+        (``ConfigMismatchError``, naming each difference); with no file and
+        no shards there is nothing to resume, and the file is started
+        (``fresh`` is then True), so one command line serves a job that a
+        batch scheduler may requeue at any moment.
+    """
+
+    def __init__(self, path, config, points, *, overwrite: bool = False, resume: bool = False):
+        if overwrite and resume:
+            raise ResultsError("choose one of overwrite (start again) and resume (finish the file)")
+        self.path = Path(path)
+        self.parts = parts_dir(self.path)
+        self.config, self.points = config, points
+        self.replicates = config.experiment.replicates
+        self.expected = len(points) * self.replicates
+        self.mode = config.experiment.trajectory
+        self.n_alleles = len(config.allele)
+        self.n_ages = max(max(s.n_ages for s in p.config.schedules()) for p in points)
+        self.hash = config_hash(config)
+        self.complete = False
+        self._lock_fd = None
+        self._check_target(overwrite=overwrite, resume=resume)
+        self._lock()
+        try:
+            self.fresh = not (resume and self._resumable())
+            if self.fresh:
+                self._create()
+            else:
+                self._open_existing()
+            self.shards = {} if self.complete else self._scan()
+        except BaseException:
+            self._unlock()
+            raise
+
+    # -- setting up ------------------------------------------------------------------
+    def _check_target(self, *, overwrite: bool, resume: bool) -> None:
+        where = str(self.path)
+        folder = self.path.parent
+        if not folder.exists():
+            raise FileNotFoundError(f"output folder {str(folder)!r} does not exist")
+        if not folder.is_dir():
+            raise ResultsError(f"cannot write {where!r}: {str(folder)!r} is not a folder")
+        if self.path.is_dir():
+            raise ResultsError(f"cannot write {where!r}: it is a folder")
+        if self.path.exists() and not (overwrite or resume):
+            done = is_complete(self.path)
+            hint = ("pass overwrite=True to replace it" if done is not False else
+                    "it is unfinished: pass resume=True to finish it, or overwrite=True to start again")
+            raise FileExistsError(f"results file {where!r} exists; {hint}")
+        if not os.access(folder, os.W_OK):
+            raise PermissionError(f"cannot write {where!r}: the folder {str(folder)!r} is not writable "
+                                  "(no permission, or a read-only file system)")
+
+    def _resumable(self) -> bool:
+        """True when there is something to resume: the file (shards alone cannot be checked)."""
+        if self.path.exists():
+            return True
+        if list_shards(self.parts):
+            raise ResultsError(f"cannot resume {str(self.path)!r}: it is missing, but "
+                               f"{str(self.parts)!r} holds finished batches; restore the file, "
+                               "or pass overwrite=True to start again")
+        return False
+
+    def _lock(self) -> None:
+        try:
+            self.parts.mkdir(exist_ok=True)
+            fd = os.open(self.parts / "lock", os.O_RDWR | os.O_CREAT, 0o644)
+        except OSError as err:
+            raise ResultsError(f"cannot write results beside {str(self.path)!r}: "
+                               f"{err.strerror or err}") from None
+        if fcntl is not None:
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                holder = os.read(fd, 200).decode(errors="replace").strip() or "another process"
+                os.close(fd)
+                raise ResultsError(f"{str(self.path)!r} is being written by another broodline run "
+                                   f"({holder}); wait for it or stop it first") from None
+        os.ftruncate(fd, 0)
+        os.write(fd, f"pid {os.getpid()} on {socket.gethostname()}".encode())
+        self._lock_fd = fd
+
+    def _unlock(self) -> None:
+        if self._lock_fd is not None:
+            os.close(self._lock_fd)  # closing releases the flock
+            self._lock_fd = None
+
+    def _create(self) -> None:
+        for leftover in self.parts.iterdir():
+            if leftover.name != "lock":
+                leftover.unlink() if leftover.is_file() else shutil.rmtree(leftover)
+        self.path.unlink(missing_ok=True)
+        durable.write_atomic(self.path, self._write_header)
+
+    def _write_header(self, f) -> None:
+        config = self.config
+        f.attrs.update(
+            format=_FORMAT,
+            format_version=FORMAT_VERSION,
+            software_version=software_version(),
+            created=datetime.now(UTC).isoformat(timespec="seconds"),
+            config=json.dumps(config.model_dump(mode="json")),
+            config_hash=self.hash,
+            seed=config.experiment.seed,
+            alleles=json.dumps(config.allele_names),
+            n_ages=self.n_ages,
+            resident=config.invasion.resident if config.invasion else "",
+            mutant=config.invasion.mutant if config.invasion else "",
+            trajectory=self.mode,
+            n_points=len(self.points),
+            replicates=self.replicates,
+            complete=False,
+        )
+        pts = f.create_group("points", track_order=True)  # columns in sweep order
+        pts.create_dataset("index", data=np.array([p.index for p in self.points], dtype=np.int32))
+        pts.create_dataset("config", data=[json.dumps(p.config.model_dump(mode="json"))
+                                           for p in self.points], dtype=_STR)
+        for key in self.points[0].values:
+            values = [p.values[key] for p in self.points]
+            try:
+                pts.create_dataset(key, data=np.asarray(values, dtype=float))
+            except (TypeError, ValueError):
+                pts.create_dataset(key, data=[json.dumps(v) for v in values], dtype=_STR)
+        self._empty_tables(f)
+
+    def _empty_tables(self, f) -> None:
+        reps = f.create_group("replicates")
+        for name, (dtype, shape) in REPLICATE_COLUMNS.items():
+            _column(reps, name, dtype, shape, 1024)
+        traj = f.create_group("trajectories")
+        _column(traj, "step", np.int32, (), 4096)
+        _column(traj, "counts", np.uint32, _counts_shape(self.mode, self.n_alleles, self.n_ages), 4096)
+
+    def _open_existing(self) -> None:
+        where = str(self.path)
+        try:
+            attrs = read_attrs(self.path)
+        except (OSError, ValueError) as err:
+            raise ResultsError(f"cannot resume {where!r}: {err}") from None
+        if attrs.get("format_version") != FORMAT_VERSION:
+            raise ResultsError(f"cannot resume {where!r}: it has results format "
+                               f"{attrs.get('format_version')}, this broodline writes {FORMAT_VERSION}")
+        if attrs["config_hash"] != self.hash:
+            diffs = config_differences(attrs["config"], self.config)
+            raise ConfigMismatchError(
+                f"cannot resume {where!r}: it was started with another config "
+                f"(resolved-config hash {attrs['config_hash'][:12]} in the file, {self.hash[:12]} now). "
+                "Differences (file -> now):\n  " + "\n  ".join(diffs or ["(none visible)"])
+                + "\nResume with the config that started the file, or pass overwrite=True to start again.",
+                diffs)
+        self.resumed_from_version = attrs["software_version"]
+        self.complete = bool(attrs.get("complete", False))
+        for leftover in self.parts.glob("*.tmp"):  # a batch or merge cut short by a crash
+            leftover.unlink()
+        self.path.with_name(self.path.name + ".tmp").unlink(missing_ok=True)
+
+    def _scan(self) -> dict[tuple[int, int], Shard]:
+        """Finished shards on disk; an unreadable or malformed one is deleted (its batch re-runs)."""
+        shards = {}
+        covered: dict[int, set] = {}
+        for shard in list_shards(self.parts):
+            reps = covered.setdefault(shard.point, set())
+            span = set(range(shard.first, shard.last + 1))
+            ok = (shard.point < len(self.points) and shard.last < self.replicates
+                  and not (reps & span) and _shard_rows(self.parts / shard.name) == shard.size)
+            if not ok:
+                (self.parts / shard.name).unlink()
+                continue
+            reps |= span
+            shards[(shard.point, shard.first)] = shard
+        return shards
+
+    # -- progress -------------------------------------------------------------------
+    @property
+    def done(self) -> int:
+        """Replicates already on disk."""
+        return self.expected if self.complete else sum(s.size for s in self.shards.values())
+
+    def missing(self) -> dict[int, list[range]]:
+        """Per point, the runs of replicate indices not yet written (empty when complete)."""
+        if self.complete:
+            return {}
+        covered: dict[int, np.ndarray] = {}
+        for s in self.shards.values():
+            mask = covered.setdefault(s.point, np.zeros(self.replicates, bool))
+            mask[s.first:s.last + 1] = True
+        out = {}
+        for p in range(len(self.points)):
+            mask = covered.get(p, np.zeros(self.replicates, bool))
+            todo = np.flatnonzero(~mask)
+            if todo.size:
+                breaks = np.flatnonzero(np.diff(todo) != 1) + 1
+                out[p] = [range(int(run[0]), int(run[-1]) + 1) for run in np.split(todo, breaks)]
+        return out
+
+    # -- writing batches ------------------------------------------------------------
+    def write(self, results) -> None:
+        """Write finished ReplicateResult objects as durable shards (one per contiguous run).
+
+        Refuses a replicate already on disk, so no row is ever written twice.
+        """
+        results = sorted(results, key=lambda r: (r.point, r.replicate))
+        start = 0
+        for i in range(1, len(results) + 1):
+            if (i == len(results) or results[i].point != results[start].point
+                    or results[i].replicate != results[i - 1].replicate + 1):
+                self._write_shard(results[start:i])
+                start = i
+
+    def _write_shard(self, results) -> None:
+        shard = Shard(results[0].point, results[0].replicate, results[-1].replicate)
+        for s in self.shards.values():
+            if s.point == shard.point and s.first <= shard.last and shard.first <= s.last:
+                raise ResultsError(f"replicates {shard.first}-{shard.last} of point {shard.point} "
+                                   f"overlap shard {s.name}, already written")
+        try:
+            durable.write_atomic(self.parts / shard.name, lambda f: self._fill_shard(f, results))
+        except OSError as err:
+            raise ResultsError(self._write_failure(err)) from None
+        self.shards[(shard.point, shard.first)] = shard
+
+    def _fill_shard(self, f, results) -> None:
+        lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
+        starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
+        columns = {
+            "point": [r.point for r in results],
+            "replicate": [r.replicate for r in results],
+            "seed": [r.seed for r in results],
+            "spawn_key": [(r.point, r.replicate) for r in results],
+            "outcome": [r.outcome for r in results],
+            "winner": [r.winner for r in results],
+            "steps": [r.steps for r in results],
+            "fixation_step": [r.fixation_step for r in results],
+            "final_census": [r.final_census for r in results],
+            "trajectory_start": starts,
+            "trajectory_length": lengths,
+        }
+        reps = f.create_group("replicates")
+        for name, (dtype, shape) in REPLICATE_COLUMNS.items():
+            _column(reps, name, dtype, shape, 1024, columns[name])
+        traj = f.create_group("trajectories")
+        counts_shape = _counts_shape(self.mode, self.n_alleles, self.n_ages)
+        steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
+        counts = [r.trajectory if self.mode == "by-allele" else _pad_ages(r.trajectory, self.n_ages)
+                  for r in results]
+        counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
+        _column(traj, "step", np.int32, (), 4096, steps)
+        _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
+
+    def _write_failure(self, err: OSError) -> str:
+        reason = err.strerror or str(err)
+        return (f"could not write results to {str(self.parts)!r}: {reason}. "
+                f"The {self.done} replicates already saved are intact; fix the cause "
+                "(free disk space, permissions) and finish with resume=True")
+
+    # -- finishing ------------------------------------------------------------------
+    def finalize(self) -> bool:
+        """Merge every shard into the one results file, if all replicates are in.
+
+        The merged file is built beside the running one and renamed over it,
+        then the shards are removed. Returns True when the file is complete.
+        """
+        if self.complete:
+            self._remove_parts()
+            return True
+        if self.done < self.expected:
+            return False
+        shards = sorted(self.shards.values())
+        try:
+            durable.write_atomic(self.path, lambda f: self._merge(f, shards), in_memory=False)
+        except OSError as err:
+            raise ResultsError(self._write_failure(err).replace(
+                "intact", "intact (as shards)")) from None
+        self.complete = True
+        self._remove_parts()
+        return True
+
+    def _merge(self, out, shards) -> None:
+        with h5py.File(self.path, "r") as head:
+            for key, value in head.attrs.items():
+                out.attrs[key] = value
+            head.copy("points", out)
+        out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
+        self._empty_tables(out)
+        reps, traj = out["replicates"], out["trajectories"]
+        buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts")}
+        rows = offset = 0
+
+        def flush():
+            for name in REPLICATE_COLUMNS:
+                if buffer[name]:
+                    _append(reps[name], np.concatenate(buffer[name]))
+            for name in ("step", "counts"):
+                if buffer[name]:
+                    _append(traj[name], np.concatenate(buffer[name]))
+            for values in buffer.values():
+                values.clear()
+
+        for shard in shards:
+            with h5py.File(self.parts / shard.name, "r") as f:
+                table = {name: f["replicates"][name][:] for name in REPLICATE_COLUMNS}
+                table["trajectory_start"] = table["trajectory_start"] + offset
+                for name, values in table.items():
+                    buffer[name].append(values)
+                buffer["step"].append(f["trajectories"]["step"][:])
+                buffer["counts"].append(f["trajectories"]["counts"][:])
+                offset += f["trajectories"]["step"].shape[0]
+            rows += shard.size
+            if rows >= _MERGE_ROWS or sum(len(c) for c in buffer["step"]) >= _MERGE_RECORDS:
+                flush()
+                rows = 0
+        flush()
+        out.attrs["complete"] = True
+
+    def _remove_parts(self) -> None:
+        for shard in list_shards(self.parts):
+            (self.parts / shard.name).unlink(missing_ok=True)
+        shutil.rmtree(self.parts, ignore_errors=True)
+        self._unlock()
+
+    def close(self) -> None:
+        """Merge if every replicate is in, else leave the shards for a resume; release the lock."""
+        try:
+            if not self.complete and self._lock_fd is not None and self.done == self.expected:
+                self.finalize()
+        finally:
+            self._unlock()
+
+    def release(self) -> None:
+        """Release the lock without merging (after an interruption or a failure)."""
+        if self._lock_fd is not None:
+            for leftover in self.parts.glob("*.tmp"):
+                leftover.unlink(missing_ok=True)
+        self._unlock()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, exc_type, *exc):
+        if exc_type is None:
+            self.close()
+        else:
+            self.release()
+
+
+def _shard_rows(path: Path) -> int:
+    """Replicate rows in a shard, or -1 if it cannot be read."""
+    try:
+        with h5py.File(path, "r") as f:
+            return int(f["replicates"]["replicate"].shape[0])
+    except (OSError, KeyError):
+        return -1
+
+
+def writer_state(path) -> str:
+    """``complete``, ``running`` (a process holds the writer's lock) or ``stopped``."""
+    if is_complete(Path(path)):
+        return "complete"
+    lock = parts_dir(path) / "lock"
+    if fcntl is None or not lock.exists():
+        return "stopped"
+    try:
+        fd = os.open(lock, os.O_RDONLY)
+    except FileNotFoundError:  # the run finished just now
+        return "complete" if is_complete(Path(path)) else "stopped"
+    try:
+        fcntl.flock(fd, fcntl.LOCK_SH | fcntl.LOCK_NB)
+    except OSError:
+        return "running"
+    finally:
+        os.close(fd)  # releases the shared lock if it was taken
+    return "stopped"

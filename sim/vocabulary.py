@@ -1,0 +1,29 @@
+"""The words of the config vocabulary, declared once.
+
+The schema (``sim.config.schema``) builds its ``Literal`` types from these
+tuples, so a value outside them is refused when a config is loaded; the
+domain modules map the same words to their objects (``sim.density.FORMS``,
+``sim.engines.ENGINES``...) and trust validated input. A new word goes here
+first; ``tests/test_vocabulary.py`` checks the domain maps name the same words.
+This module imports nothing, so any module may import it.
+"""
+
+__all__ = [
+    "ENGINES", "STOP_RULES", "TRAJECTORY_MODES", "DENSITY_FORMS", "PLACEMENTS", "COUNTED",
+    "DISTRIBUTIONS", "BREEDING", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED",
+]
+
+ENGINES = ("individual", "agents", "counts")
+STOP_RULES = ("fixation", "max-steps")
+TRAJECTORY_MODES = ("by-age", "by-allele", "none")
+DENSITY_FORMS = ("none", "beverton-holt", "ricker", "ceiling")
+PLACEMENTS = ("recruitment", "fecundity", "adult-survival", "all-survival")
+COUNTED = ("census", "breeders", "offspring")
+DISTRIBUTIONS = ("poisson", "fixed", "negative-binomial")
+BREEDING = ("semelparous", "iteroparous", "table")
+
+# A replicate's outcome (the ``outcome`` column of /replicates). The order is the summary
+# table's column order.
+OUTCOMES = ("mutant-fixed", "mutant-lost", "fixed", "extinct", "undecided", "capped")
+DECIDED_WITH_WINNER = ("mutant-fixed", "mutant-lost", "fixed")  # one allele is left: it has a winner
+DECIDED = DECIDED_WITH_WINNER + ("extinct",)  # outcomes that hold from a season on (fixation_step)
