@@ -165,7 +165,7 @@ def test_one_season_mean_is_the_projection_matrix(populations, density):
     batch = populations(life, np.broadcast_to(start, (reps, *start.shape)), rngs)
     batch.step()
     after = batch.census().reshape(reps, -1).astype(float)
-    f = life.factors_before_breeding(start)
+    f = life.kernel.census_factors(start)
     expected = np.zeros_like(start, dtype=float)
     for a in range(life.n_alleles):
         expected[a, 0] += (life.M[a] * f.fecundity * life.C[a] * f.recruitment * start[a]).sum()
