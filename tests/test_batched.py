@@ -4,17 +4,18 @@
 which keeps every replicate on its own stream
 ``SeedSequence(seed, spawn_key=(point, replicate))``. These tests compare it
 field by field with ``runner.run_replicate`` (the BroodModel loop, one
-replicate), and check that the grouping of replicates into batches changes
-nothing.
+replicate); the per-engine checks (batched equals alone, grouping and order
+change nothing) run over every registered engine in
+``tests/test_engine_conformance.py`` with the configs below.
 """
 
 import numpy as np
 import pytest
 
-from sim.batch import STATES, classify_many, run_batch
+from sim.batch import STATES, classify_many
 from sim.config import parse_config, sweep_points
 from sim.model import BroodModel
-from sim.runner import classify, replicate_rng, run_replicate, run_replicates
+from sim.runner import classify, replicate_rng, run_replicates
 from sim.streams import keyed_generators
 
 RESIDENT = {"name": "perennial", "breeding": "iteroparous", "fecundity": 2.0,
@@ -87,19 +88,6 @@ def _same(a, b) -> bool:
         and a.trajectory.dtype == b.trajectory.dtype and a.record_steps.dtype == b.record_steps.dtype
 
 
-@pytest.mark.parametrize("engine", ["individual", "counts"])
-@pytest.mark.parametrize("name", list(CONFIGS))
-def test_batched_equals_one_replicate_at_a_time(engine, name):
-    config = _config(engine, **_with_initial_counts(name, CONFIGS[name]))
-    point = sweep_points(config)[0]
-    reps = list(range(14))
-    alone = [run_replicate(point, r, 5) for r in reps]
-    together = run_replicates(point, reps, 5)
-    assert [r.replicate for r in together] == reps
-    for a, b in zip(alone, together):
-        assert _same(a, b), (name, a.replicate, a.outcome, b.outcome, a.steps, b.steps)
-
-
 def test_configs_reach_every_kind_of_end():
     # the equality test above is only as good as the paths it walks: check it meets
     # fixation, loss, the step limit and the population cap
@@ -124,17 +112,6 @@ def test_class_dtype_grows_with_the_classes():
         assert batch.cell.dtype == dtype and batch.cell.size == batch.sizes.sum()
 
 
-@pytest.mark.parametrize("engine", ["individual", "counts"])
-def test_batch_grouping_and_order_do_not_matter(engine):
-    config = _config(engine, density={"form": "ceiling", "acts_on": "all-survival", "capacity": 30})
-    point = sweep_points(config)[0]
-    whole = {r.replicate: r for r in run_replicates(point, range(20), 9)}
-    pieces = run_replicates(point, [7], 9) + run_replicates(point, [19, 3, 11, 0], 9) \
-        + run_batch(point, range(12, 19), 9)
-    for r in pieces:
-        assert _same(r, whole[r.replicate])
-
-
 def test_points_and_seeds_key_the_streams():
     config = parse_config({
         "experiment": {"seed": 3, "max_steps": 30},
@@ -150,14 +127,6 @@ def test_points_and_seeds_key_the_streams():
     assert [r.point for r in b] == [1] * 6
     assert any(not np.array_equal(x.trajectory, y.trajectory) for x, y in zip(a, b))
     assert any(not np.array_equal(x.trajectory, y.trajectory) for x, y in zip(a, c))
-
-
-def test_agents_engine_falls_back_to_one_at_a_time():
-    config = _config("agents", density={"form": "beverton-holt", "capacity": 12})
-    point = sweep_points(config)[0]
-    together = run_replicates(point, [0, 1], 2)
-    for r, rep in zip(together, (0, 1)):
-        assert _same(r, run_replicate(point, rep, 2))
 
 
 def test_model_stream_starts_at_the_replicate_stream():
