@@ -67,13 +67,10 @@ class SeasonKernel:
 
     Parameters
     ----------
-    M, S : ndarray, shape (n_alleles, n_ages)
-        Mean fecundity m(a) and survival s(a) by allele and census age.
-    C : ndarray, shape (n_alleles,)
-        Juvenile survival c by allele.
-    density : DensityDependence
-    offspring : offspring-number law (``draw``, ``draw_total``, ``pgf``)
-    mutation : Mutation
+    M, S, C, density, offspring, mutation
+        As the fields of ``sim.lifecycle.LifeCycle`` (a ``LifeCycle``'s
+        ``kernel`` is built from them); ``offspring`` defaults to Poisson,
+        ``mutation`` to none.
 
     Attributes
     ----------

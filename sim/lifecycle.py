@@ -99,7 +99,7 @@ def initial_census(config: Config, life: LifeCycle | None = None) -> np.ndarray:
         target, shape = int(round(eq.census_size)), eq.census
     else:
         target = int(inv.resident_count)
-        shape = stable_age_distribution(schedule, life.density.factors(0.0))
+        shape = stable_age_distribution(schedule, life.kernel.factors(0.0))
     census[r] = round_preserving_total(shape, target)
     census[config.allele_index(inv.mutant), 0] += inv.mutant_count
     return census
