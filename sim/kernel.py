@@ -1,7 +1,7 @@
 """The season kernel: one season's vital rates for every (allele, age) class.
 
-This module is the one statement of the model's season (DESIGN.md in the
-project's shared notes; the README's "The model"). Given the density index D
+This module is the one statement of the model's season (the README's "The
+model"; DEVELOPERS.md's architecture map). Given the density index D
 (and, through the seams below, the year and the parent's fate), it says:
 
 - the mean number of offspring bred by an individual of each class, m(a) f_fec;
@@ -110,6 +110,10 @@ class SeasonKernel:
         self.counted_after_breeding = density.counted_after_breeding
         self.ceiling = None if density.ceiling is None else int(density.ceiling)
         self.ceiling_on_recruits = density.acts_on == "recruitment"
+        # (class, allele, m, c) of each class that breeds, as Python numbers (the engines'
+        # per-class loops)
+        self.breeders = [(int(c), int(self.allele_of[c]), float(self.fecundity[c]),
+                          float(self.juvenile[c])) for c in np.flatnonzero(self.fecundity > 0)]
 
     @classmethod
     def for_schedule(cls, schedule, density: DensityDependence | None = None,
@@ -197,9 +201,8 @@ class SeasonKernel:
         batch); under Poisson offspring the recruits are Poisson with this mean.
         """
         mean = np.zeros((counts.shape[0], self.n_alleles))
-        for c in np.flatnonzero(self.fecundity > 0).tolist():
-            mean[:, self.allele_of[c]] += (counts[:, c] * (self.fecundity[c] * factors.fecundity)
-                                           * (self.juvenile[c] * factors.recruitment))
+        for c, allele, fecundity, juvenile in self.breeders:
+            mean[:, allele] += counts[:, c] * (fecundity * factors.fecundity) * (juvenile * factors.recruitment)
         return mean
 
     # -- step 5: the ceiling ------------------------------------------------------------

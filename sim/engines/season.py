@@ -48,10 +48,6 @@ class ReplicateBatch:
         self.counts = np.asarray(census, dtype=np.int64).reshape(
             len(self.rngs), kernel.n_classes).copy()
         self.recruits = np.zeros(len(self.rngs), dtype=np.int64)
-        # (class, allele, m, c) of each class that breeds, as Python numbers
-        self._breeders = [(int(c), int(kernel.allele_of[c]), float(kernel.fecundity[c]),
-                           float(kernel.juvenile[c]))
-                          for c in np.flatnonzero(kernel.fecundity > 0)]
         self._mutation = life.mutation if life.mutation.active else None
         # an allele's recruits are one Poisson total (``SeasonKernel.expected_recruits``),
         # drawn by a compiled pass where births need not be drawn first
@@ -88,7 +84,7 @@ class ReplicateBatch:
         counts, rngs = self.counts, self.rngs
         out = np.zeros(counts.shape, dtype=np.int64)
         draw = self.life.offspring.draw_total
-        for c, _, fecundity, _ in self._breeders:
+        for c, _, fecundity, _ in self.kernel.breeders:
             out[:, c] = [int(draw(n, fecundity, g)) if n else 0
                          for n, g in zip(counts[:, c].tolist(), rngs)]
         return out
@@ -114,13 +110,13 @@ class ReplicateBatch:
         if births is None:
             draw = self.life.offspring.draw_thinned_totals
             present = counts.any(axis=0)
-            for c, allele, fecundity, juvenile in self._breeders:
+            for c, allele, fecundity, juvenile in self.kernel.breeders:
                 if not present[c]:
                     continue  # no replicate has this class: no draws to make
                 out[:, allele] += draw(counts[:, c], fecundity * f.fecundity,
                                        juvenile * f.recruitment, rngs)
         else:
-            for c, allele, _, juvenile in self._breeders:
+            for c, allele, _, juvenile in self.kernel.breeders:
                 out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
                                    zip(births[:, c].tolist(), (juvenile * f.recruitment).tolist(), rngs)]
         return self.mutated(out)
