@@ -78,12 +78,12 @@ class AgentsEngine:
         kernel = self.kernel
         adults = list(self.model.agents)
         # 1. density index from the census (where D counts births, after 2.)
-        rates = kernel.rates(kernel.census_factors(self.census()))
+        rates = kernel.rates(kernel.multipliers(kernel.census_factors(self.census())))
         # 2. breeding
         for agent in adults:
             agent.breed(rates)
         if kernel.counted_after_breeding:
-            rates = kernel.rates(kernel.birth_factors(sum(a.births for a in adults)))
+            rates = kernel.rates(kernel.multipliers(kernel.birth_factors(sum(a.births for a in adults))))
         # 3. survival (independent of the brood) and 4. recruitment
         survivors, newborn = [], []
         for agent in adults:
