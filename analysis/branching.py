@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sim.density import Factors
-from sim.meanfield import projection_matrix
+from sim.kernel import SeasonKernel
 from sim.schedules import Schedule
 
 from .demography import dominant_eigen
@@ -60,20 +60,15 @@ class Extinction:
 def offspring_pgf(s: np.ndarray, schedule: Schedule, factors: Factors, offspring) -> np.ndarray:
     """G(s): the generating function of next season's mutants by age, one entry per parent age.
 
-    An individual of census age a draws N offspring (pgf P, mean m(a) f_fec);
+    The season kernel's (``sim.kernel.SeasonKernel.offspring_pgf``): an
+    individual of census age a draws N offspring (pgf P, mean m(a) f_fec);
     each recruits to age 1 independently with probability p = c f_rec
     (thinning: P(1 - p + p s_1)); independently, it survives to age a + 1 (or
     stays in the plus-group) with probability sigma = s(a) f_adult::
 
         G_a(s) = (1 - sigma + sigma s_next(a)) P(1 - p + p s_1; m(a) f_fec)
     """
-    s = np.asarray(s, dtype=float)
-    n = schedule.n_ages
-    nxt = np.minimum(np.arange(n) + 1, n - 1)
-    sigma = schedule.survival * factors.adult
-    p = schedule.juvenile_survival * factors.recruitment
-    births = offspring.pgf(1.0 - p + p * s[0], schedule.fecundity * factors.fecundity)
-    return (1.0 - sigma + sigma * s[nxt]) * births
+    return SeasonKernel.for_schedule(schedule, offspring=offspring).offspring_pgf(s, factors)
 
 
 def _irreducible(a: np.ndarray) -> bool:
@@ -110,17 +105,18 @@ def extinction_probabilities(
     non-singular process (lambda = 1) also dies out surely (Harris 1963,
     Theorem II.7.1, from memory).
     """
-    a = projection_matrix(schedule, factors)
+    kernel = SeasonKernel.for_schedule(schedule, offspring=offspring)
+    a = kernel.projection_matrix(factors)
     lam = dominant_eigen(a)[0]
     n = schedule.n_ages
-    g0 = offspring_pgf(np.zeros(n), schedule, factors, offspring)
+    g0 = kernel.offspring_pgf(np.zeros(n), factors)
     singular = bool(np.all(g0 == 0) and np.allclose(a.sum(axis=0), 1.0))
     if lam < 1.0 - _CRITICAL or (abs(lam - 1.0) <= _CRITICAL and not singular and _irreducible(a)):
         return Extinction(np.ones(n), lam, 0, True, 0.0)
     q = np.zeros(n)
     step_prev = np.inf
     for k in range(1, max_iter + 1):
-        new = offspring_pgf(q, schedule, factors, offspring)
+        new = kernel.offspring_pgf(q, factors)
         step = float(np.max(np.abs(new - q)))
         q = new
         if step == 0.0:

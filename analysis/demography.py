@@ -1,7 +1,7 @@
 """Demographic quantities of one schedule's projection matrix (Caswell 2001).
 
-The matrix itself is ``sim.meanfield.projection_matrix`` (a pre-breeding
-census Leslie matrix with a plus-group); this module only reads it. Split it
+The matrix itself is the season kernel's (``sim.kernel.SeasonKernel.projection_matrix``,
+a pre-breeding census Leslie matrix with a plus-group); this module only reads it. Split it
 as A = T + F, with T the survival-and-ageing part (sub-diagonal and
 plus-group) and F the fertility part (first row: recruits at age 1).
 """
@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from sim.density import Factors
-from sim.meanfield import projection_matrix
+from sim.kernel import SeasonKernel
 from sim.schedules import Schedule
 
 __all__ = ["Demography", "dominant_eigen", "schedule_demography"]
@@ -96,11 +96,12 @@ def schedule_demography(schedule: Schedule, factors: Factors = Factors()) -> Dem
     - w and v are the right and left eigenvectors of lambda (Caswell 2001,
       sec. 4.5).
     """
-    a = projection_matrix(schedule, factors)
+    kernel = SeasonKernel.for_schedule(schedule)
+    a = kernel.projection_matrix(factors)
     n = a.shape[0]
     # survival part: the same matrix with births switched off (for one age class the
     # plus-group's survival shares the cell A[0, 0] with fertility)
-    t = projection_matrix(schedule, factors._replace(fecundity=0.0))
+    t = kernel.projection_matrix(factors._replace(fecundity=0.0))
     f = a - t
     lam, w, v = dominant_eigen(a)
     try:

@@ -108,17 +108,8 @@ class DensityDependence:
     counted: str = "census"
 
     def __post_init__(self):
-        if self.acts_on not in PLACEMENTS:
-            raise ValueError(f"acts_on must be one of {PLACEMENTS}; got {self.acts_on!r}")
-        if self.counted not in COUNTED:
-            raise ValueError(f"counted must be one of {COUNTED}; got {self.counted!r}")
-        if self.counted == "offspring" and self.acts_on == "fecundity":
-            raise ValueError("counted = 'offspring' cannot act on fecundity (D is taken after breeding)")
-        if isinstance(self.form, Ceiling) and self.acts_on not in ("recruitment", "all-survival"):
-            raise ValueError(
-                "a ceiling removes individuals after recruitment: acts_on must be "
-                f"'recruitment' or 'all-survival'; got {self.acts_on!r}"
-            )
+        # the schema (sim.config) checks every combination; this only guards objects built by hand
+        assert self.acts_on in PLACEMENTS and self.counted in COUNTED, (self.acts_on, self.counted)
 
     @classmethod
     def from_names(cls, form: str, capacity: float | None = None, acts_on="recruitment", counted="census"):
@@ -158,6 +149,11 @@ class DensityDependence:
             "all-survival": Factors(1.0, f, f),
         }[self.acts_on]
 
-    def factors(self, d: float) -> Factors:
-        """The season's factors at density index ``d`` (all 1 for a ceiling)."""
-        return self.placed(float(self.form.factor(d)))
+    def factors(self, d) -> Factors:
+        """The season's factors at density index ``d``, a number or an array (all 1 for a ceiling).
+
+        The one place a density factor is computed; engines and theory reach
+        it through ``sim.kernel.SeasonKernel.factors``.
+        """
+        f = self.form.factor(d)
+        return self.placed(float(f) if np.ndim(f) == 0 else f)

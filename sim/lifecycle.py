@@ -1,17 +1,22 @@
-"""The rules of one season, gathered for the engines, and the starting census.
+"""An experiment's life cycle as the engines take it, and the starting census.
 
-Engines take a ``LifeCycle`` and never branch on allele, form or distribution
-names: everything they need is an array or a small object with a method.
+A ``LifeCycle`` holds what a config says about the season (the alleles'
+schedules on one age axis, density dependence, the offspring law, mutation);
+its ``kernel`` (``sim.kernel.SeasonKernel``) states the season's rates from
+them. Engines take a ``LifeCycle`` and never branch on allele, form or
+distribution names.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
 from .config import Config
-from .density import DensityDependence, Factors
+from .density import DensityDependence
+from .kernel import SeasonKernel
 from .meanfield import solve_equilibrium, stable_age_distribution
 from .mutation import Mutation
 from .schedules import stack_schedules
@@ -55,15 +60,10 @@ class LifeCycle:
     def n_ages(self) -> int:
         return self.M.shape[1]
 
-    def density_index(self, census: np.ndarray) -> float:
-        """D from a census (n_alleles, n_ages); for ``counted = "offspring"`` use births instead."""
-        return float((self.density.index_weights(self.M) * census).sum())
-
-    def factors_before_breeding(self, census: np.ndarray) -> Factors:
-        """The season's factors where D is known before breeding (all 1 otherwise, until births)."""
-        if self.density.counted_after_breeding:
-            return Factors()
-        return self.density.factors(self.density_index(census))
+    @cached_property
+    def kernel(self) -> SeasonKernel:
+        """The season kernel: every class's vital rates, what the engines sample from."""
+        return SeasonKernel(self.M, self.S, self.C, self.density, self.offspring, self.mutation)
 
 
 def round_preserving_total(x: np.ndarray, total: int) -> np.ndarray:
@@ -99,7 +99,7 @@ def initial_census(config: Config, life: LifeCycle | None = None) -> np.ndarray:
         target, shape = int(round(eq.census_size)), eq.census
     else:
         target = int(inv.resident_count)
-        shape = stable_age_distribution(schedule, life.density.factors(0.0))
+        shape = stable_age_distribution(schedule, life.kernel.factors(0.0))
     census[r] = round_preserving_total(shape, target)
     census[config.allele_index(inv.mutant), 0] += inv.mutant_count
     return census

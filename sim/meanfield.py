@@ -1,8 +1,9 @@
 """The mean-field (deterministic) version of the life cycle.
 
 The simulator needs it to start a resident at its equilibrium; the analysis
-layer builds its invasion theory on the same functions, so the projection
-matrix is written down once.
+layer builds its invasion theory on the same functions. Both the projection
+matrix and the deterministic season are the season kernel's
+(``sim.kernel.SeasonKernel``), so the model is written down once.
 
 Projection matrix of one allele at factors (f_fec, f_adult, f_rec)::
 
@@ -21,7 +22,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq
 
-from .density import Ceiling, DensityDependence, Factors, NoDensity
+from .density import DensityDependence, Factors, NoDensity
+from .kernel import SeasonKernel
 from .schedules import Schedule
 
 __all__ = [
@@ -41,14 +43,7 @@ class NoEquilibriumError(ValueError):
 
 def projection_matrix(schedule: Schedule, factors: Factors = Factors()) -> np.ndarray:
     """Pre-breeding-census projection matrix of ``schedule`` at the given density factors."""
-    n = schedule.n_ages
-    a = np.zeros((n, n))
-    a[0, :] = schedule.fecundity * factors.fecundity * schedule.juvenile_survival * factors.recruitment
-    s = schedule.survival * factors.adult
-    idx = np.arange(n - 1)
-    a[idx + 1, idx] += s[:-1]
-    a[n - 1, n - 1] += s[-1]
-    return a
+    return SeasonKernel.for_schedule(schedule).projection_matrix(factors)
 
 
 def growth_rate(schedule: Schedule, factors: Factors = Factors()) -> float:
@@ -117,9 +112,11 @@ def solve_equilibrium(schedule: Schedule, density: DensityDependence) -> Equilib
         lambda down to 1 (e.g. on adult survival when m(1) c > 1).
     """
     what = f"resident {schedule.name!r}"
+    kernel = SeasonKernel.for_schedule(schedule, density)
     if isinstance(density.form, NoDensity):
         raise NoEquilibriumError(f"{what}: no density dependence, so no equilibrium")
-    if isinstance(density.form, Ceiling):
+    if kernel.ceiling is not None:
+        # the removal as a survival factor phi at the ceiling's placement, census K
         def excess_phi(p):
             return growth_rate(schedule, density.placed(p)) - 1.0
 
@@ -133,43 +130,18 @@ def solve_equilibrium(schedule: Schedule, density: DensityDependence) -> Equilib
         return Equilibrium(density.form.capacity, factors, density.form.capacity * u)
 
     def excess(d):
-        return growth_rate(schedule, density.factors(d)) - 1.0
+        return growth_rate(schedule, kernel.factors(d)) - 1.0
 
     d_star = _root(excess, 0.0, density.form.capacity, what)
-    factors = density.factors(d_star)
+    factors = kernel.factors(d_star)
     u = stable_age_distribution(schedule, factors)
-    w = density.index_weights(schedule.fecundity[None, :])[0]
-    weight = float(w @ u)
+    weight = float(kernel.weights @ u)
     if weight <= 0:
         raise NoEquilibriumError(f"{what}: no individual is counted in the density index")
     return Equilibrium(d_star, factors, d_star / weight * u)
 
 
 def mean_field_step(census: np.ndarray, M, S, C, density: DensityDependence) -> np.ndarray:
-    """One deterministic season for all alleles: census[allele, age] -> next census."""
-    census = np.asarray(census, dtype=float)
-    births_mean = M * census
-    if density.counted_after_breeding:
-        f = density.factors(births_mean.sum())
-    else:
-        f = density.factors((density.index_weights(M) * census).sum())
-    births = births_mean.sum(axis=1) * f.fecundity
-    survivors = S * f.adult * census
-    nxt = np.zeros_like(census)
-    nxt[:, 1:] += survivors[:, :-1]
-    nxt[:, -1] += survivors[:, -1]
-    recruits = births * C * f.recruitment
-    if density.ceiling is not None:
-        k = density.ceiling
-        if density.acts_on == "recruitment":
-            room = max(k - nxt.sum(), 0.0)
-            recruits = recruits * min(1.0, room / recruits.sum()) if recruits.sum() > 0 else recruits
-            nxt[:, 0] += recruits
-        else:
-            nxt[:, 0] += recruits
-            total = nxt.sum()
-            if total > k:
-                nxt *= k / total
-        return nxt
-    nxt[:, 0] += recruits
-    return nxt
+    """One deterministic season for all alleles: census[allele, age] -> next census
+    (``SeasonKernel.mean_step``)."""
+    return SeasonKernel(M, S, C, density).mean_step(census)

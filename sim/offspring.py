@@ -15,7 +15,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Poisson", "Fixed", "NegativeBinomial", "make_offspring"]
+__all__ = ["Poisson", "Fixed", "NegativeBinomial", "DISTRIBUTIONS", "make_offspring"]
 
 
 class _Replicated:
@@ -111,14 +111,10 @@ class NegativeBinomial(_Replicated):
         return (p / (1.0 - (1.0 - p) * np.asarray(s, dtype=float))) ** self.dispersion
 
 
+DISTRIBUTIONS = {"poisson": Poisson, "fixed": Fixed, "negative-binomial": NegativeBinomial}
+
+
 def make_offspring(distribution: str = "poisson", dispersion: float | None = None):
-    """Build an offspring distribution from its config name."""
-    if distribution == "poisson":
-        return Poisson()
-    if distribution == "fixed":
-        return Fixed()
-    if distribution == "negative-binomial":
-        if dispersion is None or dispersion <= 0:
-            raise ValueError(f"negative-binomial needs dispersion > 0; got {dispersion!r}")
-        return NegativeBinomial(float(dispersion))
-    raise ValueError(f"unknown offspring distribution {distribution!r}")
+    """Build an offspring distribution from its config name (validated by the schema)."""
+    law = DISTRIBUTIONS[distribution]
+    return law(float(dispersion)) if law is NegativeBinomial else law()

@@ -43,11 +43,8 @@ class Schedule:
     def __post_init__(self):
         m = np.asarray(self.fecundity, dtype=float)
         s = np.asarray(self.survival, dtype=float)
-        if m.ndim != 1 or m.shape != s.shape or m.size == 0:
-            raise ValueError(
-                f"schedule {self.name!r}: fecundity and survival must be 1-d and of equal "
-                f"length; got {m.shape} and {s.shape}"
-            )
+        # the schema (sim.config) checks configured schedules; this guards one built by hand
+        assert m.ndim == 1 and m.shape == s.shape and m.size > 0, (self.name, m.shape, s.shape)
         object.__setattr__(self, "fecundity", m)
         object.__setattr__(self, "survival", s)
         object.__setattr__(self, "juvenile_survival", float(self.juvenile_survival))
@@ -64,8 +61,7 @@ class Schedule:
         demographically identical to it, so a census summed over them matches
         the unpadded schedule.
         """
-        if n_ages < self.n_ages:
-            raise ValueError(f"cannot pad {self.n_ages} age classes down to {n_ages}")
+        assert n_ages >= self.n_ages, (n_ages, self.n_ages)
         extra = n_ages - self.n_ages
         return Schedule(
             self.name,

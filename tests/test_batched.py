@@ -6,6 +6,8 @@ These tests compare it field by field with a plain single-replicate loop
 written here (``_one_replicate_plainly``: BroodModel stepped season by season,
 the stop rule as the README states it), and check that the grouping of
 replicates into batches changes nothing.
+The per-engine checks (grouping and order change nothing) run over every registered
+engine in ``tests/test_engine_conformance.py`` with the configs below.
 """
 
 import numpy as np
@@ -174,17 +176,6 @@ def test_class_dtype_grows_with_the_classes():
             np.random.default_rng(0), np.random.default_rng(1)])
         batch.step()
         assert batch.cell.dtype == dtype and batch.cell.size == batch.sizes.sum()
-
-
-@pytest.mark.parametrize("engine", ["individual", "counts"])
-def test_batch_grouping_and_order_do_not_matter(engine):
-    config = _config(engine, density={"form": "ceiling", "acts_on": "all-survival", "capacity": 30})
-    point = sweep_points(config)[0]
-    whole = {r.replicate: r for r in run_replicates(point, range(20), 9)}
-    pieces = run_replicates(point, [7], 9) + run_replicates(point, [19, 3, 11, 0], 9) \
-        + run_replicates(point, range(12, 19), 9) + [run_replicate(point, 2, 9)]
-    for r in pieces:
-        assert _same(r, whole[r.replicate])
 
 
 def test_points_and_seeds_key_the_streams():

@@ -1,4 +1,5 @@
-"""Engines against theory, and the fast engine against the Mesa reference engine."""
+"""Engines against theory: growth, neutral fixation, equilibrium (the engine contract and the
+agreement with the Mesa reference are ``tests/test_engine_conformance.py``)."""
 
 import copy
 
@@ -48,110 +49,6 @@ def test_simulated_growth_ratio_matches_dominant_eigenvalue(allele):
     n1 = model.census().sum()
     # 4 standard deviations: a correct engine fails this with probability ~6e-5.
     assert abs(n1 - expected) < 4 * np.sqrt(var)
-
-
-# --- the two engines agree in distribution ----------------------------------------------
-AGREEMENT_CONFIGS = {
-    "beverton-holt on recruitment": _raw(
-        experiment={"max_steps": 12, "stop": "max-steps"},
-        density={"form": "beverton-holt", "acts_on": "recruitment", "capacity": 25},
-        invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
-    ),
-    "table schedule, ricker on fecundity, breeders, negative binomial, mutation": _raw(
-        experiment={"max_steps": 12, "stop": "max-steps"},
-        density={"form": "ricker", "acts_on": "fecundity", "counted": "breeders", "capacity": 20},
-        offspring={"distribution": "negative-binomial", "dispersion": 1.2},
-        mutation={"rate": 0.03},
-        allele=[BASE["allele"][0], {"name": "one-shot", "breeding": "table", "fecundity": [0.0, 2.0, 5.0],
-                                    "adult_survival": [0.7, 0.6, 0.3], "juvenile_survival": 0.5}],
-        invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
-    ),
-    "ceiling on everyone, fixed offspring": _raw(
-        experiment={"max_steps": 12, "stop": "max-steps"},
-        density={"form": "ceiling", "capacity": 30},
-        offspring={"distribution": "fixed"},
-        allele=[{**BASE["allele"][0], "initial_count": 15},
-                {"name": "slow", "breeding": "iteroparous", "fecundity": 1.2, "adult_survival": 0.8,
-                 "juvenile_survival": 0.5, "initial_count": 15}],
-        invasion=None,
-    ),
-    "ceiling on recruits, delayed semelparity": _raw(
-        experiment={"max_steps": 12, "stop": "max-steps"},
-        density={"form": "ceiling", "acts_on": "recruitment", "capacity": 30},
-        allele=[BASE["allele"][0], {"name": "one-shot", "breeding": "semelparous", "fecundity": 9.0,
-                                    "maturity_age": 2, "adult_survival": 0.7, "juvenile_survival": 0.5}],
-        invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
-    ),
-    "beverton-holt on adult survival, offspring counted": _raw(
-        experiment={"max_steps": 12, "stop": "max-steps"},
-        density={"form": "beverton-holt", "acts_on": "adult-survival", "counted": "offspring", "capacity": 30},
-        allele=[{**BASE["allele"][0], "adult_survival": 0.8, "fecundity": 0.6},
-                {"name": "one-shot", "breeding": "semelparous", "fecundity": 2.5, "juvenile_survival": 0.5}],
-        invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
-    ),
-}
-
-
-def _sample(raw, engine, n, seed):
-    raw = copy.deepcopy(raw)
-    raw["experiment"] = {**raw["experiment"], "engine": engine, "seed": seed}
-    if raw.get("invasion") is None:
-        raw.pop("invasion", None)
-    config = parse_config(raw)
-    point = SweepPoint(index=0, values={}, config=config)
-    totals, freqs, gone = [], [], []
-    for rep in range(n):
-        result = run_replicate(point, rep, seed)
-        last = result.trajectory[-1].sum(axis=1).astype(float)
-        totals.append(last.sum())
-        focal = last[-1]  # the last allele: the mutant (or the second resident)
-        freqs.append(focal / last.sum() if last.sum() else np.nan)
-        gone.append(focal == 0)
-    return np.array(totals), np.array(freqs), np.array(gone)
-
-
-@pytest.mark.parametrize("name", list(AGREEMENT_CONFIGS))
-def test_individual_engine_agrees_with_mesa_reference(name):
-    # Both engines draw the same life cycle; their laws must agree. Checks (each at
-    # alpha = 1e-4, so with 15 checks a correct pair fails with probability < 0.2%):
-    # census size after T seasons and focal-allele frequency (two-sample Kolmogorov-Smirnov,
-    # scipy.stats.ks_2samp), and the fraction of replicates in which the focal allele was
-    # lost by T (Fisher's exact test, scipy.stats.fisher_exact).
-    n = 250
-    raw = AGREEMENT_CONFIGS[name]
-    tot_i, freq_i, gone_i = _sample(raw, "individual", n, seed=101)
-    tot_a, freq_a, gone_a = _sample(raw, "agents", n, seed=202)
-    assert stats.ks_2samp(tot_i, tot_a).pvalue > 1e-4
-    fi, fa = freq_i[~np.isnan(freq_i)], freq_a[~np.isnan(freq_a)]
-    assert stats.ks_2samp(fi, fa).pvalue > 1e-4
-    table = [[gone_i.sum(), n - gone_i.sum()], [gone_a.sum(), n - gone_a.sum()]]
-    assert stats.fisher_exact(table).pvalue > 1e-4
-    # The comparison has power: the populations are not trivially empty or constant.
-    assert tot_i.std() > 0 and 0 < gone_i.mean() < 1 or 0 < freq_i[~np.isnan(freq_i)].mean() < 1
-
-
-@pytest.mark.parametrize("engine", ENGINES)
-def test_ceiling_caps_the_census(engine):
-    raw = copy.deepcopy(AGREEMENT_CONFIGS["ceiling on everyone, fixed offspring"])
-    raw["experiment"]["engine"] = engine
-    raw.pop("invasion")
-    model = BroodModel(parse_config(raw), rng=np.random.default_rng(3))
-    for _ in range(10):
-        model.step()
-        # A ceiling at K = 30 with a growing population (lambda = 1.5) holds it at K exactly.
-        assert model.census().sum() == 30
-
-
-def test_semelparous_individuals_breed_once():
-    # A semelparous allele maturing at 2 has no individual older than 2 at any census.
-    raw = copy.deepcopy(AGREEMENT_CONFIGS["ceiling on recruits, delayed semelparity"])
-    config = parse_config(raw)
-    model = BroodModel(config, rng=np.random.default_rng(5))
-    for _ in range(20):
-        model.step()
-        census = model.census()
-        mutant = config.allele_index("one-shot")
-        assert census[mutant, 2:].sum() == 0
 
 
 # --- neutral fixation --------------------------------------------------------------------

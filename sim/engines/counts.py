@@ -48,40 +48,35 @@ class CountsPopulations(ReplicateBatch):
 
     def step(self) -> None:
         """Advance every replicate one season."""
-        rules, rngs = self.rules, self.rngs
-        n_reps = len(rngs)
-        if n_reps == 0:
+        kernel = self.kernel
+        if len(self.rngs) == 0:
             return
-        counts = self.counts
-        births, f = rules.open_season(counts, rngs)
+        births, f = self.open_season()
         # survivors (binomial, one compiled pass for the batch), moved to their next class;
         # then, where the law allows, the recruits in the same pass
-        aged = np.zeros_like(counts)
-        means, recruits = rules.pass_recruits(counts, f)
-        compiled.survive_counts(counts, self.bitgens, rules.survival, f.adult, rules.aged, aged,
-                                means, recruits)
-        recruits = rules.recruits_after_pass(recruits, counts, births, f, rngs)
+        aged = np.zeros_like(self.counts)
+        means, recruits = self.pass_recruits(f)
+        compiled.survive_counts(self.counts, self.bitgens, kernel.survival, f.adult, kernel.aged,
+                                aged, means, recruits)
+        recruits = self.recruits_after_pass(recruits, births, f)
         born = recruits.sum(axis=1)
-        if rules.ceiling is None:
-            aged[:, rules.first] += recruits
-        else:
-            self._ceiling(aged, recruits, born)
+        self._remove(aged, recruits, born)
         self.counts, self.recruits = aged, born
 
-    def _ceiling(self, aged, recruits, born) -> None:
-        """Merge recruits into ``aged`` and remove a uniformly random set down to the capacity.
+    def _remove(self, aged, recruits, born) -> None:
+        """Merge recruits into ``aged``, less the random individuals the kernel removes.
 
         The removed counts by class are multivariate hypergeometric, from the
-        recruits alone (acting on recruitment) or from everyone.
+        recruits alone (a ceiling acting on recruitment) or from everyone.
         """
-        rules = self.rules
-        excess, _ = rules.ceiling_excess(aged.sum(axis=1), born)
+        kernel = self.kernel
+        excess, _ = kernel.ceiling_excess(aged.sum(axis=1), born)
         over = np.flatnonzero(excess).tolist()
-        if rules.ceiling_on_recruits:
+        if kernel.ceiling_on_recruits:
             for r in over:
                 recruits[r] -= self.rngs[r].multivariate_hypergeometric(recruits[r], int(excess[r]))
-        aged[:, rules.first] += recruits
-        if not rules.ceiling_on_recruits:
+        aged[:, kernel.first] += recruits
+        if not kernel.ceiling_on_recruits:
             for r in over:
                 aged[r] -= self.rngs[r].multivariate_hypergeometric(aged[r], int(excess[r]))
 

@@ -15,19 +15,19 @@ class IndividualPopulations(ReplicateBatch):
     """Replicate populations whose individuals are the entries of one array.
 
     Each individual is one entry of ``cell``: its class (allele and age index,
-    see ``ClassRules``), in the smallest unsigned integer type that holds the
+    see ``sim.kernel``), in the smallest unsigned integer type that holds the
     classes (one byte for up to 256 classes). The replicates own consecutive
     slices of ``cell`` (of lengths ``sizes``): each its survivors in their
     previous order, then its recruits.
 
-    One season follows the life cycle of DESIGN.md: density index, breeding,
-    survival (one uniform per individual, independent of its brood),
-    recruitment, next census, then a ceiling's removal of random
-    individuals. Each class's recruits are drawn as one total (exact: parents
+    One season samples the kernel (``sim.kernel.SeasonKernel``) in the order
+    of the life cycle: density index, breeding, survival (one uniform per
+    individual, independent of its brood), recruitment, next census, then the
+    removal of random individuals a ceiling asks for. Each class's recruits are drawn as one total (exact: parents
     within a class are exchangeable and pass on only their allele). The pass
     over individuals is compiled (``compiled.survive``): one pass for every
     replicate of the batch, each drawing from its own generator; where
-    ``ClassRules.recruits_in_pass`` (Poisson offspring), a replicate draws its
+    ``ReplicateBatch.recruits_in_pass`` (Poisson offspring), a replicate draws its
     recruits of each allele in the same pass, right after its individuals.
 
     Parameters are those of ``ReplicateBatch``.
@@ -35,12 +35,12 @@ class IndividualPopulations(ReplicateBatch):
 
     def __init__(self, life: LifeCycle, census: np.ndarray, rngs):
         super().__init__(life, census, rngs)
-        rules, counts = self.rules, self.counts
-        self._dtype = np.min_scalar_type(max(rules.n_classes - 1, 0))
-        self._aged = rules.aged.astype(self._dtype)
-        self._first = rules.first.astype(self._dtype)
+        kernel, counts = self.kernel, self.counts
+        self._dtype = np.min_scalar_type(max(kernel.n_classes - 1, 0))
+        self._aged = kernel.aged.astype(self._dtype)
+        self._first = kernel.first.astype(self._dtype)
         self.sizes = counts.sum(axis=1)
-        classes = np.tile(np.arange(rules.n_classes, dtype=self._dtype), len(self.rngs))
+        classes = np.tile(np.arange(kernel.n_classes, dtype=self._dtype), len(self.rngs))
         self.cell = np.repeat(classes, counts.ravel())
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
 
@@ -68,44 +68,42 @@ class IndividualPopulations(ReplicateBatch):
 
     def step(self) -> None:
         """Advance every replicate one season."""
-        rules, rngs = self.rules, self.rngs
+        kernel, rngs = self.kernel, self.rngs
         n_reps = len(rngs)
         if n_reps == 0:
             return
-        counts, cell = self.counts, self.cell
+        cell = self.cell
         # 1. density index from the census (or, counting offspring, 2. births first)
-        births, f = rules.open_season(counts, rngs)
+        births, f = self.open_season()
         # 3. survival (one uniform per individual), survivors one year older (the
         # plus-group stays); 4. then, where the law allows, each replicate's recruits
         slice_sizes, drawn = self._segments or (self.sizes, np.ones(n_reps, dtype=bool))
         self._segments = None
         survived = np.empty(cell.size, dtype=self._dtype)
         survivors = np.empty(n_reps, dtype=np.int64)
-        by_class = np.zeros((n_reps, rules.n_classes), dtype=np.int64)
-        means, recruits = rules.pass_recruits(counts, f)
-        total = compiled.survive(cell, slice_sizes, drawn, self.bitgens, rules.survival, f.adult,
+        by_class = np.zeros((n_reps, kernel.n_classes), dtype=np.int64)
+        means, recruits = self.pass_recruits(f)
+        total = compiled.survive(cell, slice_sizes, drawn, self.bitgens, kernel.survival, f.adult,
                                  self._aged, survived, survivors, by_class, means, recruits)
-        recruits = rules.recruits_after_pass(recruits, counts, births, f, rngs)
-        # 5. next census: survivors, then recruits at age 1; a ceiling's removal
+        recruits = self.recruits_after_pass(recruits, births, f)
+        # 5. next census: survivors, then recruits at age 1; the kernel's removals
         born = recruits.sum(axis=1)
         cell = np.empty(total + int(born.sum()), dtype=self._dtype)
         compiled.assemble(survived, survivors, recruits, self._first, cell)
-        by_class[:, rules.first] += recruits
+        by_class[:, kernel.first] += recruits
         sizes = survivors + born
-        if rules.ceiling is not None:
-            cell, removed = self._apply_ceiling(cell, sizes, survivors, born)
+        excess, pool = kernel.ceiling_excess(survivors, born)
+        if excess.any():
+            cell, removed = self._remove(cell, sizes, excess, pool)
             by_class -= removed
             sizes = by_class.sum(axis=1)
         self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
 
-    def _apply_ceiling(self, cell, sizes, survivors, born):
-        """Remove random individuals down to the capacity (from recruits only, or anyone)."""
-        rules = self.rules
-        excess, pool = rules.ceiling_excess(survivors, born)
-        removed = np.zeros((len(sizes), rules.n_classes), dtype=np.int64)
+    def _remove(self, cell, sizes, excess, pool):
+        """Remove ``excess`` random individuals of each replicate from the last ``pool`` of its
+        slice (its recruits, or everyone)."""
+        removed = np.zeros((len(sizes), self.kernel.n_classes), dtype=np.int64)
         over = np.flatnonzero(excess)
-        if over.size == 0:
-            return cell, removed
         pool_start = np.cumsum(sizes) - pool  # the pool is the end of each replicate's slice
         chosen = [pool_start[r] + self.rngs[r].choice(int(pool[r]), size=int(excess[r]),
                                                        replace=False, shuffle=False)

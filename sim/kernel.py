@@ -1,0 +1,289 @@
+"""The season kernel: one season's vital rates for every (allele, age) class.
+
+This module is the one statement of the model's season (the README's "The
+model"; DEVELOPERS.md's architecture map). Given the density index D
+(and, through the seams below, the year and the parent's fate), it says:
+
+- the mean number of offspring bred by an individual of each class, m(a) f_fec;
+- the probability that it survives to the next census, s(a) f_adult;
+- the probability that each of its offspring recruits at age 1, c f_rec;
+- where a survivor goes (age + 1; the plus-group stays) and where a recruit
+  starts (age 1 of its allele, after mutation);
+- how many individuals a ceiling removes after recruitment, and from whom.
+
+A class is one (allele, age index) pair, numbered allele-major:
+``class = allele * n_ages + age``. The three engines only *sample* from a
+``SeasonKernel`` (``sim.engines``); the projection matrix, the equilibrium
+solver and the deterministic season map (``sim.meanfield``) and the
+branching process's generating function (``analysis.branching``) are derived
+from it.
+
+Seams (documented in DEVELOPERS.md; not built yet)
+---------------------------------------------------
+``multipliers(factors, year=...)`` is where a year's multipliers on
+fecundity, adult survival and juvenile survival join the density factors,
+per replicate; ``recruitment(factors, parent_survived=..., brood=...)`` is
+where a young's recruitment depends on its parent's fate and brood size; a
+trade-off curve for effort alleles is a schedule constructor
+(``sim.schedules``) and needs nothing here.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .density import DensityDependence, Factors, NoDensity
+from .mutation import Mutation
+from .offspring import Poisson
+
+__all__ = ["SeasonKernel", "SeasonRates"]
+
+
+@dataclass(frozen=True)
+class SeasonRates:
+    """The vital rates of every class in one season (after density, year, parent effects).
+
+    Attributes
+    ----------
+    breeding : ndarray, shape (..., n_classes)
+        Mean offspring per individual, m(a) f_fec.
+    survival : ndarray, shape (..., n_classes)
+        Probability of surviving to the next census, s(a) f_adult.
+    recruitment : ndarray, shape (..., n_classes)
+        Probability that each offspring recruits at age 1, c f_rec.
+
+    A leading axis, where present, is the replicate.
+    """
+
+    breeding: np.ndarray
+    survival: np.ndarray
+    recruitment: np.ndarray
+
+
+class SeasonKernel:
+    """One season of the life cycle for every (allele, age) class.
+
+    Parameters
+    ----------
+    M, S, C, density, offspring, mutation
+        As the fields of ``sim.lifecycle.LifeCycle`` (a ``LifeCycle``'s
+        ``kernel`` is built from them); ``offspring`` defaults to Poisson,
+        ``mutation`` to none.
+
+    Attributes
+    ----------
+    fecundity, survival, juvenile : ndarray, shape (n_classes,)
+        m(a), s(a) and the juvenile survival c of each class (density-free).
+    aged : ndarray, shape (n_classes,)
+        The class a survivor moves to (age + 1; the plus-group stays).
+    first : ndarray, shape (n_alleles,)
+        The class of a recruit of each allele (age 1, index 0).
+    weights : ndarray, shape (n_classes,)
+        Each class's weight in the density index D.
+    counted_after_breeding : bool
+        D is the number of offspring born (known only after breeding).
+    ceiling : int or None
+        A ceiling's capacity K; None for the other forms.
+    ceiling_on_recruits : bool
+        A ceiling removes recruits only (else anyone).
+    """
+
+    def __init__(self, M, S, C, density: DensityDependence, offspring=None, mutation=None):
+        M, S = np.asarray(M, dtype=float), np.asarray(S, dtype=float)
+        self.M, self.S, self.C = M, S, np.asarray(C, dtype=float)
+        self.density = density
+        self.offspring = Poisson() if offspring is None else offspring
+        self.mutation = Mutation(np.eye(M.shape[0])) if mutation is None else mutation
+        n_alleles, n_ages = M.shape
+        self.n_alleles, self.n_ages = n_alleles, n_ages
+        self.n_classes = n_alleles * n_ages
+        self.fecundity = M.ravel()
+        self.survival = S.ravel()
+        self.juvenile = np.repeat(self.C, n_ages)
+        self.allele_of = np.repeat(np.arange(n_alleles), n_ages)
+        ages = np.tile(np.arange(n_ages), n_alleles)
+        self.aged = self.allele_of * n_ages + np.minimum(ages + 1, n_ages - 1)
+        self.first = np.arange(n_alleles) * n_ages
+        self.weights = density.index_weights(M).ravel().astype(float)
+        self.counted_after_breeding = density.counted_after_breeding
+        self.ceiling = None if density.ceiling is None else int(density.ceiling)
+        self.ceiling_on_recruits = density.acts_on == "recruitment"
+        # (class, allele, m, c) of each class that breeds, as Python numbers (the engines'
+        # per-class loops)
+        self.breeders = [(int(c), int(self.allele_of[c]), float(self.fecundity[c]),
+                          float(self.juvenile[c])) for c in np.flatnonzero(self.fecundity > 0)]
+
+    @classmethod
+    def for_schedule(cls, schedule, density: DensityDependence | None = None,
+                     offspring=None) -> SeasonKernel:
+        """The kernel of one allele alone (the theory's mutant or resident)."""
+        density = density or DensityDependence(NoDensity())
+        return cls(schedule.fecundity[None, :], schedule.survival[None, :],
+                   [schedule.juvenile_survival], density, offspring)
+
+    # -- step 1: density ----------------------------------------------------------------
+    def density_index(self, census) -> np.ndarray | float:
+        """D from a census: counts by class (..., n_classes) or by (allele, age).
+
+        Not for ``counted = "offspring"``, where D is the number born
+        (``birth_factors``).
+        """
+        census = np.asarray(census)
+        if census.shape[-1] != self.n_classes:
+            census = census.reshape(*census.shape[:-2], self.n_classes)
+        return census @ self.weights
+
+    def factors(self, d) -> Factors:
+        """Density factors at index ``d``: a number, or one per replicate (contiguous arrays)."""
+        if np.ndim(d) == 0:
+            return self.density.factors(d)
+        n = np.shape(d)[0]
+        # contiguous float arrays: what the compiled passes take
+        return Factors(*(np.ascontiguousarray(np.broadcast_to(np.asarray(x, dtype=float), (n,)))
+                         for x in self.density.factors(d)))
+
+    def census_factors(self, census, n: int | None = None) -> Factors:
+        """The factors known at the census: from D where D counts the census, else all 1.
+
+        ``census`` is one census by (allele, age) (``n`` None) or counts of
+        ``n`` replicates by class; where D counts births the factors are
+        placed once the births are known (``birth_factors``).
+        """
+        if self.counted_after_breeding:
+            return Factors() if n is None else Factors(np.ones(n), np.ones(n), np.ones(n))
+        if n is None:
+            return self.factors(float(self.density_index(np.ravel(census))))
+        return self.factors(self.density_index(census))
+
+    def birth_factors(self, born) -> Factors:
+        """The factors where D is the number of offspring born (a number or one per replicate)."""
+        return self.factors(float(born) if np.ndim(born) == 0 else np.asarray(born, dtype=float))
+
+    # -- steps 2 to 4: the rates --------------------------------------------------------
+    def multipliers(self, factors: Factors, *, year=None) -> Factors:
+        """The season's multipliers on fecundity, adult survival and recruitment.
+
+        Today the density factors themselves. Seam for variable environments:
+        ``year`` (multipliers on fecundity, adult survival and juvenile
+        survival, one per replicate) multiplies the allele's rates before the
+        density factors apply; the compiled passes already take one multiplier
+        per replicate.
+        """
+        assert year is None, "year types are not part of the model yet"
+        return factors
+
+    def recruitment(self, factors: Factors, *, parent_survived=None, brood=None):
+        """Probability that each offspring of each class recruits at age 1, c f_rec.
+
+        Seam for parental care and brood size: ``parent_survived`` (c_care
+        against c_orphan) and ``brood`` (x exp(-(b - 1) / h)). With neither in
+        the model, recruits of a class are exchangeable and the array engines
+        draw them as one total per class.
+        """
+        assert parent_survived is None and brood is None, "no parental effect in the model yet"
+        return self.juvenile * np.asarray(factors.recruitment)[..., None]
+
+    def rates(self, factors: Factors) -> SeasonRates:
+        """Every class's vital rates at these factors (numbers, or one row per replicate)."""
+        def per(x):
+            return np.asarray(x, dtype=float)[..., None]
+
+        return SeasonRates(self.fecundity * per(factors.fecundity),
+                           self.survival * per(factors.adult), self.recruitment(factors))
+
+    def expected_recruits(self, counts, factors: Factors) -> np.ndarray:
+        """Mean recruits by (replicate, allele) before mutation: sum over classes of n m f_fec c f_rec.
+
+        ``counts`` by (replicate, class), one factor per replicate. Summed
+        class by class (elementwise, so a replicate's value is the same in any
+        batch); under Poisson offspring the recruits are Poisson with this mean.
+        """
+        mean = np.zeros((counts.shape[0], self.n_alleles))
+        for c, allele, fecundity, juvenile in self.breeders:
+            mean[:, allele] += counts[:, c] * (fecundity * factors.fecundity) * (juvenile * factors.recruitment)
+        return mean
+
+    # -- step 5: the ceiling ------------------------------------------------------------
+    def ceiling_excess(self, survivors, recruits):
+        """Individuals a ceiling removes, and the size of the pool they are chosen from.
+
+        ``survivors`` and ``recruits`` are totals (numbers, or one per
+        replicate). The pool is the recruits (acting on recruitment) or
+        everyone (all-survival); without a ceiling nobody is removed.
+        """
+        survivors, recruits = np.asarray(survivors), np.asarray(recruits)
+        if self.ceiling is None:
+            return np.zeros_like(recruits), recruits
+        if self.ceiling_on_recruits:
+            room = np.maximum(self.ceiling - survivors, 0)
+            return np.maximum(recruits - room, 0), recruits
+        pool = survivors + recruits
+        return np.maximum(pool - self.ceiling, 0), pool
+
+    # -- the deterministic (mean-field) season, derived from the rates -------------------
+    def projection_matrix(self, factors: Factors = Factors(), allele: int = 0) -> np.ndarray:
+        """Pre-breeding-census projection matrix of one allele at these factors.
+
+        Notes
+        -----
+        A[0, a] = m(a) f_fec c f_rec; A[a + 1, a] = s(a) f_adult; the plus-group
+        A[L-1, L-1] = s(L-1) f_adult (Caswell 2001, Matrix Population Models,
+        ch. 2).
+        """
+        n = self.n_ages
+        m, s = self.M[allele], self.S[allele]
+        a = np.zeros((n, n))
+        # in this order: ((m f_fec) c) f_rec, the rounding of every version since 0.1
+        a[0, :] = m * factors.fecundity * self.C[allele] * factors.recruitment
+        s = s * factors.adult
+        idx = np.arange(n - 1)
+        a[idx + 1, idx] += s[:-1]
+        a[n - 1, n - 1] += s[-1]
+        return a
+
+    def mean_step(self, census) -> np.ndarray:
+        """One deterministic season for all alleles: census[allele, age] -> next census.
+
+        The ceiling's removal is taken in expectation: recruits (or everyone)
+        scaled down so that the census is K.
+        """
+        census = np.asarray(census, dtype=float)
+        born = (self.M * census).sum()
+        f = self.birth_factors(born) if self.counted_after_breeding else self.census_factors(census)
+        rates = self.rates(f)
+        nxt = np.zeros_like(census)
+        survivors = rates.survival.reshape(census.shape) * census
+        np.add.at(nxt.reshape(-1), self.aged, survivors.ravel())
+        recruits = self.expected_recruits(census.reshape(1, -1), f)[0]
+        excess, pool = self.ceiling_excess(nxt.sum(), recruits.sum())
+        if excess > 0:
+            keep = 1.0 - excess / pool
+            recruits = recruits * keep
+            if not self.ceiling_on_recruits:
+                nxt = nxt * keep
+        nxt[:, 0] += recruits
+        return nxt
+
+    def offspring_pgf(self, s, factors: Factors, allele: int = 0) -> np.ndarray:
+        """G(s): generating function of next season's numbers by age, one entry per parent age.
+
+        Notes
+        -----
+        An individual of class a draws N offspring (pgf P, mean m(a) f_fec);
+        each recruits independently with probability p = c f_rec (thinning:
+        P(1 - p + p s_1)); independently, it survives to the next class with
+        probability sigma = s(a) f_adult::
+
+            G_a(s) = (1 - sigma + sigma s_next(a)) P(1 - p + p s_1; m(a) f_fec)
+
+        (Harris 1963; Athreya & Ney 1972.)
+        """
+        s = np.asarray(s, dtype=float)
+        rates = self.rates(factors)
+        ages = slice(allele * self.n_ages, (allele + 1) * self.n_ages)
+        sigma, p = rates.survival[ages], rates.recruitment[ages]
+        nxt = self.aged[ages] - allele * self.n_ages
+        births = self.offspring.pgf(1.0 - p + p * s[0], rates.breeding[ages])
+        return (1.0 - sigma + sigma * s[nxt]) * births
