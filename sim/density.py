@@ -26,6 +26,8 @@ from typing import NamedTuple
 
 import numpy as np
 
+from .vocabulary import COUNTED, PLACEMENTS
+
 __all__ = [
     "Factors",
     "NoDensity",
@@ -86,8 +88,6 @@ class Ceiling:
 
 
 FORMS = {"none": NoDensity, "beverton-holt": BevertonHolt, "ricker": Ricker, "ceiling": Ceiling}
-PLACEMENTS = ("recruitment", "fecundity", "adult-survival", "all-survival")
-COUNTED = ("census", "breeders", "offspring")
 
 
 @dataclass(frozen=True)

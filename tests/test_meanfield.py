@@ -63,7 +63,7 @@ def test_table_schedule_eigenvalue_matches_scipy():
 
 def test_factors_enter_where_placed():
     schedule = iteroparous("i", 2.0, 0.5, 0.5)
-    # lambda = P f_adult + B f_fec c f_rec, from the matrix definition in DESIGN.md.
+    # lambda = P f_adult + B f_fec c f_rec, from the matrix definition (README, "The model").
     assert growth_rate(schedule, Factors(0.5, 0.8, 0.3)) == pytest.approx(0.5 * 0.8 + 2 * 0.5 * 0.5 * 0.3)
 
 
