@@ -18,6 +18,8 @@ from pathlib import Path
 import numpy as np
 
 from sim.config import Config, ConfigError, parse_config, sweep_points
+from sim.lifecycle import initial_census
+from sim.meanfield import NoEquilibriumError
 from sim.model import BroodModel
 from sim.runner import ReplicateResult, classify, replicate_rng, run_replicate, run_replicates
 from sim.store import ResultsWriter
@@ -127,6 +129,7 @@ class LabSession:
         self.activity = "idle"
         self.error = ""
         self.theory: Theory = page_theory(self.config)
+        self._running_tally: tuple = (None, None)  # (generation, replicates) -> the series
 
     # -- settings ---------------------------------------------------------------------
     def update(self, changes: dict) -> list[str]:
@@ -149,12 +152,16 @@ class LabSession:
             except ConfigError as err:
                 self.problems = list(err.problems)
                 return self.problems
-            self.problems = []
+            try:  # a valid config whose resident has no equilibrium cannot start: say so
+                initial_census(config)
+                self.problems = []
+            except NoEquilibriumError as err:
+                self.problems = [f"invasion.resident_count: {err}; give a number or change the resident"]
             if config != self.config:
                 self.config = config
                 self.theory = page_theory(config)
                 self._discard()
-            return []
+            return self.problems
 
     def _discard(self) -> None:
         self.results, self.lines, self.stepper, self.shown = [], [], None, None
@@ -295,12 +302,17 @@ class LabSession:
     def running_tally(self) -> dict:
         """The fixed fraction and its Wilson interval after each replicate (thinned)."""
         with self._lock:
+            key = (self.generation, len(self.results))
+            if self._running_tally[0] == key:
+                return self._running_tally[1]
             fixed = np.cumsum([r.outcome == "mutant-fixed" for r in self.results])
         n = np.arange(1, fixed.size + 1)
         keep = np.unique(np.linspace(0, n.size - 1, min(n.size, LINE_POINTS)).round().astype(int))
         est = [wilson_interval(int(fixed[i]), int(n[i])) for i in keep]
-        return {"n": n[keep].tolist(), "fraction": [e.fraction for e in est],
-                "low": [e.low for e in est], "high": [e.high for e in est]}
+        out = {"n": n[keep].tolist(), "fraction": [e.fraction for e in est],
+               "low": [e.low for e in est], "high": [e.high for e in est]}
+        self._running_tally = (key, out)
+        return out
 
     def saved_config(self) -> Config:
         """The page's settings as a config whose replicates are the ones run so far."""
