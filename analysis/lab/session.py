@@ -130,6 +130,7 @@ class LabSession:
         self.error = ""
         self.theory: Theory = page_theory(self.config)
         self._running_tally: tuple = (None, None)  # (generation, replicates) -> the series
+        self._intervals: dict[tuple[int, int], FixationEstimate] = {}
 
     # -- settings ---------------------------------------------------------------------
     def update(self, changes: dict) -> list[str]:
@@ -307,12 +308,19 @@ class LabSession:
                 return self._running_tally[1]
             fixed = np.cumsum([r.outcome == "mutant-fixed" for r in self.results])
         n = np.arange(1, fixed.size + 1)
-        keep = np.unique(np.linspace(0, n.size - 1, min(n.size, LINE_POINTS)).round().astype(int))
-        est = [wilson_interval(int(fixed[i]), int(n[i])) for i in keep]
+        stride = -(-n.size // LINE_POINTS)  # every stride-th replicate and the last: stable as runs grow
+        keep = np.unique(np.r_[np.arange(0, n.size, stride), n.size - 1]) if n.size else n
+        est = [self._wilson(int(fixed[i]), int(n[i])) for i in keep]
         out = {"n": n[keep].tolist(), "fraction": [e.fraction for e in est],
                "low": [e.low for e in est], "high": [e.high for e in est]}
         self._running_tally = (key, out)
         return out
+
+    def _wilson(self, fixed: int, n: int) -> FixationEstimate:
+        # kept: the running series asks again for the same points at every refresh
+        if (fixed, n) not in self._intervals:
+            self._intervals[(fixed, n)] = wilson_interval(fixed, n)
+        return self._intervals[(fixed, n)]
 
     def saved_config(self) -> Config:
         """The page's settings as a config whose replicates are the ones run so far."""

@@ -141,16 +141,19 @@ function drawCensus(v) {
   const census = shown.census, nAges = census[0].length, nAlleles = census.length;
   const top = Math.max(1, ...census.flat());
   const xticks = [...Array(nAges).keys()].map((a) => ({ v: a + 0.5, label: a === nAges - 1 ? `${a + 1}+` : `${a + 1}` }));
-  const f = frame(svg, { xlo: 0, xhi: nAges, ylo: 0, yhi: top * 1.12, xlabel: "age", ylabel: "individuals", xticks });
+  const f = frame(svg, { xlo: 0, xhi: nAges, ylo: 0, yhi: top * 1.12, xlabel: "age", ylabel: "individuals", xticks,
+                         m: { l: 52, r: 12, t: 24, b: 36 } });
   const slot = (f.x(1) - f.x(0)) * 0.8 / nAlleles;
   census.forEach((row, i) => row.forEach((count, a) => {
     const x0 = f.x(a + 0.1) + i * slot;
     el("rect", { x: x0, y: f.y(count), width: slot - 2, height: f.y(0) - f.y(count), fill: ALLELE_COLOURS[i % 4] }, f.g);
     el("text", { x: x0 + slot / 2, y: f.y(count) - 3, "text-anchor": "middle" }, f.g, String(count));
   }));
-  v.alleles.forEach((name, i) => {
-    el("rect", { x: f.w - 150, y: 14 + 15 * i, width: 10, height: 10, fill: ALLELE_COLOURS[i % 4] }, f.g);
-    el("text", { x: f.w - 135, y: 23 + 15 * i }, f.g, name);
+  let lx = f.m.l + 8;
+  v.alleles.forEach((name, i) => {  // legend in the top margin, clear of the bars
+    el("rect", { x: lx, y: 5, width: 10, height: 10, fill: ALLELE_COLOURS[i % 4] }, f.g);
+    el("text", { x: lx + 14, y: 14 }, f.g, name);
+    lx += 24 + 7 * name.length;
   });
   $("census-title").textContent = `census by allele and age: replicate ${shown.replicate}, season ${shown.season}`;
 }
@@ -233,6 +236,8 @@ function receive(v) {
   drawCensus(v);
   drawFrequencies(v);
   drawTally(v);
+  window.labDraws = (window.labDraws || 0) + 1;  // for timing scripts: when the last answer was drawn
+  window.labDrawnAt = performance.now();
   if (v.running && !polling) poll();
 }
 
