@@ -101,6 +101,15 @@ def test_invalid_settings_block_runs_and_a_fix_restores_them(session):
     assert session.config.allele[1].breeding == "iteroparous" and session.step_season()
 
 
+def test_a_table_schedule_is_edited_as_comma_separated_ages():
+    s = LabSession(load_config("configs/cinderwort-ages.toml"))
+    assert s.view()["settings"]["resident.fecundity"] == [0.0, 1.5, 3.0, 4.0]
+    assert s.update({"resident.fecundity": "0, 1.5, 3"}) == [
+        "allele[0].adult_survival: table lists must be of equal length; fecundity has 3 ages, adult_survival 4"]
+    assert s.update({"resident.adult_survival": "0.6, 0.7, 0.6"}) == []
+    assert s.config.allele[0].fecundity == [0.0, 1.5, 3.0]
+
+
 def test_a_resident_without_equilibrium_blocks_runs(session):
     # semelparous resident with B c = 2 x 0.5 = 1: growth rate 1 at low density, no equilibrium
     problems = session.update({"resident.breeding": "semelparous"})
@@ -258,3 +267,23 @@ def test_lab_command_refuses_bad_input(tmp_path, capsys):
     assert "needs an [invasion] table" in capsys.readouterr().err
     with pytest.raises(SystemExit):
         main(["lab", "--port", "70000"])
+
+
+def test_lab_command_serves_on_loopback_and_prints_the_address(tmp_path):
+    import json
+    import re
+    import subprocess
+    import sys
+    import urllib.request
+
+    proc = subprocess.Popen([sys.executable, "-m", "sim", "lab", "configs/demo.toml", "--no-browser", "--port", "0",
+                             "-o", str(tmp_path)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    try:
+        line = proc.stdout.readline()
+        url = re.search(r"http://127\.0\.0\.1:\d+/", line).group(0)
+        assert "<title>broodline lab</title>" in urllib.request.urlopen(url, timeout=30).read().decode()
+        view = json.loads(urllib.request.urlopen(url + "api/view", timeout=30).read())
+        assert view["mutant"] == "one-shot" and view["settings"]["density.capacity"] == 100.0
+    finally:
+        proc.terminate()
+        proc.wait(timeout=30)

@@ -6,14 +6,12 @@ replicates run through the Python API; screenshots go to the test's tmp dir.
 """
 
 import shutil
-import subprocess
-import sys
-from pathlib import Path
 
 import pytest
 
 from analysis import predict, wilson_interval
 from analysis.lab import LabServer, LabSession
+from sim.cli import main
 from sim.config import load_config, parse_config, sweep_points
 from sim.runner import run_replicates
 from sim.store import read_replicates
@@ -116,9 +114,7 @@ def test_the_page_runs_replicates_and_saves_what_broodline_runs(page, lab, tmp_p
     page.click("#btn-save")
     page.wait_for_selector("#save-msg[data-saved='true']")
     toml, h5 = tmp_path / "from-page.toml", tmp_path / "from-page.h5"
-    check = subprocess.run([sys.executable, "-m", "sim", "check", str(toml)], capture_output=True, text=True,
-                           cwd=Path(__file__).parents[1])
-    assert check.returncode == 0, check.stderr
+    assert main(["check", str(toml)]) == 0  # `python -m sim check` (in this process: no second start-up)
     saved = read_replicates(h5)
     assert saved["outcome"].tolist() == [r.outcome for r in results]
     assert saved["steps"].tolist() == [r.steps for r in results]

@@ -37,7 +37,7 @@ class Control:
     choices: tuple = ()
 
 
-_BREEDING = ("iteroparous", "semelparous")
+_BREEDING = ("iteroparous", "semelparous", "table")
 _SCHEDULE = [("breeding", "breeding", "choice", _BREEDING), ("fecundity", "fecundity", "number", ()),
              ("adult_survival", "adult survival", "number", ()),
              ("juvenile_survival", "juvenile survival", "number", ()),
@@ -83,12 +83,15 @@ def _allele(raw: dict, who: str) -> dict:
 
 
 def typed(text):
-    """A value typed on the page as TOML would give it: int, float, string, or None for empty."""
+    """A value typed on the page as TOML would give it: int, float, string, a list of them
+    (comma-separated, for a table schedule's ages), or None for empty."""
     if not isinstance(text, str):
         return text
     text = text.strip()
     if text == "":
         return None
+    if "," in text:
+        return [typed(part) for part in text.strip("[]").split(",")]
     for kind in (int, float):
         try:
             return kind(text)

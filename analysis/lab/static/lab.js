@@ -65,7 +65,7 @@ function showControls(v) {
   $("name-mutant").textContent = v.mutant;
   for (const [key, value] of Object.entries(v.settings)) {
     const input = $(idOf(key));
-    if (input && document.activeElement !== input) input.value = value === null ? "" : value;
+    if (input && document.activeElement !== input) input.value = value === null ? "" : (Array.isArray(value) ? value.join(", ") : value);
     const row = $("row-" + idOf(key));
     if (row) { row.classList.remove("bad"); row.querySelector(".msg").textContent = ""; }
   }
