@@ -287,3 +287,23 @@ def test_lab_command_serves_on_loopback_and_prints_the_address(tmp_path):
     finally:
         proc.terminate()
         proc.wait(timeout=30)
+
+
+def test_the_finite_n_hook_reaches_the_page(session, monkeypatch):
+    import sys
+    import types
+
+    from analysis.lab.theory import FiniteN, page_theory
+
+    assert session.theory.finite_n is None or isinstance(session.theory.finite_n, FiniteN)
+    fake = types.ModuleType("analysis.fixation")
+    fake.finite_population_prediction = lambda config: types.SimpleNamespace(
+        fixation_probability=config.density.capacity / 1000, valid=True, fixation_probability_note="a note")
+    monkeypatch.setitem(sys.modules, "analysis.fixation", fake)
+    assert page_theory(session.config).finite_n == FiniteN(0.05, True, "a note")  # K = 50 in the base config
+
+    def refuse(config):
+        raise ValueError("no regulated census")
+
+    fake.finite_population_prediction = refuse
+    assert page_theory(session.config).finite_n.note == "no regulated census"

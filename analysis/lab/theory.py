@@ -17,7 +17,7 @@ from sim.meanfield import NoEquilibriumError
 from ..invasion import predict
 from ..thresholds import threshold
 
-__all__ = ["ClosedForm", "Theory", "closed_form_threshold", "finite_n_prediction", "page_theory"]
+__all__ = ["ClosedForm", "FiniteN", "Theory", "closed_form_threshold", "finite_n_prediction", "page_theory"]
 
 
 @dataclass(frozen=True)
@@ -74,25 +74,31 @@ def closed_form_threshold(config: Config) -> ClosedForm | None:
     return ClosedForm("B_s* = B_i + P / c", f"{b:g} + {p:g} / {c:g}", b + p / c, source)
 
 
-def finite_n_prediction(config: Config) -> tuple[float, str] | None:
-    """The fixation probability of the introduced mutants in a finite population, if available.
+@dataclass(frozen=True)
+class FiniteN:
+    """The finite-population fixation probability, whether it may be trusted here, and why."""
 
-    The hook for the analysis layer's finite-population prediction: when
-    ``analysis`` exports ``fixation_probability(config)`` (returning a number,
-    or an object with ``value`` and optionally ``note``), the page draws it
-    beside the establishment probability. Returns (value, note) or None.
+    value: float
+    valid: bool
+    note: str
+
+
+def finite_n_prediction(config: Config) -> FiniteN | None:
+    """The analysis layer's finite-population prediction, where that layer provides one.
+
+    The hook: ``analysis.fixation.finite_population_prediction(config)``
+    (its ``fixation_probability``, ``valid`` and ``fixation_probability_note``).
+    None where the module is absent (the page then says "not available").
     """
-    import analysis
-
-    compute = getattr(analysis, "fixation_probability", None)
-    if compute is None:
+    try:
+        from ..fixation import finite_population_prediction
+    except ImportError:
         return None
     try:
-        result = compute(config)
-    except (ValueError, NoEquilibriumError) as err:
-        return None if not str(err) else (math.nan, str(err))
-    value = float(getattr(result, "value", result))
-    return value, str(getattr(result, "note", "finite-N prediction"))
+        f = finite_population_prediction(config)
+    except ValueError as err:  # NoEquilibriumError among them
+        return FiniteN(math.nan, False, str(err))
+    return FiniteN(float(f.fixation_probability), bool(f.valid), str(f.fixation_probability_note))
 
 
 @dataclass(frozen=True)
@@ -104,7 +110,7 @@ class Theory:
     threshold: float
     threshold_message: str
     closed_form: ClosedForm | None
-    finite_n: tuple[float, str] | None
+    finite_n: FiniteN | None
     problem: str = ""
 
     def as_dict(self) -> dict:

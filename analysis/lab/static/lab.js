@@ -14,6 +14,7 @@ let polling = false;
 
 const $ = (id) => document.getElementById(id);
 const idOf = (key) => "ctl-" + key.replace(".", "-");
+const esc = (text) => String(text).replace(/[&<>"]/g, (c) => ({ "&": "&amp;", "<": "&lt;", ">": "&gt;", '"': "&quot;" })[c]);
 const fmt = (x, d = 3) => (x === null || x === undefined || Number.isNaN(x)) ? "–" : Number(x).toFixed(d);
 
 async function call(method, path, body) {
@@ -176,7 +177,7 @@ function drawTally(v) {
   const t = v.tally, rt = v.running_tally, th = v.theory, p = th.prediction || {};
   const refs = [["establishment", p.establishment_probability, "#1a9850"],
                 ["neutral", p.neutral_expectation, "#555"]];
-  if (th.finite_n) refs.push(["finite N", th.finite_n[0], "#7b3294"]);
+  if (th.finite_n && th.finite_n.valid) refs.push(["finite N", th.finite_n.value, "#7b3294"]);
   const values = [...rt.high, ...refs.map((r) => r[1]).filter((x) => x !== null && x !== undefined)];
   const yhi = Math.min(1, Math.max(0.05, ...values) * 1.15);
   const f = frame($("chart-tally"), { xlo: 0, xhi: Math.max(10, t.n), ylo: 0, yhi, xlabel: "replicates",
@@ -207,19 +208,21 @@ function drawTheory(v) {
   const cells = [];
   const add = (label, id, text) => cells.push(`<div>${label}: <b id="${id}">${text}</b></div>`);
   if (!p) {
-    box.innerHTML = `<div class="error" id="theory-problem">${th.problem}</div>`;
+    box.innerHTML = `<div class="error" id="theory-problem">${esc(th.problem)}</div>`;
     return;
   }
   add("invasion fitness", "th-fitness", fmt(p.invasion_fitness, 4));
-  add("verdict", "th-verdict", p.verdict);
+  add("verdict", "th-verdict", esc(p.verdict));
   add("threshold " + th.parameter.split(".").pop(), "th-threshold", fmt(th.threshold, 4));
   add("establishment probability", "th-establishment", fmt(p.establishment_probability, 4));
   add("neutral expectation", "th-neutral", fmt(p.neutral_expectation, 4));
-  add("finite-N prediction", "th-finite", th.finite_n ? fmt(th.finite_n[0], 4) : "not available");
+  const fn = th.finite_n;
+  add("finite-N prediction", "th-finite", !fn ? "not available" : (fn.valid ? fmt(fn.value, 4) : "not valid here"));
+  if (fn) cells.push(`<div style="grid-column: 1 / 4" id="th-finite-note">finite N: ${esc(fn.note)}</div>`);
   const cf = th.closed_form;
-  const closed = cf ? `${cf.formula} = ${cf.worked} = ${fmt(cf.value, 4)} (${cf.source})` : "no closed form for these schedules";
+  const closed = esc(cf ? `${cf.formula} = ${cf.worked} = ${fmt(cf.value, 4)} (${cf.source})` : "no closed form for these schedules");
   cells.push(`<div style="grid-column: 1 / 4">closed form: <b id="th-closed">${closed}</b></div>`);
-  if (!cf) cells.push(`<div style="grid-column: 1 / 4" id="th-message">${th.threshold_message}</div>`);
+  if (!cf) cells.push(`<div style="grid-column: 1 / 4" id="th-message">${esc(th.threshold_message)}</div>`);
   box.innerHTML = cells.join("");
 }
 
