@@ -77,6 +77,15 @@ def _thin(steps: np.ndarray, values: np.ndarray) -> tuple[list, list]:
     return steps.tolist(), [None if not np.isfinite(v) else round(float(v), 4) for v in values]
 
 
+def _cannot_start(config: Config) -> list[str]:
+    """Why a valid config cannot start (its resident has no equilibrium), or nothing."""
+    try:
+        initial_census(config)
+    except NoEquilibriumError as err:
+        return [f"invasion.resident_count: {err}; give a number or change the resident"]
+    return []
+
+
 class _Stepper:
     """The replicate being advanced a season at a time, with the stop rule of ``run_replicate``."""
 
@@ -120,7 +129,7 @@ class LabSession:
         self._worker: threading.Thread | None = None
         self.raw = page_raw(config)
         self.config = parse_config(self.raw)
-        self.problems: list[str] = []
+        self.problems: list[str] = _cannot_start(self.config)
         self.generation = 0  # bumped when the replicates are discarded (reset, new settings)
         self.results: list[ReplicateResult] = []
         self.lines: list[dict] = []
@@ -153,11 +162,7 @@ class LabSession:
             except ConfigError as err:
                 self.problems = list(err.problems)
                 return self.problems
-            try:  # a valid config whose resident has no equilibrium cannot start: say so
-                initial_census(config)
-                self.problems = []
-            except NoEquilibriumError as err:
-                self.problems = [f"invasion.resident_count: {err}; give a number or change the resident"]
+            self.problems = _cannot_start(config)
             if config != self.config:
                 self.config = config
                 self.theory = page_theory(config)
