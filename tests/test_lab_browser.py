@@ -126,8 +126,9 @@ def test_stop_and_reset(page):
     page.wait_for_function("document.querySelector('#btn-replicates').textContent === '2000 replicates'")
     page.click("#btn-replicates")
     page.wait_for_function("document.querySelector('#status').dataset.running === 'true'")
-    set_control(page, "mutant.fecundity", "4.5")  # a control moved while running: the run stops
+    set_control(page, "mutant.fecundity", "3.5")  # a control moved while running: the run stops
     page.wait_for_function(IDLE + " && document.querySelector('#tally-n').textContent === '0'")
+    assert text(page, "#th-verdict") == "does not invade"  # below the threshold 4 (Mylius & Diekmann 1995)
     page.click("#btn-replicates")
     page.wait_for_function("+document.querySelector('#tally-n').textContent > 0")
     page.click("#btn-stop")

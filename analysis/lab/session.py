@@ -206,10 +206,9 @@ class LabSession:
 
     def _show_stepper(self) -> None:
         s = self.stepper
+        steps, freq = _thin(np.asarray(s.steps), np.asarray(s.freq))
         self.shown = {"replicate": s.replicate, "season": s.model.season, "census": s.census.tolist(),
-                      "line": {"replicate": s.replicate, "steps": s.steps[-LINE_POINTS:],
-                               "freq": [None if not np.isfinite(v) else round(v, 4)
-                                        for v in s.freq[-LINE_POINTS:]]}}
+                      "line": {"replicate": s.replicate, "steps": steps, "freq": freq}}
 
     def _finish_stepper(self) -> None:
         # the record of the replicate is run_replicate's own (same stream, so the same replicate)
