@@ -3,10 +3,10 @@
 import copy
 import tomllib
 
-import h5py
 import numpy as np
 import pytest
 from conftest import BASE, make_config
+from runs_support import assert_same_datasets
 
 from analysis import predict, threshold, wilson_interval
 from analysis.lab.controls import control_of, controls
@@ -25,21 +25,6 @@ from sim.config import (
     sweep_points,
 )
 from sim.runner import run_replicate, run_replicates
-
-
-def datasets(path) -> dict:
-    """Every dataset of an HDF5 file by name (attributes hold times and versions: left out)."""
-    out = {}
-    with h5py.File(path, "r") as f:
-        f.visititems(lambda name, obj: out.__setitem__(name, obj[()]) if isinstance(obj, h5py.Dataset) else None)
-    return out
-
-
-def assert_same_datasets(a, b) -> None:
-    x, y = datasets(a), datasets(b)
-    assert sorted(x) == sorted(y)
-    for name in x:
-        assert x[name].dtype == y[name].dtype and np.array_equal(x[name], y[name]), name
 
 
 @pytest.fixture
@@ -276,8 +261,11 @@ def test_lab_command_serves_on_loopback_and_prints_the_address(tmp_path):
     import sys
     import urllib.request
 
+    from runs_support import ROOT, env
+
     proc = subprocess.Popen([sys.executable, "-m", "sim", "lab", "configs/demo.toml", "--no-browser", "--port", "0",
-                             "-o", str(tmp_path)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+                             "-o", str(tmp_path)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            cwd=ROOT, env=env())
     try:
         line = proc.stdout.readline()
         url = re.search(r"http://127\.0\.0\.1:\d+/", line).group(0)
