@@ -252,6 +252,14 @@ def test_lab_command_refuses_bad_input(tmp_path, capsys):
     assert "needs an [invasion] table" in capsys.readouterr().err
     with pytest.raises(SystemExit):
         main(["lab", "--port", "70000"])
+    import socket
+
+    with socket.socket() as taken:
+        taken.bind(("127.0.0.1", 0))
+        taken.listen()
+        port = taken.getsockname()[1]
+        assert main(["lab", "--port", str(port), "--no-browser", "-o", str(tmp_path)]) == 2
+    assert f"--port {port}: cannot listen on 127.0.0.1" in capsys.readouterr().err
 
 
 def test_lab_command_serves_on_loopback_and_prints_the_address(tmp_path):
