@@ -191,7 +191,8 @@ function drawTally(v) {
     if (value === null || value === undefined) return;
     el("line", { x1: f.m.l, x2: f.w - f.m.r, y1: f.y(value), y2: f.y(value), stroke: colour, "stroke-dasharray": "6 3",
                  "stroke-width": 1.5 }, f.g);
-    el("text", { x: f.w - f.m.r - 4, y: f.y(value) - 3 - (i === 1 ? 0 : 0), "text-anchor": "end", fill: colour }, f.g,
+    const above = f.y(value) - 3, below = f.y(value) + 12;  // below the line where it runs along the top
+    el("text", { x: f.w - f.m.r - 4 - 110 * (i === 2), y: above < 12 ? below : above, "text-anchor": "end", fill: colour }, f.g,
        `${name} ${fmt(value)}`);
   });
   $("tally").innerHTML = "";
