@@ -285,3 +285,7 @@ def register(sub) -> None:
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--overwrite", action="store_true", help="replace an existing report")
     p.set_defaults(func=cmd_report)
+
+    from .lab import register as register_lab  # `broodline lab` (analysis/lab/command.py)
+
+    register_lab(sub)
