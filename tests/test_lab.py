@@ -24,7 +24,7 @@ from sim.config import (
     parse_config,
     sweep_points,
 )
-from sim.runner import run_replicate, run_replicates
+from sim.replicates import run_replicate, run_replicates
 
 
 @pytest.fixture

@@ -13,7 +13,8 @@ from runs_support import assert_same_datasets, cli
 from analysis import predict, wilson_interval
 from analysis.lab import LabServer, LabSession
 from sim.config import load_config, parse_config, sweep_points
-from sim.runner import run_experiment, run_replicates
+from sim.experiment import run_experiment
+from sim.replicates import run_replicates
 from sim.store import read_replicates
 
 sync_api = pytest.importorskip("playwright.sync_api", reason="needs Playwright: pip install '.[test]'")

@@ -22,7 +22,7 @@ import threading
 import time
 import urllib.request
 
-from ..commands import jsonable
+from ..jsonable import jsonable
 
 TARGETS = {"season": 0.100, "replicates": 10.0}
 # in the page: press "one season", wait until the answer is drawn; milliseconds
@@ -35,7 +35,7 @@ _CLICK_TO_DRAWN = """async () => {
 
 
 def _session(capacity: int, replicates: int):
-    from sim.cli import demo_config_path
+    from sim.config import demo_config_path
     from sim.config import load_config
 
     from .session import LabSession

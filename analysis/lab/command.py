@@ -9,8 +9,8 @@ __all__ = ["register", "cmd_lab"]
 
 
 def cmd_lab(args) -> int:
-    from sim.cli import UserError, demo_config_path
-    from sim.config import load_config
+    from sim.config import demo_config_path, load_config
+    from sim.errors import UserError
 
     from .server import LabServer
     from .session import LabSession

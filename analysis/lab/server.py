@@ -28,7 +28,7 @@ from urllib.parse import parse_qs, urlparse
 
 from sim.config import ConfigError
 
-from ..commands import jsonable
+from ..jsonable import jsonable
 from .controls import controls
 from .session import LabSession
 

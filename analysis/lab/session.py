@@ -21,7 +21,8 @@ from sim.config import Config, ConfigError, parse_config, sweep_points
 from sim.lifecycle import initial_census
 from sim.meanfield import NoEquilibriumError
 from sim.model import BroodModel
-from sim.runner import ReplicateResult, classify, replicate_rng, run_replicate, run_replicates
+from sim.outcomes import OUTCOMES, classify
+from sim.replicates import ReplicateResult, replicate_rng, run_replicate, run_replicates
 from sim.store import ResultsWriter
 
 from ..estimates import FixationEstimate, wilson_interval
@@ -96,7 +97,7 @@ class _Stepper:
         self.census = self.model.census()
         self.mutant = config.allele_index(config.invasion.mutant)
         self.steps, self.freq = [0], [float(mutant_frequency(self.census[None], self.mutant)[0])]
-        self.state, _ = classify(self.census.sum(axis=1), config)
+        self.state = _state(self.census, config)
 
     @property
     def finished(self) -> bool:
@@ -108,7 +109,7 @@ class _Stepper:
     def step(self) -> None:
         self.model.step()
         self.census = self.model.census()
-        self.state, _ = classify(self.census.sum(axis=1), self.config)
+        self.state = _state(self.census, self.config)
         self.steps.append(self.model.season)
         self.freq.append(float(mutant_frequency(self.census[None], self.mutant)[0]))
 
@@ -395,3 +396,9 @@ class LabSession:
                 "running_tally": self.running_tally(),
                 "theory": self.theory.as_dict(),
             }
+
+
+def _state(census: np.ndarray, config) -> str:
+    """The outcome name of one census (counts by allele and age)."""
+    states, _ = classify(census.sum(axis=1)[None], config)
+    return OUTCOMES[int(states[0])]
