@@ -164,41 +164,9 @@ def cmd_compare(args) -> int:
 
 
 def _print_compare(table, thresholds) -> None:
-    from .comparison import SHOWN_COLUMNS
+    from .comparison import compare_text
 
-    swept = [
-        c
-        for c in table.columns[1:]
-        if c not in SHOWN_COLUMNS
-        and c
-        not in (
-            "mutant_lost",
-            "unresolved",
-            "density_index",
-            "census_size",
-            "resident_growth_rate",
-            "mutant_growth_rate",
-            "problem",
-        )
-    ]
-    shown = table[["point", *swept, *SHOWN_COLUMNS]].rename(
-        columns={
-            "replicates": "reps",
-            "mutant_fixed": "fixed",
-            "fixed_fraction": "fraction",
-            "fixed_low": "low95",
-            "fixed_high": "high95",
-            "invasion_fitness": "fitness",
-            "establishment_probability": "establish",
-            "neutral_expectation": "neutral",
-        }
-    )
-    _print_table(shown)
-    for r in thresholds.itertuples():
-        at = f" at {r.at}" if r.at != "{}" else ""
-        print(f"\n{r.parameter}{at}:")
-        print(f"  analytic: {r.analytic_message}")
-        print(f"  observed: {r.observed_message}")
+    print(compare_text(table, thresholds))
 
 
 # -- plot and report --------------------------------------------------------------------

@@ -35,9 +35,16 @@ THRESHOLD_KEYS = {
 COMPARE_KEYS = {
     "point",
     "replicates",
-    "mutant_fixed",
-    "mutant_lost",
-    "unresolved",
+    "mutant-fixed",  # one name per outcome: as in the results file and the run table
+    "mutant-lost",
+    "extinct",
+    "undecided",
+    "capped",
+    "capped_rising",
+    "counted",
+    "established",
+    "left_out",
+    "missing",
     "fixed_fraction",
     "fixed_low",
     "fixed_high",
@@ -46,6 +53,8 @@ COMPARE_KEYS = {
     "establishment_probability",
     "neutral_expectation",
     "agreement",
+    "reason",
+    "prediction",
 }
 COMPARE_THRESHOLD_KEYS = {
     "parameter",
@@ -56,6 +65,7 @@ COMPARE_THRESHOLD_KEYS = {
     "observed_low",
     "observed_high",
     "observed_message",
+    "observed_add_points",
     "analytic_in_interval",
 }
 
@@ -165,7 +175,9 @@ def test_plot_and_report(results, tmp_path, capsys):
     figs = tmp_path / "figs"
     assert main(["plot", str(results), "-o", str(figs)]) == 0
     assert sorted(p.name for p in figs.iterdir()) == sorted(
-        f"{n}.{e}" for n in ("fixation", "trajectories", "invasion_fitness") for e in ("png", "svg")
+        f"{n}.{e}"
+        for n in ("fixation", "trajectories", "outcomes", "invasion_fitness")
+        for e in ("png", "svg")
     )
     assert main(["plot", str(results), "-o", str(figs)]) == 2
     assert "pass --overwrite" in capsys.readouterr().err
