@@ -37,15 +37,6 @@ def _records(table) -> list[dict]:
     return [jsonable(r) for r in table.to_dict(orient="records")]
 
 
-def _print_table(table) -> None:
-    import pandas as pd
-
-    with pd.option_context(
-        "display.width", 160, "display.max_columns", 30, "display.float_format", "{:.4g}".format
-    ):
-        print(table.to_string(index=False))
-
-
 def _results(path) -> Path:
     """Check a results file exists and is ours before any work (clear message, exit 2)."""
     from sim.store import read_attrs
@@ -121,36 +112,40 @@ def cmd_threshold(args) -> int:
         )
         return 0
     print(f"resident {result['resident']!r}, mutant {result['mutant']!r}")
-    points = result["points"].rename(
-        columns={
-            "density_index": "D*",
-            "census_size": "census",
-            "resident_growth_rate": "lambda_res",
-            "mutant_growth_rate": "lambda_mut",
-            "invasion_fitness": "fitness",
-            "establishment_probability": "establish",
-            "neutral_expectation": "neutral",
-        }
-    )
-    if points["problem"].eq("").all():
-        points = points.drop(columns="problem")
-    _print_table(points)
+    from .comparison import threshold_lines, theory_table_text
+
+    print(theory_table_text(result["points"]))
     if result["thresholds"]:
         print("\nthresholds:")
-        for t in result["thresholds"]:
-            at = f" (at {', '.join(f'{k} = {v}' for k, v in t.at.items())})" if t.at else ""
-            print(f"  {t.message}{at}")
+        for line in threshold_lines(config, result["thresholds"]):
+            print(f"  {line}")
     return 0
 
 
 # -- compare --------------------------------------------------------------------------
+def _warn_incomplete(command: str, path) -> None:
+    """One plain warning line on stderr for a results file that is not complete."""
+    import sys
+
+    from .comparison import incomplete_message
+
+    message = incomplete_message(path)
+    if message:
+        print(f"broodline {command}: warning: {message}", file=sys.stderr)
+
+
 def cmd_compare(args) -> int:
-    from .comparison import compare, compare_thresholds
+    import warnings
+
+    from .comparison import IncompleteResultsWarning, compare, compare_thresholds
 
     path = _results(args.results)
     if args.csv:
         _free([args.csv], args.overwrite)
-    table = compare(path)
+    _warn_incomplete("compare", path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", IncompleteResultsWarning)
+        table = compare(path)
     thresholds = compare_thresholds(path, table)
     if args.csv:
         table.to_csv(args.csv, index=False)
@@ -188,11 +183,18 @@ def cmd_plot(args) -> int:
 
 
 def cmd_report(args) -> int:
+    import warnings
+
+    from .comparison import IncompleteResultsWarning
     from .reporting import report
 
     path = _results(args.results)
     _free([args.output], args.overwrite)
-    print(f"report written to {report(path, args.output)}")
+    _warn_incomplete("report", path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", IncompleteResultsWarning)
+        written = report(path, args.output)
+    print(f"report written to {written}")
     return 0
 
 
@@ -209,7 +211,8 @@ def finish_demo(results, out_dir) -> Path:
     page = report(
         results, out_dir / "report.html", figures_dir=out_dir, table=table, thresholds=thresholds
     )
-    print(f"\nFigures: {out_dir}/fixation.png, trajectories.png, invasion_fitness.png (and .svg)")
+    names = ", ".join(f"{p.name}" for p in sorted(out_dir.glob("*.png")))
+    print(f"\nFigures: {out_dir}/ {names} (and .svg)")
     print(f"Report:  {page}")
     return page
 
@@ -246,13 +249,13 @@ def register(sub) -> None:
     p.set_defaults(func=cmd_compare)
 
     p = sub.add_parser("plot", help="figures of a results file (PNG and SVG)")
-    p.add_argument("results", help="results file (.h5) of an invasion experiment")
+    p.add_argument("results", help="results file (.h5), with or without [invasion]")
     p.add_argument("-o", "--output", required=True, help="folder for the figures")
     p.add_argument("--overwrite", action="store_true", help="replace existing figures")
     p.set_defaults(func=cmd_plot)
 
     p = sub.add_parser("report", help="a self-contained HTML report of a results file")
-    p.add_argument("results", help="results file (.h5) of an invasion experiment")
+    p.add_argument("results", help="results file (.h5), with or without [invasion]")
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--overwrite", action="store_true", help="replace an existing report")
     p.set_defaults(func=cmd_report)

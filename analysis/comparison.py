@@ -506,3 +506,43 @@ def compare_text(table: pd.DataFrame, thresholds: pd.DataFrame, *, width: int = 
         lines.append(f"  analytic: {r.analytic_message}")
         lines.append(f"  observed: {r.observed_message}")
     return "\n".join(lines)
+
+
+_THEORY_HEADERS = {
+    "density_index": "D*",
+    "census_size": "census",
+    "resident_growth_rate": "lambda res",
+    "mutant_growth_rate": "lambda mut",
+    "invasion_fitness": "invasion fitness",
+    "verdict": "theory says",
+    "establishment_probability": "establishment",
+    "neutral_expectation": "neutral",
+}
+THEORY_LEGEND = (
+    "D*: the resident's equilibrium density index; census: its census size; lambda res, lambda "
+    "mut: growth rates there; establishment: the branching-process chance that the mutants "
+    "escape early loss; neutral: a neutral mutant's fixation probability."
+)
+
+
+def theory_table_text(points: pd.DataFrame, *, width: int = 100) -> str:
+    """The ``threshold`` command's table of predictions, with plain headers and a legend."""
+    shown = points.rename(columns=_THEORY_HEADERS)
+    if shown["problem"].eq("").all():
+        shown = shown.drop(columns="problem")
+    for c in _THEORY_HEADERS.values():
+        if c in shown and shown[c].dtype.kind == "f":
+            shown[c] = shown[c].map(lambda v: f"{v:.4g}" if np.isfinite(v) else "-")
+    swept = [c for c in points.columns[1:] if c not in _THEORY_HEADERS and c != "problem"]
+    for c in swept:
+        shown[c] = shown[c].map(lambda v: f"{v:g}" if isinstance(v, float) else str(v))
+    return "\n".join([shown.to_string(index=False), *textwrap.wrap(THEORY_LEGEND, width=width)])
+
+
+def threshold_lines(config: Config, results) -> list[str]:
+    """Each analytic threshold in words, rounded, with its closed form and the other swept values."""
+    out = []
+    for t in results:
+        at = f" (at {_at_words(t.at)})" if t.at else ""
+        out.append(_analytic_words(t, closed_form(config, t.parameter, t.at)) + at)
+    return out

@@ -113,7 +113,12 @@ def test_threshold_text(config, capsys):
     out = capsys.readouterr().out
     assert "resident 'perennial', mutant 'one-shot'" in out
     # Charnov & Schaffer (1973) with density on all survival: B_i + P / c = 3
-    assert "allele.one-shot.fecundity = 3: the mutant invades above it" in out
+    assert (
+        "allele.one-shot.fecundity = 3 (B_s = B_i + P / c = 2 + 0.5 / 0.5 = 3): "
+        "the mutant invades above it" in out
+    )
+    # plain words: the abbreviations come with a legend below the table
+    assert "D*: the resident's equilibrium density index" in out
 
 
 def test_threshold_json(config, capsys):

@@ -9,6 +9,7 @@ from scipy.optimize import brentq
 from analysis import agreement, compare, compare_thresholds
 from analysis.comparison import (
     COMPARE_COLUMNS,
+    IncompleteResultsWarning,
     PredictedFixation,
     SideOfNeutral,
     judge,
@@ -175,3 +176,35 @@ def test_capped_falling_replicates_are_never_losses(tmp_path):
     assert row["left_out"] == row["capped"] - row["capped_rising"]
     assert row["counted"] == row["mutant-lost"] + row["mutant-fixed"] + row["extinct"]
     assert row["agreement"] == "inconclusive"  # not "agrees" on losses that were not losses
+
+
+def test_a_stopped_file_is_warned_about(tmp_path, monkeypatch, capsys):
+    # Stop a run after its first batch (as Ctrl-C would): compare warns that the file is
+    # incomplete, and a point without replicates is inconclusive with the reason, not
+    # "no replicates" (a value the README does not list).
+    import sim.runner as runner
+
+    update = runner._Progress.update
+
+    def stop_after_first(self, batch, results):
+        update(self, batch, results)
+        runner.request_stop()
+
+    monkeypatch.setattr(runner._Progress, "update", stop_after_first)
+    config = invasion_config(replicates=10, capacity=20.0, sweep={"allele.one-shot.fecundity": [3.0, 5.0]})
+    path = tmp_path / "stopped.h5"
+    with pytest.raises(runner.ExperimentInterrupted):
+        run_experiment(config, path, progress=False, batch_size=5)
+    with pytest.warns(IncompleteResultsWarning, match="incomplete: 5 of 20 replicates saved"):
+        table = compare(path)
+    assert list(table["missing"]) == [5, 10]
+    last = table.iloc[1]
+    assert (last["agreement"], last["reason"]) == ("inconclusive", "no replicates saved")
+    assert set(table["agreement"]) <= {"agrees", "disagrees", "inconclusive", "no prediction"}
+    # at the command line: one plain warning line before the table
+    from sim.cli import main
+
+    assert main(["compare", str(path)]) == 0
+    err = capsys.readouterr().err
+    assert err.startswith("broodline compare: warning: ") and "--resume" in err
+    assert "Warning:" not in err  # no Python warning format
