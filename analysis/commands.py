@@ -46,7 +46,9 @@ def _results(path) -> Path:
         read_attrs(path)
     except FileNotFoundError:
         raise
-    except (OSError, ValueError, KeyError) as err:
+    except ValueError as err:  # the reader's message names the file and the reason already
+        raise _user_error(str(err)) from None
+    except (OSError, KeyError) as err:
         raise _user_error(
             f"{str(path)!r} cannot be read as a broodline results file ({err})"
         ) from None

@@ -208,3 +208,12 @@ def test_a_stopped_file_is_warned_about(tmp_path, monkeypatch, capsys):
     err = capsys.readouterr().err
     assert err.startswith("broodline compare: warning: ") and "--resume" in err
     assert "Warning:" not in err  # no Python warning format
+
+
+def test_compare_of_a_config_says_so_once(capsys):
+    # `compare demo.toml` used to nest the same message twice
+    from sim.cli import main
+
+    assert main(["compare", "configs/demo.toml"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("is not a broodline results file") == 1 and "cannot be read" not in err
