@@ -200,6 +200,20 @@ def cmd_report(args) -> int:
     return 0
 
 
+def cmd_export(args) -> int:
+    from .export import export
+
+    path = _results(args.results)
+    try:
+        written = export(path, args.what, args.output, overwrite=args.overwrite)
+    except FileExistsError:
+        raise
+    except ValueError as err:
+        raise _user_error(str(err)) from None
+    print(f"{args.what} written to {written}")
+    return 0
+
+
 def finish_demo(results, out_dir) -> Path:
     """The demo's last steps: print the compare table, write figures and the report."""
     from .comparison import compare, compare_thresholds
@@ -261,3 +275,11 @@ def register(sub) -> None:
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--overwrite", action="store_true", help="replace an existing report")
     p.set_defaults(func=cmd_report)
+
+    p = sub.add_parser("export", help="a table of a results file as CSV (or Parquet with pyarrow)")
+    p.add_argument("results", help="results file (.h5)")
+    p.add_argument("--what", required=True, choices=("replicates", "trajectories", "points"),
+                   help="one row per replicate, per recorded census (long form), or per sweep point")
+    p.add_argument("-o", "--output", required=True, help="file to write: NAME.csv or NAME.parquet")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing file")
+    p.set_defaults(func=cmd_export)
