@@ -76,35 +76,44 @@ def wilson_interval(fixed: int, n: int, *, level: float = 0.95) -> FixationEstim
 
 @dataclass(frozen=True)
 class _Link:
-    """A binomial GLM link: eta = g(p); ``inverse`` F(eta) and its derivative F'(eta)."""
+    """A binomial GLM link: eta = g(p); F(eta), its complement 1 - F, and F'(eta) / F(eta).
+
+    The complement and the ratio are written so that they stay exact where F is
+    within rounding of 0 or 1 (a steep curve near separation).
+    """
 
     name: str
     link: object
     inverse: object
-    derivative: object
+    complement: object
+    ratio: object
+
+
+def _cloglog_ratio(eta):
+    e = np.exp(eta)
+    return np.exp(eta - e) / -np.expm1(-e)
 
 
 LINKS = {
-    "logit": _Link(
-        "logit",
-        special.logit,
-        special.expit,
-        lambda eta: special.expit(eta) * special.expit(-eta),
-    ),
-    "cloglog": _Link(
-        "cloglog",
-        lambda p: np.log(-np.log1p(-p)),
-        lambda eta: -np.expm1(-np.exp(eta)),
-        lambda eta: np.exp(eta - np.exp(eta)),
-    ),
+    "logit": _Link("logit", special.logit, special.expit, lambda eta: special.expit(-eta),
+                   lambda eta: special.expit(-eta)),
+    "cloglog": _Link("cloglog", lambda p: np.log(-np.log1p(-p)), lambda eta: -np.expm1(-np.exp(eta)),
+                     lambda eta: np.exp(-np.exp(eta)), _cloglog_ratio),
 }
-_ETA = 30.0  # |eta| is kept below this: F within ~1e-13 of 0 or 1, where the likelihood is flat
+_ETA = 600.0  # |eta| is kept below this (exp stays finite); nothing is lost below it
 _P_EDGE = 1e-12
+_TINY = 1e-300
 
 
-def _loglik(fixed, n, p):
-    p = np.clip(p, _P_EDGE, 1.0 - _P_EDGE)
-    return (fixed * np.log(p) + (n - fixed) * np.log1p(-p)).sum(axis=-1)
+def _probabilities(eta, fx, top):
+    """p = top F(eta) and 1 - p, each computed without cancellation."""
+    eta = np.clip(eta, -_ETA, _ETA)
+    return top * fx.inverse(eta), (1.0 - top) + top * fx.complement(eta)
+
+
+def _loglik(fixed, n, eta, fx, top=1.0):
+    p, q = _probabilities(eta, fx, top)
+    return (fixed * np.log(np.maximum(p, _TINY)) + (n - fixed) * np.log(np.maximum(q, _TINY))).sum(axis=-1)
 
 
 def _score_step(fixed, n, eta, fx, top):
@@ -112,12 +121,13 @@ def _score_step(fixed, n, eta, fx, top):
 
     With dp/deta = top F'(eta), the score of a coefficient whose column is z
     is sum (y - n p) (dp/deta) / (p (1 - p)) z and its information
-    sum n (dp/deta)^2 / (p (1 - p)) z^2 (McCullagh & Nelder 1989, sec. 2.5).
+    sum n (dp/deta)^2 / (p (1 - p)) z^2 (McCullagh & Nelder 1989, sec. 2.5);
+    (dp/deta) / (p (1 - p)) = (F'/F) / (1 - p).
     """
-    p = np.clip(top * fx.inverse(eta), _P_EDGE, 1.0 - _P_EDGE)
-    d = top * fx.derivative(eta)
-    var = p * (1.0 - p)
-    return (fixed - n * p) * d / var, n * d * d / var
+    eta = np.clip(eta, -_ETA, _ETA)
+    p, q = _probabilities(eta, fx, top)
+    r = fx.ratio(eta) / np.maximum(q, _TINY)
+    return (fixed - n * p) * r, n * p * r * fx.ratio(eta)
 
 
 def _target(fx, p0, top):
@@ -157,7 +167,7 @@ def fit_binomial_glm(x, fixed, n, *, link: str = "logit", top=1.0, iterations: i
     b = (n * (x - xm[:, None]) * emp).sum(1) / sxx
     a = (n * emp).sum(1) / n.sum(1) - b * xm
     for _ in range(iterations):
-        eta = np.clip(a[:, None] + b[:, None] * x, -_ETA, _ETA)
+        eta = a[:, None] + b[:, None] * x
         u, w = _score_step(fixed, n, eta, fx, top)
         s0, s1 = u.sum(1), (u * x).sum(1)
         i00, i01, i11 = w.sum(1), (w * x).sum(1), (w * x * x).sum(1)
@@ -166,8 +176,7 @@ def fit_binomial_glm(x, fixed, n, *, link: str = "logit", top=1.0, iterations: i
         safe = np.where(ok, det, 1.0)
         a = a + np.where(ok, (i11 * s0 - i01 * s1) / safe, 0.0)
         b = b + np.where(ok, (i00 * s1 - i01 * s0) / safe, 0.0)
-    eta = np.clip(a[:, None] + b[:, None] * x, -_ETA, _ETA)
-    return a, b, _loglik(fixed, n, top * fx.inverse(eta))
+    return a, b, _loglik(fixed, n, a[:, None] + b[:, None] * x, fx, top)
 
 
 @dataclass(frozen=True)
@@ -193,36 +202,34 @@ class Crossings:
     empty: np.ndarray
 
 
-def _profile_loglik(xstar, x, fixed, n, neutral, sign, fx, top, beta, iterations):
+def _profile_loglik(xstar, x, fixed, n, neutral, sign, fx, top, steps):
     """Maximised log-likelihood with the curve held to cross ``neutral`` at ``xstar``.
 
     Rows are (experiment, asymptote) pairs: eta_i = g(p0(x*) / top) + sign beta (x_i - x*),
-    beta >= 0, by Fisher scoring in beta from ``beta`` (updated in place), a step halved
-    while it lowers the likelihood. -inf where p0 >= top.
+    beta >= 0. The log-likelihood is concave in beta, so its maximum is where the score
+    changes sign: found by bisection on log beta over [1e-8, 1e6] / range (robust where the
+    points nearly separate and the best slope is very steep, where Newton steps stall).
+    -inf where p0 >= top.
     """
     target = _target(fx, np.interp(xstar, x, neutral)[:, None], top)[:, 0]
     ok = np.isfinite(target)
     target = np.where(ok, target, 0.0)
     dx = sign * (x[None, :] - xstar[:, None])
-    scale = 20.0 / max(x[-1] - x[0], 1e-300)
-    def loglik(b):
-        return _loglik(fixed, n, top * fx.inverse(np.clip(target[:, None] + b[:, None] * dx, -_ETA, _ETA)))
+    span = max(x[-1] - x[0], 1e-300)
 
-    current = loglik(beta)
-    for _ in range(iterations):
-        eta = np.clip(target[:, None] + beta[:, None] * dx, -_ETA, _ETA)
-        u, w = _score_step(fixed, n, eta, fx, top)
-        score, info = (u * dx).sum(-1), (w * dx * dx).sum(-1)
-        step = np.clip(score / np.maximum(info, 1e-300), -scale, scale)
-        for _ in range(2):  # step halving: Newton from afar can overshoot
-            trial = np.maximum(beta + step, 0.0)
-            new = loglik(trial)
-            better = new >= current
-            beta[:] = np.where(better, trial, beta)
-            current = np.where(better, new, current)
-            step = np.where(better, 0.0, 0.5 * step)
-    eta = np.clip(target[:, None] + beta[:, None] * dx, -_ETA, _ETA)
-    return np.where(ok, _loglik(fixed, n, top * fx.inverse(eta)), -np.inf)
+    def score(beta):
+        u, _ = _score_step(fixed, n, target[:, None] + beta[:, None] * dx, fx, top)
+        return (u * dx).sum(-1)
+
+    lo = np.full(target.shape, np.log(1e-8 / span))
+    hi = np.full(target.shape, np.log(1e6 / span))
+    for _ in range(steps):
+        mid = 0.5 * (lo + hi)
+        rising = score(np.exp(mid)) > 0
+        lo, hi = np.where(rising, mid, lo), np.where(rising, hi, mid)
+    beta = np.exp(0.5 * (lo + hi))
+    beta = np.where(score(np.zeros_like(beta)) <= 0, 0.0, beta)  # flat is best
+    return np.where(ok, _loglik(fixed, n, target[:, None] + beta[:, None] * dx, fx, top), -np.inf)
 
 
 def profile_crossings(
@@ -235,7 +242,7 @@ def profile_crossings(
     link: str = "logit",
     level: float = 0.95,
     tops: int = 8,
-    iterations: int = 10,
+    iterations: int = 36,
     bisections: int = 26,
 ) -> Crossings:
     """Where p = top F(a + b x) crosses ``neutral``, with its profile-likelihood interval.
@@ -257,7 +264,7 @@ def profile_crossings(
         Values of the upper asymptote profiled over (1: the plain GLM with
         top = 1).
     iterations, bisections : int
-        Newton steps per profile point; bisection steps per bound.
+        Bisection steps on log slope per profile point; bisection steps per bound.
 
     Notes
     -----
@@ -312,19 +319,17 @@ def profile_crossings(
         up = h(mid) >= 0
         hi, lo = np.where(up, mid, hi), np.where(up, lo, mid)
     value = np.where(found, 0.5 * (lo + hi), np.nan)
-    beta = np.maximum(sign * b, 0.0)
 
     def profile(xs, steps=iterations):
-        # each profile point starts from the unconstrained slope: Newton from afar can cycle
-        rows = _profile_loglik(np.repeat(xs, U), x, fr, nr, neutral, sign, fx, top, beta.copy(), steps)
+        rows = _profile_loglik(np.repeat(xs, U), x, fr, nr, neutral, sign, fx, top, steps)
         return rows.reshape(E, U).max(1)
 
     start = np.where(found, value, np.where(below_all, lo_end, hi_end))
-    ll_max = np.maximum(np.where(flat, -np.inf, ll.max(1)), profile(start, 4 * iterations))
+    ll_max = np.maximum(np.where(flat, -np.inf, ll.max(1)), profile(start, 2 * iterations))
     # goodness of fit: Pearson X^2 of the best fit
     coefs = 2 + (U > 1)
-    p_hat = np.clip(top_hat[:, None] * fx.inverse(np.clip(a_hat[:, None] + b_hat[:, None] * x, -_ETA, _ETA)),
-                    _P_EDGE, 1 - _P_EDGE)
+    p_hat, q_hat = _probabilities(a_hat[:, None] + b_hat[:, None] * x, fx, top_hat[:, None])
+    p_hat = np.clip(p_hat, _P_EDGE, 1 - _P_EDGE)
     pearson = ((fixed - n * p_hat) ** 2 / (n * p_hat * (1 - p_hat))).sum(1)
     dispersion = np.ones(E)
     if k > coefs:

@@ -402,6 +402,7 @@ def invasion_map_figure(table: pd.DataFrame, config, *, resolution: int = 24):
         if mark:
             ax.annotate(mark, (xv, yv), ha="center", va="center", fontsize=9, color="white", zorder=4)
     fig.colorbar(scatter, ax=ax, label="observed share of replicates with the mutant fixed")
+    ax.margins(0.08)  # whole markers at the ends of the swept ranges
     others = {p: v[0] for p, v in config.sweep.items() if p not in (xpath, ypath)}
     base = with_values(config, others) if others else config.model_copy(update={"sweep": None})
     gx = np.linspace(xs.min(), xs.max(), resolution)
@@ -409,6 +410,8 @@ def invasion_map_figure(table: pd.DataFrame, config, *, resolution: int = 24):
     fit = np.empty((gy.size, gx.size))
     for i, yv in enumerate(gy):
         fit[i] = fitness_along(with_values(base, {ypath: float(yv)}), xpath, gx)
+    ax.set_xlim(*ax.get_xlim())  # the boundary is drawn within the sweep, the axes kept
+    ax.set_ylim(*ax.get_ylim())
     if np.nanmin(fit) < 1.0 < np.nanmax(fit):
         contour = ax.contour(gx, gy, fit, levels=[1.0], colors="#D55E00", linewidths=2)
         ax.clabel(contour, fmt={1.0: "invasion fitness 1"}, fontsize=8)

@@ -150,3 +150,13 @@ def test_observed_threshold_open_and_missing():
 def test_observed_threshold_without_points():
     res = observed_threshold("b", [], [], [], 0.1)
     assert math.isnan(res.value) and res.message == "no replicates to estimate from"
+
+
+def test_steep_curve_near_separation_keeps_an_honest_interval():
+    # None fixed at 2.5 and 3.5, 14 and 24 of 60 at 4.5 and 6 (a small run at K = 40): the
+    # data cannot tell where between 3.5 and 4.5 fixation takes off, so the interval must
+    # span that gap, not shrink around a steep fitted curve's crossing (it once gave
+    # 4.488 to 4.496, the profile's slope search stalling on the steep curve).
+    res = observed_threshold("b", [2.5, 3.5, 4.5, 6.0], [0, 0, 14, 24], [60] * 4, 0.0244, increasing=True)
+    low = res.low if np.isfinite(res.low) else -np.inf
+    assert low <= 3.6 and res.high >= 4.4
