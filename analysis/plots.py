@@ -245,9 +245,32 @@ def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
     return fig
 
 
+_WINNER_COLOURS = ["#0072B2", "#D55E00", "#009E73", "#56B4E9", "#F0E442", "#E69F00"]
+
+
+def _outcome_labels(reps: pd.DataFrame) -> pd.Series:
+    """Each replicate's outcome as drawn: a plain ``fixed`` one by its winner ("one-shot fixed")."""
+    outcome = reps["outcome"].map(outcome_name)
+    winner = reps["winner"].astype(str)
+    return outcome.where((outcome != "fixed") | (winner == ""), winner + " fixed")
+
+
+def _colours(labels, config) -> dict:
+    names = [a.name for a in config.allele]
+    out = {}
+    for o in labels:
+        if o in _OUTCOME_COLOURS:
+            out[o] = _OUTCOME_COLOURS[o]
+        elif o.endswith(" fixed") and o[:-6] in names:
+            out[o] = _WINNER_COLOURS[names.index(o[:-6]) % len(_WINNER_COLOURS)]
+        else:
+            out[o] = "#009E73"
+    return out
+
+
 def _outcome_order(labels) -> list:
     known = [FIXED, "fixed", LOST, EXTINCT, UNDECIDED, CAPPED]
-    return [o for o in known if o in labels] + sorted(set(labels) - set(known))
+    return sorted(set(labels) - set(known)) + [o for o in known if o in labels]
 
 
 def _sample(reps: pd.DataFrame, point: int, k: int, rng) -> list[int]:
@@ -272,7 +295,8 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
     """Share of the tracked allele (top) and census size (bottom), replicates coloured by outcome."""
     xpath, _ = _axis(table, config)
     reps = read_replicates(path)
-    reps["outcome"] = reps["outcome"].map(outcome_name)
+    reps["outcome"] = _outcome_labels(reps)
+    colours = _colours(reps["outcome"].unique(), config)
     points = table["point"].to_numpy()
     chosen = points[np.unique(np.linspace(0, points.size - 1, min(panels, points.size)).round().astype(int))]
     alleles = [a.name for a in config.allele]
@@ -291,7 +315,7 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
             total = wide.sum(axis=1)
             share = (wide.get(tracked, 0) / total.where(total > 0)).fillna(0)
             o = outcome.get(rep, "")
-            colour = _OUTCOME_COLOURS.get(o, "#009E73")
+            colour = colours.get(o, "#009E73")
             seen.add(o)
             top.plot(wide.index, share, lw=1.1, alpha=0.85, color=colour)
             bottom.plot(wide.index, total, lw=1.0, alpha=0.8, color=colour)
@@ -315,7 +339,7 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
             ax.tick_params(labelsize=7)
     axes[0, 0].set_ylabel(f"share of {tracked}", fontsize=8)
     axes[1, 0].set_ylabel("census size (age 1 and older)", fontsize=8)
-    handles = [plt.Line2D([], [], color=_OUTCOME_COLOURS.get(o, "#009E73"), lw=1.5) for o in _outcome_order(seen)]
+    handles = [plt.Line2D([], [], color=colours.get(o, "#009E73"), lw=1.5) for o in _outcome_order(seen)]
     fig.legend(handles, [_OUTCOME_WORDS.get(o, o) for o in _outcome_order(seen)], fontsize=8,
                loc="lower center", ncol=max(1, len(handles)), frameon=False,
                title="replicates coloured by outcome", title_fontsize=8)
@@ -328,7 +352,8 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
 def outcome_figure(path, config):
     """Outcome counts per sweep point (stacked bars), for any results file."""
     reps = read_replicates(path)
-    reps["outcome"] = reps["outcome"].map(outcome_name)
+    reps["outcome"] = _outcome_labels(reps)
+    colours = _colours(reps["outcome"].unique(), config)
     points = read_points(path)
     counts = pd.crosstab(reps["point"], reps["outcome"]).reindex(points["point"], fill_value=0)
     xpath, _ = _axis(points, config) if config.sweep else (None, None)
@@ -344,7 +369,7 @@ def outcome_figure(path, config):
     bottom = np.zeros(len(points))
     for o in _outcome_order(list(counts.columns)):
         v = counts[o].to_numpy()
-        ax.bar(np.arange(len(points)), v, bottom=bottom, color=_OUTCOME_COLOURS.get(o, "#009E73"),
+        ax.bar(np.arange(len(points)), v, bottom=bottom, color=colours[o],
                label=_OUTCOME_WORDS.get(o, o), width=0.7)
         bottom += v
     ax.set_xticks(np.arange(len(points)), labels, fontsize=7.5)
