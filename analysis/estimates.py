@@ -510,6 +510,16 @@ def observed_threshold(
             f"the fitted curve crosses it {side} the swept range{reach}{fit}: add sweep points "
             f"{side} {edge:g}"
         )
+        # the interval reaches into the range: points inside the first gap it covers help too
+        inner = high if c.side[0] < 0 else low
+        if np.isfinite(inner) and x[0] < inner < x[-1]:
+            j = int(np.clip(np.searchsorted(x, inner), 1, x.size - 1))
+            neighbours = (float(x[j - 1]), float(x[j]))
+            add = suggest_points(*neighbours, 3)
+            message += (
+                f" and between {neighbours[0]:g} and {neighbours[1]:g} "
+                f"(e.g. {', '.join(f'{v:g}' for v in add)})"
+            )
     return ObservedThreshold(
         parameter, value, low, high, level, link, dispersion, neighbours, add, message
     )

@@ -297,7 +297,8 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
     reps = read_replicates(path)
     reps["outcome"] = _outcome_labels(reps)
     colours = _colours(reps["outcome"].unique(), config)
-    points = table["point"].to_numpy()
+    ordered = table.sort_values(xpath, kind="stable") if xpath else table
+    points = ordered["point"].to_numpy()  # panels left to right along the x parameter
     chosen = points[np.unique(np.linspace(0, points.size - 1, min(panels, points.size)).round().astype(int))]
     alleles = [a.name for a in config.allele]
     tracked = _tracked(config, alleles)
@@ -321,6 +322,9 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
             bottom.plot(wide.index, total, lw=1.0, alpha=0.8, color=colour)
         row = table[table["point"] == point].iloc[0]
         where = f"{parameter_words(xpath)} {row[xpath]:g}" if xpath else f"point {point}"
+        others = [p for p in (config.sweep or {}) if p != xpath and p in table.columns]
+        if others:
+            where += ", " + ", ".join(f"{parameter_words(p)} {_value_words(row[p])}" for p in others)
         counts = reps[reps["point"] == point]["outcome"].value_counts()
         summary = ", ".join(f"{counts[o]} {_OUTCOME_WORDS.get(o, o)}" for o in _outcome_order(counts.index))
         top.set_title(f"{where}\n{summary}", fontsize=8)
@@ -366,6 +370,8 @@ def outcome_figure(path, config):
             label + "\n" + ", ".join(_value_words(row[o]) for o in others)
             for label, (_, row) in zip(labels, points.iterrows())
         ]
+        ax.set_title("second line: " + ", ".join(parameter_words(o) for o in others), fontsize=8,
+                     loc="right", color="0.35")
     bottom = np.zeros(len(points))
     for o in _outcome_order(list(counts.columns)):
         v = counts[o].to_numpy()
@@ -375,22 +381,29 @@ def outcome_figure(path, config):
     ax.set_xticks(np.arange(len(points)), labels, fontsize=7.5)
     _label_x(ax, xpath)
     ax.set_ylabel("replicates")
-    ax.set_title("How the replicates ended, per sweep point")
+    ax.set_title("How the replicates ended, per sweep point", loc="left")
     ax.grid(alpha=0.3, axis="y")
     _legend_below(fig, ax, ncol=5)
     fig.tight_layout()
     return fig
 
 
-def fitness_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config, *, resolution: int = 200):
+def fitness_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config, *, resolution: int = 120):
     """Invasion fitness along the swept parameter: theory curve, sweep points, the line at 1."""
     xpath, x = _axis(table, config)
     fig, ax = plt.subplots(figsize=(8, 5))
-    if xpath is not None and not config.sweep.keys() - {xpath}:
-        grid = np.linspace(x.min(), x.max(), resolution)
-        ax.plot(grid, fitness_along(config, xpath, grid), "-", color="#0072B2",
-                label="invasion fitness (theory)")
-    ax.plot(x, table["invasion_fitness"], "o", color="#0072B2", label="sweep points")
+    colours = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#56B4E9", "#E69F00"]
+    groups = _groups(table, config, xpath)
+    for g, (at, label, sub) in enumerate(groups[:6] if xpath is not None else []):
+        grid = np.linspace(x.min(), x.max(), resolution if len(groups) == 1 else resolution // 2)
+        base = with_values(config, at) if at else config
+        suffix = f" ({label})" if label else ""
+        ax.plot(grid, fitness_along(base, xpath, grid), "-", color=colours[g % len(colours)],
+                label=f"invasion fitness (theory){suffix}")
+        ax.plot(sub[xpath].to_numpy(float), sub["invasion_fitness"], "o", color=colours[g % len(colours)],
+                label=f"sweep points{suffix}")
+    if xpath is None:
+        ax.plot(x, table["invasion_fitness"], "o", color="#0072B2", label="sweep points")
     ax.axhline(1.0, color="black", lw=1, label="invasion fitness 1 (neutral)")
     drawn = set()
     for _, row in thresholds.iterrows():

@@ -15,6 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from .bench import register_bench
+from .trace import register_trace
 from .config import ConfigError, load_config
 from .describe import describe_experiment
 from .meanfield import NoEquilibriumError
@@ -99,6 +100,8 @@ def _register_core(sub) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_demo)
 
+    register_trace(sub)
+
 
 def _register_analysis(sub) -> None:
     from analysis.commands import register  # lazily: sim does not import analysis otherwise
@@ -143,9 +146,20 @@ def _run_errors() -> tuple:
     return (ResultsError, PoolError)
 
 
+def _plain_warnings(command: str):
+    """Show warnings meant for the user as one line each: ``broodline run: warning: ...``."""
+    import warnings
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        print(f"broodline {command}: warning: {message}", file=file or sys.stderr)
+
+    warnings.showwarning = show
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    _plain_warnings(args.command)
     try:
         return args.func(args)
     except (ConfigError, NoEquilibriumError, UserError, FileExistsError, FileNotFoundError,

@@ -122,7 +122,7 @@ def test_cinderwort_spacing_is_flagged():
     res = observed_threshold("f", [12, 16, 20, 24], [1, 20, 42, 50], [100] * 4, 0.013312, increasing=True)
     low = res.low if np.isfinite(res.low) else -np.inf
     assert low <= 12.5333 <= res.high
-    assert "add sweep points" in res.message
+    assert "add sweep points" in res.message and "between 12 and 16" in res.message
 
 
 def test_too_far_apart_points_are_named():

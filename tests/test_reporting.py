@@ -81,3 +81,18 @@ def test_report_content(page):
 def test_report_refuses_missing_folder(tmp_path):
     with pytest.raises(FileNotFoundError, match="does not exist"):
         report(tmp_path / "none.h5", tmp_path / "no" / "r.html")
+
+
+def test_report_words_for_a_swept_capacity():
+    # the base K would mislead where K is swept: the report names the swept values, and the
+    # verdict says it is for each K; one agreeing point reads "1 agrees", not "1 agree"
+    import pandas as pd
+
+    from analysis.reporting import _density_words, verdict_text
+    from tests.invasion_configs import invasion_config
+
+    config = invasion_config(capacity=150.0, sweep={"density.capacity": [50, 200]})
+    assert "capacity K swept over 50, 200" in _density_words(config)
+    table = pd.DataFrame({"agreement": ["agrees", "inconclusive"], "point": [0, 1]})
+    text = verdict_text(table, pd.DataFrame(columns=["parameter"]), config)
+    assert text.startswith("Of 2 sweep points (K swept: see the table for each K), 1 agrees, 1 is inconclusive")
