@@ -15,10 +15,10 @@ from pathlib import Path
 import pandas as pd
 
 from .bench import register_bench
-from .trace import register_trace
-from .config import ConfigError, load_config
+from .config import ConfigError, load_config, parse_config
 from .describe import describe_experiment
 from .meanfield import NoEquilibriumError
+from .trace import register_trace
 
 __all__ = ["main", "build_parser", "demo_config_path"]
 
@@ -57,19 +57,41 @@ def _run(config, out, *, overwrite, quiet, **options):
 def cmd_run(args) -> int:
     from .runs import run_options
 
-    config = _load(args.config)
+    config = _with_overrides(_load(args.config), args)
     _run(config, args.output, overwrite=args.overwrite, quiet=args.quiet, **run_options(args))
     return 0
+
+
+_OVERRIDES = ("seed", "replicates", "max_steps")
+
+
+def _with_overrides(config, args):
+    """``run --seed/--replicates/--max-steps``: the config with them set (and checked), so the
+    results file records the experiment as run."""
+    given = {k: getattr(args, k) for k in _OVERRIDES if getattr(args, k, None) is not None}
+    if not given:
+        return config
+    raw = config.model_dump(mode="json", exclude_none=True)
+    raw["experiment"].update(given)
+    return parse_config(raw)
 
 
 def cmd_demo(args) -> int:
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
     config_path = out / "demo.toml"  # a copy the user can edit and run again
-    if not config_path.exists():  # never clobber a copy the user may have edited
-        config_path.write_text(demo_config_path().read_text())
-    config = _load(demo_config_path())
     results = out / "demo.h5"
+    earlier = [p for p in (results, out / "report.html") if p.exists()]
+    if earlier and not args.overwrite:
+        raise FileExistsError(
+            f"{out} holds an earlier demo's results ({', '.join(p.name for p in earlier)}); "
+            "pass --overwrite to replace them"
+        )
+    if config_path.exists():  # never clobber a copy the user may have edited: run it
+        print(f"running the demo from its own config {config_path} (delete it for the shipped one)\n")
+    else:
+        config_path.write_text(demo_config_path().read_text())
+    config = _load(config_path)
     print(describe_experiment(config))
     print()
     _run(config, results, overwrite=True, quiet=args.quiet)
@@ -78,7 +100,8 @@ def cmd_demo(args) -> int:
     finish_demo(results, out)
     print(f"\nNext, edit the demo's config and run it yourself:\n"
           f"  broodline check {config_path}\n"
-          f"  broodline run {config_path} -o {out / 'my-run.h5'}")
+          f"  broodline run {config_path} -o {out / 'my-run.h5'}\n"
+          f"  or run the demo again from it: broodline demo -o {out} --overwrite")
     return 0
 
 
@@ -88,6 +111,9 @@ def _register_core(sub) -> None:
     p.add_argument("-o", "--output", required=True, help="results file to write (.h5)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing results file")
     p.add_argument("--quiet", action="store_true", help="no progress bar (per-point lines still logged)")
+    p.add_argument("--seed", type=int, help="experiment.seed for this run (recorded in the results file)")
+    p.add_argument("--replicates", type=int, help="experiment.replicates for this run (recorded)")
+    p.add_argument("--max-steps", dest="max_steps", type=int, help="experiment.max_steps for this run (recorded)")
     _add_run_options(p)
     p.set_defaults(func=cmd_run)
 
@@ -98,6 +124,7 @@ def _register_core(sub) -> None:
     p = sub.add_parser("demo", help="run the demo invasion experiment (about a minute)")
     p.add_argument("-o", "--output", default="broodline-demo", help="folder for the demo's files")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--overwrite", action="store_true", help="replace the results of an earlier demo")
     p.set_defaults(func=cmd_demo)
 
     register_trace(sub)
