@@ -73,8 +73,9 @@ def _resident_count(x):
     raise ValueError(f"must be 'equilibrium' or a whole number in [1, {MAX_COUNT}]")
 
 
-Probability = Annotated[float, AfterValidator(_probability)]
-NonNegative = Annotated[float, AfterValidator(_non_negative)]
+# strict: a number written as text ("4.5") is refused, not quietly converted
+Probability = Annotated[float, Field(strict=True), AfterValidator(_probability)]
+NonNegative = Annotated[float, Field(strict=True), AfterValidator(_non_negative)]
 
 
 class _Section(BaseModel):
@@ -85,13 +86,13 @@ class ExperimentSection(_Section):
     """``[experiment]``: what to run and when to stop."""
 
     name: str = "experiment"
-    seed: int = Field(0, ge=0)
-    replicates: int = Field(100, ge=1)
-    max_steps: int = Field(1000, ge=1)
+    seed: int = Field(0, ge=0, strict=True)
+    replicates: int = Field(100, ge=1, strict=True)
+    max_steps: int = Field(1000, ge=1, strict=True)
     stop: Literal["fixation", "max-steps"] = "fixation"
-    record_every: int = Field(1, ge=1)
+    record_every: int = Field(1, ge=1, strict=True)
     engine: Literal["individual", "agents", "counts"] = "individual"
-    max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT)
+    max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT, strict=True)
     trajectory: Literal["by-age", "by-allele", "none"] = "by-age"
 
 
@@ -101,7 +102,7 @@ class DensitySection(_Section):
     form: Literal["none", "beverton-holt", "ricker", "ceiling"] = "none"
     acts_on: Literal["recruitment", "fecundity", "adult-survival", "all-survival"] | None = None
     counted: Literal["census", "breeders", "offspring"] = "census"
-    capacity: float | None = Field(None, gt=0)
+    capacity: float | None = Field(None, gt=0, strict=True)
 
     @model_validator(mode="after")
     def _consistent(self):
@@ -132,7 +133,7 @@ class OffspringSection(_Section):
     """``[offspring]``: the offspring-number distribution."""
 
     distribution: Literal["poisson", "fixed", "negative-binomial"] = "poisson"
-    dispersion: float | None = Field(None, gt=0)
+    dispersion: float | None = Field(None, gt=0, strict=True)
 
     @model_validator(mode="after")
     def _dispersion(self):
@@ -151,8 +152,8 @@ class AlleleSection(_Section):
     fecundity: NonNegative | list[NonNegative]
     adult_survival: Probability | list[Probability] | None = None
     juvenile_survival: Probability
-    maturity_age: int = Field(1, ge=1, le=200)
-    initial_count: int = Field(0, ge=0, le=MAX_COUNT)
+    maturity_age: int = Field(1, ge=1, le=200, strict=True)
+    initial_count: int = Field(0, ge=0, le=MAX_COUNT, strict=True)
 
     @model_validator(mode="after")
     def _shape(self):
@@ -198,7 +199,7 @@ class InvasionSection(_Section):
 
     resident: str
     mutant: str
-    mutant_count: int = Field(1, ge=1, le=MAX_COUNT)
+    mutant_count: int = Field(1, ge=1, le=MAX_COUNT, strict=True)
     resident_count: Annotated[Any, AfterValidator(_resident_count)] = "equilibrium"
 
 

@@ -48,3 +48,25 @@ def test_warnings_before_anything_runs(tmp_path, capsys):
     assert "broodline run: warning: density.acts_on = 'adult-survival' cannot regulate allele 'b'" in err
     assert main(["check", str(toml)]) == 0
     assert "warning: density.acts_on" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(
+    "section, key, value, message",
+    [
+        ("allele", "fecundity", "4.5", r"allele\[1\]\.fecundity: input should be a valid number; got '4.5'"),
+        ("allele", "juvenile_survival", "0.5", r"allele\[1\]\.juvenile_survival: input should be a valid number"),
+        ("density", "capacity", "100", r"density\.capacity: input should be a valid number; got '100'"),
+        ("experiment", "replicates", "20", r"experiment\.replicates: input should be a valid integer"),
+    ],
+)
+def test_strings_where_numbers_belong_are_refused(section, key, value, message):
+    # the issue: fecundity = "4.5" (a string) was accepted without a word
+    from sim.config import ConfigError, parse_config
+
+    raw = invasion_config().model_dump(exclude_none=True)
+    if section == "allele":
+        raw["allele"][1][key] = value
+    else:
+        raw[section][key] = value
+    with pytest.raises(ConfigError, match=message):
+        parse_config(raw)
