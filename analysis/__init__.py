@@ -12,7 +12,7 @@ package stays light.
 """
 
 from .branching import Extinction, establishment_probability, extinction_probabilities
-from .comparison import agreement, compare, compare_thresholds
+from .comparison import PredictedFixation, SideOfNeutral, agreement, compare, compare_thresholds, judge
 from .demography import Demography, dominant_eigen, schedule_demography
 from .environment import ResidentEnvironment, resident_environment
 from .estimates import FixationEstimate, ObservedThreshold, observed_threshold, wilson_interval
@@ -25,8 +25,10 @@ __all__ = [
     "Extinction",
     "FixationEstimate",
     "ObservedThreshold",
+    "PredictedFixation",
     "Prediction",
     "ResidentEnvironment",
+    "SideOfNeutral",
     "ThresholdResult",
     "agreement",
     "compare",
@@ -35,6 +37,7 @@ __all__ = [
     "establishment_probability",
     "extinction_probabilities",
     "invasion_fitness",
+    "judge",
     "neutral_expectation",
     "observed_threshold",
     "plot",

@@ -9,10 +9,10 @@ Heavy imports (matplotlib) happen inside the commands.
 from __future__ import annotations
 
 import json
-import math
 from pathlib import Path
 
 from sim.errors import UserError
+
 from .jsonable import jsonable
 
 __all__ = ["register", "finish_demo", "threshold_report", "jsonable"]
@@ -20,15 +20,6 @@ __all__ = ["register", "finish_demo", "threshold_report", "jsonable"]
 
 def _records(table) -> list[dict]:
     return [jsonable(r) for r in table.to_dict(orient="records")]
-
-
-def _print_table(table) -> None:
-    import pandas as pd
-
-    with pd.option_context(
-        "display.width", 160, "display.max_columns", 30, "display.float_format", "{:.4g}".format
-    ):
-        print(table.to_string(index=False))
 
 
 def _results(path) -> Path:
@@ -40,7 +31,9 @@ def _results(path) -> Path:
         read_attrs(path)
     except FileNotFoundError:
         raise
-    except (OSError, ValueError, KeyError) as err:
+    except ValueError as err:  # the reader's message names the file and the reason already
+        raise UserError(str(err)) from None
+    except (OSError, KeyError) as err:
         raise UserError(
             f"{str(path)!r} cannot be read as a broodline results file ({err})"
         ) from None
@@ -106,36 +99,40 @@ def cmd_threshold(args) -> int:
         )
         return 0
     print(f"resident {result['resident']!r}, mutant {result['mutant']!r}")
-    points = result["points"].rename(
-        columns={
-            "density_index": "D*",
-            "census_size": "census",
-            "resident_growth_rate": "lambda_res",
-            "mutant_growth_rate": "lambda_mut",
-            "invasion_fitness": "fitness",
-            "establishment_probability": "establish",
-            "neutral_expectation": "neutral",
-        }
-    )
-    if points["problem"].eq("").all():
-        points = points.drop(columns="problem")
-    _print_table(points)
+    from .comparison import theory_table_text, threshold_lines
+
+    print(theory_table_text(result["points"]))
     if result["thresholds"]:
         print("\nthresholds:")
-        for t in result["thresholds"]:
-            at = f" (at {', '.join(f'{k} = {v}' for k, v in t.at.items())})" if t.at else ""
-            print(f"  {t.message}{at}")
+        for line in threshold_lines(config, result["thresholds"]):
+            print(f"  {line}")
     return 0
 
 
 # -- compare --------------------------------------------------------------------------
+def _warn_incomplete(command: str, path) -> None:
+    """One plain warning line on stderr for a results file that is not complete."""
+    import sys
+
+    from .comparison import incomplete_message
+
+    message = incomplete_message(path)
+    if message:
+        print(f"broodline {command}: warning: {message}", file=sys.stderr)
+
+
 def cmd_compare(args) -> int:
-    from .comparison import compare, compare_thresholds
+    import warnings
+
+    from .comparison import IncompleteResultsWarning, compare, compare_thresholds
 
     path = _results(args.results)
     if args.csv:
         _free([args.csv], args.overwrite)
-    table = compare(path)
+    _warn_incomplete("compare", path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", IncompleteResultsWarning)
+        table = compare(path)
     thresholds = compare_thresholds(path, table)
     if args.csv:
         table.to_csv(args.csv, index=False)
@@ -149,41 +146,9 @@ def cmd_compare(args) -> int:
 
 
 def _print_compare(table, thresholds) -> None:
-    from .comparison import SHOWN_COLUMNS
+    from .comparison import compare_text
 
-    swept = [
-        c
-        for c in table.columns[1:]
-        if c not in SHOWN_COLUMNS
-        and c
-        not in (
-            "mutant_lost",
-            "unresolved",
-            "density_index",
-            "census_size",
-            "resident_growth_rate",
-            "mutant_growth_rate",
-            "problem",
-        )
-    ]
-    shown = table[["point", *swept, *SHOWN_COLUMNS]].rename(
-        columns={
-            "replicates": "reps",
-            "mutant_fixed": "fixed",
-            "fixed_fraction": "fraction",
-            "fixed_low": "low95",
-            "fixed_high": "high95",
-            "invasion_fitness": "fitness",
-            "establishment_probability": "establish",
-            "neutral_expectation": "neutral",
-        }
-    )
-    _print_table(shown)
-    for r in thresholds.itertuples():
-        at = f" at {r.at}" if r.at != "{}" else ""
-        print(f"\n{r.parameter}{at}:")
-        print(f"  analytic: {r.analytic_message}")
-        print(f"  observed: {r.observed_message}")
+    print(compare_text(table, thresholds))
 
 
 # -- plot and report --------------------------------------------------------------------
@@ -205,11 +170,32 @@ def cmd_plot(args) -> int:
 
 
 def cmd_report(args) -> int:
+    import warnings
+
+    from .comparison import IncompleteResultsWarning
     from .reporting import report
 
     path = _results(args.results)
     _free([args.output], args.overwrite)
-    print(f"report written to {report(path, args.output)}")
+    _warn_incomplete("report", path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", IncompleteResultsWarning)
+        written = report(path, args.output)
+    print(f"report written to {written}")
+    return 0
+
+
+def cmd_export(args) -> int:
+    from .export import export
+
+    path = _results(args.results)
+    try:
+        written = export(path, args.what, args.output, overwrite=args.overwrite)
+    except FileExistsError:
+        raise
+    except ValueError as err:
+        raise UserError(str(err)) from None
+    print(f"{args.what} written to {written}")
     return 0
 
 
@@ -226,7 +212,8 @@ def finish_demo(results, out_dir) -> Path:
     page = report(
         results, out_dir / "report.html", figures_dir=out_dir, table=table, thresholds=thresholds
     )
-    print(f"\nFigures: {out_dir}/fixation.png, trajectories.png, invasion_fitness.png (and .svg)")
+    names = ", ".join(f"{p.name}" for p in sorted(out_dir.glob("*.png")))
+    print(f"\nFigures: {out_dir}/ {names} (and .svg)")
     print(f"Report:  {page}")
     return page
 
@@ -263,16 +250,24 @@ def register(sub) -> None:
     p.set_defaults(func=cmd_compare)
 
     p = sub.add_parser("plot", help="figures of a results file (PNG and SVG)")
-    p.add_argument("results", help="results file (.h5) of an invasion experiment")
+    p.add_argument("results", help="results file (.h5), with or without [invasion]")
     p.add_argument("-o", "--output", required=True, help="folder for the figures")
     p.add_argument("--overwrite", action="store_true", help="replace existing figures")
     p.set_defaults(func=cmd_plot)
 
     p = sub.add_parser("report", help="a self-contained HTML report of a results file")
-    p.add_argument("results", help="results file (.h5) of an invasion experiment")
+    p.add_argument("results", help="results file (.h5), with or without [invasion]")
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--overwrite", action="store_true", help="replace an existing report")
     p.set_defaults(func=cmd_report)
+
+    p = sub.add_parser("export", help="a table of a results file as CSV (or Parquet with pyarrow)")
+    p.add_argument("results", help="results file (.h5)")
+    p.add_argument("--what", required=True, choices=("replicates", "trajectories", "points"),
+                   help="one row per replicate, per recorded census (long form), or per sweep point")
+    p.add_argument("-o", "--output", required=True, help="file to write: NAME.csv or NAME.parquet")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing file")
+    p.set_defaults(func=cmd_export)
 
     from .lab import register as register_lab  # `broodline lab` (analysis/lab/command.py)
 

@@ -1,37 +1,97 @@
-"""Observed fixation in a results file set against the analytic prediction.
+"""Observed fixation in a results file set against a prediction.
 
-The agreement rule (also in the README). A point's prediction is the side of
-the neutral expectation on which the mutant's fixation probability should
-fall: above it where the mutant invades, below it where it does not, at it
-where it is neutral. The observation is the 95% Wilson interval of the
-mutant-fixed fraction. It **agrees** when the interval lies wholly on the
-predicted side (for a neutral verdict: when it contains the neutral
-expectation), **disagrees** when it lies wholly on the other side (for a
-neutral verdict: when it excludes it), and is **inconclusive** when it
-contains the neutral expectation, i.e. the replicates cannot tell.
+Which replicates count (also in the README). A replicate counts when it
+resolved: the mutant fixed, was lost, or everyone died (extinct: the mutant
+did not fix). A replicate that passed ``max_population`` (capped) counts as
+**established**, with the fixed ones, when the mutant's share of the census
+was rising: higher at its last record than at the start and at the record
+nearest half its seasons; once a growing lineage is far past its first
+seasons it escapes loss with near certainty, and a rising share means it was
+outgrowing the resident (the branching-process establishment probability is
+tested against this rule). Other capped replicates and undecided ones
+(``max_steps`` reached with both alleles present) are **left out**: never
+counted as losses. Replicates not run yet (a stopped file) are **missing**;
+they are a random sample of the planned ones, so they only shrink the sample.
+
+The agreement rule. The observation is the 95% Wilson interval of
+established / counted. The default prediction is the side of the neutral
+expectation on which the mutant's fixation probability should fall: above it
+where the mutant invades, below where it does not, at it where it is
+neutral. The point **agrees** when the interval lies wholly on the predicted
+side (neutral: contains the neutral expectation), **disagrees** when it lies
+wholly on the other side (neutral: excludes it), and is **inconclusive** when
+it contains the neutral expectation, when no replicate counted, or when the
+left-out replicates could change the result: counting all of them as
+established, or all as not, would give another result. ``reason`` says which.
+Another prediction (a finite-population fixation probability, say) plugs in
+through ``compare(..., prediction=...)``; ``prediction`` names the one used.
 """
 
 from __future__ import annotations
 
 import json
+import textwrap
+import warnings
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
 from sim.config import Config, ConfigError
-from sim.store import read_attrs, read_point_configs, read_points, read_replicates
+from sim.runner import OUTCOMES
+from sim.store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
 
+from .closedform import closed_form
 from .estimates import observed_threshold, wilson_interval
 from .sweep import predict_configs, sweep_thresholds
 
-__all__ = ["COMPARE_COLUMNS", "SHOWN_COLUMNS", "agreement", "experiment_config", "compare", "compare_thresholds"]
+__all__ = [
+    "COMPARE_COLUMNS",
+    "SHOWN_COLUMNS",
+    "IncompleteResultsWarning",
+    "SideOfNeutral",
+    "PredictedFixation",
+    "Judgement",
+    "judge",
+    "agreement",
+    "outcome_name",
+    "capped_rising",
+    "experiment_config",
+    "compare",
+    "compare_thresholds",
+    "compare_text",
+]
+
+
+def outcome_name(text: str) -> str:
+    """An outcome as this version spells it (``sim.runner.OUTCOMES``), whatever a file wrote.
+
+    Files from other versions may write ``mutant_fixed`` for ``mutant-fixed``
+    (or the reverse); both are read as the one name.
+    """
+    for name in OUTCOMES:
+        if text.replace("_", "-") == name.replace("_", "-"):
+            return name
+    return text
+
+
+FIXED, LOST, EXTINCT, UNDECIDED, CAPPED = (
+    outcome_name(o) for o in ("mutant-fixed", "mutant-lost", "extinct", "undecided", "capped")
+)
 
 COMPARE_COLUMNS = [
     "point",
     "replicates",
-    "mutant_fixed",
-    "mutant_lost",
-    "unresolved",
+    FIXED,
+    LOST,
+    EXTINCT,
+    UNDECIDED,
+    CAPPED,
+    "capped_rising",
+    "counted",
+    "established",
+    "left_out",
+    "missing",
     "fixed_fraction",
     "fixed_low",
     "fixed_high",
@@ -40,24 +100,114 @@ COMPARE_COLUMNS = [
     "establishment_probability",
     "neutral_expectation",
     "agreement",
+    "reason",
+    "prediction",
 ]
-# the columns a person reads (printed table, report): all but the point and the detail counts
-SHOWN_COLUMNS = [c for c in COMPARE_COLUMNS if c not in ("point", "mutant_lost", "unresolved")]
+# the columns a person reads (printed table, report): the counts that enter the verdict on
+SHOWN_COLUMNS = [
+    c for c in COMPARE_COLUMNS[COMPARE_COLUMNS.index("counted") :]
+    if c not in ("missing", "reason", "prediction")
+]
+
+
+class IncompleteResultsWarning(UserWarning):
+    """The results file is not complete (the run was stopped, or is still going)."""
+
+
+# -- predictions and the verdict ---------------------------------------------------------
+@dataclass(frozen=True)
+class SideOfNeutral:
+    """The invasion verdict as a prediction: fixation above, below or at the neutral expectation."""
+
+    verdict: str
+    neutral: float
+    name: str = "side of the neutral expectation (invasion fitness)"
+
+    def assess(self, low: float, high: float) -> tuple[str, str]:
+        """Agreement of the interval [low, high] and the reason in words."""
+        if self.verdict not in ("invades", "does not invade", "neutral") or not np.isfinite(self.neutral):
+            return "no prediction", f"no prediction ({self.verdict})"
+        above, below = low > self.neutral, high < self.neutral
+        if self.verdict == "neutral":
+            if above or below:
+                return "disagrees", "the interval excludes the neutral expectation"
+            return "agrees", "the interval contains the neutral expectation"
+        if not (above or below):
+            return "inconclusive", "the interval contains the neutral expectation"
+        where = "above" if above else "below"
+        ok = above == (self.verdict == "invades")
+        return ("agrees" if ok else "disagrees"), f"the interval lies {where} the neutral expectation"
+
+
+@dataclass(frozen=True)
+class PredictedFixation:
+    """A predicted fixation probability (e.g. of a finite population): agrees when inside the interval."""
+
+    value: float
+    name: str = "predicted fixation probability"
+
+    def assess(self, low: float, high: float) -> tuple[str, str]:
+        if not np.isfinite(self.value):
+            return "no prediction", "no predicted value"
+        if low <= self.value <= high:
+            return "agrees", f"the interval contains the predicted {self.value:.3g}"
+        return "disagrees", f"the interval excludes the predicted {self.value:.3g}"
+
+
+@dataclass(frozen=True)
+class Judgement:
+    """A point's verdict: ``agreement``, its ``reason``, the ``prediction`` named, and the estimate."""
+
+    agreement: str
+    reason: str
+    prediction: str
+    fraction: float
+    low: float
+    high: float
+
+
+def judge(established: int, counted: int, prediction, *, left_out: int = 0, left_out_kinds: str = "",
+          level: float = 0.95) -> Judgement:
+    """Judge one point: the Wilson interval of established / counted against ``prediction``.
+
+    Parameters
+    ----------
+    established, counted : int
+        Replicates counted as the mutant established (fixed, or capped while
+        rising) and replicates counted.
+    prediction : SideOfNeutral, PredictedFixation or any object with ``name``
+        and ``assess(low, high) -> (agreement, reason)``.
+    left_out : int, optional
+        Replicates that did not resolve; the point is inconclusive when
+        counting them all as established, or all as not, changes the result.
+    left_out_kinds : str, optional
+        What they were, for the reason (e.g. "12 undecided, 3 capped").
+    level : float, optional
+        Coverage of the Wilson interval.
+    """
+    est = wilson_interval(established, counted, level=level)
+    if counted == 0:
+        why = "no replicate resolved" if left_out else "no replicates saved"
+        return Judgement("inconclusive", why, prediction.name, est.fraction, est.low, est.high)
+    verdict, reason = prediction.assess(est.low, est.high)
+    if left_out and verdict in ("agrees", "disagrees"):
+        total = counted + left_out
+        extremes = (wilson_interval(established + left_out, total, level=level),
+                    wilson_interval(established, total, level=level))
+        if any(prediction.assess(e.low, e.high)[0] != verdict for e in extremes):
+            kinds = f" ({left_out_kinds})" if left_out_kinds else ""
+            verdict = "inconclusive"
+            reason = (f"{left_out} replicate{'s' if left_out != 1 else ''} left out{kinds} could "
+                      f"change it: {reason}")
+    return Judgement(verdict, reason, prediction.name, est.fraction, est.low, est.high)
 
 
 def agreement(verdict: str, low: float, high: float, neutral: float) -> str:
     """Agrees, disagrees or inconclusive: the Wilson interval [low, high] against a verdict.
 
-    See the module notes for the rule.
+    See the module notes for the rule (``SideOfNeutral``).
     """
-    if verdict not in ("invades", "does not invade", "neutral") or not np.isfinite(neutral):
-        return "no prediction"
-    above, below = low > neutral, high < neutral
-    if verdict == "neutral":
-        return "disagrees" if above or below else "agrees"
-    if not (above or below):
-        return "inconclusive"
-    return "agrees" if above == (verdict == "invades") else "disagrees"
+    return SideOfNeutral(verdict, neutral).assess(low, high)[0]
 
 
 def experiment_config(path) -> Config:
@@ -73,8 +223,64 @@ def _require_invasion(config: Config, path) -> None:
         )
 
 
-def compare(path, *, level: float = 0.95) -> pd.DataFrame:
-    """One row per sweep point: observed fixation with its Wilson interval beside the theory.
+def incomplete_message(path) -> str:
+    """Empty for a complete results file; else what is missing and how to finish it, in words."""
+    attrs = read_attrs(path)
+    if attrs.get("complete", True):
+        return ""
+    planned = int(attrs.get("n_points", 0)) * int(attrs.get("replicates", 0))
+    saved = len(read_replicates(path))
+    return (
+        f"{str(path)!r} is incomplete: {saved} of {planned} replicates saved (the run was "
+        "stopped, or is still going); finish it with `broodline run CONFIG -o "
+        f"{path} --resume`. Points without all their replicates are judged on those saved."
+    )
+
+
+def warn_if_incomplete(path) -> str:
+    """Warn (IncompleteResultsWarning) when the results file is not complete; return the message."""
+    message = incomplete_message(path)
+    if message:
+        warnings.warn(message, IncompleteResultsWarning, stacklevel=3)
+    return message
+
+
+def capped_rising(path, replicates: pd.DataFrame, mutant: str) -> pd.Series:
+    """For each replicate: capped while the mutant's share of the census was rising.
+
+    Rising: the share at the replicate's last record is above both its share
+    at the start and at the record nearest half its seasons. A
+    replicate with one record, or a file without trajectories, is not
+    classed (False).
+    """
+    rising = pd.Series(False, index=replicates.index)
+    capped = replicates[replicates["outcome"] == CAPPED]
+    if capped.empty or read_attrs(path).get("trajectory") == "none":
+        return rising
+    for point, sub in capped.groupby("point"):
+        traj = read_trajectories(path, points=[int(point)], replicates=sub["replicate"].tolist(), by_age=False)
+        wide = traj.pivot_table(index=["replicate", "step"], columns="allele", values="count", aggfunc="sum")
+        total = wide.sum(axis=1)
+        share = (wide[mutant] / total.where(total > 0)).fillna(0.0) if mutant in wide else total * 0.0
+        for idx, rep in zip(sub.index, sub["replicate"]):
+            if rep not in share.index.get_level_values(0):
+                continue
+            one = share.loc[rep]
+            steps = one.index.to_numpy()
+            if steps.size < 2:
+                continue
+            earlier = steps[:-1]
+            ref = earlier[np.argmin(np.abs(earlier - steps[-1] / 2.0))]
+            rising[idx] = bool(one.iloc[-1] > max(one.loc[ref], one.iloc[0]))
+    return rising
+
+
+def _default_prediction(row: dict):
+    return SideOfNeutral(row["verdict"], row["neutral_expectation"])
+
+
+def compare(path, *, level: float = 0.95, prediction=None) -> pd.DataFrame:
+    """One row per sweep point: observed fixation with its Wilson interval beside a prediction.
 
     Parameters
     ----------
@@ -82,6 +288,11 @@ def compare(path, *, level: float = 0.95) -> pd.DataFrame:
         A results file written by ``broodline run``.
     level : float, optional
         Coverage of the Wilson intervals.
+    prediction : callable, optional
+        ``prediction(row) -> object`` with ``name`` and ``assess(low, high)``
+        (see ``SideOfNeutral``, ``PredictedFixation``), given the point's row
+        (swept values and theory columns as a dict). By default
+        ``SideOfNeutral(row["verdict"], row["neutral_expectation"])``.
 
     Returns
     -------
@@ -89,36 +300,57 @@ def compare(path, *, level: float = 0.95) -> pd.DataFrame:
         ``point``, one column per swept path, then ``COMPARE_COLUMNS`` (after
         ``point``) and the remaining theory columns (``density_index``,
         ``census_size``, ``resident_growth_rate``, ``mutant_growth_rate``,
-        ``problem``). ``fixed_fraction`` is mutant-fixed / replicates;
-        replicates neither fixed nor lost (undecided, extinct, capped) are
-        counted in ``unresolved`` and as not fixed.
+        ``problem``). One count per outcome; ``capped_rising`` of the capped;
+        ``counted`` = fixed + lost + extinct + capped_rising; ``established``
+        = fixed + capped_rising; ``left_out`` = undecided + the other capped;
+        ``missing`` = planned replicates not saved. ``fixed_fraction`` is
+        established / counted (the module notes give the rule).
+        A file that is not complete gives an ``IncompleteResultsWarning``.
     """
     config = experiment_config(path)
     _require_invasion(config, path)
+    warn_if_incomplete(path)
     points = read_points(path)
     reps = read_replicates(path)
+    reps["outcome"] = reps["outcome"].map(outcome_name)
+    rising = capped_rising(path, reps, config.invasion.mutant)
     theory = predict_configs(read_point_configs(path))
+    make = _default_prediction if prediction is None else prediction
+    planned = config.experiment.replicates
     rows = []
     for i, point in enumerate(points["point"]):
-        outcomes = reps.loc[reps["point"] == point, "outcome"]
-        n, fixed = len(outcomes), int((outcomes == "mutant-fixed").sum())
-        lost = int((outcomes == "mutant-lost").sum())
-        est = wilson_interval(fixed, n, level=level)
-        t = theory.iloc[i]
+        here = reps["point"] == point
+        counts = reps.loc[here, "outcome"].value_counts()
+        c = {o: int(counts.get(o, 0)) for o in (FIXED, LOST, EXTINCT, UNDECIDED, CAPPED)}
+        up = int(rising[here].sum())
+        established = c[FIXED] + up
+        counted = established + c[LOST] + c[EXTINCT]
+        left_out = c[UNDECIDED] + c[CAPPED] - up
+        kinds = ", ".join(
+            f"{v} {k}" for k, v in ((UNDECIDED, c[UNDECIDED]), (CAPPED, c[CAPPED] - up)) if v
+        )
+        t = theory.iloc[i].to_dict()
+        swept = points.iloc[i].drop("point").to_dict()
+        j = judge(established, counted, make({"point": int(point), **swept, **t}), left_out=left_out,
+                  left_out_kinds=kinds + (" with the mutant's share not rising" if c[CAPPED] - up else ""),
+                  level=level)
         rows.append(
             {
                 "point": int(point),
-                "replicates": n,
-                "mutant_fixed": fixed,
-                "mutant_lost": lost,
-                "unresolved": n - fixed - lost,
-                "fixed_fraction": est.fraction,
-                "fixed_low": est.low,
-                "fixed_high": est.high,
-                **t.to_dict(),
-                "agreement": agreement(t["verdict"], est.low, est.high, t["neutral_expectation"])
-                if n
-                else "no replicates",
+                "replicates": int(here.sum()),
+                **c,
+                "capped_rising": up,
+                "counted": counted,
+                "established": established,
+                "left_out": left_out,
+                "missing": max(planned - int(here.sum()), 0),
+                "fixed_fraction": j.fraction,
+                "fixed_low": j.low,
+                "fixed_high": j.high,
+                **t,
+                "agreement": j.agreement,
+                "reason": j.reason,
+                "prediction": j.prediction,
             }
         )
     table = pd.DataFrame(rows)
@@ -130,9 +362,37 @@ def compare(path, *, level: float = 0.95) -> pd.DataFrame:
     )
 
 
-def compare_thresholds(
-    path, table: pd.DataFrame | None = None, *, level: float = 0.95, seed: int = 0
-) -> pd.DataFrame:
+def _analytic_words(res, formula: str) -> str:
+    """The analytic threshold in words, rounded, with its closed form where one applies."""
+    if not np.isfinite(res.value) or res.invades_above is None:
+        return res.message
+    side = "above" if res.invades_above else "below"
+    value = f"{float(f'{res.value:.4g}'):g}"
+    where = f" ({formula})" if formula else ""
+    linked = getattr(res, "linked", None)
+    along = ""
+    if linked:
+        along = (f" (along the linked group, axis {res.parameter}: there "
+                 + ", ".join(f"{p} = {float(f'{v:.4g}'):g}" for p, v in linked.items()) + ")")
+    return f"{res.parameter} = {value}{where}: the mutant invades {side} it{along}"
+
+
+THRESHOLD_COLUMNS = [
+    "parameter",
+    "at",
+    "analytic",
+    "analytic_message",
+    "observed",
+    "observed_low",
+    "observed_high",
+    "observed_message",
+    "observed_add_points",
+    "analytic_in_interval",
+]
+
+
+def compare_thresholds(path, table: pd.DataFrame | None = None, *, level: float = 0.95,
+                       link: str = "logit") -> pd.DataFrame:
     """The observed threshold along each numeric swept parameter beside the analytic one.
 
     Parameters
@@ -142,9 +402,9 @@ def compare_thresholds(
     table : DataFrame, optional
         ``compare(path)``, if already computed.
     level : float, optional
-        Coverage of the bootstrap interval.
-    seed : int, optional
-        Seed of the bootstrap (``analysis.estimates.observed_threshold``).
+        Coverage of the profile-likelihood interval.
+    link : {"logit", "cloglog"}, optional
+        Link of the fitted dose-response curve (``analysis.estimates.observed_threshold``).
 
     Returns
     -------
@@ -153,60 +413,143 @@ def compare_thresholds(
         values, given in ``at`` as JSON): ``parameter``, ``at``,
         ``analytic`` (nan if none in the range), ``analytic_message``,
         ``observed``, ``observed_low``, ``observed_high``,
-        ``observed_message``, and ``analytic_in_interval`` (True when the
-        analytic threshold lies within the observed interval, an open bound
-        counting as the range's end and beyond).
+        ``observed_message``, ``observed_add_points`` (sweep values to add
+        where the points near the crossing are too far apart; a list), and
+        ``analytic_in_interval`` (True when the analytic threshold lies
+        within the observed interval, an open bound counting as the range's
+        end and beyond).
     """
     config = experiment_config(path)
     _require_invasion(config, path)
-    table = compare(path, level=level) if table is None else table
+    if table is None:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", IncompleteResultsWarning)  # compare() warned once
+            table = compare(path, level=level)
     rows = []
     for res in sweep_thresholds(config):
+        formula = closed_form(config, res.parameter, res.at)
         sel = np.ones(len(table), dtype=bool)
         for k, v in res.at.items():
             sel &= table[k].to_numpy() == v
-        sub = table[sel & (table["replicates"].to_numpy() > 0)]  # points with replicates
+        sub = table[sel & (table["counted"].to_numpy() > 0)]
         obs = observed_threshold(
             res.parameter,
             sub[res.parameter],
-            sub["mutant_fixed"],
-            sub["replicates"],
+            sub["established"],
+            sub["counted"],
             sub["neutral_expectation"],
             increasing=res.invades_above,
             level=level,
-            seed=seed,
+            link=link,
         )
         lo = obs.low if np.isfinite(obs.low) else -np.inf
         hi = obs.high if np.isfinite(obs.high) else np.inf
-        inside = (
-            bool(np.isfinite(res.value) and lo <= res.value <= hi)
-            if np.isfinite(obs.value) or np.isfinite(obs.low) or np.isfinite(obs.high)
-            else False
-        )
+        bounded = np.isfinite(obs.value) or np.isfinite(obs.low) or np.isfinite(obs.high)
         rows.append(
             {
                 "parameter": res.parameter,
                 "at": json.dumps(res.at),
                 "analytic": res.value,
-                "analytic_message": res.message,
+                "analytic_message": _analytic_words(res, formula),
                 "observed": obs.value,
                 "observed_low": obs.low,
                 "observed_high": obs.high,
                 "observed_message": obs.message,
-                "analytic_in_interval": inside,
+                "observed_add_points": list(obs.add_points),
+                "analytic_in_interval": bool(bounded and np.isfinite(res.value) and lo <= res.value <= hi),
             }
         )
-    return pd.DataFrame(
-        rows,
-        columns=[
-            "parameter",
-            "at",
-            "analytic",
-            "analytic_message",
-            "observed",
-            "observed_low",
-            "observed_high",
-            "observed_message",
-            "analytic_in_interval",
-        ],
-    )
+    return pd.DataFrame(rows, columns=THRESHOLD_COLUMNS)
+
+
+# -- the printed comparison --------------------------------------------------------------
+_HEADERS = {
+    "counted": "counted",
+    "established": "fixed",
+    "left_out": "left out",
+    "fixed_fraction": "share fixed",
+    "interval": "95% interval",
+    "invasion_fitness": "invasion fitness",
+    "verdict": "theory says",
+    "establishment_probability": "establishment",
+    "neutral_expectation": "neutral",
+    "agreement": "agreement",
+}
+LEGEND = (
+    "fixed: mutant fixed, or capped while its share rose; left out: undecided or otherwise "
+    "capped, never counted as losses; establishment, neutral: the fixation probability the "
+    "branching process predicts, and a neutral mutant's."
+)
+
+
+def _at_words(at: dict) -> str:
+    return ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in at.items())
+
+
+def compare_text(table: pd.DataFrame, thresholds: pd.DataFrame, *, width: int = 160) -> str:
+    """The comparison as printed by ``broodline compare``: table, legend, reasons, thresholds."""
+    swept = [c for c in table.columns[1 : table.columns.get_loc("replicates")]]
+    shown = table.assign(
+        interval=[f"{lo:.3g}-{hi:.3g}" if np.isfinite(lo) else "-"
+                  for lo, hi in zip(table["fixed_low"], table["fixed_high"])]
+    )[["point", *swept, *_HEADERS]].rename(columns=_HEADERS)
+    for c in ("share fixed", "invasion fitness", "establishment", "neutral"):
+        shown[c] = shown[c].map(lambda v: f"{v:.3g}" if np.isfinite(v) else "-")
+    for c in swept:
+        shown[c] = shown[c].map(lambda v: f"{v:g}" if isinstance(v, float) else str(v))
+    lines = [shown.to_string(index=False)]
+    lines += textwrap.wrap(LEGEND, width=min(width, 100))
+    notes = table[table["agreement"] != "agrees"]
+    if len(notes):
+        lines.append("")
+        for _, r in notes.iterrows():
+            lines.append(f"point {r['point']}: {r['agreement']}: {r['reason']}")
+    for r in thresholds.itertuples():
+        at = json.loads(r.at)
+        lines.append("")
+        lines.append(f"along {r.parameter}" + (f" (at {_at_words(at)})" if at else "") + ":")
+        lines.append(f"  analytic: {r.analytic_message}")
+        lines.append(f"  observed: {r.observed_message}")
+    return "\n".join(lines)
+
+
+_THEORY_HEADERS = {
+    "density_index": "D*",
+    "census_size": "census",
+    "resident_growth_rate": "lambda res",
+    "mutant_growth_rate": "lambda mut",
+    "invasion_fitness": "invasion fitness",
+    "verdict": "theory says",
+    "establishment_probability": "establishment",
+    "neutral_expectation": "neutral",
+}
+THEORY_LEGEND = (
+    "D*: the resident's equilibrium density index; census: its census size; lambda res, lambda "
+    "mut: growth rates there; establishment: the branching-process chance that the mutants "
+    "escape early loss; neutral: a neutral mutant's fixation probability."
+)
+
+
+def theory_table_text(points: pd.DataFrame, *, width: int = 100) -> str:
+    """The ``threshold`` command's table of predictions, with plain headers and a legend."""
+    shown = points.rename(columns=_THEORY_HEADERS)
+    if shown["problem"].eq("").all():
+        shown = shown.drop(columns="problem")
+    for c in _THEORY_HEADERS.values():
+        if c in shown and shown[c].dtype.kind == "f":
+            shown[c] = shown[c].map(lambda v: f"{v:.4g}" if np.isfinite(v) else "-")
+    swept = [c for c in points.columns[1:] if c not in _THEORY_HEADERS and c != "problem"]
+    for c in swept:
+        shown[c] = shown[c].map(lambda v: f"{v:g}" if isinstance(v, float) else str(v))
+    return "\n".join([shown.to_string(index=False), *textwrap.wrap(THEORY_LEGEND, width=width)])
+
+
+def threshold_lines(config: Config, results) -> list[str]:
+    """Each analytic threshold in words, rounded, with its closed form and the other swept values."""
+    out = []
+    for t in results:
+        at = f" (at {_at_words(t.at)})" if t.at else ""
+        # a closed form holds for the parameter moved alone, not along a linked group
+        formula = "" if getattr(t, "linked", None) else closed_form(config, t.parameter, t.at)
+        out.append(_analytic_words(t, formula) + at)
+    return out

@@ -4,16 +4,29 @@ from __future__ import annotations
 
 import base64
 import html
+import json
 import tempfile
+import warnings
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from sim.config import sweep_factors, swept_paths
-from sim.store import read_attrs
+from sim.config import sweep_factors, swept_paths, swept_values
+from sim.store import read_attrs, read_points, read_replicates
 
-from .comparison import SHOWN_COLUMNS, compare, compare_thresholds, experiment_config
+from .comparison import (
+    FIXED,
+    LOST,
+    SHOWN_COLUMNS,
+    IncompleteResultsWarning,
+    compare,
+    compare_thresholds,
+    experiment_config,
+    incomplete_message,
+    outcome_name,
+    warn_if_incomplete,
+)
 from .plots import plot
 
 __all__ = ["CAUTIONS", "report", "describe_allele", "verdict_text"]
@@ -67,15 +80,42 @@ def describe_allele(a) -> str:
             f"an age table: fecundity {_g(a.fecundity)} and survival {_g(a.adult_survival)} by "
             f"census age, juvenile survival {_g(a.juvenile_survival)}"
         )
-    at = f" at age {a.maturity_age}" if a.maturity_age > 1 else " from age 1"
     if a.breeding == "semelparous":
+        at = f" at age {a.maturity_age}" if a.maturity_age > 1 else " at age 1"
         return (
             f"semelparous: breeds once{at} with mean fecundity {_g(a.fecundity)}, then dies; "
             f"juvenile survival {_g(a.juvenile_survival)}"
         )
+    at = f" from age {a.maturity_age}"
     return (
         f"iteroparous: breeds every season{at} with mean fecundity {_g(a.fecundity)}, adult "
         f"survival {_g(a.adult_survival)}, juvenile survival {_g(a.juvenile_survival)}"
+    )
+
+
+def _density_words(config) -> str:
+    d = config.density
+    if d.form == "none":
+        return "no density dependence (the alleles grow without limit; the model has no equilibrium)"
+    swept = swept_values(config, "density.capacity")
+    k = f"capacity K swept over {', '.join(_g(v) for v in swept)}" if swept else f"capacity K = {d.capacity:g}"
+    return (
+        f"{d.form} density dependence with {k}, acting on "
+        f"{d.placement}, the density index counting {_COUNTED[d.counted]}"
+    )
+
+
+def _sweep_words(config) -> str:
+    if not swept_paths(config):
+        return ""
+    return (
+        " The experiment sweeps "
+        + "; ".join(
+            f"<code>{html.escape(k)}</code> over {', '.join(_g(x) for x in v)}"
+            for f in sweep_factors(config)
+            for k, v in f.values.items()
+        )
+        + "."
     )
 
 
@@ -87,29 +127,11 @@ def _experiment_text(config) -> str:
         if inv.resident_count == "equilibrium"
         else f"at {inv.resident_count} individuals"
     )
-    if d.form == "none":
-        density = (
-            "no density dependence (both alleles grow without limit; the model has no equilibrium)"
-        )
-    else:
-        density = (
-            f"{d.form} density dependence with capacity K = {d.capacity:g}, acting on "
-            f"{d.placement}, the density index counting {_COUNTED[d.counted]}"
-        )
+    density = _density_words(config)
     offspring = config.offspring.distribution + (
         f" (dispersion {config.offspring.dispersion:g})" if config.offspring.dispersion else ""
     )
-    sweep = ""
-    if config.sweep:
-        sweep = (
-            " The experiment sweeps "
-            + "; ".join(
-                f"<code>{html.escape(k)}</code> over {', '.join(_g(x) for x in v)}"
-                for f in sweep_factors(config)
-                for k, v in f.values.items()
-            )
-            + "."
-        )
+    sweep = _sweep_words(config)
     stop = "until one allele is left" if exp.stop == "fixation" else "for a fixed number of seasons"
     return (
         f"<p>A resident <b>{html.escape(inv.resident)}</b> "
@@ -154,22 +176,36 @@ def _prediction_text(table: pd.DataFrame, thresholds: pd.DataFrame, config) -> s
     return "".join(parts)
 
 
-def verdict_text(table: pd.DataFrame, thresholds: pd.DataFrame) -> str:
+def _capacity_words(config) -> str:
+    """Which K the verdict is for: the capacity, or "at each K" where it is swept."""
+    if config is None or config.density.form == "none":
+        return ""
+    if swept_values(config, "density.capacity"):
+        return " (K swept: see the table for each K)"
+    return f" at K = {config.density.capacity:g}"
+
+
+def _plural(count: int, one: str, many: str) -> str:
+    return f"{count} {one if count == 1 else many}"
+
+
+def verdict_text(table: pd.DataFrame, thresholds: pd.DataFrame, config=None) -> str:
     """The experiment's verdict in words: agreement counts and the thresholds side by side."""
     counts = table["agreement"].value_counts()
     n = len(table)
     words = [
-        f"Of {n} sweep point{'s' if n != 1 else ''}, "
+        f"Of {_plural(n, 'sweep point', 'sweep points')}{_capacity_words(config)}, "
         + ", ".join(
-            f"{counts.get(k, 0)} {word}"
-            for k, word in (
-                ("agrees", "agree"),
-                ("inconclusive", "are inconclusive"),
-                ("disagrees", "disagree"),
+            _plural(int(counts.get(k, 0)), one, many)
+            for k, one, many in (
+                ("agrees", "agrees", "agree"),
+                ("inconclusive", "is inconclusive", "are inconclusive"),
+                ("disagrees", "disagrees", "disagree"),
             )
         )
         + " with the prediction (the 95% Wilson interval of the observed fixation against the "
-        "neutral expectation, on the side the invasion fitness predicts)."
+        "neutral expectation, on the side the invasion fitness predicts; replicates that did "
+        "not resolve are left out, never counted as losses)."
     ]
     if counts.get("disagrees", 0):
         bad = table.loc[table["agreement"] == "disagrees", "point"].tolist()
@@ -178,35 +214,33 @@ def verdict_text(table: pd.DataFrame, thresholds: pd.DataFrame) -> str:
             "replicates and the population size before drawing conclusions."
         )
     for r in thresholds.itertuples():
-        if np.isfinite(r.observed) and np.isfinite(r.analytic):
+        at = json.loads(r.at)
+        where = f" (at {html.escape(', '.join(f'{k} = {v:g}' for k, v in at.items()))})" if at else ""
+        if np.isfinite(r.analytic) and (np.isfinite(r.observed_low) or np.isfinite(r.observed_high)
+                                        or np.isfinite(r.observed)):
             inside = "lies inside" if r.analytic_in_interval else "lies outside"
             words.append(
-                f"Along <code>{html.escape(r.parameter)}</code> the observed threshold is "
-                f"{r.observed:.4g} (95% interval {_bound(r.observed_low)} to "
-                f"{_bound(r.observed_high)}); the analytic threshold {r.analytic:.4g} "
-                f"{inside} it."
+                f"Along <code>{html.escape(r.parameter)}</code>{where}: "
+                f"{html.escape(r.observed_message)}. The analytic threshold "
+                f"{float(f'{r.analytic:.4g}'):g} {inside} that interval."
             )
         else:
             words.append(
-                f"Along <code>{html.escape(r.parameter)}</code>: "
+                f"Along <code>{html.escape(r.parameter)}</code>{where}: "
                 f"{html.escape(r.observed_message)}; {html.escape(r.analytic_message)}."
             )
     return " ".join(words)
 
 
-def _bound(v) -> str:
-    return f"{v:.4g}" if np.isfinite(v) else "beyond the range"
-
-
 def _table_html(table: pd.DataFrame, swept: list[str]) -> str:
-    cols = ["point", *swept, *SHOWN_COLUMNS]
+    cols = ["point", *swept, *SHOWN_COLUMNS, "reason"]
     head = "".join(f"<th>{html.escape(c.replace('_', ' '))}</th>" for c in cols)
     rows = []
     for _, r in table.iterrows():
         cells = []
         for c in cols:
             v = r[c]
-            if c in ("verdict", "agreement"):
+            if c in ("verdict", "agreement", "reason"):
                 cls = f"text {v}" if c == "agreement" else "text"
                 cells.append(f'<td class="{cls}">{html.escape(str(v))}</td>')
             elif isinstance(v, (float, np.floating)):
@@ -232,11 +266,107 @@ _CAPTIONS = {
     "fixation": "Observed fixation fraction of the mutant at each sweep point (95% Wilson "
     "intervals), the branching-process establishment probability, the neutral "
     "expectation, and the analytic and observed thresholds.",
-    "trajectories": "Mutant frequency in a sample of replicates (fixed and lost) at a few sweep "
-    "points, with the census size on the right axis.",
+    "trajectories": "Share of the mutant (without an invasion table: of the first allele) in a "
+    "sample of replicates at a few sweep points, coloured by how each ended, and their census "
+    "size below.",
+    "outcomes": "How the replicates ended at each sweep point.",
     "invasion_fitness": "Invasion fitness of the mutant along the swept parameter; it invades "
     "where the curve is above 1.",
+    "invasion_map": "Observed fixation on the plane of the two swept parameters (colour), with "
+    "the analytic invasion boundary, where invasion fitness is 1, drawn over it.",
 }
+
+
+def _figures_html(path, figures_dir, **tables) -> str:
+    with tempfile.TemporaryDirectory() as tmp:
+        figs = plot(path, figures_dir or tmp, **tables)
+        return "".join(_figure(figs.png(name), _CAPTIONS[name]) for name in _CAPTIONS if name in figs.files)
+
+
+def _cautions() -> tuple:
+    esc = html.escape
+    return ("Cautions", f'<p class="caution">{esc(CAUTIONS)}</p><p>{esc(_LIMITS)}</p>')
+
+
+def _invasion_sections(path, config, figures_dir, incomplete, table, thresholds) -> dict:
+    if table is None:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", IncompleteResultsWarning)  # warned once already
+            table = compare(path)
+    thresholds = compare_thresholds(path, table) if thresholds is None else thresholds
+    swept = swept_paths(config)
+    figures = _figures_html(path, figures_dir, table=table, thresholds=thresholds)
+    mutation = (
+        ""
+        if not config.mutation_model().active
+        else ("<p>Mutation is on in this experiment; the invasion theory above ignores it.</p>")
+    )
+    left_out, rising = int(table["left_out"].sum()), int(table["capped_rising"].sum())
+    notes = []
+    if incomplete:
+        notes.append(f'<p class="caution">{html.escape(incomplete)}</p>')
+    if left_out:
+        notes.append(
+            f"<p>{_plural(left_out, 'replicate', 'replicates')} did not resolve (undecided, or "
+            "capped without a rising mutant share): they are left out of the fractions, never "
+            "counted as losses, and a point whose verdict they could change is inconclusive.</p>"
+        )
+    if rising:
+        notes.append(
+            f"<p>{_plural(rising, 'replicate', 'replicates')} passed the population cap while "
+            "the mutant's share rose; they count as established.</p>"
+        )
+    return {
+        "experiment": ("The experiment", _experiment_text(config)),
+        "prediction": ("The prediction", _prediction_text(table, thresholds, config) + mutation),
+        "results": ("Results", _table_html(table, swept) + "".join(notes)),
+        "figures": ("Figures", figures),
+        "verdict": ("Verdict", f'<p class="verdict">{verdict_text(table, thresholds, config)}</p>'),
+        "cautions": _cautions(),
+    }
+
+
+def outcome_counts(path) -> pd.DataFrame:
+    """Replicates per sweep point by outcome, for any results file (a fixed one by its winner)."""
+    reps = read_replicates(path)
+    reps["outcome"] = reps["outcome"].map(outcome_name)
+    label = np.where(reps["winner"].astype(str) != "", reps["winner"].astype(str) + " fixed", reps["outcome"])
+    label = np.where(reps["outcome"].isin([FIXED, LOST]), reps["outcome"], label)
+    points = read_points(path)
+    counts = pd.crosstab(reps["point"], label).reindex(points["point"], fill_value=0)
+    counts.columns.name = None
+    counts = counts.reset_index(drop=True)
+    counts.insert(0, "replicates", counts.sum(axis=1))
+    return pd.concat([points.reset_index(drop=True), counts], axis=1)
+
+
+def _plain_sections(path, config, figures_dir, incomplete) -> dict:
+    exp = config.experiment
+    alleles = "".join(
+        f"<li><b>{html.escape(a.name)}</b>: {describe_allele(a)}; {a.initial_count} at the start</li>"
+        for a in config.allele
+    )
+    stop = "until one allele is left" if exp.stop == "fixation" else "for a fixed number of seasons"
+    text = (
+        f"<p>Alleles, without an invasion table (no theory to compare with):</p><ul>{alleles}</ul>"
+        f"<p>The population has {_density_words(config)}.{_sweep_words(config)}</p>"
+        f"<p>Each sweep point was run {exp.replicates} times ({exp.engine} engine), {stop}, at "
+        f"most {exp.max_steps} seasons, from seed {exp.seed}.</p>"
+    )
+    counts = outcome_counts(path)
+    head = "".join(f"<th>{html.escape(str(c))}</th>" for c in counts.columns)
+    rows = "".join(
+        "<tr>" + "".join(f"<td>{html.escape(_g(v) if isinstance(v, float) else str(v))}</td>" for v in r) + "</tr>"
+        for r in counts.itertuples(index=False)
+    )
+    table = f'<div class="scroll"><table><thead><tr>{head}</tr></thead><tbody>{rows}</tbody></table></div>'
+    note = f'<p class="caution">{html.escape(incomplete)}</p>' if incomplete else ""
+    return {
+        "experiment": ("The experiment", text),
+        "results": ("Outcomes", table + note),
+        "figures": ("Figures", _figures_html(path, figures_dir)),
+        "cautions": _cautions(),
+    }
 
 
 def report(
@@ -271,36 +401,13 @@ def report(
         raise FileNotFoundError(f"output folder {str(out.parent)!r} does not exist")
     config = experiment_config(path)
     attrs = read_attrs(path)
-    table = compare(path) if table is None else table
-    thresholds = compare_thresholds(path, table) if thresholds is None else thresholds
-    swept = swept_paths(config)
-    with tempfile.TemporaryDirectory() as tmp:
-        figs = plot(path, figures_dir or tmp, table=table, thresholds=thresholds)
-        figures = "".join(_figure(figs.png(name), _CAPTIONS[name]) for name in _CAPTIONS)
-    mutation = (
-        ""
-        if not config.mutation_model().active
-        else ("<p>Mutation is on in this experiment; the invasion theory above ignores it.</p>")
-    )
-    unresolved = int(table["unresolved"].sum())
-    unresolved_note = (
-        ""
-        if not unresolved
-        else (
-            f"<p>{unresolved} replicates ended neither fixed nor lost (undecided, extinct or "
-            "capped); they count as not fixed.</p>"
-        )
-    )
+    incomplete = warn_if_incomplete(path) if table is None else incomplete_message(path)
+    if config.invasion is None:
+        sections = _plain_sections(path, config, figures_dir, incomplete)
+    else:
+        sections = _invasion_sections(path, config, figures_dir, incomplete, table, thresholds)
     title = f"broodline report: {html.escape(config.experiment.name)}"
     esc = html.escape
-    sections = {
-        "experiment": ("The experiment", _experiment_text(config)),
-        "prediction": ("The prediction", _prediction_text(table, thresholds, config) + mutation),
-        "results": ("Results", _table_html(table, swept) + unresolved_note),
-        "figures": ("Figures", figures),
-        "verdict": ("Verdict", f'<p class="verdict">{verdict_text(table, thresholds)}</p>'),
-        "cautions": ("Cautions", f'<p class="caution">{esc(CAUTIONS)}</p><p>{esc(_LIMITS)}</p>'),
-    }
     body = "\n".join(
         f'<section id="{key}"><h2>{head}</h2>{text}</section>'
         for key, (head, text) in sections.items()

@@ -21,6 +21,7 @@ from sim.config import (
     get_path,
     parse_config,
     sweep_points,
+    swept_values,
     with_values,
 )
 from sim.meanfield import NoEquilibriumError
@@ -155,8 +156,9 @@ def _fitness(base: Config, setting, value: float) -> float:
 
 def _default_bracket(config: Config, parameter: str) -> tuple[float, float, bool]:
     """(lo, hi, open_ended): the swept range, [0, 1] for a probability, else [0, extendable]."""
-    if config.sweep and parameter in config.sweep:
-        values = [float(v) for v in config.sweep[parameter]]
+    swept = swept_values(config, parameter)
+    if swept:
+        values = [float(v) for v in swept]
         return min(values), max(values), False
     if _is_probability(config, parameter):
         return 0.0, 1.0, False

@@ -2,6 +2,7 @@
 
 from .config import Config, ConfigError, load_config, parse_config, sweep_points
 from .density import DensityDependence, Factors
+from .experiment import run_experiment
 from .lifecycle import LifeCycle, initial_census
 from .meanfield import (
     Equilibrium,
@@ -12,7 +13,6 @@ from .meanfield import (
     stable_age_distribution,
 )
 from .model import BroodModel
-from .experiment import run_experiment
 from .replicates import ReplicateResult, replicate_rng, run_replicate, run_replicates
 from .schedules import Schedule, iteroparous, semelparous, table
 from .store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories

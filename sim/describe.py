@@ -6,14 +6,66 @@ import numpy as np
 
 from .aggregation import counts_obstacles
 from .config import Config, sweep_factors, sweep_points
+from .density import Factors
 from .lifecycle import initial_census
 from .meanfield import growth_rate
 
-__all__ = ["describe_experiment", "preflight", "counts_engine_note"]
+__all__ = ["ConfigWarning", "config_warnings", "describe_experiment", "preflight", "counts_engine_note"]
+
+
+class ConfigWarning(UserWarning):
+    """A config that is valid but probably not what was meant (said before anything runs)."""
+
+
+# the season factors at D -> infinity, by where density dependence acts
+_FLOOR = {
+    "recruitment": Factors(recruitment=0.0),
+    "fecundity": Factors(fecundity=0.0),
+    "adult-survival": Factors(adult=0.0),
+    "all-survival": Factors(adult=0.0, recruitment=0.0),
+}
+
+
+def config_warnings(config: Config) -> list[str]:
+    """What looks wrong in a valid config: keys a breeding type ignores, alleles nothing regulates.
+
+    An allele cannot be regulated when its growth rate stays above 1 even as
+    the density factor goes to 0 (a form that only scales the rate where
+    density acts: Beverton-Holt, Ricker); a population of it grows without
+    bound and every replicate ends capped.
+    """
+    out = []
+    for i, a in enumerate(config.allele):
+        if a.breeding == "semelparous" and a.maturity_age == 1 and a.adult_survival is not None:
+            out.append(f"allele[{i}].adult_survival: ignored: {a.name!r} is semelparous and breeds at "
+                       "age 1, then dies (adult_survival is the survival of the years before breeding)")
+        if config.invasion is not None and a.initial_count:
+            out.append(f"allele[{i}].initial_count: ignored: [invasion] sets the starting counts")
+    d = config.density
+    if d.form in ("beverton-holt", "ricker"):
+        for a, schedule in zip(config.allele, config.schedules()):
+            floor = growth_rate(schedule, _FLOOR[d.placement])
+            if floor > 1.0:
+                out.append(
+                    f"density.acts_on = {d.placement!r} cannot regulate allele {a.name!r}: even with "
+                    f"the density factor at 0 its growth rate is {floor:.3g} > 1 (it breeds and "
+                    "recruits where density does not act), so it grows without bound and its "
+                    "replicates will pass experiment.max_population"
+                )
+    return out
+
 
 
 def _fmt(values) -> str:
     return "[" + ", ".join(f"{v:g}" for v in np.asarray(values, dtype=float)) + "]"
+
+
+def _capacity(config: Config) -> str:
+    """K as set, or the values it is swept over (the base value would mislead)."""
+    swept = (config.sweep or {}).get("density.capacity")
+    if swept:
+        return "K swept over " + ", ".join(f"{v:g}" for v in swept)
+    return f"K = {config.density.capacity:g}"
 
 
 def preflight(config: Config) -> list:
@@ -23,8 +75,12 @@ def preflight(config: Config) -> list:
     NoEquilibriumError (a resident with no equilibrium at some point), with the
     point named.
     """
+    import warnings
+
     from .meanfield import NoEquilibriumError
 
+    for message in config_warnings(config):
+        warnings.warn(message, ConfigWarning, stacklevel=2)
     points = sweep_points(config)
     for point in points:
         try:
@@ -40,13 +96,17 @@ def preflight(config: Config) -> list:
 
 def describe_experiment(config: Config) -> str:
     """The experiment as resolved: alleles and schedules, density, sweep points, total work."""
-    points = preflight(config)
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConfigWarning)  # listed as lines at the end instead
+        points = preflight(config)
     exp, d = config.experiment, config.density
     lines = [
         f"experiment {exp.name!r}: engine {exp.engine}, seed {exp.seed}, "
         f"stop at {exp.stop} (at most {exp.max_steps} seasons), record every {exp.record_every}",
         f"density: {d.form}"
-        + ("" if d.form == "none" else f" (K = {d.capacity:g}) acting on {d.placement}, counting {d.counted}"),
+        + ("" if d.form == "none" else f" ({_capacity(config)}) acting on {d.placement}, counting {d.counted}"),
         f"offspring: {config.offspring.distribution}"
         + (f" (dispersion {config.offspring.dispersion:g})" if config.offspring.dispersion else ""),
         "mutation: " + ("none" if not config.mutation_model().active else
@@ -79,6 +139,7 @@ def describe_experiment(config: Config) -> str:
     lines.append(f"replicates: {exp.replicates} per point, {total} in all "
                  f"(at most {seasons:,} seasons; trajectories {exp.trajectory})")
     lines.append(counts_engine_note(config))
+    lines.extend(f"warning: {w}" for w in config_warnings(config))
     return "\n".join(lines)
 
 

@@ -35,9 +35,16 @@ THRESHOLD_KEYS = {
 COMPARE_KEYS = {
     "point",
     "replicates",
-    "mutant_fixed",
-    "mutant_lost",
-    "unresolved",
+    "mutant-fixed",  # one name per outcome: as in the results file and the run table
+    "mutant-lost",
+    "extinct",
+    "undecided",
+    "capped",
+    "capped_rising",
+    "counted",
+    "established",
+    "left_out",
+    "missing",
     "fixed_fraction",
     "fixed_low",
     "fixed_high",
@@ -46,6 +53,8 @@ COMPARE_KEYS = {
     "establishment_probability",
     "neutral_expectation",
     "agreement",
+    "reason",
+    "prediction",
 }
 COMPARE_THRESHOLD_KEYS = {
     "parameter",
@@ -56,6 +65,7 @@ COMPARE_THRESHOLD_KEYS = {
     "observed_low",
     "observed_high",
     "observed_message",
+    "observed_add_points",
     "analytic_in_interval",
 }
 
@@ -103,7 +113,12 @@ def test_threshold_text(config, capsys):
     out = capsys.readouterr().out
     assert "resident 'perennial', mutant 'one-shot'" in out
     # Charnov & Schaffer (1973) with density on all survival: B_i + P / c = 3
-    assert "allele.one-shot.fecundity = 3: the mutant invades above it" in out
+    assert (
+        "allele.one-shot.fecundity = 3 (B_s = B_i + P / c = 2 + 0.5 / 0.5 = 3): "
+        "the mutant invades above it" in out
+    )
+    # plain words: the abbreviations come with a legend below the table
+    assert "D*: the resident's equilibrium density index" in out
 
 
 def test_threshold_json(config, capsys):
@@ -165,7 +180,9 @@ def test_plot_and_report(results, tmp_path, capsys):
     figs = tmp_path / "figs"
     assert main(["plot", str(results), "-o", str(figs)]) == 0
     assert sorted(p.name for p in figs.iterdir()) == sorted(
-        f"{n}.{e}" for n in ("fixation", "trajectories", "invasion_fitness") for e in ("png", "svg")
+        f"{n}.{e}"
+        for n in ("fixation", "trajectories", "outcomes", "invasion_fitness")
+        for e in ("png", "svg")
     )
     assert main(["plot", str(results), "-o", str(figs)]) == 2
     assert "pass --overwrite" in capsys.readouterr().err
@@ -192,7 +209,8 @@ def test_user_errors_exit_2(argv, message, tmp_path, monkeypatch, capsys):
 
 def test_not_a_results_file(config, capsys):
     assert main(["compare", str(config)]) == 2
-    assert "cannot be read as a broodline results file" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert err.count("is not a broodline results file") == 1  # said once, not nested
 
 
 def test_threshold_bad_parameter_and_no_invasion(config, tmp_path, capsys):

@@ -196,7 +196,7 @@ def test_saving_without_replicates_writes_the_config_only(session, tmp_path):
 
 
 @pytest.mark.parametrize("path", ["configs/demo.toml", "configs/cinderwort-ages.toml",
-                                  "configs/crevice-periwinkle.toml"])
+                                  "configs/nookshell-crevices.toml"])
 def test_toml_text_reads_back_to_the_same_config(path):
     config = load_config(path)
     assert parse_config(tomllib.loads(toml_text(config, header="a line"))) == config

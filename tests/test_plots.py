@@ -3,12 +3,24 @@
 import xml.etree.ElementTree as ET
 
 import matplotlib.pyplot as plt
+import numpy as np
 import pytest
+from matplotlib.contour import ContourSet
 
 from analysis import compare, compare_thresholds
 from analysis.comparison import experiment_config
-from analysis.plots import FIGURES, fitness_figure, fixation_figure, plot
-from tests.invasion_configs import write_small_results
+from analysis.plots import (
+    FIGURES,
+    fitness_figure,
+    fixation_figure,
+    invasion_map_figure,
+    parameter_words,
+    plot,
+    trajectory_figure,
+)
+from sim.config import parse_config
+from sim.runner import run_experiment
+from tests.invasion_configs import invasion_config, write_small_results
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # the PNG file signature (PNG specification, sec. 5.2)
 
@@ -18,15 +30,55 @@ def results(tmp_path_factory):
     return write_small_results(tmp_path_factory.mktemp("plots") / "small.h5")
 
 
-def test_plot_writes_png_and_svg(results, tmp_path):
-    figs = plot(results, tmp_path / "figs")
+@pytest.fixture(scope="module")
+def plane(tmp_path_factory):
+    # two swept parameters, the capacity as whole numbers (TOML integers): the case
+    config = invasion_config(
+        replicates=40,
+        seed=9,
+        record_every=3,
+        sweep={"density.capacity": [20, 40], "allele.one-shot.fecundity": [2.5, 3.5, 4.5, 6.0]},
+    )
+    path = tmp_path_factory.mktemp("plane") / "plane.h5"
+    run_experiment(config, path, progress=False)
+    return path
+
+
+@pytest.fixture(scope="module")
+def plain(tmp_path_factory):
+    # no [invasion]: two alleles started side by side
+    raw = invasion_config(replicates=12, max_steps=60, capacity=30.0).model_dump(exclude_none=True)
+    del raw["invasion"]
+    raw["allele"][0]["initial_count"] = 20
+    raw["allele"][1]["initial_count"] = 5
+    raw["sweep"] = {"allele.one-shot.fecundity": [3.0, 5.0]}
+    path = tmp_path_factory.mktemp("plain") / "plain.h5"
+    run_experiment(parse_config(raw), path, progress=False)
+    return path
+
+
+def test_plot_writes_png_and_svg(plane, tmp_path):
+    figs = plot(plane, tmp_path / "figs")
     assert set(figs.files) == set(FIGURES)
-    for name in FIGURES:
+    for name in figs.files:
         png, svg = figs.files[name]["png"], figs.files[name]["svg"]
         assert png.read_bytes()[:8] == PNG_SIGNATURE
         assert png.stat().st_size > 10_000
         ET.parse(svg)  # well-formed XML
         assert svg.read_text().count("<svg") == 1
+
+
+def test_axis_labels_are_words_with_the_path_in_small_type(results):
+    assert parameter_words("allele.one-shot.fecundity") == "one-shot fecundity"
+    assert parameter_words("density.capacity") == "capacity K"
+    config = experiment_config(results)
+    table = compare(results)
+    fig = fixation_figure(table, compare_thresholds(results, table), config)
+    ax = fig.axes[0]
+    assert ax.get_xlabel() == "one-shot fecundity"
+    small = [t for t in ax.texts if t.get_text() == "allele.one-shot.fecundity"]
+    assert small and small[0].get_fontsize() < ax.xaxis.label.get_fontsize()
+    plt.close(fig)
 
 
 def test_fixation_figure_content(results):
@@ -35,13 +87,18 @@ def test_fixation_figure_content(results):
     thresholds = compare_thresholds(results, table)
     fig = fixation_figure(table, thresholds, config)
     ax = fig.axes[0]
-    assert ax.get_xlabel() == "allele.one-shot.fecundity"
     assert ax.get_ylabel() == "probability the mutant fixes"
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
     assert any("Wilson" in t for t in labels)
     assert any("establishment" in t for t in labels)
     assert any("neutral" in t for t in labels)
     assert any("analytic threshold 4" in t for t in labels)
+    # the neutral line (1/31) stands clear of the axis: the axis starts below 0
+    assert ax.get_ylim()[0] < 0
+    # the legend sits below the axes, not over the data
+    fig.canvas.draw()
+    legend = ax.get_legend().get_window_extent()
+    assert legend.y1 <= ax.get_window_extent().y0
     plt.close(fig)
     fig = fitness_figure(table, thresholds, config)
     ax = fig.axes[0]
@@ -49,3 +106,52 @@ def test_fixation_figure_content(results):
     curve = ax.get_lines()[0].get_ydata()
     assert curve.min() == pytest.approx(2.5 / 4) and curve.max() == pytest.approx(6.0 / 4)
     plt.close(fig)
+
+
+def test_threshold_lines_drawn_when_another_key_holds_whole_numbers(plane):
+    # "density.capacity" = [20, 40] (integers in TOML): one analytic threshold line per
+    # capacity (B_s = 4 at both: K never moves the threshold, Mylius & Diekmann 1995).
+    config = experiment_config(plane)
+    table = compare(plane)
+    fig = fixation_figure(table, compare_thresholds(plane, table), config)
+    labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+    assert sum("analytic threshold 4" in t for t in labels) == 2, labels
+    plt.close(fig)
+
+
+def test_two_parameter_sweep_gets_an_invasion_map(plane):
+    config = experiment_config(plane)
+    fig = invasion_map_figure(compare(plane), config, resolution=12)
+    ax = fig.axes[0]
+    assert ax.get_xlabel() == "one-shot fecundity"
+    # the analytic boundary: invasion fitness 1 at B_s = 4 whatever K (Mylius & Diekmann
+    # 1995: K scales the equilibrium, not the factor the mutant meets): a vertical line
+    contours = [c for c in ax.collections if isinstance(c, ContourSet)]
+    assert contours
+    xs = np.concatenate([p.vertices[:, 0] for c in contours for p in c.get_paths() if len(p.vertices)])
+    assert xs == pytest.approx(4.0, abs=0.05)
+    plt.close(fig)
+
+
+def test_trajectories_coloured_by_outcome_with_census_panel(results):
+    config = experiment_config(results)
+    table = compare(results)
+    fig = trajectory_figure(results, table, config)
+    assert len(fig.axes) == 2 * 4  # a share panel and a census panel per chosen point
+    assert fig.axes[4].get_ylabel().startswith("census size")
+    legend = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert "mutant fixed" in legend and "mutant lost" in legend
+    colours = {line.get_color() for ax in fig.axes[:4] for line in ax.get_lines()}
+    assert len(colours) >= 2
+    plt.close(fig)
+
+
+def test_plot_and_report_without_invasion(plain, tmp_path):
+    from analysis import report
+
+    page = report(plain, tmp_path / "plain.html", figures_dir=tmp_path / "plain").read_text()
+    assert {p.name for p in (tmp_path / "plain").iterdir()} == {
+        "trajectories.png", "trajectories.svg", "outcomes.png", "outcomes.svg"
+    }
+    assert page.count("data:image/png;base64,") == 2
+    assert "one-shot fixed" in page  # the outcome counts, by winner

@@ -57,7 +57,7 @@ def test_report_sections(page):
 def test_report_is_self_contained(page):
     _, parsed = page
     assert parsed.links == []  # no external stylesheet or script
-    assert len(parsed.images) == 3
+    assert len(parsed.images) == 4  # fixation, trajectories, outcomes, invasion fitness
     for src in parsed.images:
         assert src.startswith("data:image/png;base64,")
         assert base64.b64decode(src.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"
@@ -69,7 +69,11 @@ def test_report_content(page):
     assert parsed.rows == 1 + len(SMALL_SWEEP)  # header + one row per sweep point
     assert "perennial" in words and "one-shot" in words
     assert "allele.one-shot.fecundity = 4" in words  # the analytic threshold
-    assert re.search(r"Of 4 sweep points, \d+ agree, \d+ are inconclusive, \d+ disagree", words)
+    assert re.search(
+        r"Of 4 sweep points at K = 30, \d+ (agrees|agree), \d+ (is|are) inconclusive, \d+ (disagrees|disagree)",
+        words,
+    )
+    assert "1 are" not in words and "breeds every season at age" not in words
     assert " ".join(CAUTIONS.split()) in " ".join(words.split())
     assert "not advice for managing real populations" in words
 
@@ -77,3 +81,18 @@ def test_report_content(page):
 def test_report_refuses_missing_folder(tmp_path):
     with pytest.raises(FileNotFoundError, match="does not exist"):
         report(tmp_path / "none.h5", tmp_path / "no" / "r.html")
+
+
+def test_report_words_for_a_swept_capacity():
+    # the base K would mislead where K is swept: the report names the swept values, and the
+    # verdict says it is for each K; one agreeing point reads "1 agrees", not "1 agree"
+    import pandas as pd
+
+    from analysis.reporting import _density_words, verdict_text
+    from tests.invasion_configs import invasion_config
+
+    config = invasion_config(capacity=150.0, sweep={"density.capacity": [50, 200]})
+    assert "capacity K swept over 50, 200" in _density_words(config)
+    table = pd.DataFrame({"agreement": ["agrees", "inconclusive"], "point": [0, 1]})
+    text = verdict_text(table, pd.DataFrame(columns=["parameter"]), config)
+    assert text.startswith("Of 2 sweep points (K swept: see the table for each K), 1 agrees, 1 is inconclusive")

@@ -35,8 +35,7 @@ _CLICK_TO_DRAWN = """async () => {
 
 
 def _session(capacity: int, replicates: int):
-    from sim.config import demo_config_path
-    from sim.config import load_config
+    from sim.config import demo_config_path, load_config
 
     from .session import LabSession
 

@@ -30,13 +30,15 @@ COMMANDS = [
     "sim.cli.run:register",
     "sim.cli.check:register",
     "sim.cli.demo:register",
+    "sim.cli.trace:register",
     "sim.cli.status:register",
     "analysis.commands:register",
     "sim.cli.bench:register",
 ]
 
 # Library messages name the Python parameters; at the command line they are these options.
-_OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite"}
+_OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite", "point must": "--point must",
+            "replicate must": "--replicate must"}
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -59,9 +61,20 @@ def as_options(message: str) -> str:
     return message
 
 
+def _plain_warnings(command: str) -> None:
+    """Show warnings meant for the user as one line each: ``broodline run: warning: ...``."""
+    import warnings
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        print(f"broodline {command}: warning: {message}", file=file or sys.stderr)
+
+    warnings.showwarning = show
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
+    _plain_warnings(args.command)
     try:
         return args.func(args)
     except (ConfigError, NoEquilibriumError, UserError, FileExistsError, FileNotFoundError,

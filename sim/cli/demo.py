@@ -15,10 +15,18 @@ def cmd_demo(args) -> int:
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
     config_path = out / "demo.toml"  # a copy the user can edit and run again
-    if not config_path.exists():  # never clobber a copy the user may have edited
-        config_path.write_text(demo_config_path().read_text())
-    config = load_config(demo_config_path())
     results = out / "demo.h5"
+    earlier = [p for p in (results, out / "report.html") if p.exists()]
+    if earlier and not args.overwrite:
+        raise FileExistsError(
+            f"{out} holds an earlier demo's results ({', '.join(p.name for p in earlier)}); "
+            "pass --overwrite to replace them"
+        )
+    if config_path.exists():  # never clobber a copy the user may have edited: run it
+        print(f"running the demo from its own config {config_path} (delete it for the shipped one)\n")
+    else:
+        config_path.write_text(demo_config_path().read_text())
+    config = load_config(config_path)
     print(describe_experiment(config))
     print()
     run_from_command_line(config, results, overwrite=True, quiet=args.quiet)
@@ -27,7 +35,8 @@ def cmd_demo(args) -> int:
     finish_demo(results, out)
     print(f"\nNext, edit the demo's config and run it yourself:\n"
           f"  broodline check {config_path}\n"
-          f"  broodline run {config_path} -o {out / 'my-run.h5'}")
+          f"  broodline run {config_path} -o {out / 'my-run.h5'}\n"
+          f"  or run the demo again from it: broodline demo -o {out} --overwrite")
     return 0
 
 
@@ -36,4 +45,5 @@ def register(sub) -> None:
     p = sub.add_parser("demo", help="run the demo invasion experiment (about a minute)")
     p.add_argument("-o", "--output", default="broodline-demo", help="folder for the demo's files")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--overwrite", action="store_true", help="replace the results of an earlier demo")
     p.set_defaults(func=cmd_demo)

@@ -15,7 +15,7 @@ import sys
 import pandas as pd
 from tqdm import tqdm
 
-from ..config import load_config
+from ..config import load_config, parse_config
 from ..errors import UserError
 from ..experiment import ExperimentInterrupted, request_stop, run_experiment
 from ..parallel import default_workers
@@ -136,8 +136,22 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
 
 
 
+_OVERRIDES = ("seed", "replicates", "max_steps")
+
+
+def with_overrides(config, args):
+    """``run --seed/--replicates/--max-steps``: the config with them set (and checked), so the
+    results file records the experiment as run."""
+    given = {k: getattr(args, k) for k in _OVERRIDES if getattr(args, k, None) is not None}
+    if not given:
+        return config
+    raw = config.model_dump(mode="json", exclude_none=True)
+    raw["experiment"].update(given)
+    return parse_config(raw)
+
+
 def cmd_run(args) -> int:
-    config = load_config(args.config)
+    config = with_overrides(load_config(args.config), args)
     run_from_command_line(config, args.output, overwrite=args.overwrite, quiet=args.quiet,
                           **run_options(args))
     return 0
@@ -150,5 +164,8 @@ def register(sub) -> None:
     p.add_argument("-o", "--output", required=True, help="results file to write (.h5)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing results file")
     p.add_argument("--quiet", action="store_true", help="no progress bar (per-point lines still logged)")
+    p.add_argument("--seed", type=int, help="experiment.seed for this run (recorded in the results file)")
+    p.add_argument("--replicates", type=int, help="experiment.replicates for this run (recorded)")
+    p.add_argument("--max-steps", dest="max_steps", type=int, help="experiment.max_steps for this run (recorded)")
     add_run_options(p)
     p.set_defaults(func=cmd_run)

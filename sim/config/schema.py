@@ -64,8 +64,9 @@ def _resident_count(x):
     raise ValueError(f"must be 'equilibrium' or a whole number in [1, {MAX_COUNT}]")
 
 
-Probability = Annotated[float, AfterValidator(_probability)]
-NonNegative = Annotated[float, AfterValidator(_non_negative)]
+# strict: a number written as text ("4.5") is refused, not quietly converted
+Probability = Annotated[float, Field(strict=True), AfterValidator(_probability)]
+NonNegative = Annotated[float, Field(strict=True), AfterValidator(_non_negative)]
 
 
 class _Section(BaseModel):
@@ -76,13 +77,13 @@ class ExperimentSection(_Section):
     """``[experiment]``: what to run and when to stop."""
 
     name: str = "experiment"
-    seed: int = Field(0, ge=0)
-    replicates: int = Field(100, ge=1)
-    max_steps: int = Field(1000, ge=1)
+    seed: int = Field(0, ge=0, strict=True)
+    replicates: int = Field(100, ge=1, strict=True)
+    max_steps: int = Field(1000, ge=1, strict=True)
     stop: Literal[words.STOP_RULES] = "fixation"
-    record_every: int = Field(1, ge=1)
+    record_every: int = Field(1, ge=1, strict=True)
     engine: Literal[words.ENGINES] = "individual"
-    max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT)
+    max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT, strict=True)
     trajectory: Literal[words.TRAJECTORY_MODES] = "by-age"
 
 
@@ -92,7 +93,7 @@ class DensitySection(_Section):
     form: Literal[words.DENSITY_FORMS] = "none"
     acts_on: Literal[words.PLACEMENTS] | None = None
     counted: Literal[words.COUNTED] = "census"
-    capacity: float | None = Field(None, gt=0)
+    capacity: float | None = Field(None, gt=0, strict=True)
 
     @model_validator(mode="after")
     def _consistent(self):
@@ -123,7 +124,7 @@ class OffspringSection(_Section):
     """``[offspring]``: the offspring-number distribution."""
 
     distribution: Literal[words.DISTRIBUTIONS] = "poisson"
-    dispersion: float | None = Field(None, gt=0)
+    dispersion: float | None = Field(None, gt=0, strict=True)
 
     @model_validator(mode="after")
     def _dispersion(self):
@@ -142,8 +143,8 @@ class AlleleSection(_Section):
     fecundity: NonNegative | list[NonNegative]
     adult_survival: Probability | list[Probability] | None = None
     juvenile_survival: Probability
-    maturity_age: int = Field(1, ge=1, le=200)
-    initial_count: int = Field(0, ge=0, le=MAX_COUNT)
+    maturity_age: int = Field(1, ge=1, le=200, strict=True)
+    initial_count: int = Field(0, ge=0, le=MAX_COUNT, strict=True)
 
     @model_validator(mode="after")
     def _shape(self):
@@ -189,7 +190,7 @@ class InvasionSection(_Section):
 
     resident: str
     mutant: str
-    mutant_count: int = Field(1, ge=1, le=MAX_COUNT)
+    mutant_count: int = Field(1, ge=1, le=MAX_COUNT, strict=True)
     resident_count: Annotated[Any, AfterValidator(_resident_count)] = "equilibrium"
 
 

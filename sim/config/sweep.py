@@ -22,6 +22,7 @@ from .messages import messages
 from .schema import LINKED, Config, ConfigError
 
 __all__ = [
+    "swept_values",
     "SweepPoint",
     "SweepFactor",
     "sweep_points",
@@ -144,6 +145,12 @@ def sweep_factors(config: Config) -> list[SweepFactor]:
 def swept_paths(config: Config) -> list[str]:
     """Every swept path, in the order of the points table's columns."""
     return [path for factor in sweep_factors(config) for path in factor.paths]
+
+
+def swept_values(config: Config, path: str) -> list | None:
+    """The values ``path`` is swept over, in file order (None if it is not swept)."""
+    factor = next((f for f in sweep_factors(config) if path in f.values), None)
+    return None if factor is None else list(factor.values[path])
 
 
 def sweep_points(config: Config) -> list[SweepPoint]:

@@ -1,0 +1,28 @@
+"""``broodline trace``: one replicate from its keyed stream, census by allele and age every season."""
+
+from __future__ import annotations
+
+from ..config import load_config
+from ..trace import trace_replicate
+
+__all__ = ["register"]
+
+
+def cmd_trace(args) -> int:
+    config = load_config(args.config)
+    t = trace_replicate(config, point=args.point, replicate=args.replicate)
+    where = ", ".join(f"{k} = {v}" for k, v in t.values.items())
+    print(f"point {t.point}{f' ({where})' if where else ''}, replicate {t.replicate}, stream "
+          f"SeedSequence({config.experiment.seed}, spawn_key=({t.point}, {t.replicate}))")
+    print(t.census.to_string(index=False))
+    print(f"outcome: {t.outcome} after {t.steps} seasons")
+    return 0
+
+
+def register(sub) -> None:
+    """Add ``trace`` to the ``broodline`` subparsers."""
+    p = sub.add_parser("trace", help="run one replicate and print its census by allele and age, season by season")
+    p.add_argument("config", help="experiment config (TOML)")
+    p.add_argument("--point", type=int, default=0, help="sweep point (default 0)")
+    p.add_argument("--replicate", type=int, default=0, help="replicate (default 0)")
+    p.set_defaults(func=cmd_trace)

@@ -1,0 +1,32 @@
+"""Thresholds in closed form: the formula printed beside the solver's value."""
+
+import pytest
+
+from analysis import threshold
+from analysis.closedform import closed_form
+from tests.invasion_configs import invasion_config
+
+PATH = "allele.one-shot.fecundity"
+
+
+@pytest.mark.parametrize(
+    "kw, text, value",
+    [
+        # Mylius & Diekmann (1995): density dependence on recruitment or fecundity
+        ({"acts_on": "recruitment"}, "B_s = B_i / (1 - P) = 2 / (1 - 0.5) = 4", 4.0),
+        ({"acts_on": "fecundity"}, "B_s = B_i / (1 - P) = 2 / (1 - 0.5) = 4", 4.0),
+        # Charnov & Schaffer (1973): on all survival, and without density dependence
+        ({"acts_on": "all-survival"}, "B_s = B_i + P / c = 2 + 0.5 / 0.5 = 3", 3.0),
+        ({"form": "none"}, "B_s = B_i + P / c = 2 + 0.5 / 0.5 = 3", 3.0),
+    ],
+)
+def test_closed_form_matches_the_solver(kw, text, value):
+    config = invasion_config(**kw)
+    assert closed_form(config, PATH) == text
+    assert threshold(config, PATH, bracket=(1.0, 8.0)).value == pytest.approx(value, rel=1e-8)
+
+
+def test_no_closed_form_where_none_applies():
+    assert closed_form(invasion_config(acts_on="adult-survival"), PATH) == ""
+    assert closed_form(invasion_config(), "allele.perennial.fecundity") == ""
+    assert closed_form(invasion_config(mutant_juvenile_survival=0.4), PATH) == ""
