@@ -28,12 +28,15 @@ __all__ = [
     "FinitePrediction",
     "demographic_variance",
     "diffusion_fixation",
+    "DensityFluctuation",
+    "density_fluctuation",
     "finite_population_prediction",
     "finite_population_columns",
     "COLUMNS",
 ]
 
 WEAK_SELECTION = 0.05  # |s| per season above this: the diffusion is not used (errors of order s)
+_NEGLECTED = 0.1  # 2 V |neglected selection| / sigma^2 above this could move u by ~10%: not valid
 _MIN_SIZE = 10.0  # a regulated census below this is too small for a diffusion
 
 
@@ -125,6 +128,97 @@ def demographic_variance(
     return DemographicVariance(variance, by_age, u, demo.growth_rate)
 
 
+def _placement_derivative(schedule: Schedule, density) -> np.ndarray:
+    """dA/df: the projection matrix is linear in the density factor f at its placement."""
+    from sim.meanfield import projection_matrix
+
+    return projection_matrix(schedule, density.placed(1.0)) - projection_matrix(schedule, density.placed(0.0))
+
+
+@dataclass(frozen=True)
+class DensityFluctuation:
+    """The mean shift of the density factor in a finite population, and the selection it adds.
+
+    Attributes
+    ----------
+    factor_shift : float
+        E[f] - f*: the stationary mean of the factor minus its mean-field value.
+    differential : float
+        kappa: how much more the mutant's growth (per unit reproductive value)
+        rises with f than the resident's.
+    selection : float
+        kappa (E[f] - f*): added to the per-season selection coefficient.
+    census_variance : float
+        Stationary variance of the resident's census (linear noise approximation).
+    """
+
+    factor_shift: float
+    differential: float
+    selection: float
+    census_variance: float
+
+
+def density_fluctuation(
+    config: Config, env: ResidentEnvironment, values: np.ndarray, mutant_ages: np.ndarray
+) -> DensityFluctuation | None:
+    """Selection from the fluctuating density factor (None where it is not derived: see Notes).
+
+    Notes
+    -----
+    With f at one placement, A(f) = A(f*) + (f - f*) A' for both types. The
+    share's drift at a season with factor f is p(1-p) [s + kappa (f - f*)],
+    kappa = v A_m' u_m / v u_m - v A_r' u_r / v u_r, so on average the
+    selection coefficient gains kappa (E[f] - f*). The resident's census is
+    stationary, E[v n_{t+1}] = E[v n_t]; since v A_r(f*) = v this gives
+    E[f] - f* = -Cov(f, v A_r' n) / (v A_r' n*) ~ -f'(D*) w C a / (a n*),
+    with a = A_r'^T v, D = w n the density index and C the stationary
+    covariance of the census in the linear noise approximation: C = J C J^T + Q,
+    J the Jacobian of the mean-field season at n*, Q = sum_a n*_a Cov(an
+    age-a individual's recruits and survival) (van Kampen 1981; Caswell 2001
+    ch. 16 for the Jacobian). Derived where D is taken from the census before
+    breeding; None for a ceiling on recruits only and for ``counted =
+    "offspring"`` (the factor then depends on the season's own draws), and
+    where the equilibrium is not stable (|eigenvalues of J| >= 1).
+    """
+    from scipy.linalg import solve_discrete_lyapunov
+
+    density = config.density_dependence()
+    if density.acts_on == "all-survival":  # A(f) = f A(1) for both: the ratio does not move
+        return DensityFluctuation(0.0, 0.0, 0.0, float("nan"))
+    r, m = invasion_pair(config)
+    schedules = config.schedules()
+    res, mut = schedules[r], schedules[m]
+    n_star = env.equilibrium.census
+    v = values[: res.n_ages]
+    d_res = _placement_derivative(res, density)
+    d_mut = _placement_derivative(mut, density)
+    u_r = env.demography.stable_age_distribution
+    vm = np.concatenate([values, np.repeat(values[-1], max(mut.n_ages - values.size, 0))])[: mut.n_ages]
+    kappa = float(vm @ d_mut @ mutant_ages) / float(vm @ mutant_ages) - float(v @ d_res @ u_r) / float(v @ u_r)
+    if abs(kappa) <= 1e-12:  # both schedules lean on the factor alike
+        return DensityFluctuation(0.0, 0.0, 0.0, float("nan"))
+    if density.ceiling is not None or density.counted_after_breeding:
+        return None
+    d_star = env.density_index
+    h = 1e-6 * max(d_star, 1.0)
+    slope = float(density.form.factor(d_star + h) - density.form.factor(d_star - h)) / (2 * h)
+    w = density.index_weights(res.fecundity[None, :])[0]
+    jac = env.demography.matrix + np.outer(d_res @ n_star, slope * w)
+    if np.max(np.abs(np.linalg.eigvals(jac))) >= 1.0:
+        return None
+    n = res.n_ages
+    nxt = np.minimum(np.arange(n) + 1, n - 1)
+    _, var_r = _recruit_moments(res, env.factors, config.offspring_distribution())
+    sigma = res.survival * env.factors.adult
+    q = np.zeros((n, n))
+    q[0, 0] += float(n_star @ var_r)
+    np.add.at(q, (nxt, nxt), n_star * sigma * (1 - sigma))
+    cov = solve_discrete_lyapunov(jac, q)
+    a = d_res.T @ v
+    shift = -slope * float(w @ cov @ a) / float(a @ n_star)
+    return DensityFluctuation(shift, kappa, kappa * shift, float(cov.sum()))
+
+
 def _expm1_ratio(a: float, b: float) -> float:
     """expm1(a) / expm1(b) for a, b of one sign with |a| <= |b|, without overflow."""
     if b == 0.0:
@@ -194,7 +288,9 @@ class FinitePrediction:
         fix (nan where no regulated census exists).
     valid : bool
         True where the diffusion's assumptions hold well enough to judge
-        observations by it (regulated census of at least 10, |s| <= 0.05 per season).
+        observations by it: a regulated census of at least 10, |s| <= 0.05
+        per season, and density fluctuations that act on both schedules alike
+        (or too weakly to move u by about 10%).
     fixation_probability_note : str
         Which approximation, on which assumptions; or why it is not valid.
     initial_share : float
@@ -207,7 +303,8 @@ class FinitePrediction:
     total_reproductive_value : float
         V: the census in units of reproductive value (v . u_resident = 1).
     selection_coefficient : float
-        s per season: the mutant's invasion fitness minus 1.
+        s per season: the mutant's invasion fitness minus 1, plus
+        ``density_selection``.
     selection_coefficient_per_generation : float
         s T, T the resident's generation time.
     generation_time : float
@@ -218,6 +315,11 @@ class FinitePrediction:
     variance_selection : float
         -(sigma_m^2 - sigma_r^2) / V: the selection-like term of unequal
         variances (Gillespie 1974).
+    density_selection : float
+        The selection that the density factor's mean shift in a finite
+        population would add, kappa (E[f] - f*) (``density_fluctuation``; nan
+        where not derived). Not part of s: where it is large enough to move u
+        by about 10% the prediction is marked not valid.
     """
 
     fixation_probability: float
@@ -233,6 +335,7 @@ class FinitePrediction:
     demographic_variance_resident: float
     demographic_variance_mutant: float
     variance_selection: float
+    density_selection: float
 
     def as_dict(self) -> dict:
         """Plain-Python values (JSON, DataFrame rows)."""
@@ -242,7 +345,7 @@ class FinitePrediction:
     def missing(cls, note: str, initial_share: float = float("nan")) -> FinitePrediction:
         """A prediction that cannot be made, with the reason."""
         nan = float("nan")
-        return cls(nan, False, note, initial_share, nan, nan, nan, nan, nan, nan, nan, nan, nan)
+        return cls(nan, False, note, initial_share, nan, nan, nan, nan, nan, nan, nan, nan, nan, nan)
 
 
 COLUMNS = [
@@ -257,19 +360,27 @@ COLUMNS = [
 ]
 
 
-def _placement_note(config: Config) -> str:
+def _placement_note(config: Config, fluct: DensityFluctuation | None) -> str:
     density = config.density_dependence()
     if isinstance(density.form, Ceiling):
         where = "all-survival" if density.acts_on == "all-survival" else "recruits only"
         base = f"ceiling ({where}): the culling's sampling variance is in the demographic variances"
         if density.acts_on == "all-survival":
             return base + "; it scales both schedules alike"
-        return base + "; fluctuations of the culled fraction act unequally on the schedules (neglected)"
+        return base + "; fluctuations of the culled fraction act unequally on the schedules (not derived)"
     if density.acts_on == "all-survival":
         return "density factor on all survival scales both schedules alike"
+    if fluct is None:
+        return (
+            f"density factor on {density.acts_on} counted as {density.counted}: its fluctuations "
+            "act unequally on the two schedules, a term not derived here (see the README)"
+        )
+    if fluct.selection == 0.0:
+        return f"density factor on {density.acts_on} acts on both schedules alike"
     return (
-        f"density factor on {density.acts_on}: its fluctuations around the equilibrium act "
-        "unequally on the two schedules (neglected; see the README)"
+        f"density factor on {density.acts_on}: its finite-N mean exceeds the mean-field value "
+        f"by {fluct.factor_shift:.3g}, a selection term of about {fluct.selection:.3g} per season "
+        "that acts unequally on the schedules and is not in the diffusion (see the README)"
     )
 
 
@@ -307,7 +418,11 @@ def finite_population_prediction(
         Var[dp] = p (1 - p) [(1 - p) sigma_m^2 + p sigma_r^2] / V
 
     with s = lambda_m - 1 (the invasion fitness minus 1; lambda_r = 1), solved
-    by ``diffusion_fixation``. The neutral limit (equal schedules) is
+    by ``diffusion_fixation``. Where the density factor multiplies rates the
+    two schedules rely on unequally (recruitment, fecundity or adult survival
+    alone), its fluctuations add a selection term of the same order 1/V
+    (``density_fluctuation``); it is estimated, not included, and the
+    prediction is marked not valid where it matters. The neutral limit (equal schedules) is
     u = p, the share of reproductive value (Emigh 1979); with equal
     variances it is Kimura's (1962) formula. A ceiling's culling is a
     removal with probability phi at its placement: it enters the
@@ -329,6 +444,7 @@ def finite_population_prediction(
     mut = demographic_variance(schedules[m], env.factors, offspring, v)
     census = env.census_size
     size = census  # v . n* = N* (v . u_r = 1)
+    fluct = density_fluctuation(config, env, v, mut.stable_ages)
     s = mut.growth_rate - 1.0
     generation = demo_r.generation_time
     ne = size / (res.variance * generation) if res.variance > 0 else float("nan")
@@ -343,6 +459,10 @@ def finite_population_prediction(
         problems.append(f"selection not weak: |s| = {abs(s):.3g} > {WEAK_SELECTION} per season")
     if not np.isfinite(u):
         problems.append("a demographic variance is 0")
+    if fluct is None:
+        problems.append(_placement_note(config, fluct))
+    elif 2.0 * size * abs(fluct.selection) / mut.variance > _NEGLECTED:
+        problems.append(_placement_note(config, fluct))
     if problems:
         note = (
             "diffusion not valid here (" + "; ".join(problems) + "); the value shown is only indicative"
@@ -351,7 +471,7 @@ def finite_population_prediction(
         note = (
             "diffusion (Gillespie 1974; Shpak 2007): weak selection "
             f"(s = {s:.3g} per season), each type near its stable age distribution, census near "
-            f"its equilibrium {census:.4g}; {_placement_note(config)}"
+            f"its equilibrium {census:.4g}; {_placement_note(config, fluct)}"
         )
     return FinitePrediction(
         fixation_probability=float(u),
@@ -367,6 +487,7 @@ def finite_population_prediction(
         demographic_variance_resident=float(res.variance),
         demographic_variance_mutant=float(mut.variance),
         variance_selection=float(var_sel),
+        density_selection=float(fluct.selection) if fluct is not None else float("nan"),
     )
 
 
