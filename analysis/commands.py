@@ -75,7 +75,7 @@ def _free(paths, overwrite: bool) -> None:
 
 
 # -- threshold ------------------------------------------------------------------------
-def threshold_report(config, *, parameters=None, bracket=None) -> dict:
+def threshold_report(config, *, parameters=None, bracket=None, sensitivities=False) -> dict:
     """What ``broodline threshold`` prints: predictions per sweep point and thresholds.
 
     Returns a dict with ``resident``, ``mutant``, ``points`` (a DataFrame,
@@ -86,12 +86,17 @@ def threshold_report(config, *, parameters=None, bracket=None) -> dict:
 
     points = predict_sweep(config)
     thresholds = sweep_thresholds(config, parameters=parameters, bracket=bracket)
-    return {
+    out = {
         "resident": config.invasion.resident,
         "mutant": config.invasion.mutant,
         "points": points,
         "thresholds": thresholds,
     }
+    if sensitivities:  # issue 12
+        from .sensitivity import sweep_sensitivities
+
+        out["sensitivities"] = sweep_sensitivities(config)
+    return out
 
 
 def cmd_threshold(args) -> int:
@@ -106,7 +111,9 @@ def cmd_threshold(args) -> int:
         config,
         parameters=args.parameter or None,
         bracket=tuple(args.bracket) if args.bracket else None,
+        sensitivities=args.sensitivities,
     )
+    extra = {"sensitivities": _records(result["sensitivities"])} if args.sensitivities else {}
     if args.json:
         print(
             json.dumps(
@@ -115,6 +122,7 @@ def cmd_threshold(args) -> int:
                     "mutant": result["mutant"],
                     "points": _records(result["points"]),
                     "thresholds": [jsonable(t.as_dict()) for t in result["thresholds"]],
+                    **extra,
                 },
                 indent=2,
             )
@@ -134,12 +142,19 @@ def cmd_threshold(args) -> int:
     )
     if points["problem"].eq("").all():
         points = points.drop(columns="problem")
+    from .fixation import shown_finite_columns  # issue 12: finite-N columns in short
+
+    points, notes = shown_finite_columns(points)
     _print_table(points)
+    print(notes)
     if result["thresholds"]:
         print("\nthresholds:")
         for t in result["thresholds"]:
             at = f" (at {', '.join(f'{k} = {v}' for k, v in t.at.items())})" if t.at else ""
             print(f"  {t.message}{at}")
+    if args.sensitivities:
+        print("\nsensitivities of the mutant's invasion fitness (Caswell 2001, ch. 9):")
+        _print_table(result["sensitivities"])
     return 0
 
 
@@ -165,6 +180,7 @@ def cmd_compare(args) -> int:
 
 def _print_compare(table, thresholds) -> None:
     from .comparison import SHOWN_COLUMNS
+    from .fixation import COLUMNS as FINITE_COLUMNS  # issue 12: not swept paths
 
     swept = [
         c
@@ -179,6 +195,7 @@ def _print_compare(table, thresholds) -> None:
             "resident_growth_rate",
             "mutant_growth_rate",
             "problem",
+            *FINITE_COLUMNS,
         )
     ]
     shown = table[["point", *swept, *SHOWN_COLUMNS]].rename(
@@ -268,7 +285,16 @@ def register(sub) -> None:
         metavar=("LOW", "HIGH"),
         help="range to search for the threshold (default: the swept range)",
     )
+    p.add_argument(
+        "--sensitivities",
+        action="store_true",
+        help="also the sensitivity, elasticity and selection gradient of the mutant's "
+        "invasion fitness to each vital rate",
+    )
     p.set_defaults(func=cmd_threshold)
+    from .locate import register as register_locate  # issue 12
+
+    register_locate(sub)
 
     p = sub.add_parser("compare", help="observed fixation in a results file against the prediction")
     p.add_argument("results", help="results file (.h5) of an invasion experiment")

@@ -32,6 +32,7 @@ __all__ = [
     "density_fluctuation",
     "finite_population_prediction",
     "finite_population_columns",
+    "shown_finite_columns",
     "COLUMNS",
 ]
 
@@ -501,3 +502,26 @@ def finite_population_columns(config: Config) -> dict:
     d["fixation_probability_valid"] = d.pop("valid")
     return {k: d[k] for k in COLUMNS}
 
+
+
+def shown_finite_columns(points):
+    """A printed table's finite-N columns in short, and the notes below it (for ``threshold``).
+
+    Returns the table with ``fixation_probability`` as ``finite_N`` (in
+    brackets where not valid) and ``effective_size`` as ``Ne``, the other
+    finite-N columns dropped, and a text listing each distinct note with its points.
+    """
+    table = points.copy()
+    valid = table.pop("fixation_probability_valid").astype(bool)
+    u = table.pop("fixation_probability")
+    table["finite_N"] = [f"{x:.4g}" if ok else f"({x:.4g})" for x, ok in zip(u, valid)]
+    table["Ne"] = table.pop("effective_size")
+    notes = table.pop("fixation_probability_note")
+    for name in COLUMNS:
+        table.pop(name) if name in table else None
+    lines = ["finite_N: the diffusion's fixation probability; in brackets where not valid:"]
+    ids = points["point"] if "point" in points else points.index
+    for note in dict.fromkeys(notes):
+        where = [str(i) for i, n in zip(ids, notes) if n == note]
+        lines.append(f"  point{'s' if len(where) > 1 else ''} {', '.join(where)}: {note}")
+    return table, "\n".join(lines)

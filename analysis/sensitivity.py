@@ -21,7 +21,13 @@ from sim.schedules import Schedule
 from .demography import dominant_eigen
 from .environment import ResidentEnvironment, invasion_pair, resident_environment
 
-__all__ = ["VitalRateSensitivity", "vital_rate_sensitivities", "sensitivities", "SENSITIVITY_COLUMNS"]
+__all__ = [
+    "SENSITIVITY_COLUMNS",
+    "VitalRateSensitivity",
+    "sensitivities",
+    "sweep_sensitivities",
+    "vital_rate_sensitivities",
+]
 
 SENSITIVITY_COLUMNS = ["rate", "kind", "age", "value", "sensitivity", "elasticity", "selection_gradient"]
 
@@ -140,3 +146,25 @@ def sensitivities(config: Config, env: ResidentEnvironment | None = None) -> pd.
     scale = 1.0 if env.regulated else 1.0 / env.demography.growth_rate
     rows = vital_rate_sensitivities(config.schedules()[m], env.factors, scale=scale)
     return pd.DataFrame([r.as_dict() for r in rows], columns=SENSITIVITY_COLUMNS)
+
+
+def sweep_sensitivities(config: Config) -> pd.DataFrame:
+    """``sensitivities`` at every sweep point: ``point``, the swept values, then the rows.
+
+    A point where the resident has no equilibrium gets one row with its reason
+    in ``problem`` (and nan values).
+    """
+    from sim.config import sweep_points
+    from sim.meanfield import NoEquilibriumError
+
+    frames = []
+    for p in sweep_points(config):
+        try:
+            t = sensitivities(p.config)
+            t.insert(len(t.columns), "problem", "")
+        except NoEquilibriumError as err:
+            t = pd.DataFrame([{c: float("nan") for c in SENSITIVITY_COLUMNS} | {"problem": str(err)}])
+        for k, (path, value) in enumerate({"point": p.index, **p.values}.items()):
+            t.insert(k, path, [value] * len(t))
+        frames.append(t)
+    return pd.concat(frames, ignore_index=True)
