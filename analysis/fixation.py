@@ -33,6 +33,8 @@ __all__ = [
     "finite_population_prediction",
     "finite_population_columns",
     "shown_finite_columns",
+    "FiniteAgreement",
+    "finite_agreement",
     "COLUMNS",
 ]
 
@@ -525,3 +527,51 @@ def shown_finite_columns(points):
         where = [str(i) for i, n in zip(ids, notes) if n == note]
         lines.append(f"  point{'s' if len(where) > 1 else ''} {', '.join(where)}: {note}")
     return table, "\n".join(lines)
+
+
+@dataclass(frozen=True)
+class FiniteAgreement:
+    """A point's observation judged against a prediction.
+
+    Attributes
+    ----------
+    agreement : str
+        ``agrees``, ``disagrees``, ``inconclusive`` or ``no prediction``.
+    prediction : str
+        ``finite-N diffusion`` (the interval must contain the predicted
+        fixation probability) or ``side of neutral`` (the infinite-N rule of
+        ``analysis.comparison.agreement``).
+    """
+
+    agreement: str
+    prediction: str
+
+
+def finite_agreement(row, low: float, high: float) -> FiniteAgreement:
+    """Judge a Wilson interval [low, high] by the finite-N prediction where it is valid.
+
+    Parameters
+    ----------
+    row : mapping
+        A theory row (``analysis.predict_configs``): ``verdict``,
+        ``neutral_expectation``, ``fixation_probability``,
+        ``fixation_probability_valid``.
+    low, high : float
+        The observation's interval.
+
+    Notes
+    -----
+    Where the diffusion is valid the point **agrees** when the interval
+    contains the predicted fixation probability and **disagrees** when it
+    does not: at the threshold this judges against the variance-corrected
+    value (Gillespie 1974), not the neutral share. Elsewhere the infinite-N
+    rule applies (above or below the neutral expectation by the verdict).
+    """
+    from .comparison import agreement
+
+    u = row["fixation_probability"]
+    if bool(row.get("fixation_probability_valid", False)) and np.isfinite(u):
+        return FiniteAgreement("agrees" if low <= u <= high else "disagrees", "finite-N diffusion")
+    return FiniteAgreement(
+        agreement(row["verdict"], low, high, row["neutral_expectation"]), "side of neutral"
+    )

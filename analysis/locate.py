@@ -76,11 +76,11 @@ def kimura_curve(x, p, theta: float, beta: float) -> np.ndarray:
     out[small] = p[small]
     big = ~small
     sb, pb = s[big], p[big]
-    # for S >> 1 use exp(S (1 - p)) forms to avoid overflow
+    # S < 0: u = e^(S (1 - p)) (1 - e^(S p)) / (1 - e^S), which cannot overflow
     neg = sb < 0
     with np.errstate(over="ignore", invalid="ignore"):
         pos_val = -np.expm1(-sb * pb) / -np.expm1(-sb)
-        neg_val = np.exp(-sb * (1 - pb) + np.log(-np.expm1(sb * pb)) - np.log(-np.expm1(sb)))
+        neg_val = np.exp(sb * (1 - pb)) * (-np.expm1(sb * pb)) / (-np.expm1(sb))
     out[big] = np.where(neg, neg_val, pos_val)
     return np.clip(out, 1e-300, 1 - 1e-15)
 

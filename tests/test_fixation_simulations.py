@@ -46,7 +46,7 @@ def simulate(form, acts_on, fecundity, capacity, *, seed=11):
     probe = invasion_config(mutant_fecundity=fecundity, form=form, acts_on=acts_on, capacity=capacity,
                             mutant_count=int(0.15 * capacity))
     f = finite_population_prediction(probe)
-    n = replicates_for(f.fixation_probability if f.valid else f.initial_share)
+    n = replicates_for(min(f.fixation_probability, f.initial_share))
     config = invasion_config(
         mutant_fecundity=fecundity,
         form=form,
