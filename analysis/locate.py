@@ -552,7 +552,8 @@ def cmd_locate_bench(args) -> int:
     from .commands import jsonable
     from .locate_bench import locate_benchmark
 
-    bench = locate_benchmark(workers=args.workers or 1, progress=None if args.json else print)
+    bench = locate_benchmark(half_range=args.half_range, workers=args.workers or 1,
+                             progress=None if args.json else print)
     print(json.dumps(jsonable(bench.as_dict()), indent=2) if args.json else bench.summary())
     return 0
 
@@ -582,6 +583,8 @@ def register(sub) -> None:
         "locate-bench",
         help="replicates locate needs against a uniform 9-point grid (semelparous vs iteroparous, K = 200)",
     )
+    p.add_argument("--half-range", type=float, default=0.1, metavar="F",
+                   help="both search the analytic threshold +- F x itself (default 0.1)")
     p.add_argument("--workers", type=int, default=None, metavar="N", help="local worker processes")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.set_defaults(func=cmd_locate_bench)

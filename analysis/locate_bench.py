@@ -25,7 +25,7 @@ __all__ = ["LocateBenchmark", "bench_config", "locate_benchmark"]
 PARAMETER = "allele.one-shot.fecundity"
 
 
-def bench_config(*, capacity: int = 200, replicates: int = 400, seed: int = 2026):
+def bench_config(*, capacity: int = 200, replicates: int = 200, seed: int = 2026):
     """The benchmark's config: semelparous mutant against an iteroparous resident under a ceiling."""
     return parse_config(
         {
@@ -50,43 +50,57 @@ class LocateBenchmark:
     ----------
     tolerance : float
         Target half-width (1% of the analytic threshold).
-    locate_replicates : int
-        Replicates ``locate`` used until its interval reached the tolerance.
-    locate_value, locate_half_width : float
-    grid_replicates_run : int
-        Replicates run on the grid (``grid_per_point`` at each of 9 points).
-    grid_half_width : float
-        The grid fit's half-width with those replicates.
-    grid_replicates_needed : float
+    bracket : tuple of float
+        The range both search.
+    locate_replicates : list of int
+        Replicates ``locate`` used until its interval reached the tolerance, one
+        run per seed.
+    locate_values, locate_half_widths : list of float
+    grid_per_point : int
+        Replicates run at each of the 9 grid points.
+    grid_value_fit, grid_half_width_fit : float
+        The grid fitted with locate's curve (profile-likelihood interval).
+    grid_value_observed, grid_half_width_observed : float
+        The grid read as ``compare`` reads a sweep (``analysis.observed_threshold``:
+        isotonic fit, interpolated crossing, bootstrap interval; inf: not bounded).
+    grid_needed_fit, grid_needed_observed : float
         Replicates the grid needs for the tolerance: run x (half-width / tolerance)^2
-        (the interval narrows as 1 / sqrt(replicates)).
-    ratio : float
-        grid_replicates_needed / locate_replicates.
+        (intervals narrow as 1 / sqrt(replicates)).
+    ratio_fit, ratio_observed : float
+        Those over locate's mean replicates.
     """
 
     tolerance: float
-    locate_replicates: int
-    locate_value: float
-    locate_half_width: float
-    locate_converged: bool
+    bracket: tuple
+    locate_replicates: list
+    locate_values: list
+    locate_half_widths: list
     grid_per_point: int
-    grid_replicates_run: int
-    grid_value: float
-    grid_half_width: float
-    grid_replicates_needed: float
-    ratio: float
+    grid_value_fit: float
+    grid_half_width_fit: float
+    grid_needed_fit: float
+    grid_value_observed: float
+    grid_half_width_observed: float
+    grid_needed_observed: float
+    ratio_fit: float
+    ratio_observed: float
 
     def as_dict(self) -> dict:
         return asdict(self)
 
     def summary(self) -> str:
+        mean = float(np.mean(self.locate_replicates))
         return (
-            f"target: 95% interval half-width {self.tolerance:.4g} (1% of the threshold)\n"
-            f"locate: {self.locate_replicates} replicates, threshold {self.locate_value:.5g} "
-            f"+- {self.locate_half_width:.3g}\n"
-            f"9-point grid: {self.grid_replicates_run} replicates gave +- {self.grid_half_width:.3g} "
-            f"(threshold {self.grid_value:.5g}); {self.grid_replicates_needed:.0f} needed for the target\n"
-            f"ratio grid / locate: {self.ratio:.2f}"
+            f"target: 95% interval half-width {self.tolerance:.4g} (1% of the threshold); "
+            f"bracket [{self.bracket[0]:.4g}, {self.bracket[1]:.4g}]\n"
+            f"locate ({len(self.locate_replicates)} seeds): {self.locate_replicates} replicates "
+            f"(mean {mean:.0f}); thresholds {[round(v, 4) for v in self.locate_values]}\n"
+            f"9-point grid, {9 * self.grid_per_point} replicates:\n"
+            f"  fitted with locate's curve: {self.grid_value_fit:.5g} +- {self.grid_half_width_fit:.3g}; "
+            f"{self.grid_needed_fit:.0f} replicates needed for the target (ratio {self.ratio_fit:.2f})\n"
+            f"  read as compare reads a sweep: {self.grid_value_observed:.5g} +- "
+            f"{self.grid_half_width_observed:.3g}; {self.grid_needed_observed:.0f} replicates needed "
+            f"(ratio {self.ratio_observed:.2f})"
         )
 
 
@@ -107,30 +121,55 @@ def _grid(config, lo, hi, per_point, workers, out: Path):
 
 
 def locate_benchmark(
-    *, capacity: int = 200, grid_per_point: int = 2000, workers: int = 1, folder=None, progress=None
+    *, capacity: int = 200, grid_per_point: int = 2000, seeds=(2026, 2027, 2028), half_range: float = 0.1,
+    workers: int = 1, folder=None, progress=None,
 ) -> LocateBenchmark:
-    """Run ``locate`` to 1% of the threshold, and a uniform 9-point grid over the same bracket.
+    """Run ``locate`` to 1% of the threshold (once per seed), and a uniform 9-point grid.
 
-    The grid's replicates needed are extrapolated from its measured half-width
-    (which narrows as 1 / sqrt(n) once the fit is regular); both fits are the
-    same Kimura curve with profile-likelihood intervals (``analysis.locate``).
+    Both search the analytic threshold +- ``half_range`` (10% by default,
+    locate's default bracket). The grid's
+    replicates needed are extrapolated from its measured half-width, read two
+    ways: fitted with locate's own curve, and as ``compare`` reads a sweep.
     """
-    config = bench_config(capacity=capacity)
+    from .estimates import observed_threshold
+
     analytic = 3.0  # B_i + P / c (Charnov & Schaffer 1973)
     tolerance = 0.01 * analytic
-    bracket = (0.9 * analytic, 1.1 * analytic)
+    bracket = ((1 - half_range) * analytic, (1 + half_range) * analytic)
+    found = []
     with tempfile.TemporaryDirectory(dir=folder) as tmp:
-        found = locate(config, PARAMETER, Path(tmp) / "locate.h5", bracket=bracket, tolerance=tolerance,
-                       budget=10**6, workers=workers, progress=progress)
+        for seed in seeds:
+            config = bench_config(capacity=capacity, seed=seed)
+            found.append(locate(config, PARAMETER, Path(tmp) / f"locate-{seed}.h5", bracket=bracket,
+                                tolerance=tolerance, budget=10**6, workers=workers, progress=progress))
+        config = bench_config(capacity=capacity, seed=seeds[0])
         values, neutral, fixed = _grid(config, *bracket, grid_per_point, workers, Path(tmp) / "grid.h5")
     base = config.model_copy(update={"sweep": None})
     theta0 = diffusion_threshold(base, PARAMETER, bracket=bracket)
     beta0 = _slope(base, PARAMETER, theta0, bracket[1] - bracket[0])
-    fit = fit_dose_response(values, neutral, fixed, np.full(9, grid_per_point), bracket=bracket,
-                            theta0=theta0, beta0=beta0)
+    n = np.full(9, grid_per_point)
+    fit = fit_dose_response(values, neutral, fixed, n, bracket=bracket, theta0=theta0, beta0=beta0)
+    seen = observed_threshold(PARAMETER, values, fixed, n, neutral)
+    seen_half = (seen.high - seen.low) / 2 if np.isfinite(seen.low) and np.isfinite(seen.high) else math.inf
     run = 9 * grid_per_point
-    needed = run * (fit.half_width / tolerance) ** 2 if math.isfinite(fit.half_width) else math.inf
+
+    def needed(half):
+        return run * (half / tolerance) ** 2 if math.isfinite(half) else math.inf
+
+    mean = float(np.mean([f.replicates for f in found]))
     return LocateBenchmark(
-        tolerance, found.replicates, found.value, (found.high - found.low) / 2, found.converged,
-        grid_per_point, run, fit.theta, fit.half_width, needed, needed / found.replicates,
+        tolerance,
+        bracket,
+        [f.replicates for f in found],
+        [f.value for f in found],
+        [(f.high - f.low) / 2 for f in found],
+        grid_per_point,
+        fit.theta,
+        fit.half_width,
+        needed(fit.half_width),
+        seen.value,
+        seen_half,
+        needed(seen_half),
+        needed(fit.half_width) / mean,
+        needed(seen_half) / mean,
     )
