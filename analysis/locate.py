@@ -38,6 +38,7 @@ from __future__ import annotations
 
 import json
 import math
+import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -528,18 +529,23 @@ def cmd_locate(args) -> int:
 
         raise UserError("--resume goes on with the file and --overwrite starts it again: give one of the two")
     config = load_config(args.config)
-    result = locate(
-        config,
-        args.parameter,
-        args.output,
-        bracket=tuple(args.bracket) if args.bracket else None,
-        tolerance=args.tolerance,
-        budget=args.budget,
-        resume=args.resume,
-        overwrite=args.overwrite,
-        workers=args.workers or default_workers(),
-        progress=None if args.json else print,
-    )
+    try:
+        result = locate(
+            config,
+            args.parameter,
+            args.output,
+            bracket=tuple(args.bracket) if args.bracket else None,
+            tolerance=args.tolerance,
+            budget=args.budget,
+            resume=args.resume,
+            overwrite=args.overwrite,
+            workers=args.workers or default_workers(),
+            progress=None if args.json else print,
+        )
+    except KeyboardInterrupt:
+        print(f"finished batches are saved in {args.output}; go on with\n  broodline locate {args.config} "
+              f"--parameter {args.parameter} -o {args.output} --resume", file=sys.stderr)
+        raise
     if args.json:
         print(json.dumps(jsonable(result.as_dict()), indent=2))
     else:
