@@ -53,7 +53,7 @@ def _free(paths, overwrite: bool) -> None:
 
 
 # -- threshold ------------------------------------------------------------------------
-def threshold_report(config, *, parameters=None, bracket=None) -> dict:
+def threshold_report(config, *, parameters=None, bracket=None, sensitivities=False) -> dict:
     """What ``broodline threshold`` prints: predictions per sweep point and thresholds.
 
     Returns a dict with ``resident``, ``mutant``, ``points`` (a DataFrame,
@@ -64,12 +64,17 @@ def threshold_report(config, *, parameters=None, bracket=None) -> dict:
 
     points = predict_sweep(config)
     thresholds = sweep_thresholds(config, parameters=parameters, bracket=bracket)
-    return {
+    out = {
         "resident": config.invasion.resident,
         "mutant": config.invasion.mutant,
         "points": points,
         "thresholds": thresholds,
     }
+    if sensitivities:  # issue 12
+        from .sensitivity import sweep_sensitivities
+
+        out["sensitivities"] = sweep_sensitivities(config)
+    return out
 
 
 def cmd_threshold(args) -> int:
@@ -84,7 +89,9 @@ def cmd_threshold(args) -> int:
         config,
         parameters=args.parameter or None,
         bracket=tuple(args.bracket) if args.bracket else None,
+        sensitivities=args.sensitivities,
     )
+    extra = {"sensitivities": _records(result["sensitivities"])} if args.sensitivities else {}
     if args.json:
         print(
             json.dumps(
@@ -93,6 +100,7 @@ def cmd_threshold(args) -> int:
                     "mutant": result["mutant"],
                     "points": _records(result["points"]),
                     "thresholds": [jsonable(t.as_dict()) for t in result["thresholds"]],
+                    **extra,
                 },
                 indent=2,
             )
@@ -100,12 +108,22 @@ def cmd_threshold(args) -> int:
         return 0
     print(f"resident {result['resident']!r}, mutant {result['mutant']!r}")
     from .comparison import theory_table_text, threshold_lines
+    from .fixation import shown_finite_columns  # the finite-N columns in short, notes below
 
-    print(theory_table_text(result["points"]))
+    points, notes = shown_finite_columns(result["points"])
+    print(theory_table_text(points))
+    print(notes)
     if result["thresholds"]:
         print("\nthresholds:")
         for line in threshold_lines(config, result["thresholds"]):
             print(f"  {line}")
+    if args.sensitivities:
+        print("\nsensitivities of the mutant's invasion fitness (Caswell 2001, ch. 9):")
+        import pandas as pd
+
+        with pd.option_context("display.width", 160, "display.max_columns", 30,
+                               "display.float_format", "{:.4g}".format):
+            print(result["sensitivities"].to_string(index=False))
     return 0
 
 
@@ -240,7 +258,18 @@ def register(sub) -> None:
         metavar=("LOW", "HIGH"),
         help="range to search for the threshold (default: the swept range)",
     )
+    p.add_argument(
+        "--sensitivities",
+        action="store_true",
+        help="also the sensitivity, elasticity and selection gradient of the mutant's "
+        "invasion fitness to each vital rate",
+    )
     p.set_defaults(func=cmd_threshold)
+    from .locate import register as register_locate
+    from .locate_bench import register as register_locate_bench
+
+    register_locate(sub)
+    register_locate_bench(sub)
 
     p = sub.add_parser("compare", help="observed fixation in a results file against the prediction")
     p.add_argument("results", help="results file (.h5) of an invasion experiment")

@@ -38,7 +38,7 @@ import numpy as np
 import pandas as pd
 
 from sim.config import Config, ConfigError
-from sim.runner import OUTCOMES
+from sim.outcomes import OUTCOMES
 from sim.store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
 
 from .closedform import closed_form
@@ -275,7 +275,16 @@ def capped_rising(path, replicates: pd.DataFrame, mutant: str) -> pd.Series:
     return rising
 
 
+FINITE_PREDICTION = "finite-N fixation probability (diffusion)"
+
+
 def _default_prediction(row: dict):
+    """The finite-N fixation probability where it is valid (so a point at the threshold is
+    judged against the variance-corrected value, Gillespie 1974, not the neutral share);
+    elsewhere the side of the neutral expectation."""
+    u = row.get("fixation_probability", float("nan"))
+    if bool(row.get("fixation_probability_valid", False)) and np.isfinite(u):
+        return PredictedFixation(float(u), name=FINITE_PREDICTION)
     return SideOfNeutral(row["verdict"], row["neutral_expectation"])
 
 

@@ -120,7 +120,7 @@ def _sweep_words(config) -> str:
 
 
 def _experiment_text(config) -> str:
-    inv, d, exp = config.invasion, config.density, config.experiment
+    inv, exp = config.invasion, config.experiment
     alleles = {a.name: a for a in config.allele}
     start = (
         "at its equilibrium"

@@ -17,6 +17,8 @@ from sim.config import Config, SweepFactor, sweep_factors, sweep_points
 from sim.meanfield import NoEquilibriumError
 
 from .environment import invasion_pair
+from .fixation import COLUMNS as FINITE_COLUMNS
+from .fixation import finite_population_columns
 from .invasion import predict
 from .thresholds import ThresholdResult, threshold, with_values
 
@@ -54,16 +56,20 @@ def _row(config: Config) -> dict:
         p["problem"] = str(err)
     for k in ("resident", "mutant", "regulated"):
         p.pop(k, None)
+    p.update(finite_population_columns(config))  # issue 12: the finite-N prediction
     return p
 
 
 def predict_configs(configs) -> pd.DataFrame:
-    """One row of theory per (sweep point) config, columns ``PREDICTION_COLUMNS`` + ``problem``.
+    """One row of theory per (sweep point) config: ``PREDICTION_COLUMNS``, the finite-N
+    columns (``analysis.fixation.COLUMNS``) and ``problem``.
 
     A point where the resident has no equilibrium gets nan values, verdict
     "undefined" and the reason in ``problem``.
     """
-    return pd.DataFrame([_row(c) for c in configs], columns=[*PREDICTION_COLUMNS, "problem"])
+    return pd.DataFrame(
+        [_row(c) for c in configs], columns=[*PREDICTION_COLUMNS, *FINITE_COLUMNS, "problem"]
+    )
 
 
 def predict_sweep(config: Config) -> pd.DataFrame:

@@ -6,6 +6,7 @@ import pandas as pd
 import pytest
 
 from analysis.commands import finish_demo, jsonable
+from analysis.fixation import COLUMNS as FINITE_COLUMNS
 from sim.cli import main
 from tests.invasion_configs import SMALL_SWEEP, write_small_results
 
@@ -20,6 +21,7 @@ POINT_KEYS = {
     "establishment_probability",
     "neutral_expectation",
     "problem",
+    *FINITE_COLUMNS,  # issue 12
 }
 THRESHOLD_KEYS = {
     "parameter",

@@ -9,7 +9,7 @@ read a finished file or the shards of one still being written.
 from . import layout, readers, writer
 from .layout import FORMAT_VERSION, ConfigMismatchError, ResultsError, Shard, parts_dir, software_version
 from .readers import *  # noqa: F403 (the readers' __all__ is the package's)
-from .writer import ResultsWriter, writer_state
+from .writer import ResultsWriter, rewrite_header, writer_state
 
 __all__ = ["FORMAT_VERSION", "ResultsError", "ConfigMismatchError", "Shard", "ResultsWriter",
-           "parts_dir", "software_version", "writer_state", *readers.__all__]
+           "parts_dir", "software_version", "writer_state", "rewrite_header", *readers.__all__]

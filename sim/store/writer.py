@@ -38,7 +38,7 @@ try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
 except ImportError:  # pragma: no cover
     fcntl = None
 
-__all__ = ["ResultsWriter", "writer_state"]
+__all__ = ["ResultsWriter", "writer_state", "fill_header", "rewrite_header"]
 
 # rows buffered while merging shards: bounds the merge's memory whatever the experiment's size
 _MERGE_ROWS = 16384
@@ -156,43 +156,7 @@ class ResultsWriter:
         durable.write_atomic(self.path, self._write_header)
 
     def _write_header(self, f) -> None:
-        config = self.config
-        f.attrs.update(
-            format=_FORMAT,
-            format_version=FORMAT_VERSION,
-            software_version=software_version(),
-            created=datetime.now(UTC).isoformat(timespec="seconds"),
-            config=json.dumps(config.model_dump(mode="json")),
-            config_hash=self.hash,
-            seed=config.experiment.seed,
-            alleles=json.dumps(config.allele_names),
-            n_ages=self.n_ages,
-            resident=config.invasion.resident if config.invasion else "",
-            mutant=config.invasion.mutant if config.invasion else "",
-            trajectory=self.mode,
-            n_points=len(self.points),
-            replicates=self.replicates,
-            complete=False,
-        )
-        pts = f.create_group("points", track_order=True)  # columns in sweep order
-        pts.create_dataset("index", data=np.array([p.index for p in self.points], dtype=np.int32))
-        pts.create_dataset("config", data=[json.dumps(p.config.model_dump(mode="json"))
-                                           for p in self.points], dtype=_STR)
-        for key in self.points[0].values:
-            values = [p.values[key] for p in self.points]
-            try:
-                pts.create_dataset(key, data=np.asarray(values, dtype=float))
-            except (TypeError, ValueError):
-                pts.create_dataset(key, data=[json.dumps(v) for v in values], dtype=_STR)
-        self._empty_tables(f)
-
-    def _empty_tables(self, f) -> None:
-        reps = f.create_group("replicates")
-        for name, (dtype, shape) in REPLICATE_COLUMNS.items():
-            _column(reps, name, dtype, shape, 1024)
-        traj = f.create_group("trajectories")
-        _column(traj, "step", np.int32, (), 4096)
-        _column(traj, "counts", np.uint32, _counts_shape(self.mode, self.n_alleles, self.n_ages), 4096)
+        fill_header(f, self.config, self.points)
 
     def _open_existing(self) -> None:
         where = str(self.path)
@@ -344,7 +308,7 @@ class ResultsWriter:
                 out.attrs[key] = value
             head.copy("points", out)
         out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
-        self._empty_tables(out)
+        _empty_tables(out, self.mode, self.n_alleles, self.n_ages)
         reps, traj = out["replicates"], out["trajectories"]
         buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts")}
         rows = offset = 0
@@ -404,6 +368,67 @@ class ResultsWriter:
             self.close()
         else:
             self.release()
+
+
+def _empty_tables(f, mode, n_alleles, n_ages) -> None:
+    reps = f.create_group("replicates")
+    for name, (dtype, shape) in REPLICATE_COLUMNS.items():
+        _column(reps, name, dtype, shape, 1024)
+    traj = f.create_group("trajectories")
+    _column(traj, "step", np.int32, (), 4096)
+    _column(traj, "counts", np.uint32, _counts_shape(mode, n_alleles, n_ages), 4096)
+
+
+def fill_header(f, config, points, *, created: str | None = None, extra: dict | None = None) -> None:
+    """Write a new results file's header into the open h5py file ``f``: the attributes,
+    ``/points`` and the empty tables (``created`` kept when given; ``extra`` attributes added)."""
+    mode = config.experiment.trajectory
+    n_ages = max(max(s.n_ages for s in p.config.schedules()) for p in points)
+    f.attrs.update(
+        format=_FORMAT,
+        format_version=FORMAT_VERSION,
+        software_version=software_version(),
+        created=datetime.now(UTC).isoformat(timespec="seconds"),
+        config=json.dumps(config.model_dump(mode="json")),
+        config_hash=config_hash(config),
+        seed=config.experiment.seed,
+        alleles=json.dumps(config.allele_names),
+        n_ages=n_ages,
+        resident=config.invasion.resident if config.invasion else "",
+        mutant=config.invasion.mutant if config.invasion else "",
+        trajectory=mode,
+        n_points=len(points),
+        replicates=config.experiment.replicates,
+        complete=False,
+    )
+    pts = f.create_group("points", track_order=True)  # columns in sweep order
+    pts.create_dataset("index", data=np.array([p.index for p in points], dtype=np.int32))
+    pts.create_dataset("config", data=[json.dumps(p.config.model_dump(mode="json"))
+                                       for p in points], dtype=_STR)
+    for key in points[0].values:
+        values = [p.values[key] for p in points]
+        try:
+            pts.create_dataset(key, data=np.asarray(values, dtype=float))
+        except (TypeError, ValueError):
+            pts.create_dataset(key, data=[json.dumps(v) for v in values], dtype=_STR)
+    _empty_tables(f, mode, len(config.allele), n_ages)
+    if created is not None:
+        f.attrs["created"] = created
+    f.attrs.update(extra or {})
+
+
+def rewrite_header(path, config, points, *, extra: dict | None = None) -> None:
+    """Replace a results file's header for a grown set of points, keeping its shards and its
+    ``created`` time (a sequential design adds points as it goes). Call it while holding the
+    file's lock (a ``ResultsWriter`` on it), before the shards are merged."""
+    import h5py
+
+    path = Path(path)
+    created = None
+    if path.exists():
+        with h5py.File(path, "r") as f:
+            created = f.attrs.get("created")
+    durable.write_atomic(path, lambda f: fill_header(f, config, points, created=created, extra=extra))
 
 
 def _shard_rows(path: Path) -> int:

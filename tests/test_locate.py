@@ -1,0 +1,108 @@
+"""locate: the finite-N threshold by a sequential design (analysis.locate)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from analysis.locate import fit_dose_response, kimura_curve, locate, next_value
+from sim.config import parse_config
+from sim.status import experiment_status
+from sim.store import read_attrs, read_points, read_replicates
+
+PARAMETER = "allele.one-shot.fecundity"
+
+
+def test_kimura_curve_matches_kimura_and_the_neutral_point():
+    # Kimura (1962): u = (1 - e^(-S p)) / (1 - e^(-S)); u = p where S = 0
+    p = np.array([0.01, 0.2])
+    assert kimura_curve([3.0, 3.0], p, 3.0, 50.0) == pytest.approx(p)
+    s = 50.0 * (3.1 - 3.0)
+    assert kimura_curve(3.1, 0.2, 3.0, 50.0) == pytest.approx(-math.expm1(-s * 0.2) / -math.expm1(-s))
+    # far on either side: finite, no overflow, monotone
+    u = kimura_curve(np.linspace(0, 6, 13), 0.01, 3.0, 400.0)
+    assert np.all(np.isfinite(u)) and np.all(np.diff(u) >= 0)
+
+
+def test_profile_interval_covers_the_true_crossing_about_95_percent():
+    # Synthetic binomial data from a Kimura curve (theta 3, beta 40, p 0.05) at five values,
+    # 400 replicates each; 40 data sets. A 95% interval covers in 38 of 40 on average; the
+    # count is Binomial(40, 0.95) (sd 1.4), so at least 34 (2.9 sd below) unless the interval
+    # is too narrow (a Wald-like interval at half the width would cover ~ 26). Fixed seed.
+    rng = np.random.default_rng(12)
+    x = np.array([2.95, 2.98, 3.0, 3.03, 3.06])
+    p = np.full(5, 0.05)
+    n = np.full(5, 400)
+    truth = kimura_curve(x, p, 3.0, 40.0)
+    covered, widths = 0, []
+    for _ in range(40):
+        fixed = rng.binomial(n, truth)
+        fit = fit_dose_response(x, p, fixed, n, bracket=(2.7, 3.3), theta0=3.0, beta0=40.0,
+                                prior_sd=None, grid=41)
+        covered += fit.low <= 3.0 <= fit.high
+        widths.append(fit.half_width)
+    assert covered >= 34
+    assert np.median(widths) < 0.05
+
+
+def test_next_value_cycles_around_the_estimate_within_the_bracket():
+    from analysis.locate import DoseResponseFit
+
+    fit = DoseResponseFit(3.0, 20.0, 2.9, 3.1)
+    assert next_value(fit, 0, bracket=(2.7, 3.3)) == pytest.approx(3.0 + 1.5 / 20)
+    assert next_value(fit, 1, bracket=(2.7, 3.3)) == pytest.approx(3.0 - 0.5 / 20)
+    assert next_value(DoseResponseFit(3.0, 1.0, 2.9, 3.1), 0, bracket=(2.7, 3.3)) == 3.3
+
+
+def _config(replicates=60):
+    return parse_config(
+        {
+            "experiment": {"name": "locate-test", "seed": 4, "replicates": replicates,
+                           "max_steps": 100000, "engine": "counts", "trajectory": "by-allele"},
+            "density": {"form": "ceiling", "acts_on": "all-survival", "capacity": 20},
+            "allele": [
+                {"name": "perennial", "breeding": "iteroparous", "fecundity": 2.0,
+                 "adult_survival": 0.5, "juvenile_survival": 0.5},
+                {"name": "one-shot", "breeding": "semelparous", "fecundity": 3.0, "juvenile_survival": 0.5},
+            ],
+            "invasion": {"resident": "perennial", "mutant": "one-shot", "mutant_count": 4},
+        }
+    )
+
+
+def test_locate_stages_are_sweep_points_and_resume_continues_the_same_design(tmp_path):
+    config = _config()
+    kw = dict(bracket=(2.5, 3.5), tolerance=1e-6, workers=1)  # the budget stops it
+    whole = locate(config, PARAMETER, tmp_path / "whole.h5", budget=240, **kw)
+    assert whole.replicates == 240 and not whole.converged
+    assert "budget" in whole.message and len(whole.stages) == 4
+    # stopped by its budget: left unfinished (resumable), read like any experiment
+    state = experiment_status(tmp_path / "whole.h5")
+    assert state.done == 240
+    points = read_points(tmp_path / "whole.h5")
+    assert points[PARAMETER].tolist() == pytest.approx(whole.stages["value"].tolist())
+    assert whole.stages["value"].iloc[0] == pytest.approx(whole.diffusion)  # starts at the diffusion's value
+    assert "locate" in read_attrs(tmp_path / "whole.h5")
+    # the same design in two goes: 2 stages, then resumed to 4
+    part = tmp_path / "part.h5"
+    locate(config, PARAMETER, part, budget=120, **kw)
+    resumed = locate(config, PARAMETER, part, budget=240, resume=True, **kw)
+    assert resumed.stages["value"].tolist() == whole.stages["value"].tolist()
+    a, b = read_replicates(tmp_path / "whole.h5"), read_replicates(part)
+    assert a.drop(columns="trajectory_start").equals(b.drop(columns="trajectory_start"))
+    assert resumed.value == whole.value
+
+
+def test_locate_refuses_bad_requests(tmp_path):
+    from sim.config import ConfigError
+    from sim.store import ResultsError
+
+    config = _config()
+    with pytest.raises(ConfigError, match="bracket"):
+        locate(config, PARAMETER, tmp_path / "x.h5", bracket=(3.5, 2.5))
+    with pytest.raises(ConfigError, match="no allele"):
+        locate(config, "allele.nobody.fecundity", tmp_path / "x.h5")
+    with pytest.raises(ResultsError, match="nothing to resume"):
+        locate(config, PARAMETER, tmp_path / "missing.h5", resume=True)
