@@ -25,6 +25,7 @@ import pandas as pd  # noqa: E402
 from matplotlib.ticker import MaxNLocator  # noqa: E402
 
 from sim.config import sweep_factors, swept_paths  # noqa: E402
+from sim.meanfield import NoEquilibriumError  # noqa: E402
 from sim.store import read_points, read_replicates, read_trajectories  # noqa: E402
 
 from .comparison import (  # noqa: E402
@@ -39,6 +40,7 @@ from .comparison import (  # noqa: E402
     experiment_config,
     outcome_name,
 )
+from .finite_plots import draw_finite_curve  # noqa: E402
 from .sweep import factor_of, numeric_sweep_paths, other_swept_paths  # noqa: E402
 from .thresholds import fitness_along, with_values  # noqa: E402
 
@@ -192,6 +194,19 @@ def _legend_below(fig, ax, *, ncol: int = 2) -> None:
         )
 
 
+def _finite_curve(ax, config, xpath, at, x, colour, suffix) -> None:
+    """The finite-N fixation probability along the x axis (solid where valid), if it applies."""
+    factor = factor_of(config, xpath) if xpath else None
+    if config.invasion is None or factor is None or factor.linked or len(x) < 2:
+        return  # a curve along one parameter; a linked group moves several at once
+    try:
+        draw_finite_curve(ax, with_values(config, at) if at else config, xpath,
+                          float(np.nanmin(x)), float(np.nanmax(x)), color=colour,
+                          label=f"finite-N fixation probability (diffusion){suffix}")
+    except (ValueError, ArithmeticError, NoEquilibriumError):
+        return  # no finite-N prediction here (e.g. no resident equilibrium): nothing to draw
+
+
 def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
     """Fixation share with Wilson intervals, establishment curve, neutral line, thresholds."""
     xpath, _ = _axis(table, config)
@@ -212,6 +227,7 @@ def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
                 label=f"establishment probability (branching process){suffix}")
         ax.plot(x, sub["neutral_expectation"], ":", color=colour, lw=2.0,
                 label=f"neutral expectation{suffix}")
+        _finite_curve(ax, config, xpath, at, x, colour, suffix)
         for _, row in thresholds.iterrows():
             if row["parameter"] != xpath or not _same(at, row["at"]):
                 continue
