@@ -406,6 +406,41 @@ def suggest_points(low: float, high: float, count: int) -> tuple:
     return tuple(float(round(v, digits)) for v in values)
 
 
+def _isotonic(y, w):
+    """Weighted least-squares non-decreasing fit of ``y`` (pool adjacent violators)."""
+    blocks = []  # [mean, weight, size]
+    for v, wt in zip(y, w):
+        blocks.append([v, wt, 1])
+        while len(blocks) > 1 and blocks[-2][0] > blocks[-1][0]:
+            (m2, w2, s2), (m1, w1, s1) = blocks.pop(), blocks.pop()
+            wsum = w1 + w2
+            blocks.append([(m1 * w1 + m2 * w2) / wsum if wsum else (m1 + m2) / 2, wsum, s1 + s2])
+    return np.concatenate([np.full(s, m) for m, _, s in blocks])
+
+
+def _near_the_crossing(x, fixed, n, neutral, increasing, *, each_side: int = 2):
+    """The sweep points nearest the crossing: ``each_side`` on either side of where the
+    monotone (isotonic) fit of the observed fractions passes the neutral expectation.
+
+    A fixation curve is not one logistic over a wide range: it sits near zero
+    below the threshold and rises like the establishment probability above it
+    (a kink the fitted shape cannot follow, which pulls a fit over every point
+    off the crossing). Near the crossing the shape holds, so the curve is fitted
+    there. All points are kept when the fit does not cross inside the range.
+    """
+    sign = 1.0 if increasing else -1.0
+    share = np.divide(fixed, n, out=np.zeros_like(fixed), where=n > 0)
+    monotone = sign * _isotonic(sign * share, n)
+    above = sign * (monotone - neutral) > 0
+    if above.all() or not above.any():
+        return x, fixed, n, neutral
+    j = int(np.argmax(above))  # the first point past the crossing
+    keep = slice(max(0, j - each_side), min(x.size, j + each_side))
+    if x[keep].size < 3:
+        return x, fixed, n, neutral
+    return x[keep], fixed[keep], n[keep], neutral[keep]
+
+
 def observed_threshold(
     parameter: str,
     x,
@@ -444,7 +479,10 @@ def observed_threshold(
     -----
     A binomial GLM with an upper asymptote, p(x) = top F(a + b x) (fixation
     saturates at the establishment probability, not at 1), is fitted by
-    maximum likelihood to every point of the line; the estimate is where it meets the neutral expectation
+    maximum likelihood to the points nearest the crossing (two on either side
+    of where the monotone fit of the observations passes the neutral
+    expectation: a fixation curve has a kink at the threshold that one such
+    shape cannot follow over a wide range); the estimate is where it meets the neutral expectation
     and the interval is the profile-likelihood interval of that crossing
     (``profile_crossings``), so it carries the curve's uncertainty, not only
     that of two neighbouring points. The slope is held to the theory's
@@ -466,6 +504,7 @@ def observed_threshold(
     if increasing is None:
         _, b, _ = fit_binomial_glm(x, fixed, n, link=link)
         increasing = bool(b[0] >= 0)
+    x, fixed, n, neutral = _near_the_crossing(x, fixed, n, neutral, increasing)
     c = profile_crossings(
         x, fixed, n, neutral, increasing=increasing, link=link, level=level, tops=tops
     )
