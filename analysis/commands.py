@@ -52,6 +52,120 @@ def _free(paths, overwrite: bool) -> None:
             raise FileNotFoundError(f"output folder {str(Path(p).parent)!r} does not exist")
 
 
+# -- what --json writes ---------------------------------------------------------------
+# Every key `threshold --json` and `compare --json` write, with its meaning, as data: the
+# documentation's tables are generated from it (docs/_ext/broodline_docs.py) and
+# tests/test_docs.py checks it against the keys the commands write. SWEPT stands for one key
+# per swept path (e.g. "allele.one-shot.fecundity"), holding the point's value.
+SWEPT = "<swept path>"
+JSON_KEYS = {
+    "threshold": {
+        "": {
+            "resident": "name of the resident allele",
+            "mutant": "name of the mutant allele",
+            "points": "list, one object per sweep point",
+            "thresholds": "list, one object per swept parameter and combination of the other swept values",
+        },
+        "points": {
+            "point": "index of the sweep point",
+            SWEPT: "the point's value of that swept path",
+            "density_index": "D*, the density index at the resident's equilibrium",
+            "census_size": "the resident's equilibrium census (age 1 and older)",
+            "resident_growth_rate": "1 at an equilibrium, else the resident's density-free lambda",
+            "mutant_growth_rate": "the mutant's dominant eigenvalue where the resident sets the density",
+            "invasion_fitness": "the mutant's growth rate in the resident's environment (ratio of "
+            "density-free lambdas without density dependence)",
+            "verdict": "invades, does not invade, neutral, or undefined (no resident equilibrium)",
+            "establishment_probability": "probability that the introduced mutants escape early loss "
+            "(multitype branching process)",
+            "neutral_expectation": "the mutants' share of reproductive value at the start: the "
+            "fixation probability of a neutral allele",
+            "problem": "empty, or why a value is missing",
+            "fixation_probability": "finite-N fixation probability of the introduced mutants "
+            "(diffusion of the reproductive-value share, Gillespie 1974; docs/finite-population.md)",
+            "fixation_probability_valid": "true where the diffusion's assumptions hold (weak selection, "
+            "a regulated census of 10 or more, density acting alike on both schedules)",
+            "fixation_probability_note": "the assumptions and where they fail, in words",
+            "effective_size": "the resident's effective size in the diffusion",
+            "selection_coefficient": "selection per season in the diffusion (log invasion fitness)",
+            "selection_coefficient_per_generation": "selection per generation",
+            "demographic_variance_resident": "the resident's demographic variance (Engen, Lande & "
+            "Saether 2005)",
+            "demographic_variance_mutant": "the mutant's demographic variance",
+        },
+        "thresholds": {
+            "parameter": "the sweep path (a linked group's axis)",
+            "value": "the threshold, where invasion fitness is 1 (null when none is in range)",
+            "converged": "true when a crossing was found and polished",
+            "bracket": "[low, high], the range searched",
+            "fitness_at_bracket": "invasion fitness at both ends (null where the resident has no equilibrium)",
+            "invades_above": "true: the mutant invades above the threshold; false: below; null: no threshold",
+            "crossings": "sign changes of fitness - 1 seen on the scan grid (more than one: the first is given)",
+            "message": "the finding in words",
+            "at": "the other swept parameters, held at these values",
+            "linked": "only along a [[sweep.linked]] group: the other members' values at the threshold",
+        },
+    },
+    "compare": {
+        "": {
+            "points": "list, one object per sweep point (also the CSV's columns)",
+            "thresholds": "list, one object per swept numeric parameter and combination of the others",
+        },
+        "points": {
+            "point": "index of the sweep point",
+            SWEPT: "the point's value of that swept path",
+            "replicates": "replicates in the results file at this point",
+            "mutant-fixed": "replicates that ended mutant-fixed",
+            "mutant-lost": "replicates that ended mutant-lost",
+            "extinct": "replicates in which everyone died (the mutant did not fix)",
+            "undecided": "replicates that reached max_steps with both alleles present",
+            "capped": "replicates that passed max_population",
+            "capped_rising": "capped replicates whose mutant share was rising (counted as established)",
+            "counted": "replicates that resolved (mutant-fixed, mutant-lost, extinct, capped_rising)",
+            "established": "mutant-fixed plus capped_rising",
+            "left_out": "undecided and other capped replicates: never counted as losses",
+            "missing": "replicates planned but not in the file (a stopped run)",
+            "fixed_fraction": "established / counted",
+            "fixed_low": "lower end of the 95% Wilson interval of fixed_fraction",
+            "fixed_high": "upper end of the 95% Wilson interval of fixed_fraction",
+            "invasion_fitness": "as in threshold",
+            "verdict": "as in threshold",
+            "establishment_probability": "as in threshold",
+            "neutral_expectation": "as in threshold",
+            "agreement": "agrees, inconclusive, disagrees, or no prediction (the agreement rule)",
+            "reason": "why, in words",
+            "prediction": "the prediction judged against: the finite-N fixation probability where "
+            "valid, else the side of the neutral expectation",
+            "density_index": "as in threshold",
+            "census_size": "as in threshold",
+            "resident_growth_rate": "as in threshold",
+            "mutant_growth_rate": "as in threshold",
+            "problem": "as in threshold",
+            "fixation_probability": "as in threshold",
+            "fixation_probability_valid": "as in threshold",
+            "fixation_probability_note": "as in threshold",
+            "effective_size": "as in threshold",
+            "selection_coefficient": "as in threshold",
+            "selection_coefficient_per_generation": "as in threshold",
+            "demographic_variance_resident": "as in threshold",
+            "demographic_variance_mutant": "as in threshold",
+        },
+        "thresholds": {
+            "parameter": "the sweep path (a linked group's axis)",
+            "at": "JSON text of the other swept values",
+            "analytic": "the analytic threshold (null if none in the swept range)",
+            "analytic_message": "the analytic finding in words",
+            "observed": "where the observed fixed fraction crosses the neutral expectation",
+            "observed_low": "lower end of its 95% profile-likelihood interval (null: beyond the range)",
+            "observed_high": "upper end of its 95% profile-likelihood interval (null: beyond the range)",
+            "observed_message": "the observed finding in words",
+            "observed_add_points": "sweep values to add where the points are too far apart",
+            "analytic_in_interval": "true when the analytic threshold lies within the observed interval",
+        },
+    },
+}
+
+
 # -- threshold ------------------------------------------------------------------------
 def threshold_report(config, *, parameters=None, bracket=None, sensitivities=False) -> dict:
     """What ``broodline threshold`` prints: predictions per sweep point and thresholds.
@@ -244,7 +358,7 @@ def register(sub) -> None:
         "invasion fitness, establishment, neutral expectation, thresholds",
     )
     p.add_argument("config", help="experiment config (TOML) with an [invasion] table")
-    p.add_argument("--json", action="store_true", help="print JSON (keys in the README)")
+    p.add_argument("--json", action="store_true", help="print JSON (keys: docs/commands.md)")
     p.add_argument(
         "--parameter",
         action="append",
@@ -273,7 +387,7 @@ def register(sub) -> None:
 
     p = sub.add_parser("compare", help="observed fixation in a results file against the prediction")
     p.add_argument("results", help="results file (.h5) of an invasion experiment")
-    p.add_argument("--json", action="store_true", help="print JSON (keys in the README)")
+    p.add_argument("--json", action="store_true", help="print JSON (keys: docs/commands.md)")
     p.add_argument("--csv", metavar="FILE", help="also write the per-point table as CSV")
     p.add_argument("--overwrite", action="store_true", help="replace an existing CSV file")
     p.set_defaults(func=cmd_compare)

@@ -47,18 +47,21 @@ class ConfigError(ValueError):
 
 
 def _probability(x: float) -> float:
+    """in [0, 1]"""
     if not 0.0 <= x <= 1.0:
         raise ValueError("must be in [0, 1]")
     return x
 
 
 def _non_negative(x: float) -> float:
+    """>= 0"""
     if x < 0:
         raise ValueError("must be >= 0")
     return x
 
 
 def _resident_count(x):
+    """"equilibrium" or a whole number in [1, 2^32 - 1]"""
     if x == "equilibrium" or (isinstance(x, int) and not isinstance(x, bool) and 1 <= x <= MAX_COUNT):
         return x
     raise ValueError(f"must be 'equilibrium' or a whole number in [1, {MAX_COUNT}]")
@@ -70,30 +73,54 @@ NonNegative = Annotated[float, Field(strict=True), AfterValidator(_non_negative)
 
 
 class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+    model_config = ConfigDict(extra="forbid", frozen=True, use_attribute_docstrings=True)
 
 
 class ExperimentSection(_Section):
     """``[experiment]``: what to run and when to stop."""
 
     name: str = "experiment"
+    """Label used in outputs."""
     seed: int = Field(0, ge=0, strict=True)
+    """Root of every replicate's random stream: replicate r of point p draws from SeedSequence(seed,
+    spawn_key=(p, r))."""
     replicates: int = Field(100, ge=1, strict=True)
+    """Replicates per sweep point."""
     max_steps: int = Field(1000, ge=1, strict=True)
+    """Seasons a replicate runs at most."""
     stop: Literal[words.STOP_RULES] = "fixation"
+    """fixation: a replicate stops as soon as its outcome is decided; max-steps: every replicate
+    runs to max_steps (or extinction, or the cap)."""
     record_every: int = Field(1, ge=1, strict=True)
+    """The census is recorded every n seasons; season 0 and the last season are always recorded."""
     engine: Literal[words.ENGINES] = "individual"
+    """individual: numpy arrays of individuals, replicates batched; counts: counts by allele and
+    age, exact in distribution, cost flat in N (broodline check says whether it is exact for the
+    config); agents: one mesa.Agent per individual, slow, the readable reference."""
     max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT, strict=True)
+    """A replicate whose census passes it stops and is marked capped; the experiment goes on."""
     trajectory: Literal[words.TRAJECTORY_MODES] = "by-age"
+    """What is stored of each recorded census: by-age (counts by allele and age), by-allele (summed
+    over ages), none (outcomes only)."""
 
 
 class DensitySection(_Section):
     """``[density]``: the form of density dependence, where it acts, who is counted."""
 
     form: Literal[words.DENSITY_FORMS] = "none"
+    """none; beverton-holt, f = 1 / (1 + D/K); ricker, f = exp(-D/K); ceiling: after recruitment,
+    random individuals are removed down to K."""
     acts_on: Literal[words.PLACEMENTS] | None = None
+    """The rate f multiplies: recruitment (c), fecundity (m), adult-survival (s), all-survival (s
+    and c). Default: recruitment, or all-survival for a ceiling. A ceiling takes all-survival
+    (anyone may be removed) or recruitment (only new recruits are removed, down to K minus the
+    survivors)."""
     counted: Literal[words.COUNTED] = "census"
+    """Who makes up D: census (everyone of age 1 and older), breeders (individuals with m(a) > 0),
+    offspring (born this season; D taken after breeding, so not with acts_on = fecundity). A ceiling
+    caps the census."""
     capacity: float | None = Field(None, gt=0, strict=True)
+    """K; required unless form = none."""
 
     @model_validator(mode="after")
     def _consistent(self):
@@ -124,7 +151,10 @@ class OffspringSection(_Section):
     """``[offspring]``: the offspring-number distribution."""
 
     distribution: Literal[words.DISTRIBUTIONS] = "poisson"
+    """poisson; fixed: floor(m), plus one more with probability m - floor(m), so the mean is exact;
+    negative-binomial, with dispersion."""
     dispersion: float | None = Field(None, gt=0, strict=True)
+    """negative-binomial only: k, with variance = m + m^2 / k."""
 
     @model_validator(mode="after")
     def _dispersion(self):
@@ -139,12 +169,22 @@ class AlleleSection(_Section):
     """``[[allele]]``: one heritable breeding schedule."""
 
     name: str = Field(min_length=1)
+    """Unique name of the allele, used by [invasion] and in sweep paths (allele.NAME.KEY)."""
     breeding: Literal[words.BREEDING]
+    """semelparous: breeds once at maturity_age, then dies (adult_survival is then the survival of
+    the years before breeding, required if maturity_age > 1); iteroparous: breeds every season from
+    maturity_age with survival adult_survival; table: fecundity and adult_survival are lists by age
+    1, 2, ... of equal length, the last age a plus-group that keeps its own survival."""
     fecundity: NonNegative | list[NonNegative]
+    """Mean offspring m per breeding season (a list by age for table)."""
     adult_survival: Probability | list[Probability] | None = None
+    """Survival s per season (a list by age for table); see breeding for when it is required."""
     juvenile_survival: Probability
+    """c: survival from offspring to age 1."""
     maturity_age: int = Field(1, ge=1, le=200, strict=True)
+    """First breeding age (not for table)."""
     initial_count: int = Field(0, ge=0, le=MAX_COUNT, strict=True)
+    """Without [invasion]: individuals of this allele at the start, all of age 1."""
 
     @model_validator(mode="after")
     def _shape(self):
@@ -189,16 +229,25 @@ class InvasionSection(_Section):
     """``[invasion]``: a resident at equilibrium, a few mutants added at age 1."""
 
     resident: str
+    """Name of the resident allele."""
     mutant: str
+    """Name of the mutant allele (not the resident)."""
     mutant_count: int = Field(1, ge=1, le=MAX_COUNT, strict=True)
+    """Mutants added at age 1."""
     resident_count: Annotated[Any, AfterValidator(_resident_count)] = "equilibrium"
+    """equilibrium: the resident starts at its mean-field equilibrium in its stable age distribution
+    (rounded, total kept); or a number (needed without density dependence), then in the stable age
+    distribution of its density-free matrix."""
 
 
 class MutationSection(_Section):
     """``[mutation]``: per-offspring mutation, uniform to the other alleles or by matrix."""
 
     rate: Probability = 0.0
+    """Per offspring, to another allele chosen uniformly."""
     matrix: list[list[Probability]] | None = None
+    """n x n: row i gives the allele probabilities of an offspring of an allele-i parent; rows sum
+    to 1; not with rate."""
 
     @model_validator(mode="after")
     def _one_way(self):
@@ -211,12 +260,21 @@ class Config(_Section):
     """A whole experiment as written in TOML (the ``[sweep]`` table kept unexpanded)."""
 
     experiment: ExperimentSection = ExperimentSection()
+    """[experiment]: what to run and when to stop."""
     density: DensitySection = DensitySection()
+    """[density]: density dependence."""
     offspring: OffspringSection = OffspringSection()
+    """[offspring]: the offspring-number distribution."""
     allele: list[AlleleSection] = Field(min_length=1)
+    """[[allele]]: one table per allele (heritable breeding schedule), at least one."""
     invasion: InvasionSection | None = None
+    """[invasion]: optional; a resident at equilibrium and a few mutants."""
     mutation: MutationSection = MutationSection()
+    """[mutation]: per-offspring mutation between alleles."""
     sweep: dict[str, list[Any]] | None = None
+    """[sweep]: optional; "PATH" = [values] (the cartesian product of the lists), and
+    [[sweep.linked]] groups of lists read in step. PATH is allele.NAME.KEY or SECTION.KEY;
+    experiment.seed, replicates, engine, name and trajectory cannot be swept."""
 
     @model_validator(mode="after")
     def _cross_checks(self):
