@@ -67,6 +67,11 @@ def offspring_pgf(s: np.ndarray, schedule: Schedule, factors: Factors, offspring
     stays in the plus-group) with probability sigma = s(a) f_adult::
 
         G_a(s) = (1 - sigma + sigma s_next(a)) P(1 - p + p s_1; m(a) f_fec)
+
+    With parental care or a brood effect (``schedule.orphan_survival`` /
+    ``brood_scale``) the survival and the recruits are not independent: the
+    kernel's joint form, G_a(s) = sigma s_next H_care(s_1) + (1 - sigma)
+    H_orphan(s_1) (derived in ``SeasonKernel.offspring_pgf``).
     """
     return SeasonKernel.for_schedule(schedule, offspring=offspring).offspring_pgf(s, factors)
 

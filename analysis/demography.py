@@ -72,7 +72,8 @@ def dominant_eigen(a: np.ndarray) -> tuple[float, np.ndarray, np.ndarray]:
     return lam, w, v
 
 
-def schedule_demography(schedule: Schedule, factors: Factors = Factors()) -> Demography:
+def schedule_demography(schedule: Schedule, factors: Factors = Factors(), *,
+                        offspring=None) -> Demography:
     """Growth rate, R0, generation time, stable ages and reproductive values.
 
     Parameters
@@ -82,6 +83,9 @@ def schedule_demography(schedule: Schedule, factors: Factors = Factors()) -> Dem
     factors : Factors, optional
         Density factors on fecundity, adult survival and recruitment (all 1
         by default: the density-independent demography).
+    offspring : offspring law, optional
+        Default Poisson; it matters only under a brood effect (the expected
+        recruits per parent depend on the whole law).
 
     Notes
     -----
@@ -96,7 +100,7 @@ def schedule_demography(schedule: Schedule, factors: Factors = Factors()) -> Dem
     - w and v are the right and left eigenvectors of lambda (Caswell 2001,
       sec. 4.5).
     """
-    kernel = SeasonKernel.for_schedule(schedule)
+    kernel = SeasonKernel.for_schedule(schedule, offspring=offspring)
     a = kernel.projection_matrix(factors)
     n = a.shape[0]
     # survival part: the same matrix with births switched off (for one age class the

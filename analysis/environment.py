@@ -87,10 +87,11 @@ def resident_environment(config: Config) -> ResidentEnvironment:
     """
     r, _ = invasion_pair(config)
     schedule = config.schedules()[r]
-    density = config.density_dependence()
+    density, law = config.density_dependence(), config.offspring_distribution()
     if isinstance(density.form, NoDensity):
-        return ResidentEnvironment(schedule.name, Factors(), None, schedule_demography(schedule))
-    eq = solve_equilibrium(schedule, density)
+        return ResidentEnvironment(schedule.name, Factors(), None,
+                                   schedule_demography(schedule, offspring=law))
+    eq = solve_equilibrium(schedule, density, offspring=law)
     return ResidentEnvironment(
-        schedule.name, eq.factors, eq, schedule_demography(schedule, eq.factors)
+        schedule.name, eq.factors, eq, schedule_demography(schedule, eq.factors, offspring=law)
     )

@@ -45,7 +45,8 @@ def invasion_fitness(config: Config, env: ResidentEnvironment | None = None) -> 
     """
     env = env or resident_environment(config)
     _, m = invasion_pair(config)
-    lam = schedule_demography(config.schedules()[m], env.factors).growth_rate
+    lam = schedule_demography(config.schedules()[m], env.factors,
+                              offspring=config.offspring_distribution()).growth_rate
     return lam if env.regulated else lam / env.demography.growth_rate
 
 
@@ -156,7 +157,8 @@ def predict(config: Config) -> Prediction:
     env = resident_environment(config)
     r, m = invasion_pair(config)
     mutant = config.schedules()[m]
-    mutant_lambda = schedule_demography(mutant, env.factors).growth_rate
+    mutant_lambda = schedule_demography(mutant, env.factors,
+                                        offspring=config.offspring_distribution()).growth_rate
     fitness = invasion_fitness(config, env)
     ext = extinction_probabilities(mutant, env.factors, config.offspring_distribution())
     return Prediction(

@@ -120,7 +120,7 @@ def _check_parameter(config: Config, parameter: str) -> None:
 def _is_probability(config: Config, parameter: str) -> bool:
     parts = parameter.split(".")
     if parts[0] == "allele":
-        return parts[2] in ("adult_survival", "juvenile_survival")
+        return parts[2] in ("adult_survival", "juvenile_survival", "orphan_survival")
     return parameter == "mutation.rate"
 
 

@@ -3,7 +3,10 @@
 The model: an iteroparous resident (m = 2, adult survival 0.5, juvenile
 survival 0.5) at its equilibrium, one tenth as many semelparous mutants
 (m = 4.5) added, Beverton-Holt density dependence on recruitment with
-K = N (so the resident's equilibrium census is N), Poisson offspring.
+K = N (so the resident's equilibrium census is N), Poisson offspring. The
+``care`` row is the individual engine on the same model with parental care
+and a brood effect on both alleles (orphan survival 0.3, h = 8), set against
+the plain individual engine at the same N.
 
 Speed is individual-steps per second: the census size summed over the
 seasons stepped, divided by the wall time of the steps (README, "Performance"). Each
@@ -36,6 +39,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 
 from .config import Config, parse_config, sweep_points
+from .meanfield import solve_equilibrium
 from .model import BroodModel
 from .replicates import replicate_rng, run_replicate, run_replicates
 
@@ -114,21 +118,40 @@ class BenchReport:
         return out
 
 
+CARE = {"orphan_survival": 0.3, "brood_effect": "exponential", "brood_scale": 8.0}
+CARE_ENGINE = "care"  # the individual engine with CARE on both alleles (a row of the table)
+
+
 def bench_config(census_size: int, *, engine: str = "individual", mutant_count: int | None = None,
-                 replicates: int = 1, seed: int = 20261202, record_every: int = 1) -> Config:
-    """The benchmark's model at equilibrium census ``census_size`` (K = N)."""
+                 replicates: int = 1, seed: int = 20261202, record_every: int = 1,
+                 care: bool = False) -> Config:
+    """The benchmark's model at equilibrium census ``census_size`` (K = N); with ``care``, both
+    alleles also have orphan survival 0.3 and an exponential brood effect (h = 8), and K is
+    scaled so that the resident's equilibrium census is still N."""
+    config = _bench_config(census_size, census_size, engine, mutant_count, replicates, seed,
+                           record_every, CARE if care else {})
+    if not care:
+        return config
+    equilibrium = solve_equilibrium(config.schedules()[0], config.density_dependence(),
+                                    offspring=config.offspring_distribution()).census_size
+    return _bench_config(census_size, census_size**2 / equilibrium, engine, mutant_count,
+                         replicates, seed, record_every, CARE)
+
+
+def _bench_config(census_size, capacity, engine, mutant_count, replicates, seed, record_every,
+                  extra) -> Config:
     return parse_config({
         "experiment": {"name": f"bench-{census_size}", "engine": engine, "seed": seed,
                        "replicates": replicates, "max_steps": 5000, "stop": "fixation",
                        "record_every": record_every, "max_population": 4_000_000_000},
         "density": {"form": "beverton-holt", "acts_on": "recruitment", "counted": "census",
-                    "capacity": census_size},
+                    "capacity": capacity},
         "offspring": {"distribution": "poisson"},
         "allele": [
             {"name": "perennial", "breeding": "iteroparous", "fecundity": 2.0,
-             "adult_survival": 0.5, "juvenile_survival": 0.5},
+             "adult_survival": 0.5, "juvenile_survival": 0.5, **extra},
             {"name": "one-shot", "breeding": "semelparous", "fecundity": 4.5,
-             "juvenile_survival": 0.5},
+             "juvenile_survival": 0.5, **extra},
         ],
         "invasion": {"resident": "perennial", "mutant": "one-shot",
                      "mutant_count": mutant_count or max(1, census_size // 10)},
@@ -293,6 +316,9 @@ def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, min_time: float = 1.0,
         floor_wall, drawn, floor_mem = _time_floor(trace, recruits, seed, min_time)
         floor = _record("floor", n, drawn, floor_wall, floor_mem)
         rows = [floor, individual]
+        say(f"individual with care and brood effect, N = {n}")
+        wall, trace, _, mem = _time_engine(bench_config(n, care=True), seasons, seed, min_time)
+        rows.append(_record(CARE_ENGINE, n, trace, wall, mem))
         for engine in ("agents", "counts") if n <= agents_max else ("counts",):
             say(f"{engine}, N = {n}")
             wall, trace, _, mem = _time_engine(bench_config(n, engine=engine), seasons, seed,
@@ -347,6 +373,13 @@ def format_report(report: BenchReport) -> str:
                      f"{_num(r.bytes_per_individual, '.3g'):>13}"
                      f"{_num(r.peak_bytes_per_individual, '.3g'):>12}")
     lines += textwrap.wrap(report.memory_method + ".", 100)
+    rates = {(r.engine, r.census_size): r.individual_steps_per_s for r in report.records}
+    care = [(n, rate / rates[("individual", n)]) for (engine, n), rate in rates.items()
+            if engine == CARE_ENGINE and ("individual", n) in rates]
+    if care:
+        lines.append(f"{CARE_ENGINE}: the individual engine with orphan survival 0.3 and brood effect "
+                     "h = 8 on both alleles; x individual (same N): "
+                     + ", ".join(f"{ratio:.3g} at N = {n:,}" for n, ratio in care))
     if report.experiment:
         e0 = report.experiment[0]
         lines += ["",

@@ -117,7 +117,14 @@ def describe_experiment(config: Config) -> str:
     for a, s in zip(config.allele, config.schedules()):
         lines.append(f"  {a.name}: {a.breeding}, m = {_fmt(s.fecundity)}, s = {_fmt(s.survival)}, "
                      f"c = {s.juvenile_survival:g}; growth rate without density dependence "
-                     f"{growth_rate(s):.4g}")
+                     f"{growth_rate(s, offspring=config.offspring_distribution()):.4g}")
+        if s.orphan_survival is not None or s.brood_scale is not None:
+            lines.append("    parental effects: young of a parent that dies survive "
+                         f"{s.juvenile_survival if s.orphan_survival is None else s.orphan_survival:g}"
+                         f" (c_orphan; c_care {s.juvenile_survival:g})"
+                         + ("" if s.brood_scale is None else
+                            f"; in a brood of b each survives x exp(-(b - 1) / {s.brood_scale:g})")
+                         + "; recruits drawn by (class, fate, brood size) in every engine")
     if config.invasion is not None:
         inv = config.invasion
         start = initial_census(points[0].config)

@@ -18,14 +18,15 @@ solver and the deterministic season map (``sim.meanfield``) and the
 branching process's generating function (``analysis.branching``) are derived
 from it.
 
-Seams (documented in DEVELOPERS.md; not built yet)
----------------------------------------------------
+Seams (documented in DEVELOPERS.md)
+-----------------------------------
 ``multipliers(factors, year=...)`` is where a year's multipliers on
 fecundity, adult survival and juvenile survival join the density factors,
-per replicate; ``recruitment(factors, parent_survived=..., brood=...)`` is
-where a young's recruitment depends on its parent's fate and brood size; a
-trade-off curve for effort alleles is a schedule constructor
-(``sim.schedules``) and needs nothing here.
+per replicate (not built yet); ``recruitment(factors, parent_survived=...,
+brood=...)`` is where a young's recruitment depends on its parent's fate
+(c_care or c_orphan) and brood size (x exp(-(b - 1) / h)), from the
+alleles' ``sim.care.ParentalCare``; a trade-off curve for effort alleles is
+a schedule constructor (``sim.schedules``) and needs nothing here.
 """
 
 from __future__ import annotations
@@ -34,6 +35,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .care import ParentalCare
 from .density import DensityDependence, Factors, NoDensity
 from .mutation import Mutation
 from .offspring import Poisson
@@ -67,10 +69,10 @@ class SeasonKernel:
 
     Parameters
     ----------
-    M, S, C, density, offspring, mutation
+    M, S, C, density, offspring, mutation, care
         As the fields of ``sim.lifecycle.LifeCycle`` (a ``LifeCycle``'s
         ``kernel`` is built from them); ``offspring`` defaults to Poisson,
-        ``mutation`` to none.
+        ``mutation`` to none, ``care`` (``sim.care.ParentalCare``) to none.
 
     Attributes
     ----------
@@ -88,9 +90,15 @@ class SeasonKernel:
         A ceiling's capacity K; None for the other forms.
     ceiling_on_recruits : bool
         A ceiling removes recruits only (else anyone).
+    parental : bool
+        A young's recruitment depends on its parent's fate or brood size.
+    orphan, decay : ndarray, shape (n_classes,)
+        c_orphan of each class (c without care) and x = exp(-1 / h) of its
+        brood effect (1 without one).
     """
 
-    def __init__(self, M, S, C, density: DensityDependence, offspring=None, mutation=None):
+    def __init__(self, M, S, C, density: DensityDependence, offspring=None, mutation=None,
+                 care: ParentalCare | None = None):
         M, S = np.asarray(M, dtype=float), np.asarray(S, dtype=float)
         self.M, self.S, self.C = M, S, np.asarray(C, dtype=float)
         self.density = density
@@ -114,6 +122,10 @@ class SeasonKernel:
         # per-class loops)
         self.breeders = [(int(c), int(self.allele_of[c]), float(self.fecundity[c]),
                           float(self.juvenile[c])) for c in np.flatnonzero(self.fecundity > 0)]
+        self.care = care
+        self.parental = care is not None
+        self.orphan = self.juvenile if care is None else np.repeat(care.orphan, n_ages)
+        self.decay = np.ones(self.n_classes) if care is None else np.repeat(care.decay, n_ages)
 
     @classmethod
     def for_schedule(cls, schedule, density: DensityDependence | None = None,
@@ -121,7 +133,8 @@ class SeasonKernel:
         """The kernel of one allele alone (the theory's mutant or resident)."""
         density = density or DensityDependence(NoDensity())
         return cls(schedule.fecundity[None, :], schedule.survival[None, :],
-                   [schedule.juvenile_survival], density, offspring)
+                   [schedule.juvenile_survival], density, offspring,
+                   care=ParentalCare.from_schedules([schedule]))
 
     # -- step 1: density ----------------------------------------------------------------
     def density_index(self, census) -> np.ndarray | float:
@@ -175,15 +188,40 @@ class SeasonKernel:
         return factors
 
     def recruitment(self, factors: Factors, *, parent_survived=None, brood=None):
-        """Probability that each offspring of each class recruits at age 1, c f_rec.
+        """Probability that each offspring of each class recruits at age 1.
 
-        Seam for parental care and brood size: ``parent_survived`` (c_care
-        against c_orphan) and ``brood`` (x exp(-(b - 1) / h)). With neither in
-        the model, recruits of a class are exchangeable and the array engines
-        draw them as one total per class.
+        c f_rec by default (c is c_care: the parent lives); with
+        ``parent_survived`` false, c_orphan f_rec; with a brood size ``brood``
+        b (>= 1), times x^(b - 1) = exp(-(b - 1) / h). Both may be arrays
+        broadcasting against the class axis. Without parental effects in the
+        model (``parental`` false) every young of a class has the same
+        probability, and the array engines draw a class's recruits as one total.
         """
-        assert parent_survived is None and brood is None, "no parental effect in the model yet"
-        return self.juvenile * np.asarray(factors.recruitment)[..., None]
+        c = self.juvenile if parent_survived is None else np.where(parent_survived, self.juvenile,
+                                                                    self.orphan)
+        if brood is not None:
+            c = c * self.decay ** (np.asarray(brood) - 1.0)
+        return c * np.asarray(factors.recruitment)[..., None]
+
+    def recruits_per_parent(self, factors: Factors) -> np.ndarray:
+        """Expected recruits per individual of each class, (..., n_classes), before mutation.
+
+        Notes
+        -----
+        A parent breeds B young (pgf P, mean m f_fec) and survives with
+        probability sigma = s f_adult, independently; each young recruits with
+        probability c_fate x^(B - 1) f_rec. So E[recruits] = f_rec
+        E[B x^(B - 1)] (sigma c_care + (1 - sigma) c_orphan), and E[B x^(B - 1)]
+        = P'(x) (derived from the pgf; for Poisson P'(x) = m exp(-m (1 - x)),
+        x = e^(-1/h)). Without parental effects: m f_fec c f_rec.
+        """
+        rates = self.rates(factors)
+        if not self.parental:
+            return rates.breeding * rates.recruitment
+        young = self.offspring.pgf_derivative(self.decay, rates.breeding)
+        sigma = rates.survival
+        care = sigma * self.juvenile + (1.0 - sigma) * self.orphan
+        return young * care * np.asarray(factors.recruitment, dtype=float)[..., None]
 
     def rates(self, factors: Factors) -> SeasonRates:
         """Every class's vital rates at these factors (numbers, or one row per replicate)."""
@@ -201,6 +239,11 @@ class SeasonKernel:
         batch); under Poisson offspring the recruits are Poisson with this mean.
         """
         mean = np.zeros((counts.shape[0], self.n_alleles))
+        if self.parental:
+            per_parent = np.broadcast_to(self.recruits_per_parent(factors), counts.shape)
+            for c, allele, _, _ in self.breeders:
+                mean[:, allele] += counts[:, c] * per_parent[:, c]
+            return mean
         for c, allele, fecundity, juvenile in self.breeders:
             mean[:, allele] += counts[:, c] * (fecundity * factors.fecundity) * (juvenile * factors.recruitment)
         return mean
@@ -230,13 +273,18 @@ class SeasonKernel:
         -----
         A[0, a] = m(a) f_fec c f_rec; A[a + 1, a] = s(a) f_adult; the plus-group
         A[L-1, L-1] = s(L-1) f_adult (Caswell 2001, Matrix Population Models,
-        ch. 2).
+        ch. 2). With parental effects A[0, a] is the expected recruits per
+        parent, ``recruits_per_parent``: f_rec P'(x) (sigma c_care + (1 - sigma)
+        c_orphan), sigma = s(a) f_adult.
         """
         n = self.n_ages
         m, s = self.M[allele], self.S[allele]
         a = np.zeros((n, n))
-        # in this order: ((m f_fec) c) f_rec, the rounding of every version since 0.1
-        a[0, :] = m * factors.fecundity * self.C[allele] * factors.recruitment
+        if self.parental:
+            a[0, :] = self.recruits_per_parent(factors)[allele * n:(allele + 1) * n]
+        else:
+            # in this order: ((m f_fec) c) f_rec, the rounding of every version since 0.1
+            a[0, :] = m * factors.fecundity * self.C[allele] * factors.recruitment
         s = s * factors.adult
         idx = np.arange(n - 1)
         a[idx + 1, idx] += s[:-1]
@@ -279,11 +327,45 @@ class SeasonKernel:
             G_a(s) = (1 - sigma + sigma s_next(a)) P(1 - p + p s_1; m(a) f_fec)
 
         (Harris 1963; Athreya & Ney 1972.)
+
+        With parental effects the parent's survival and its young's recruits
+        are no longer independent. Derivation: given the parent's fate
+        (survives with probability sigma) and its brood B = b, each young
+        recruits independently with probability q_fate x^(b - 1), q_care =
+        c_care f_rec, q_orphan = c_orphan f_rec, so the recruits are
+        Binomial(b, q x^(b - 1)), with pgf (1 - q x^(b - 1) (1 - s_1))^b.
+        Averaging over B (independent of the fate) and over the fate::
+
+            H_q(s_1) = E[(1 - q x^(B - 1) (1 - s_1))^B]
+            G_a(s)   = sigma s_next(a) H_care(s_1) + (1 - sigma) H_orphan(s_1)
+
+        Without a brood effect (x = 1), H_q(s_1) = P(1 - q + q s_1); with one,
+        H is summed over the offspring law's probabilities (``pmf_table``, tail
+        below 1e-15). With c_care = c_orphan and x = 1 this is the formula
+        above. Its Jacobian at s = 1: dG_a/ds_next = sigma and dG_a/ds_1 =
+        E[B x^(B - 1)] (sigma q_care + (1 - sigma) q_orphan), the projection
+        matrix's entries (``recruits_per_parent``).
         """
         s = np.asarray(s, dtype=float)
         rates = self.rates(factors)
         ages = slice(allele * self.n_ages, (allele + 1) * self.n_ages)
         sigma, p = rates.survival[ages], rates.recruitment[ages]
         nxt = self.aged[ages] - allele * self.n_ages
+        if self.parental:
+            orphan = self.recruitment(factors, parent_survived=False)[ages]
+            cared = self._brood_pgf(s[0], p, rates.breeding[ages], self.decay[ages])
+            orphaned = self._brood_pgf(s[0], orphan, rates.breeding[ages], self.decay[ages])
+            return sigma * s[nxt] * cared + (1.0 - sigma) * orphaned
         births = self.offspring.pgf(1.0 - p + p * s[0], rates.breeding[ages])
         return (1.0 - sigma + sigma * s[nxt]) * births
+
+    def _brood_pgf(self, s1, q, mean, decay) -> np.ndarray:
+        """H_q(s_1) = E[(1 - q x^(B - 1) (1 - s_1))^B] for each class (``offspring_pgf``)."""
+        out = np.empty(mean.size)
+        for i, (q_i, m_i, x_i) in enumerate(zip(q, mean, decay)):
+            if x_i == 1.0:
+                out[i] = self.offspring.pgf(1.0 - q_i + q_i * s1, m_i)
+                continue
+            b, pmf = self.offspring.pmf_table(m_i)
+            out[i] = pmf @ (1.0 - q_i * x_i ** (b - 1.0) * (1.0 - s1)) ** b
+        return out

@@ -14,6 +14,7 @@ from functools import cached_property
 
 import numpy as np
 
+from .care import ParentalCare
 from .config import Config
 from .density import DensityDependence
 from .kernel import SeasonKernel
@@ -37,6 +38,8 @@ class LifeCycle:
     density : DensityDependence
     offspring : offspring distribution (``draw``, ``draw_total``, ``pgf``)
     mutation : Mutation
+    care : ParentalCare or None
+        Parental care and brood effects on recruitment (None: none).
     """
 
     M: np.ndarray
@@ -45,12 +48,14 @@ class LifeCycle:
     density: DensityDependence
     offspring: object
     mutation: Mutation
+    care: ParentalCare | None = None
 
     @classmethod
     def from_config(cls, config: Config) -> LifeCycle:
-        M, S, C = stack_schedules(config.schedules())
+        schedules = config.schedules()
+        M, S, C = stack_schedules(schedules)
         return cls(M, S, C, config.density_dependence(), config.offspring_distribution(),
-                   config.mutation_model())
+                   config.mutation_model(), ParentalCare.from_schedules(schedules))
 
     @property
     def n_alleles(self) -> int:
@@ -63,7 +68,8 @@ class LifeCycle:
     @cached_property
     def kernel(self) -> SeasonKernel:
         """The season kernel: every class's vital rates, what the engines sample from."""
-        return SeasonKernel(self.M, self.S, self.C, self.density, self.offspring, self.mutation)
+        return SeasonKernel(self.M, self.S, self.C, self.density, self.offspring, self.mutation,
+                            self.care)
 
 
 def round_preserving_total(x: np.ndarray, total: int) -> np.ndarray:
@@ -95,11 +101,11 @@ def initial_census(config: Config, life: LifeCycle | None = None) -> np.ndarray:
     r = config.allele_index(inv.resident)
     schedule = config.schedules()[r].padded(life.n_ages)
     if inv.resident_count == "equilibrium":
-        eq = solve_equilibrium(schedule, life.density)
+        eq = solve_equilibrium(schedule, life.density, offspring=life.offspring)
         target, shape = int(round(eq.census_size)), eq.census
     else:
         target = int(inv.resident_count)
-        shape = stable_age_distribution(schedule, life.kernel.factors(0.0))
+        shape = stable_age_distribution(schedule, life.kernel.factors(0.0), offspring=life.offspring)
     census[r] = round_preserving_total(shape, target)
     census[config.allele_index(inv.mutant), 0] += inv.mutant_count
     return census

@@ -41,22 +41,28 @@ class NoEquilibriumError(ValueError):
     """The resident has no positive, stable-size equilibrium under this density dependence."""
 
 
-def projection_matrix(schedule: Schedule, factors: Factors = Factors()) -> np.ndarray:
-    """Pre-breeding-census projection matrix of ``schedule`` at the given density factors."""
-    return SeasonKernel.for_schedule(schedule).projection_matrix(factors)
+def projection_matrix(schedule: Schedule, factors: Factors = Factors(), *,
+                      offspring=None) -> np.ndarray:
+    """Pre-breeding-census projection matrix of ``schedule`` at the given density factors.
+
+    ``offspring`` (the offspring law, default Poisson) matters only under a
+    brood effect, whose expected recruits depend on the whole law.
+    """
+    return SeasonKernel.for_schedule(schedule, offspring=offspring).projection_matrix(factors)
 
 
-def growth_rate(schedule: Schedule, factors: Factors = Factors()) -> float:
+def growth_rate(schedule: Schedule, factors: Factors = Factors(), *, offspring=None) -> float:
     """Dominant eigenvalue lambda of the projection matrix (the per-season growth ratio)."""
-    a = projection_matrix(schedule, factors)
+    a = projection_matrix(schedule, factors, offspring=offspring)
     if a.shape == (1, 1):
         return float(a[0, 0])
     return float(np.max(np.abs(np.linalg.eigvals(a))))
 
 
-def stable_age_distribution(schedule: Schedule, factors: Factors = Factors()) -> np.ndarray:
+def stable_age_distribution(schedule: Schedule, factors: Factors = Factors(), *,
+                            offspring=None) -> np.ndarray:
     """Right eigenvector of the dominant eigenvalue, normalised to sum 1."""
-    a = projection_matrix(schedule, factors)
+    a = projection_matrix(schedule, factors, offspring=offspring)
     vals, vecs = np.linalg.eig(a)
     # The Perron root is real and has the largest real part; taking the largest
     # modulus instead can pick a complex root of equal modulus when the matrix
@@ -101,8 +107,11 @@ def _root(fn, lo, hi, what):
     raise NoEquilibriumError(f"{what}: growth rate stays above 1 at any density (no regulation)")
 
 
-def solve_equilibrium(schedule: Schedule, density: DensityDependence) -> Equilibrium:
+def solve_equilibrium(schedule: Schedule, density: DensityDependence, *,
+                      offspring=None) -> Equilibrium:
     """The resident's equilibrium: the density at which its growth rate is 1.
+
+    ``offspring``: the offspring law (default Poisson; it matters under a brood effect).
 
     Raises
     ------
@@ -112,13 +121,13 @@ def solve_equilibrium(schedule: Schedule, density: DensityDependence) -> Equilib
         lambda down to 1 (e.g. on adult survival when m(1) c > 1).
     """
     what = f"resident {schedule.name!r}"
-    kernel = SeasonKernel.for_schedule(schedule, density)
+    kernel = SeasonKernel.for_schedule(schedule, density, offspring)
     if isinstance(density.form, NoDensity):
         raise NoEquilibriumError(f"{what}: no density dependence, so no equilibrium")
     if kernel.ceiling is not None:
         # the removal as a survival factor phi at the ceiling's placement, census K
         def excess_phi(p):
-            return growth_rate(schedule, density.placed(p)) - 1.0
+            return growth_rate(schedule, density.placed(p), offspring=offspring) - 1.0
 
         if excess_phi(1.0) <= 0:
             raise NoEquilibriumError(f"{what}: growth rate without removal is {excess_phi(1.0) + 1:.6g} <= 1")
@@ -126,15 +135,15 @@ def solve_equilibrium(schedule: Schedule, density: DensityDependence) -> Equilib
             raise NoEquilibriumError(f"{what}: growth rate stays >= 1 however many are removed")
         phi = brentq(excess_phi, 0.0, 1.0, xtol=1e-14, rtol=1e-12, maxiter=500)
         factors = density.placed(phi)
-        u = stable_age_distribution(schedule, factors)
+        u = stable_age_distribution(schedule, factors, offspring=offspring)
         return Equilibrium(density.form.capacity, factors, density.form.capacity * u)
 
     def excess(d):
-        return growth_rate(schedule, kernel.factors(d)) - 1.0
+        return growth_rate(schedule, kernel.factors(d), offspring=offspring) - 1.0
 
     d_star = _root(excess, 0.0, density.form.capacity, what)
     factors = kernel.factors(d_star)
-    u = stable_age_distribution(schedule, factors)
+    u = stable_age_distribution(schedule, factors, offspring=offspring)
     weight = float(kernel.weights @ u)
     if weight <= 0:
         raise NoEquilibriumError(f"{what}: no individual is counted in the density index")

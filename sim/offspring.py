@@ -6,7 +6,9 @@ that work with counts), draws that total already thinned by an independent
 per-offspring survival ``keep`` (``draw_thinned_total``: the recruits of a
 class; ``draw_thinned_totals`` does it for many replicates, each with its own
 generator) and gives its probability generating function (``pgf``, for
-branching-process calculations).
+branching-process calculations), its derivative (``pgf_derivative``:
+E[B x^(B - 1)], the expected recruits per parent under a brood effect) and
+its probabilities (``pmf_table``, for per-brood-size sums and draws).
 """
 
 from __future__ import annotations
@@ -16,6 +18,21 @@ from dataclasses import dataclass
 import numpy as np
 
 __all__ = ["Poisson", "Fixed", "NegativeBinomial", "DISTRIBUTIONS", "make_offspring"]
+
+
+PMF_TAIL = 1e-15  # pmf tables stop where the remaining tail is below this
+
+
+def _table_by_recurrence(first: float, ratio, mean: float, tail: float):
+    """pmf(0..K) from pmf(0) and pmf(k + 1) / pmf(k) = ratio(k), up to a tail below ``tail``."""
+    pmf = [first]
+    total = first
+    k = 0
+    while 1.0 - total > tail and pmf[-1] > 0 or k < mean:
+        pmf.append(pmf[-1] * ratio(k))
+        total += pmf[-1]
+        k += 1
+    return np.arange(len(pmf)), np.array(pmf)
 
 
 class _Replicated:
@@ -51,6 +68,16 @@ class Poisson(_Replicated):
     def pgf(self, s, mean):
         return np.exp(np.asarray(mean) * (np.asarray(s) - 1.0))
 
+    def pgf_derivative(self, s, mean):
+        """P'(s) = m exp(m (s - 1))."""
+        mean = np.asarray(mean, dtype=float)
+        return mean * np.exp(mean * (np.asarray(s) - 1.0))
+
+    def pmf_table(self, mean: float, tail: float = PMF_TAIL):
+        """Brood sizes 0..K and their probabilities, K where the tail falls below ``tail``."""
+        mean = float(mean)
+        return _table_by_recurrence(np.exp(-mean), lambda k: mean / (k + 1.0), mean, tail)
+
 
 @dataclass(frozen=True)
 class Fixed(_Replicated):
@@ -76,6 +103,23 @@ class Fixed(_Replicated):
         frac = mean - whole
         s = np.asarray(s, dtype=float)
         return s**whole * (1.0 - frac + frac * s)
+
+    def pgf_derivative(self, s, mean):
+        """P'(s) = w s^(w - 1) (1 - f + f s) + f s^w, w = floor(m), f = m - w."""
+        mean = np.asarray(mean, dtype=float)
+        whole = np.floor(mean)
+        frac = mean - whole
+        s = np.asarray(s, dtype=float)
+        lower = np.where(whole > 0, whole * s ** np.maximum(whole - 1.0, 0.0), 0.0)
+        return lower * (1.0 - frac + frac * s) + frac * s**whole
+
+    def pmf_table(self, mean: float, tail: float = PMF_TAIL):
+        """Brood sizes floor(m) and floor(m) + 1 (from 0, zeros below) and their probabilities."""
+        whole = int(np.floor(mean))
+        frac = float(mean) - whole
+        pmf = np.zeros(whole + 2)
+        pmf[whole], pmf[whole + 1] = 1.0 - frac, frac
+        return np.arange(whole + 2), pmf
 
 
 @dataclass(frozen=True)
@@ -109,6 +153,16 @@ class NegativeBinomial(_Replicated):
     def pgf(self, s, mean):
         p = self._p(mean)
         return (p / (1.0 - (1.0 - p) * np.asarray(s, dtype=float))) ** self.dispersion
+
+    def pgf_derivative(self, s, mean):
+        """P'(s) = k (1 - p) p^k / (1 - (1 - p) s)^(k + 1), p = k / (k + m)."""
+        p, k = self._p(mean), self.dispersion
+        return k * (1.0 - p) * p**k / (1.0 - (1.0 - p) * np.asarray(s, dtype=float)) ** (k + 1.0)
+
+    def pmf_table(self, mean: float, tail: float = PMF_TAIL):
+        """Brood sizes 0..K and their probabilities, K where the tail falls below ``tail``."""
+        p, k = float(self._p(mean)), self.dispersion
+        return _table_by_recurrence(p**k, lambda j: (k + j) / (j + 1.0) * (1.0 - p), float(mean), tail)
 
 
 DISTRIBUTIONS = {"poisson": Poisson, "fixed": Fixed, "negative-binomial": NegativeBinomial}

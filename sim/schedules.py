@@ -11,7 +11,7 @@ class is a plus-group that keeps its own survival.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -32,13 +32,22 @@ class Schedule:
         Probability of surviving from age a to a + 1, s(a) (in [0, 1]); the
         last entry is the plus-group's own survival.
     juvenile_survival : float
-        Probability c that an offspring survives to its first census (age 1).
+        Probability c that an offspring survives to its first census (age 1)
+        (with parental care: while its parent lives, c_care).
+    orphan_survival : float or None
+        c_orphan: the juvenile survival of young whose parent dies in the
+        season of their birth; None means ``juvenile_survival`` (no care).
+    brood_scale : float or None
+        h of the exponential brood effect (each young of a brood of b
+        survives x exp(-(b - 1) / h)); None: no brood effect.
     """
 
     name: str
     fecundity: np.ndarray
     survival: np.ndarray
     juvenile_survival: float
+    orphan_survival: float | None = None
+    brood_scale: float | None = None
 
     def __post_init__(self):
         m = np.asarray(self.fecundity, dtype=float)
@@ -63,11 +72,10 @@ class Schedule:
         """
         assert n_ages >= self.n_ages, (n_ages, self.n_ages)
         extra = n_ages - self.n_ages
-        return Schedule(
-            self.name,
-            np.concatenate([self.fecundity, np.repeat(self.fecundity[-1], extra)]),
-            np.concatenate([self.survival, np.repeat(self.survival[-1], extra)]),
-            self.juvenile_survival,
+        return replace(
+            self,
+            fecundity=np.concatenate([self.fecundity, np.repeat(self.fecundity[-1], extra)]),
+            survival=np.concatenate([self.survival, np.repeat(self.survival[-1], extra)]),
         )
 
 

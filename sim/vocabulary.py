@@ -10,7 +10,7 @@ This module imports nothing, so any module may import it.
 
 __all__ = [
     "ENGINES", "STOP_RULES", "TRAJECTORY_MODES", "DENSITY_FORMS", "PLACEMENTS", "COUNTED",
-    "DISTRIBUTIONS", "BREEDING", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED",
+    "DISTRIBUTIONS", "BREEDING", "BROOD_EFFECTS", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED",
 ]
 
 ENGINES = ("individual", "agents", "counts")
@@ -21,6 +21,7 @@ PLACEMENTS = ("recruitment", "fecundity", "adult-survival", "all-survival")
 COUNTED = ("census", "breeders", "offspring")
 DISTRIBUTIONS = ("poisson", "fixed", "negative-binomial")
 BREEDING = ("semelparous", "iteroparous", "table")
+BROOD_EFFECTS = ("none", "exponential")  # a young's survival in a brood of b: x 1, x exp(-(b - 1) / h)
 
 # A replicate's outcome (the ``outcome`` column of /replicates). The order is the summary
 # table's column order.

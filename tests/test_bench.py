@@ -27,7 +27,7 @@ def test_bench_json_records(capsys):
     records = json.loads(capsys.readouterr().out)
     assert all(KEYS <= set(r) for r in records)
     scale = {r["engine"]: r for r in records if r["kind"] == "scale"}
-    assert set(scale) == {"floor", "individual", "agents", "counts"}
+    assert set(scale) == {"floor", "individual", "care", "agents", "counts"}
     for r in scale.values():
         assert r["census_size"] == 1000 and r["seasons"] >= 3
         assert math.isfinite(r["individual_steps_per_s"]) and r["individual_steps_per_s"] > 0
@@ -35,7 +35,7 @@ def test_bench_json_records(capsys):
         assert r["peak_bytes_per_individual"] > 0
     assert scale["floor"]["ratio_to_floor"] == 1.0 and scale["agents"]["ratio_to_agents"] == 1.0
     assert scale["floor"]["bytes_per_individual"] is None
-    for engine in ("individual", "agents", "counts"):
+    for engine in ("individual", "care", "agents", "counts"):
         assert scale[engine]["bytes_per_individual"] > 0
     experiment = [r for r in records if r["kind"] == "experiment"]
     assert [r["engine"] for r in experiment] == [
@@ -50,7 +50,8 @@ def test_bench_table(capsys):
     assert "x floor" in out and "x agents" in out and "peak B/ind" in out
     scale, experiment = out.split("Invasion experiment at K = 200")
     rows = [line.split() for line in scale.splitlines() if line.split()[1:2] == ["1,000"]]
-    assert [r[0] for r in rows] == ["floor", "individual", "counts"]  # no agents: above agents-max
+    assert [r[0] for r in rows] == ["floor", "individual", "care", "counts"]  # no agents: above agents-max
+    assert "care: the individual engine with orphan survival" in scale and "at N = 1,000" in scale
     assert all(len(r) == 7 for r in rows[1:]) and rows[0][-2] == "-"
     assert "individual (batched)" in experiment
 
@@ -72,7 +73,7 @@ def test_bench_refuses_bad_options(argv, message, capsys):
 
 def test_report_object_is_usable_from_python():
     report = run_bench([500], seasons=2, min_time=0, agents_max=0, replicates=0)
-    assert [r.engine for r in report.records] == ["floor", "individual", "counts"]
+    assert [r.engine for r in report.records] == ["floor", "individual", "care", "counts"]
     assert report.experiment == []
     assert "individual" in format_report(report)
 

@@ -83,6 +83,23 @@ SHARED_CONFIGS = {
                 {"name": "one-shot", "breeding": "semelparous", "fecundity": 2.5, "juvenile_survival": 0.5}],
         invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
     ),
+    "orphan survival, beverton-holt on recruitment": _raw(
+        experiment={"max_steps": 12, "stop": "max-steps"},
+        density={"form": "beverton-holt", "acts_on": "recruitment", "capacity": 25},
+        allele=[{**BASE["allele"][0], "orphan_survival": 0.15},
+                {**BASE["allele"][1], "fecundity": 6.0, "orphan_survival": 0.3}],
+        invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
+    ),
+    "brood effect and care, negative binomial, offspring counted": _raw(
+        experiment={"max_steps": 12, "stop": "max-steps"},
+        density={"form": "beverton-holt", "acts_on": "adult-survival", "counted": "offspring", "capacity": 100},
+        offspring={"distribution": "negative-binomial", "dispersion": 1.5},
+        allele=[{**BASE["allele"][0], "adult_survival": 0.8, "fecundity": 2.0, "orphan_survival": 0.2,
+                 "brood_effect": "exponential", "brood_scale": 3.0},
+                {"name": "one-shot", "breeding": "semelparous", "fecundity": 6.0, "juvenile_survival": 0.5,
+                 "brood_effect": "exponential", "brood_scale": 8.0}],
+        invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
+    ),
 }
 
 
@@ -272,8 +289,8 @@ def _reference(name):
 @pytest.mark.parametrize("name", list(SHARED_CONFIGS))
 def test_engine_agrees_with_the_reference_in_distribution(engine, name):
     # Both engines draw the same life cycle; their laws must agree. Checks (each at
-    # alpha = 1e-4, so with 3 checks x 5 configs x 2 engines a correct engine fails with
-    # probability < 0.3%): census size after T seasons and focal-allele frequency (two-sample
+    # alpha = 1e-4, so with 3 checks x 7 configs x 2 engines a correct engine fails with
+    # probability < 0.5%): census size after T seasons and focal-allele frequency (two-sample
     # Kolmogorov-Smirnov, scipy.stats.ks_2samp), and the fraction of replicates in which the
     # focal allele was lost by T (Fisher's exact test, scipy.stats.fisher_exact).
     n = 250

@@ -9,9 +9,10 @@ the value received, e.g. ``allele[1].adult_survival must be in [0, 1]; got
 from __future__ import annotations
 
 import difflib
+from dataclasses import replace
 from typing import Annotated, Any, Literal
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_serializer, model_validator
 
 from .. import vocabulary as words
 from ..aggregation import counts_obstacles
@@ -165,6 +166,9 @@ class OffspringSection(_Section):
         return self
 
 
+_CARE_DEFAULTS = {"orphan_survival": None, "brood_effect": "none", "brood_scale": None}
+
+
 class AlleleSection(_Section):
     """``[[allele]]``: one heritable breeding schedule."""
 
@@ -185,6 +189,31 @@ class AlleleSection(_Section):
     """First breeding age (not for table)."""
     initial_count: int = Field(0, ge=0, le=MAX_COUNT, strict=True)
     """Without [invasion]: individuals of this allele at the start, all of age 1."""
+    orphan_survival: Probability | None = None
+    """Juvenile survival of young whose parent dies in the season of their birth (default:
+    juvenile_survival, i.e. no parental care; a semelparous parent always dies)."""
+    brood_effect: Literal[words.BROOD_EFFECTS] = "none"
+    """none; exponential: each young of a brood of b survives x exp(-(b - 1) / brood_scale)."""
+    brood_scale: float | None = Field(None, gt=0, strict=True)
+    """h of the exponential brood effect; required with brood_effect = "exponential"."""
+
+    @model_serializer(mode="wrap")
+    def _unused_care_left_out(self, handler):
+        # a config that does not use care dumps as before these keys existed, so its stored
+        # config, its hash and a resume of an older results file are unchanged
+        data = handler(self)
+        for key, default in _CARE_DEFAULTS.items():
+            if key in data and data[key] == default:
+                del data[key]
+        return data
+
+    @model_validator(mode="after")
+    def _brood(self):
+        if self.brood_effect == "exponential" and self.brood_scale is None:
+            raise ValueError("brood_scale: required for brood_effect 'exponential'")
+        if self.brood_effect != "exponential" and self.brood_scale is not None:
+            raise ValueError(f"brood_scale: only used by brood_effect 'exponential', not {self.brood_effect!r}")
+        return self
 
     @model_validator(mode="after")
     def _shape(self):
@@ -214,7 +243,13 @@ class AlleleSection(_Section):
         return self
 
     def schedule(self) -> Schedule:
-        """The breeding schedule this allele fixes."""
+        """The breeding schedule this allele fixes, with its parental effects."""
+        schedule = self._life_history()
+        if self.orphan_survival is None and self.brood_scale is None:
+            return schedule
+        return replace(schedule, orphan_survival=self.orphan_survival, brood_scale=self.brood_scale)
+
+    def _life_history(self) -> Schedule:
         if self.breeding == "table":
             return table(self.name, self.fecundity, self.adult_survival, self.juvenile_survival)
         if self.breeding == "iteroparous":

@@ -10,6 +10,7 @@ from __future__ import annotations
 import mesa
 import numpy as np
 
+from ..density import Factors
 from ..kernel import SeasonRates
 from ..lifecycle import LifeCycle
 
@@ -42,12 +43,20 @@ class Breeder(mesa.Agent):
         """Survive to the next census with probability s(a) f_adult."""
         return bool(self.model.rng.random() < rates.survival[self.kind])
 
-    def recruit_alleles(self, rates: SeasonRates) -> list[int]:
-        """Alleles of this season's offspring that survive to age 1 (after mutation)."""
+    def recruit_alleles(self, factors: Factors, survived: bool) -> list[int]:
+        """Alleles of this season's offspring that survive to age 1 (after mutation).
+
+        Each young recruits with the kernel's probability for its parent's
+        fate (``survived``: c_care, else c_orphan) and its brood's size.
+        """
+        if self.births == 0:
+            return []
         mutation, rng = self.model.engine.life.mutation, self.model.rng
+        kernel = self.model.engine.kernel
+        recruitment = kernel.recruitment(factors, parent_survived=survived, brood=self.births)[self.kind]
         alleles = []
         for _ in range(self.births):
-            if rng.random() < rates.recruitment[self.kind]:
+            if rng.random() < recruitment:
                 alleles.append(int(mutation.mutate(np.array([self.allele]), rng)[0]))
         return alleles
 
@@ -78,20 +87,23 @@ class AgentsEngine:
         kernel = self.kernel
         adults = list(self.model.agents)
         # 1. density index from the census (where D counts births, after 2.)
-        rates = kernel.rates(kernel.multipliers(kernel.census_factors(self.census())))
+        f = kernel.multipliers(kernel.census_factors(self.census()))
+        rates = kernel.rates(f)
         # 2. breeding
         for agent in adults:
             agent.breed(rates)
         if kernel.counted_after_breeding:
-            rates = kernel.rates(kernel.multipliers(kernel.birth_factors(sum(a.births for a in adults))))
-        # 3. survival (independent of the brood) and 4. recruitment
+            f = kernel.multipliers(kernel.birth_factors(sum(a.births for a in adults)))
+            rates = kernel.rates(f)
+        # 3. survival (independent of the brood) and 4. recruitment, by the parent's fate and brood
         survivors, newborn = [], []
         for agent in adults:
-            if agent.survives(rates):
+            survived = agent.survives(rates)
+            if survived:
                 survivors.append(agent)
             else:
                 agent.die()
-            newborn.extend(agent.recruit_alleles(rates))
+            newborn.extend(agent.recruit_alleles(f, survived))
         # 5. next census: survivors one year older, recruits at age 1
         for agent in survivors:
             agent.age += 1

@@ -8,6 +8,10 @@ to a class-level draw of known law:
 - recruitment: a class's births thinned by juvenile survival
   (``draw_thinned_total``; Poisson and negative-binomial totals are closed
   under thinning and superposition, other laws draw births then Binomial);
+- with parental effects, recruits by (class, fate, brood size): the parents
+  with each brood size are multinomial, the survivors among them
+  multivariate hypergeometric, their young's recruits binomial
+  (``ReplicateBatch.parental_recruits``);
 - mutation: each recruit mutates independently, so the recruits of a parent
   allele split Multinomially (``Mutation.mutate_counts``);
 - a ceiling removes a uniformly random set of individuals, so the removed
@@ -56,9 +60,15 @@ class CountsPopulations(ReplicateBatch):
         # then, where the law allows, the recruits in the same pass
         aged = np.zeros_like(self.counts)
         means, recruits = self.pass_recruits(f)
-        compiled.survive_counts(self.counts, self.bitgens, kernel.survival, f.adult, kernel.aged,
-                                aged, means, recruits)
-        recruits = self.recruits_after_pass(recruits, births, f)
+        if kernel.parental:  # survivors by parent class first: their young depend on it
+            compiled.survive_counts(self.counts, self.bitgens, kernel.survival, f.adult,
+                                    np.arange(kernel.n_classes), aged, means, recruits)
+            recruits = self.parental_recruits(aged, f)
+            aged = self.aged_counts(aged)
+        else:
+            compiled.survive_counts(self.counts, self.bitgens, kernel.survival, f.adult, kernel.aged,
+                                    aged, means, recruits)
+            recruits = self.recruits_after_pass(recruits, births, f)
         born = recruits.sum(axis=1)
         self._remove(aged, recruits, born)
         self.counts, self.recruits = aged, born

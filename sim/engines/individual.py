@@ -24,7 +24,8 @@ class IndividualPopulations(ReplicateBatch):
     of the life cycle: density index, breeding, survival (one uniform per
     individual, independent of its brood), recruitment, next census, then the
     removal of random individuals a ceiling asks for. Each class's recruits are drawn as one total (exact: parents
-    within a class are exchangeable and pass on only their allele). The pass
+    within a class are exchangeable and pass on only their allele); with parental effects,
+    by (class, fate, brood size) after the pass (``ReplicateBatch.parental_recruits``). The pass
     over individuals is compiled (``compiled.survive``): one pass for every
     replicate of the batch, each drawing from its own generator; where
     ``ReplicateBatch.recruits_in_pass`` (Poisson offspring), a replicate draws its
@@ -39,6 +40,7 @@ class IndividualPopulations(ReplicateBatch):
         self._dtype = np.min_scalar_type(max(kernel.n_classes - 1, 0))
         self._aged = kernel.aged.astype(self._dtype)
         self._first = kernel.first.astype(self._dtype)
+        self._stay = np.arange(kernel.n_classes, dtype=self._dtype)
         self.sizes = counts.sum(axis=1)
         classes = np.tile(np.arange(kernel.n_classes, dtype=self._dtype), len(self.rngs))
         self.cell = np.repeat(classes, counts.ravel())
@@ -83,9 +85,15 @@ class IndividualPopulations(ReplicateBatch):
         survivors = np.empty(n_reps, dtype=np.int64)
         by_class = np.zeros((n_reps, kernel.n_classes), dtype=np.int64)
         means, recruits = self.pass_recruits(f)
+        # with parental effects the pass keeps each survivor's parent class (young depend on it)
+        aged = self._stay if kernel.parental else self._aged
         total = compiled.survive(cell, slice_sizes, drawn, self.bitgens, kernel.survival, f.adult,
-                                 self._aged, survived, survivors, by_class, means, recruits)
-        recruits = self.recruits_after_pass(recruits, births, f)
+                                 aged, survived, survivors, by_class, means, recruits)
+        if kernel.parental:
+            recruits = self.parental_recruits(by_class, f)
+            survived, by_class = self._aged[survived[:total]], self.aged_counts(by_class)
+        else:
+            recruits = self.recruits_after_pass(recruits, births, f)
         # 5. next census: survivors, then recruits at age 1; the kernel's removals
         born = recruits.sum(axis=1)
         cell = np.empty(total + int(born.sum()), dtype=self._dtype)

@@ -9,6 +9,17 @@ alike is a class's births and recruits. Recruits are drawn per class, not
 per parent: the parents of a class are exchangeable and carry nothing but
 their allele, so the class's recruit total (births thinned by the juvenile
 survival, see ``draw_thinned_total``) is exact in distribution.
+
+With parental effects (``SeasonKernel.parental``: orphan survival or a brood
+effect) a young's recruitment depends on its parent's fate and brood size,
+so recruits are drawn by (class, fate, brood size) instead
+(``parental_recruits``): the number of a class's parents with each brood
+size is multinomial (broods are independent draws of the offspring law,
+``pmf_table``, its tail below 1e-15 lumped into the largest size); the
+survivors among them are a uniformly random subset of the class's
+survivors' number (multivariate hypergeometric: survival is independent of
+the brood); and the recruits of the b-young broods of one fate are
+Binomial(b x (their number), c_fate x^(b - 1) f_rec).
 """
 
 from __future__ import annotations
@@ -52,7 +63,8 @@ class ReplicateBatch:
         # an allele's recruits are one Poisson total (``SeasonKernel.expected_recruits``),
         # drawn by a compiled pass where births need not be drawn first
         self.recruits_in_pass = (isinstance(life.offspring, Poisson)
-                                 and not kernel.counted_after_breeding)
+                                 and not kernel.counted_after_breeding and not kernel.parental)
+        self._broods = None  # brood-size counts drawn before survival (parental effects)
 
     def census(self) -> np.ndarray:
         """Counts by (replicate, allele, age index)."""
@@ -83,6 +95,13 @@ class ReplicateBatch:
         """Offspring born to each class, (n_replicates, n_classes) (drawn where D counts them)."""
         counts, rngs = self.counts, self.rngs
         out = np.zeros(counts.shape, dtype=np.int64)
+        if self.kernel.parental:  # brood sizes kept for ``parental_recruits``
+            self._broods = self.brood_counts(self.kernel.multipliers(
+                self.kernel.census_factors(counts, len(counts))))
+            for r, by_class in enumerate(self._broods):
+                for c, (sizes, number) in by_class.items():
+                    out[r, c] = int(sizes @ number)
+            return out
         draw = self.life.offspring.draw_total
         for c, _, fecundity, _ in self.kernel.breeders:
             out[:, c] = [int(draw(n, fecundity, g)) if n else 0
@@ -120,6 +139,54 @@ class ReplicateBatch:
                 out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
                                    zip(births[:, c].tolist(), (juvenile * f.recruitment).tolist(), rngs)]
         return self.mutated(out)
+
+    # -- step 4 with parental effects: recruits by (class, fate, brood size) -------------
+    def brood_counts(self, f: Factors) -> list[dict]:
+        """Per replicate, per breeding class present: (brood sizes, number of parents with each),
+        multinomial over the offspring law's probabilities at mean m f_fec."""
+        law, out = self.life.offspring, []
+        fecundity = np.broadcast_to(np.asarray(f.fecundity, dtype=float), (len(self.rngs),))
+        for r, g in enumerate(self.rngs):
+            by_class = {}
+            for c, _, m, _ in self.kernel.breeders:
+                n = int(self.counts[r, c])
+                if n:
+                    sizes, pmf = law.pmf_table(m * fecundity[r])
+                    by_class[c] = (sizes, g.multinomial(n, pmf))
+            out.append(by_class)
+        return out
+
+    def parental_recruits(self, survivors: np.ndarray, f: Factors) -> np.ndarray:
+        """Recruits by (replicate, allele) after mutation, where a young's recruitment depends
+        on its parent's fate and brood (see the module's docstring).
+
+        ``survivors`` are the survivors by their parent class (before ageing),
+        (n_replicates, n_classes); brood sizes are those drawn before survival
+        where D counts births, else drawn now.
+        """
+        kernel = self.kernel
+        broods, self._broods = self._broods, None
+        if broods is None:
+            broods = self.brood_counts(f)
+        cared = kernel.recruitment(f, parent_survived=True)
+        orphaned = kernel.recruitment(f, parent_survived=False)
+        cared, orphaned = (np.broadcast_to(p, self.counts.shape) for p in (cared, orphaned))
+        out = np.zeros((len(self.rngs), kernel.n_alleles), dtype=np.int64)
+        for r, g in enumerate(self.rngs):
+            for c, (sizes, number) in broods[r].items():
+                kept = g.multivariate_hypergeometric(number, int(survivors[r, c]))
+                shrink = kernel.decay[c] ** np.maximum(sizes - 1.0, 0.0)
+                young = (g.binomial(sizes * kept, np.minimum(cared[r, c] * shrink, 1.0)).sum()
+                         + g.binomial(sizes * (number - kept),
+                                      np.minimum(orphaned[r, c] * shrink, 1.0)).sum())
+                out[r, kernel.allele_of[c]] += young
+        return self.mutated(out)
+
+    def aged_counts(self, survivors: np.ndarray) -> np.ndarray:
+        """Survivors by parent class moved to their next class (age + 1; the plus-group stays)."""
+        out = np.zeros_like(survivors)
+        np.add.at(out.T, self.kernel.aged, survivors.T)
+        return out
 
     def mutated(self, recruits: np.ndarray) -> np.ndarray:
         """Recruits by (replicate, allele) after mutation (each replicate from its generator)."""

@@ -1,0 +1,256 @@
+"""Parental care and brood size: schema, theory (kernel, pgf), engines against formulas."""
+
+import copy
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from analysis.branching import extinction_probabilities
+from analysis.invasion import predict
+from analysis.thresholds import threshold
+from sim.config import ConfigError, parse_config
+from sim.density import Factors
+from sim.engines import ENGINES
+from sim.kernel import SeasonKernel
+from sim.lifecycle import LifeCycle
+from sim.offspring import Fixed, NegativeBinomial, Poisson
+from sim.schedules import Schedule, iteroparous
+from tests.conftest import BASE
+
+Z_MAX = 4.5  # two-sided normal tail 6.8e-6 per check
+
+
+def _raw(**alleles):
+    raw = copy.deepcopy(BASE)
+    for i, extra in alleles.items():
+        raw["allele"][int(i[1:])].update(extra)
+    return raw
+
+
+# --- schema --------------------------------------------------------------------------------
+@pytest.mark.parametrize("extra, message", [
+    ({"orphan_survival": 1.2}, "allele[0].orphan_survival must be in [0, 1]"),
+    ({"brood_effect": "exponential"}, "brood_scale: required for brood_effect 'exponential'"),
+    ({"brood_scale": 2.0}, "brood_scale: only used by brood_effect 'exponential'"),
+    ({"brood_effect": "exponential", "brood_scale": 0.0}, "allele[0].brood_scale"),
+    ({"brood_effect": "linear", "brood_scale": 1.0}, "allele[0].brood_effect"),
+])
+def test_bad_care_keys_are_refused_naming_the_key(extra, message):
+    with pytest.raises(ConfigError) as err:
+        parse_config(_raw(a0=extra))
+    assert message in str(err.value)
+
+
+def test_without_care_keys_the_kernel_has_no_parental_effect():
+    assert not LifeCycle.from_config(parse_config(BASE)).kernel.parental
+    # orphan survival equal to juvenile survival is the model without care, written out
+    life = LifeCycle.from_config(parse_config(_raw(a0={"orphan_survival": 0.5})))
+    plain = LifeCycle.from_config(parse_config(BASE))
+    f = Factors(0.7, 0.8, 0.6)
+    assert np.allclose(life.kernel.projection_matrix(f), plain.kernel.projection_matrix(f), rtol=1e-15)
+
+
+# --- theory: Charnov & Schaffer with care --------------------------------------------------
+def _care_config(mutant_fecundity, orphan=0.1):
+    raw = _raw(a0={"orphan_survival": orphan}, a1={"fecundity": mutant_fecundity, "orphan_survival": orphan})
+    raw["density"] = {"form": "none"}
+    raw["invasion"] = {**raw["invasion"], "resident_count": 100}
+    return parse_config(raw)
+
+
+def test_resident_growth_and_semelparous_threshold_with_care():
+    # Derived from the model (README "Parental care and brood size"): a surviving parent's young
+    # recruit with c_care, an orphan's with c_orphan, so lambda = P + B_i (P c_care + (1 - P)
+    # c_orphan) = 0.5 + 2 (0.25 + 0.05) = 1.1, and a semelparous mutant (all young orphans)
+    # grows at B_s c_orphan: its threshold is lambda / c_orphan = 11.
+    config = _care_config(11.0)
+    p = predict(config)
+    assert p.resident_growth_rate == pytest.approx(1.1, rel=1e-12)
+    t = threshold(config, "allele.one-shot.fecundity")
+    assert t.value == pytest.approx(11.0, rel=1e-9) and t.invades_above
+    # Without care (c_orphan = c = 0.5): lambda = P + B_i c = 1.5 and the threshold is
+    # B_s = lambda / c = 3 (Charnov & Schaffer 1973, Am. Nat. 107: 791).
+    t0 = threshold(_care_config(11.0, orphan=0.5), "allele.one-shot.fecundity")
+    assert t0.value == pytest.approx(3.0, rel=1e-9)
+
+
+def test_orphan_survival_threshold_under_beverton_holt_on_recruitment():
+    # Derived from the model: at the resident's equilibrium, P + B_i f (P c + (1 - P) c_o) = 1
+    # gives f = (1 - P) / (B_i (P c + (1 - P) c_o)); the semelparous mutant's invasion fitness is
+    # B_s c_o' f, so its orphan-survival threshold is c_o' = 1 / (B_s f).
+    raw = _raw(a0={"orphan_survival": 0.2}, a1={"fecundity": 6.0, "orphan_survival": 0.3})
+    config = parse_config(raw)
+    f = (1 - 0.5) / (2.0 * (0.5 * 0.5 + 0.5 * 0.2))
+    t = threshold(config, "allele.one-shot.orphan_survival")
+    assert t.value == pytest.approx(1.0 / (6.0 * f), rel=1e-8) and t.invades_above
+
+
+# --- theory: the brood effect ----------------------------------------------------------------
+@pytest.mark.parametrize("law, ref", [
+    (Poisson(), lambda m: stats.poisson(m)),
+    (NegativeBinomial(1.3), lambda m: stats.nbinom(1.3, 1.3 / (1.3 + m))),
+    (Fixed(), None),
+])
+def test_expected_young_per_brood_is_the_pgf_derivative(law, ref):
+    # E[B x^(B - 1)] = P'(x) (differentiating the pgf term by term); checked against the sum over
+    # scipy's pmf (and, for the fixed law, its two sizes written out).
+    m, x = 3.4, np.exp(-1 / 2.5)
+    if ref is None:
+        direct = 0.6 * 3 * x**2 + 0.4 * 4 * x**3  # sizes 3 and 4 with weights 1 - frac, frac
+    else:
+        b = np.arange(400)
+        direct = float(np.sum(ref(m).pmf(b) * b * x ** np.maximum(b - 1, 0)))
+    assert law.pgf_derivative(x, m) == pytest.approx(direct, rel=1e-12)
+    b, pmf = law.pmf_table(m)
+    assert pmf.sum() == pytest.approx(1.0, abs=1e-14)
+    if ref is not None:
+        assert np.allclose(pmf, ref(m).pmf(b), rtol=1e-10, atol=1e-300)
+
+
+def test_poisson_brood_effect_closed_form_and_most_productive_brood():
+    # Derived from the Poisson pgf: E[B x^(B-1)] = m exp(-m (1 - x)), x = e^(-1/h), so recruits per
+    # parent are c m exp(-m (1 - e^(-1/h))), largest at m = 1 / (1 - e^(-1/h)) (the intermediate
+    # most productive brood: Lack 1947, Ibis 89: 302).
+    h, c = 3.0, 0.5
+    schedule = Schedule("s", [4.0], [0.0], c, brood_scale=h)
+    kernel = SeasonKernel.for_schedule(schedule)
+    grid = np.linspace(0.5, 10.0, 2000)
+    per_parent = [SeasonKernel.for_schedule(schedule, offspring=Poisson()).recruits_per_parent(
+        Factors(g / 4.0, 1.0, 1.0))[0] for g in grid]
+    closed = c * grid * np.exp(-grid * (1 - np.exp(-1 / h)))
+    assert np.allclose(per_parent, closed, rtol=1e-12)
+    best = 1 / (1 - np.exp(-1 / h))
+    assert grid[np.argmax(per_parent)] == pytest.approx(best, abs=grid[1] - grid[0])
+    assert kernel.projection_matrix()[0, 0] == pytest.approx(c * 4 * np.exp(-4 * (1 - np.exp(-1 / h))))
+
+
+def _cared(law=None):
+    """An iteroparous schedule over two ages with care and a brood effect, and its kernel."""
+    base = iteroparous("p", 3.0, 0.6, 0.5, maturity_age=2)
+    schedule = replace(base, orphan_survival=0.15, brood_scale=2.5)
+    return schedule, SeasonKernel.for_schedule(schedule, offspring=law)
+
+
+@pytest.mark.parametrize("law", [Poisson(), NegativeBinomial(1.5), Fixed()])
+def test_offspring_pgf_jacobian_at_one_is_the_projection_matrix(law):
+    # E[Z] = dG/ds at s = 1 for any branching process (Harris 1963, ch. II): the mean matrix is
+    # the projection matrix, transposed (G_a is a parent of age a's generating function).
+    _, kernel = _cared(law)
+    f = Factors(0.9, 0.8, 0.7)
+    a = kernel.projection_matrix(f)
+    step = 1e-6
+    jac = np.empty((2, 2))
+    for j in range(2):
+        s = np.ones(2)
+        s[j] -= step
+        jac[:, j] = (kernel.offspring_pgf(np.ones(2), f) - kernel.offspring_pgf(s, f)) / step
+    assert np.allclose(jac.T, a, rtol=1e-5, atol=1e-6)
+
+
+def test_offspring_pgf_matches_a_monte_carlo_of_one_parent():
+    # One adult's contribution drawn plainly (survival, brood, each young by fate and brood size)
+    # and E[s_next^survived s_1^recruits] averaged; tolerance 4.5 standard errors of the mean.
+    _, kernel = _cared(NegativeBinomial(1.5))
+    f = Factors(1.0, 0.9, 0.8)
+    rng = np.random.default_rng(11)
+    n = 200_000
+    sigma = 0.6 * 0.9
+    alive = rng.random(n) < sigma
+    broods = NegativeBinomial(1.5).draw(np.full(n, 3.0), rng)
+    p = np.where(alive, 0.5, 0.15) * 0.8 * np.exp(-(broods - 1) / 2.5)
+    recruits = rng.binomial(broods, np.minimum(p, 1.0))
+    for s in ([0.3, 0.5], [0.8, 0.2], [0.0, 0.9]):
+        sample = np.where(alive, s[1], 1.0) * s[0] ** recruits
+        pgf = kernel.offspring_pgf(np.array(s), f)[1]  # a parent of age 2 (the plus-group)
+        assert abs(sample.mean() - pgf) < Z_MAX * sample.std() / np.sqrt(n), (s, sample.mean(), pgf)
+
+
+def test_establishment_reads_the_joint_pgf():
+    # A semelparous mutant with care: all young orphans, so its lineage is a Galton-Watson process
+    # with offspring Poisson(B c_orphan) (Poisson thinning); q solves q = exp(B c_o (q - 1)).
+    schedule = Schedule("s", [6.0], [0.0], 0.5, orphan_survival=0.3)
+    q = extinction_probabilities(schedule, Factors(), Poisson()).probabilities[0]
+    assert q == pytest.approx(np.exp(6.0 * 0.3 * (q - 1)), abs=1e-10) and q < 1
+
+
+# --- engines against the formulas --------------------------------------------------------------
+def _recruits_per_parent(engine, fecundity, *, parents, reps, h=3.0, seed=5):
+    """Recruits per semelparous parent in one density-free season (mean and standard error)."""
+    raw = {"experiment": {"engine": engine},
+           "allele": [{"name": "s", "breeding": "semelparous", "fecundity": fecundity,
+                       "juvenile_survival": 0.5, "brood_effect": "exponential", "brood_scale": h,
+                       "initial_count": parents}]}
+    life = LifeCycle.from_config(parse_config(raw))
+    rngs = [np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(r,))) for r in range(reps)]
+    batch = ENGINES[engine].populations(life, np.full((reps, 1, 1), parents), rngs)
+    batch.step()
+    per = batch.census()[:, 0, 0] / parents
+    return per.mean(), per.std(ddof=1) / np.sqrt(reps)
+
+
+@pytest.mark.parametrize("engine", ["individual", "counts"])
+def test_simulated_recruits_per_parent_match_the_poisson_formula(engine):
+    # c m exp(-m (1 - e^(-1/h))) (derived from the Poisson pgf); tolerance 4.5 standard errors
+    # of the mean over replicates.
+    m, h = 4.0, 3.0
+    mean, se = _recruits_per_parent(engine, m, parents=2000, reps=200, h=h)
+    expected = 0.5 * m * np.exp(-m * (1 - np.exp(-1 / h)))
+    assert abs(mean - expected) < Z_MAX * se, (mean, expected, se)
+
+
+def test_a_fecundity_sweep_puts_the_most_productive_brood_where_theory_does():
+    # The most productive mean brood 1 / (1 - e^(-1/h)) = 3.53 for h = 3 (derived from the Poisson
+    # pgf; Lack 1947). Counts engine, 10^6 parents per point: the standard error of recruits per
+    # parent (~0.001) is a tenth of the gap between the best grid point and its neighbours.
+    grid = [1.0, 2.0, 3.5, 5.0, 7.0]
+    means = [_recruits_per_parent("counts", m, parents=1_000_000, reps=4, seed=9)[0] for m in grid]
+    assert grid[int(np.argmax(means))] == 3.5
+
+
+@pytest.mark.slow
+def test_observed_orphan_survival_threshold_is_where_the_matrix_puts_it(tmp_path):
+    # End to end: resident B_i = 2, P = 0.5, c = 0.5, c_orphan = 0.1 under Beverton-Holt on
+    # recruitment (K = 250, census 50): f* = (1 - P) / (B_i (P c + (1 - P) c_o)) = 5/6, so a
+    # semelparous mutant with B_s = 6 invades iff its c_orphan > 1 / (B_s f*) = 0.2 (derived from
+    # the model). A theory ignoring the resident's care (c_o = c) would put it at 1/3. Interval
+    # at 99.9% (bootstrap of analysis.estimates.observed_threshold): a correct theory fails with
+    # probability about 1e-3.
+    from analysis import compare, compare_thresholds
+    from sim.experiment import run_experiment
+
+    raw = _raw(a0={"orphan_survival": 0.1}, a1={"fecundity": 6.0, "orphan_survival": 0.2})
+    raw["experiment"] = {"engine": "counts", "replicates": 1000, "seed": 31, "max_steps": 5000,
+                         "record_every": 1000}
+    raw["density"]["capacity"] = 250
+    raw["sweep"] = {"allele.one-shot.orphan_survival": [0.12, 0.14, 0.16, 0.18, 0.2, 0.22, 0.24,
+                                                         0.28, 0.32, 0.36]}
+    path = tmp_path / "care.h5"
+    run_experiment(parse_config(raw), path, progress=False)
+    table = compare(path, level=0.999)
+    row = compare_thresholds(path, table, level=0.999).iloc[0]
+    assert row["analytic"] == pytest.approx(0.2, rel=1e-8)
+    assert row["observed_low"] <= 0.2 <= row["observed_high"], row.to_dict()
+    assert not row["observed_low"] <= 1 / 3 <= row["observed_high"], row.to_dict()
+
+
+@pytest.mark.parametrize("engine", ["individual", "counts"])
+def test_one_season_with_care_and_broods_matches_the_formula(engine):
+    # Iteroparous parents (P = 0.6, c = 0.5, c_orphan = 0.1, h = 2) with fixed broods of mean 2.4
+    # (2 young with probability 0.6, 3 with 0.4): recruits per parent, written out from the model,
+    # (P c + (1 - P) c_o) (0.6 * 2 x + 0.4 * 3 x^2), x = e^(-1/2); survivors P per parent.
+    # Tolerance 4.5 standard errors of the mean over replicates.
+    raw = {"experiment": {"engine": engine}, "offspring": {"distribution": "fixed"},
+           "allele": [{"name": "p", "breeding": "iteroparous", "fecundity": 2.4, "adult_survival": 0.6,
+                       "juvenile_survival": 0.5, "orphan_survival": 0.1, "brood_effect": "exponential",
+                       "brood_scale": 2.0, "initial_count": 500}]}
+    life = LifeCycle.from_config(parse_config(raw))
+    reps = 400
+    rngs = [np.random.default_rng(np.random.SeedSequence(3, spawn_key=(r,))) for r in range(reps)]
+    batch = ENGINES[engine].populations(life, np.full((reps, 1, 1), 500), rngs)
+    batch.step()
+    x = np.exp(-0.5)
+    expected = 500 * (0.6 + (0.6 * 0.5 + 0.4 * 0.1) * (0.6 * 2 * x + 0.4 * 3 * x**2))
+    after = batch.census()[:, 0, 0]
+    assert abs(after.mean() - expected) < Z_MAX * after.std(ddof=1) / np.sqrt(reps), (after.mean(), expected)
