@@ -22,6 +22,9 @@ from ..schedules import Schedule, iteroparous, semelparous, table
 
 __all__ = [
     "MAX_COUNT",
+    "MAX_SEED",
+    "MAX_REPLICATES",
+    "MAX_SWEEP_POINTS",
     "LINKED",
     "ConfigError",
     "Config",
@@ -36,6 +39,9 @@ __all__ = [
 ]
 
 MAX_COUNT = 2**32 - 1  # census counts are stored as uint32
+MAX_SEED = 2**64 - 1  # stored as uint64, and SeedSequence's entropy
+MAX_REPLICATES = 2**31 - 1  # replicate indices are stored as int32
+MAX_SWEEP_POINTS = 100_000  # points of a [sweep]: each is a config held in memory while running
 
 
 class ConfigError(ValueError):
@@ -69,18 +75,26 @@ NonNegative = Annotated[float, AfterValidator(_non_negative)]
 
 
 class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True)
+    """The base of every config table: unknown keys refused, values frozen, and strict types.
+
+    ``strict``: a string or a boolean where a number belongs (``replicates =
+    "20"``, ``seed = true``) is refused, not converted; ``allow_inf_nan``: nan
+    and inf are refused wherever a number belongs (lists by age included).
+    Every section inherits both, so a new key needs no rule of its own.
+    """
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False)
 
 
 class ExperimentSection(_Section):
     """``[experiment]``: what to run and when to stop."""
 
     name: str = "experiment"
-    seed: int = Field(0, ge=0)
-    replicates: int = Field(100, ge=1)
-    max_steps: int = Field(1000, ge=1)
+    seed: int = Field(0, ge=0, le=MAX_SEED)
+    replicates: int = Field(100, ge=1, le=MAX_REPLICATES)
+    max_steps: int = Field(1000, ge=1, le=MAX_REPLICATES)  # seasons are stored as int32
     stop: Literal[words.STOP_RULES] = "fixation"
-    record_every: int = Field(1, ge=1)
+    record_every: int = Field(1, ge=1, le=MAX_REPLICATES)
     engine: Literal[words.ENGINES] = "individual"
     max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT)
     trajectory: Literal[words.TRAJECTORY_MODES] = "by-age"
@@ -337,6 +351,17 @@ def _check_sweep(config: Config) -> list[str]:
         if path != LINKED:
             check_path(f"sweep.{path!r}", path, values)
     groups = config.sweep.get(LINKED, [])
+    if not problems:
+        n_points = 1
+        for path, values in config.sweep.items():
+            if path != LINKED:
+                n_points *= len(values)
+        for group in groups:
+            if isinstance(group, dict) and group:
+                n_points *= max(len(v) if isinstance(v, list) else 1 for v in group.values())
+        if n_points > MAX_SWEEP_POINTS:
+            problems.append(f"sweep: {n_points:,} points; at most {MAX_SWEEP_POINTS:,} can be run "
+                            "(each is a config held in memory): split the sweep into several experiments")
     for g, group in enumerate(groups):
         where = f"sweep.linked[{g}]"
         if not isinstance(group, dict) or not group:
