@@ -36,7 +36,7 @@ COMMANDS = [
 ]
 
 # Library messages name the Python parameters; at the command line they are these options.
-_OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite"}
+_OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite", "budget=False": "--no-budget"}
 
 
 def build_parser() -> argparse.ArgumentParser:

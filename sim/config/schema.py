@@ -137,7 +137,8 @@ class OffspringSection(_Section):
     """``[offspring]``: the offspring-number distribution."""
 
     distribution: Literal[words.DISTRIBUTIONS] = "poisson"
-    dispersion: float | None = Field(None, gt=0)
+    # below 1e-6 numpy's negative-binomial draw fails (its gamma-Poisson mixture overflows)
+    dispersion: float | None = Field(None, ge=1e-6)
 
     @model_validator(mode="after")
     def _dispersion(self):
