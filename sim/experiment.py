@@ -21,7 +21,7 @@ from .describe import preflight
 from .lifecycle import initial_census
 from .outcomes import fixed_outcome, summarize
 from .parallel import default_batch_size, iter_batches, make_pool
-from .store import ResultsWriter, read_outcomes, read_points, software_version
+from .store import ResultsWriter, count_outcomes, read_points, software_version
 
 log = logging.getLogger(__name__)
 
@@ -59,9 +59,10 @@ class _Progress:
         self.done = np.zeros(len(points), np.int64)
         self.fixed = np.zeros(len(points), np.int64)
         if writer.done:  # resuming: count what the shards already hold
-            so_far = read_outcomes(writer.path)
-            np.add.at(self.done, so_far["point"].to_numpy(), 1)
-            np.add.at(self.fixed, so_far["point"].to_numpy(), so_far["outcome"].to_numpy() == self.fixed_name)
+            so_far = count_outcomes(writer.path)
+            np.add.at(self.done, so_far["point"].to_numpy(), so_far["count"].to_numpy())
+            won = so_far[so_far["outcome"] == self.fixed_name]
+            np.add.at(self.fixed, won["point"].to_numpy(), won["count"].to_numpy())
         self.bar = tqdm(total=writer.expected, initial=int(self.done.sum()), disable=not show,
                         unit="rep", desc=writer.config.experiment.name, dynamic_ncols=True)
         self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
@@ -171,4 +172,4 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if tracker is not None:
             tracker.close()
     pool.shutdown()
-    return summarize(read_outcomes(out), read_points(out), fixed=fixed_outcome(config))
+    return summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))

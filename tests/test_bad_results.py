@@ -173,3 +173,20 @@ def test_overwrite_refuses_what_is_not_a_regular_file(tmp_path, capsys, kind):
     err, = _one_line(capsys, ["run", str(config), "-o", str(target), "--overwrite", "--workers", "1"])
     assert "is not a regular file" in err
     assert not target.is_file() and (kind == "fifo" or os.path.exists(os.devnull))
+
+
+def test_the_end_of_run_summary_streams_the_outcomes(finished):
+    from sim.outcomes import summarize
+    from sim.store import count_outcomes, read_outcomes, read_points
+    # per (point, outcome) counts, read in chunks, give the table of every row read at once
+    counted = summarize(count_outcomes(finished), read_points(finished))
+    assert counted.equals(summarize(read_outcomes(finished), read_points(finished)))
+    assert counted["replicates"].tolist() == [REPLICATES] * 4
+
+
+def test_more_workers_than_cores_warns(tmp_path, capsys):
+    import os
+    config = write_config(tmp_path, replicates=2)
+    many = len(os.sched_getaffinity(0)) + 1
+    assert main(["run", str(config), "-o", str(tmp_path / "out.h5"), "--workers", str(many), "--quiet"]) == 0
+    assert f"--workers {many} is more than the" in capsys.readouterr().err

@@ -120,6 +120,11 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
     """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint."""
     _log_to_stderr()
     _stop_on_signals()
+    cores = default_workers()
+    if not cluster and workers > cores:
+        logging.getLogger("sim.experiment").warning(
+            "warning: --workers %d is more than the %d cores this process may use: the workers "
+            "share them, which is no faster and holds %d batches in memory", workers, cores, workers)
     where = f"dask scheduler {cluster}" if cluster else \
         (f"{workers} worker processes" if workers > 1 else "1 process")
     logging.getLogger("sim.experiment").info("running %s on %s", out, where)

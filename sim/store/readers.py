@@ -20,6 +20,7 @@ __all__ = [
     "read_trajectories",
     "read_point_configs",
     "read_outcomes",
+    "count_outcomes",
 ]
 
 
@@ -143,6 +144,29 @@ def read_outcomes(path) -> pd.DataFrame:
         return pd.DataFrame({"point": np.zeros(0, np.int32), "replicate": np.zeros(0, np.int32),
                              "outcome": np.zeros(0, object)})
     return pd.DataFrame({k: np.concatenate([p[k] for p in parts]) for k in parts[0]})
+
+
+_CHUNK_ROWS = 1 << 18  # rows read at once by count_outcomes: its memory is flat in replicates
+
+
+def count_outcomes(path) -> pd.DataFrame:
+    """How many replicates of each point ended in each outcome so far: ``point``, ``outcome``,
+    ``count``; read in chunks, so a billion replicates cost what a million do."""
+    def read(f, offset):
+        g, counts = f["replicates"], {}
+        for start in range(0, g["point"].shape[0], _CHUNK_ROWS):
+            chunk = pd.DataFrame({"point": g["point"][start:start + _CHUNK_ROWS],
+                                  "outcome": g["outcome"].asstr()[start:start + _CHUNK_ROWS]})
+            for key, n in chunk.value_counts(sort=False).items():
+                counts[key] = counts.get(key, 0) + n
+        return counts
+
+    total = {}
+    for counts in _read_blocks(path, read):
+        for key, n in counts.items():
+            total[key] = total.get(key, 0) + n
+    return pd.DataFrame([(int(p), o, int(n)) for (p, o), n in sorted(total.items())],
+                        columns=["point", "outcome", "count"])
 
 
 def read_replicates(path) -> pd.DataFrame:
