@@ -120,6 +120,9 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
     """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint."""
     _log_to_stderr()
     _stop_on_signals()
+    if cluster:  # a lost scheduler is said in our last line, not in distributed's tracebacks
+        for name in ("distributed", "distributed.client", "distributed.core", "distributed.comm"):
+            logging.getLogger(name).setLevel(logging.CRITICAL)
     cores = default_workers()
     if not cluster and workers > cores:
         logging.getLogger("sim.experiment").warning(

@@ -134,7 +134,13 @@ class DaskPool:
                 raise ClusterError(f"the cluster lost {where} with its worker too many times "
                                    f"({err}); finished batches are saved") from None
             except FutureCancelledError:
-                raise ClusterError(f"the cluster cancelled {where}; finished batches are saved") from None
+                raise ClusterError(f"the cluster cancelled {where} (did the scheduler stop?); finished "
+                                   "batches are saved: finish with resume=True") from None
+            except (OSError, TimeoutError) as err:  # distributed's CommClosedError is an OSError
+                raise ClusterError(
+                    f"lost the dask scheduler at {self.address!r} while waiting for {where} "
+                    f"({type(err).__name__}); finished batches are saved: restart the scheduler "
+                    "and its workers, then finish with resume=True") from None
             except ImportError as err:
                 raise ClusterError(f"a dask worker cannot import broodline ({err}); install "
                                    "broodline on every worker") from None
