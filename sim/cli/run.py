@@ -63,6 +63,9 @@ def run_options(args) -> dict:
     if args.cluster is not None and args.workers is not None:
         raise UserError("--workers applies to local runs; with --cluster the cluster's workers "
                         "run the batches (give one of the two)")
+    if args.cluster is not None and args.cluster.startswith("inproc://"):
+        raise UserError(f"--cluster {args.cluster}: an inproc:// scheduler lives inside one Python "
+                        "process; broodline reaches a dask scheduler over tcp:// (or tls://)")
     if args.resume and args.overwrite:
         raise UserError("--resume finishes the file and --overwrite starts it again: give one of the two")
     return dict(workers=args.workers or default_workers(), cluster=args.cluster, resume=args.resume,

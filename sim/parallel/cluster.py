@@ -35,6 +35,8 @@ def _check_reachable(address: str, timeout: float) -> None:
     except (ValueError, TypeError) as err:
         raise ClusterError(f"cluster: {address!r} is not a dask scheduler address "
                            f"(e.g. tcp://HOST:8786): {err}") from None
+    if scheme == "inproc":
+        return  # a scheduler in this very process (a LocalCluster(processes=False))
     if scheme not in ("tcp", "tls"):
         raise ClusterError(f"cluster: {address!r}: broodline reaches a dask scheduler over tcp:// "
                            f"(or tls://), not {scheme}://; give tcp://HOST:PORT or a scheduler file")
