@@ -21,7 +21,7 @@ from pathlib import Path
 
 import pandas as pd
 
-__all__ = ["MemoryReport", "measure_memory", "BENCH_CONFIG"]
+__all__ = ["MemoryReport", "measure_memory", "measure_planning", "BENCH_CONFIG", "PLANNED"]
 
 # A small population of two schedules run for a fixed 100 seasons, its census by allele and age
 # (3 age classes) recorded every season: about 2.4 kB of trajectory per replicate.
@@ -121,3 +121,51 @@ def measure_memory(sizes=(1000, 10000), *, workers: int = 1) -> MemoryReport:
     table = pd.DataFrame(rows)
     table["writer_ratio"] = table["writer_peak_mib"] / table["writer_peak_mib"].iloc[0]
     return MemoryReport(table, workers)
+
+
+# Requested replicates whose planning is measured: ``check`` and the writer's setup must not
+# grow with them (no mask over every replicate, no batch object per batch).
+PLANNED = (10**4, 10**6, 10**9)
+
+_PLAN_CHILD = """
+import json, resource, sys
+from itertools import islice
+from sim.config import load_config
+from sim.describe import describe_experiment, preflight
+from sim.parallel import default_batch_size, iter_batches
+from sim.store import ResultsWriter
+if __name__ == "__main__":
+    config = load_config(sys.argv[1])
+    describe_experiment(config, budget=False)
+    writer = ResultsWriter(sys.argv[2], config, preflight(config, budget=False))
+    size = default_batch_size(writer.expected, 1, 30)
+    first = list(islice(iter_batches(writer.missing(), size), 4))
+    writer.release()
+    print(json.dumps({"batches": len(first),
+                      "peak_kib": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss}))
+"""
+
+
+def measure_planning(sizes=PLANNED) -> pd.DataFrame:
+    """Peak RSS of ``check`` and of the writer planning the run, by requested replicates.
+
+    Each size in a fresh process: the config is checked (budget lifted, as
+    ``--no-budget`` does), the results file started, the missing replicates
+    listed and the first batches planned; nothing runs. Returns one row per
+    size with ``peak_mib`` and ``ratio`` to the smallest.
+    """
+    rows = []
+    with tempfile.TemporaryDirectory(prefix="broodline-bench-planning-") as tmp:
+        for n in sorted(sizes):
+            config = Path(tmp) / f"plan-{n}.toml"
+            config.write_text(BENCH_CONFIG.format(replicates=n))
+            proc = subprocess.run([sys.executable, "-c", _PLAN_CHILD, str(config),
+                                   str(Path(tmp) / f"plan-{n}.h5")], capture_output=True, text=True,
+                                  check=False, cwd=Path(__file__).parent.parent)
+            if proc.returncode != 0:
+                raise RuntimeError(f"planning {n} replicates failed:\n{proc.stderr[-2000:]}")
+            m = json.loads(proc.stdout.strip().splitlines()[-1])
+            rows.append({"requested_replicates": n, "peak_mib": m["peak_kib"] / 1024})
+    table = pd.DataFrame(rows)
+    table["ratio"] = table["peak_mib"] / table["peak_mib"].iloc[0]
+    return table

@@ -5,12 +5,12 @@ from __future__ import annotations
 import numpy as np
 
 from .aggregation import counts_obstacles
-from .config import Config, sweep_factors, sweep_points
+from .config import Config, ConfigError, sweep_factors, sweep_points, swept_values
 from .density import Factors
 from .lifecycle import initial_census
 from .meanfield import growth_rate
 
-__all__ = ["ConfigWarning", "config_warnings", "describe_experiment", "preflight", "counts_engine_note"]
+__all__ = ["BUDGET", "ConfigWarning", "config_warnings", "describe_experiment", "preflight", "counts_engine_note"]
 
 
 class ConfigWarning(UserWarning):
@@ -62,18 +62,25 @@ def _fmt(values) -> str:
 
 def _capacity(config: Config) -> str:
     """K as set, or the values it is swept over (the base value would mislead)."""
-    swept = (config.sweep or {}).get("density.capacity")
+    swept = swept_values(config, "density.capacity")
     if swept:
         return "K swept over " + ", ".join(f"{v:g}" for v in swept)
     return f"K = {config.density.capacity:g}"
 
 
-def preflight(config: Config) -> list:
+# Individual-seasons an experiment may ask for (replicates x max_steps x starting census,
+# summed over sweep points) unless the budget is lifted (``budget=False``, ``--no-budget``):
+# about a day of one core at the individual engine's 1e8 individual-seasons a second.
+BUDGET = 10**13
+
+
+def preflight(config: Config, *, budget: bool = True) -> list:
     """Expand the sweep and build every point's starting census, so nothing fails mid-run.
 
-    Returns the sweep points. Raises ConfigError (bad sweep values) or
-    NoEquilibriumError (a resident with no equilibrium at some point), with the
-    point named.
+    Returns the sweep points. Raises ConfigError (bad sweep values, a starting
+    census of nobody or past ``experiment.max_population``, work past
+    ``BUDGET`` unless ``budget=False``) or NoEquilibriumError (a resident with
+    no equilibrium at some point), with the point named.
     """
     import warnings
 
@@ -82,25 +89,58 @@ def preflight(config: Config) -> list:
     for message in config_warnings(config):
         warnings.warn(message, ConfigWarning, stacklevel=2)
     points = sweep_points(config)
+    work, problems = 0, []
     for point in points:
+        where = ", ".join(f"{k} = {v!r}" for k, v in point.values.items())
+        where = f"sweep point {point.index}{f' ({where})' if where else ''}: " if len(points) > 1 else ""
         try:
-            initial_census(point.config)
+            census = initial_census(point.config)
         except NoEquilibriumError as err:
-            where = ", ".join(f"{k} = {v!r}" for k, v in point.values.items())
             raise NoEquilibriumError(
-                f"sweep point {point.index}{f' ({where})' if where else ''}: {err}; "
-                "set invasion.resident_count to a number or change the density settings"
+                f"{where}{err}; set invasion.resident_count to a number or change the density settings"
             ) from None
+        except ConfigError as err:
+            problems += [where + m for m in err.problems]
+            continue
+        problems += [where + m for m in _census_problems(point.config, census)]
+        exp = point.config.experiment
+        work += exp.replicates * exp.max_steps * int(census.sum())
+    if problems:
+        raise ConfigError(problems)
+    if budget and work > BUDGET:
+        raise ConfigError(
+            f"experiment.replicates: {work:.3g} individual-seasons (replicates x max_steps x starting "
+            f"census, over {len(points)} points) passes the budget of {BUDGET:.0e}; lower "
+            "replicates or max_steps, or lift the budget with budget=False")
     return points
 
 
-def describe_experiment(config: Config) -> str:
+def _census_problems(config: Config, census: np.ndarray) -> list[str]:
+    """Why a point's starting census cannot run: nobody in it, or past max_population."""
+    limit = config.experiment.max_population
+    inv = config.invasion
+    if inv is not None:
+        r = config.allele_index(inv.resident)
+        if census[r].sum() == 0:
+            key = "density.capacity" if inv.resident_count == "equilibrium" else "invasion.resident_count"
+            return [f"{key}: the resident {inv.resident!r} starts with no individuals (its "
+                    "equilibrium rounds to 0); raise density.capacity or give invasion.resident_count"]
+    total = int(census.sum())
+    if total > limit:
+        key = ("invasion.mutant_count" if inv is not None and inv.mutant_count > limit else
+               "density.capacity" if inv is not None else "allele.initial_count")
+        return [f"{key}: the starting census has {total:,} individuals, more than "
+                f"experiment.max_population = {limit:,}; lower it or raise max_population"]
+    return []
+
+
+def describe_experiment(config: Config, *, budget: bool = True) -> str:
     """The experiment as resolved: alleles and schedules, density, sweep points, total work."""
     import warnings
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConfigWarning)  # listed as lines at the end instead
-        points = preflight(config)
+        points = preflight(config, budget=budget)
     exp, d = config.experiment, config.density
     lines = [
         f"experiment {exp.name!r}: engine {exp.engine}, seed {exp.seed}, "

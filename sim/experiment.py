@@ -20,8 +20,8 @@ from .config import Config
 from .describe import preflight
 from .lifecycle import initial_census
 from .outcomes import fixed_outcome, summarize
-from .parallel import default_batch_size, make_pool, plan_batches
-from .store import ResultsWriter, read_outcomes, read_points, software_version
+from .parallel import default_batch_size, iter_batches, make_pool
+from .store import ResultsWriter, count_outcomes, read_points, software_version
 
 log = logging.getLogger(__name__)
 
@@ -59,9 +59,10 @@ class _Progress:
         self.done = np.zeros(len(points), np.int64)
         self.fixed = np.zeros(len(points), np.int64)
         if writer.done:  # resuming: count what the shards already hold
-            so_far = read_outcomes(writer.path)
-            np.add.at(self.done, so_far["point"].to_numpy(), 1)
-            np.add.at(self.fixed, so_far["point"].to_numpy(), so_far["outcome"].to_numpy() == self.fixed_name)
+            so_far = count_outcomes(writer.path)
+            np.add.at(self.done, so_far["point"].to_numpy(), so_far["count"].to_numpy())
+            won = so_far[so_far["outcome"] == self.fixed_name]
+            np.add.at(self.fixed, won["point"].to_numpy(), won["count"].to_numpy())
         self.bar = tqdm(total=writer.expected, initial=int(self.done.sum()), disable=not show,
                         unit="rep", desc=writer.config.experiment.name, dynamic_ncols=True)
         self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
@@ -84,7 +85,7 @@ class _Progress:
 
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
                    workers: int = 1, cluster: str | None = None, progress: bool = True,
-                   batch_size: int | None = None) -> pd.DataFrame:
+                   batch_size: int | None = None, budget: bool = True) -> pd.DataFrame:
     """Run every replicate of every sweep point, streaming results to an HDF5 file.
 
     Batches of replicates run in this process (``workers=1``), in local
@@ -111,6 +112,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     batch_size : int, optional
         Replicates per batch (default: about 10^5 individuals at the starting census,
         at most 1024, and about four batches per worker).
+    budget : bool
+        Refuse an experiment past ``sim.describe.BUDGET`` individual-seasons
+        (``False`` lifts it).
 
     Returns
     -------
@@ -122,7 +126,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     ExperimentInterrupted
         On Ctrl-C: finished batches are saved; resume to finish.
     """
-    points = preflight(config)
+    points = preflight(config, budget=budget)
     seed = config.experiment.seed
     _STOP.clear()
     pool = make_pool(workers=workers, cluster=cluster)  # a bad cluster address fails before any file
@@ -148,7 +152,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         tracker = _Progress(writer, points, show=progress)
         census = max(int(initial_census(p.config).sum()) for p in points)
         size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
-        tasks = ((batch, points[batch.point], seed) for batch in plan_batches(writer.missing(), size))
+        tasks = ((batch, points[batch.point], seed) for batch in iter_batches(writer.missing(), size))
         for batch, results in pool.run(tasks):
             writer.write(results)
             tracker.update(batch, results)
@@ -168,4 +172,4 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if tracker is not None:
             tracker.close()
     pool.shutdown()
-    return summarize(read_outcomes(out), read_points(out), fixed=fixed_outcome(config))
+    return summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))

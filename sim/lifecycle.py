@@ -15,7 +15,7 @@ from functools import cached_property
 import numpy as np
 
 from .care import ParentalCare
-from .config import Config
+from .config import MAX_COUNT, Config, ConfigError
 from .density import DensityDependence
 from .kernel import SeasonKernel
 from .meanfield import solve_equilibrium, stable_age_distribution
@@ -102,6 +102,9 @@ def initial_census(config: Config, life: LifeCycle | None = None) -> np.ndarray:
     schedule = config.schedules()[r].padded(life.n_ages)
     if inv.resident_count == "equilibrium":
         eq = solve_equilibrium(schedule, life.density, offspring=life.offspring)
+        if not eq.census_size <= MAX_COUNT:
+            raise ConfigError(f"density.capacity: the resident's equilibrium census is "
+                              f"{eq.census_size:.3g} individuals, more than {MAX_COUNT} can be counted")
         target, shape = int(round(eq.census_size)), eq.census
     else:
         target = int(inv.resident_count)

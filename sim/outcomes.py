@@ -65,14 +65,21 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
     Parameters
     ----------
     replicates : DataFrame
-        At least ``point`` and ``outcome`` (``sim.store.read_outcomes``).
+        At least ``point`` and ``outcome`` (``sim.store.read_outcomes``), one row per
+        replicate; or with a ``count`` column, one row per (point, outcome)
+        (``sim.store.count_outcomes``, which streams).
     points : DataFrame, optional
         The sweep points (``sim.store.read_points``), merged in by ``point``.
     fixed : str
         The outcome ``fixed_fraction`` counts: ``fixed_outcome(config)``
         ("fixed" for an experiment without ``[invasion]``).
     """
-    counts = pd.crosstab(replicates["point"], replicates["outcome"])
+    if "count" in replicates:
+        counts = replicates.pivot_table(index="point", columns="outcome", values="count",
+                                        aggfunc="sum", fill_value=0)
+        counts.columns.name = "outcome"
+    else:
+        counts = pd.crosstab(replicates["point"], replicates["outcome"])
     for name in OUTCOMES:
         if name not in counts:
             counts[name] = 0

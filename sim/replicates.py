@@ -20,7 +20,7 @@ from itertools import pairwise
 
 import numpy as np
 
-from .config import SweepPoint
+from .config import MAX_COUNT, SweepPoint
 from .engines import ENGINES
 from .lifecycle import LifeCycle, initial_census
 from .model import BroodModel
@@ -92,7 +92,8 @@ class _Records:
         replicate = np.concatenate(self.replicate)
         order = np.argsort(replicate, kind="stable")
         steps = np.concatenate(self.step)[order]
-        census = np.concatenate(self.census)[order].astype(np.uint32)
+        # a capped replicate's last census may pass what uint32 holds: stored as its ceiling
+        census = np.minimum(np.concatenate(self.census)[order], MAX_COUNT).astype(np.uint32)
         bounds = np.searchsorted(replicate[order], np.arange(n + 1))
         return [(steps[a:b], census[a:b]) for a, b in pairwise(bounds)]
 
@@ -162,7 +163,8 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
     if hasattr(engine, "populations"):
         life = LifeCycle.from_config(config)
         start = initial_census(config, life)
-        batch = engine.populations(life, np.broadcast_to(start, (n, *start.shape)), rngs)
+        batch = engine.populations(life, np.broadcast_to(start, (n, *start.shape)), rngs,
+                                   limit=exp.max_population)
     else:
         batch = _Models(config, rngs)
 

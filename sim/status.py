@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .store import parts_dir, read_attrs, read_outcomes, read_points, writer_state
+from .store import count_outcomes, parts_dir, read_attrs, read_points, writer_state
 
 __all__ = ["ExperimentStatus", "experiment_status"]
 
@@ -68,12 +68,13 @@ def experiment_status(path) -> ExperimentStatus:
     state = writer_state(path)  # before reading: a run finishing meanwhile is then read whole
     attrs = read_attrs(path)
     points = read_points(path)
-    outcomes = read_outcomes(path)
+    outcomes = count_outcomes(path)  # streamed: flat in the number of replicates
     fixed_name = "mutant-fixed" if attrs.get("mutant") else "fixed"
     n = len(points)
-    done = np.bincount(outcomes["point"], minlength=n)
-    fixed = np.bincount(outcomes["point"], weights=outcomes["outcome"] == fixed_name, minlength=n)
-    capped = np.bincount(outcomes["point"], weights=outcomes["outcome"] == "capped", minlength=n)
+    point, count = outcomes["point"].to_numpy(), outcomes["count"].to_numpy()
+    done = np.bincount(point, weights=count, minlength=n).astype(np.int64)
+    fixed = np.bincount(point, weights=count * (outcomes["outcome"] == fixed_name), minlength=n)
+    capped = np.bincount(point, weights=count * (outcomes["outcome"] == "capped"), minlength=n)
     per_point = attrs.get("replicates", attrs["config"]["experiment"]["replicates"])
     table = points.copy()
     table["done"] = done

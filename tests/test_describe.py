@@ -53,10 +53,10 @@ def test_warnings_before_anything_runs(tmp_path, capsys):
 @pytest.mark.parametrize(
     "section, key, value, message",
     [
-        ("allele", "fecundity", "4.5", r"allele\[1\]\.fecundity: input should be a valid number; got '4.5'"),
-        ("allele", "juvenile_survival", "0.5", r"allele\[1\]\.juvenile_survival: input should be a valid number"),
-        ("density", "capacity", "100", r"density\.capacity: input should be a valid number; got '100'"),
-        ("experiment", "replicates", "20", r"experiment\.replicates: input should be a valid integer"),
+        ("allele", "fecundity", "4.5", r"allele\[1\]\.fecundity must be a number \(written without quotes\); got '4.5'"),
+        ("allele", "juvenile_survival", "0.5", r"allele\[1\]\.juvenile_survival must be a number"),
+        ("density", "capacity", "100", r"density\.capacity must be a number \(written without quotes\); got '100'"),
+        ("experiment", "replicates", "20", r"experiment\.replicates must be a whole number"),
     ],
 )
 def test_strings_where_numbers_belong_are_refused(section, key, value, message):

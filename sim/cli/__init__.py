@@ -37,8 +37,8 @@ COMMANDS = [
 ]
 
 # Library messages name the Python parameters; at the command line they are these options.
-_OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite", "point must": "--point must",
-            "replicate must": "--replicate must"}
+_OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite", "budget=False": "--no-budget",
+            "point must": "--point must", "replicate must": "--replicate must"}
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -7,7 +7,7 @@ import json
 import sys
 
 from ..bench import DEFAULT_SIZES, LARGE_SIZE, format_report, run_bench
-from ..bench_memory import measure_memory
+from ..bench_memory import measure_memory, measure_planning
 from .run import positive
 
 __all__ = ["register"]
@@ -64,6 +64,9 @@ def cmd_bench(args) -> int:
 def cmd_bench_memory(args) -> int:
     report = measure_memory(args.replicates, workers=args.workers)
     print(report)
+    planning = measure_planning()
+    print("\npeak memory of `check` and of planning the run (nothing run), by requested replicates:")
+    print(planning.to_string(index=False, float_format="{:.2f}".format))
     return 0
 
 

@@ -20,7 +20,8 @@ from ..errors import UserError
 from ..experiment import ExperimentInterrupted, request_stop, run_experiment
 from ..parallel import default_workers
 
-__all__ = ["register", "add_run_options", "run_options", "run_from_command_line", "positive"]
+__all__ = ["register", "add_run_options", "run_options", "run_from_command_line", "positive",
+           "add_budget_option"]
 
 
 def positive(text: str) -> int:
@@ -47,6 +48,14 @@ def add_run_options(parser) -> None:
     parser.add_argument("--batch-size", type=positive, default=None, metavar="N",
                         help="replicates per batch of work (default: about 1e5 individuals, at most 1024 "
                              "replicates; results do not depend on it)")
+    add_budget_option(parser)
+
+
+def add_budget_option(parser) -> None:
+    """Add ``--no-budget`` (lift the limit on individual-seasons) to ``run`` or ``check``."""
+    parser.add_argument("--no-budget", dest="budget", action="store_false",
+                        help="run an experiment past the budget of 1e13 individual-seasons "
+                             "(replicates x max_steps x starting census)")
 
 
 def run_options(args) -> dict:
@@ -54,10 +63,13 @@ def run_options(args) -> dict:
     if args.cluster is not None and args.workers is not None:
         raise UserError("--workers applies to local runs; with --cluster the cluster's workers "
                         "run the batches (give one of the two)")
+    if args.cluster is not None and args.cluster.startswith("inproc://"):
+        raise UserError(f"--cluster {args.cluster}: an inproc:// scheduler lives inside one Python "
+                        "process; broodline reaches a dask scheduler over tcp:// (or tls://)")
     if args.resume and args.overwrite:
         raise UserError("--resume finishes the file and --overwrite starts it again: give one of the two")
     return dict(workers=args.workers or default_workers(), cluster=args.cluster, resume=args.resume,
-                batch_size=args.batch_size, config_path=args.config)
+                batch_size=args.batch_size, budget=args.budget, config_path=args.config)
 
 
 class _TqdmHandler(logging.Handler):
@@ -107,16 +119,25 @@ def _resume_command(config_path, out) -> str:
 
 
 def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=1, cluster=None,
-                          resume=False, batch_size=None, config_path=None) -> pd.DataFrame:
+                          resume=False, batch_size=None, budget=True, config_path=None) -> pd.DataFrame:
     """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint."""
     _log_to_stderr()
     _stop_on_signals()
+    if cluster:  # a lost scheduler is said in our last line, not in distributed's tracebacks
+        for name in ("distributed", "distributed.client", "distributed.core", "distributed.comm"):
+            logging.getLogger(name).setLevel(logging.CRITICAL)
+    cores = default_workers()
+    if not cluster and workers > cores:
+        logging.getLogger("sim.experiment").warning(
+            "warning: --workers %d is more than the %d cores this process may use: the workers "
+            "share them, which is no faster and holds %d batches in memory", workers, cores, workers)
     where = f"dask scheduler {cluster}" if cluster else \
         (f"{workers} worker processes" if workers > 1 else "1 process")
     logging.getLogger("sim.experiment").info("running %s on %s", out, where)
     try:
         summary = run_experiment(config, out, overwrite=overwrite, resume=resume, workers=workers,
-                                 cluster=cluster, progress=not quiet, batch_size=batch_size)
+                                 cluster=cluster, progress=not quiet, batch_size=batch_size,
+                                 budget=budget)
     except ExperimentInterrupted as stop:
         print(f"\nStopped: {stop}. To finish the experiment, run:\n"
               f"  {_resume_command(config_path, out)}", file=sys.stderr)

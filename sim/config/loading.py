@@ -27,10 +27,16 @@ def parse_config(raw: dict) -> Config:
 def load_config(path: str | Path) -> Config:
     """Read and validate a TOML config file; raise ConfigError naming each problem."""
     path = Path(path)
-    if not path.is_file():
+    if path.is_dir():
+        raise ConfigError(f"config file {str(path)!r} is a folder, not a file")
+    if not path.exists():
         raise ConfigError(f"config file {str(path)!r} not found")
     try:
-        raw = tomllib.loads(path.read_text())
+        raw = tomllib.loads(path.read_bytes().decode("utf-8"))
+    except UnicodeDecodeError as err:
+        raise ConfigError(f"{path}: not a text config (TOML is UTF-8; byte {err.start} is not)") from None
+    except OSError as err:
+        raise ConfigError(f"cannot read config file {str(path)!r}: {err.strerror or err}") from None
     except tomllib.TOMLDecodeError as err:
         raise ConfigError(f"{path}: not valid TOML: {err}") from None
     return parse_config(raw)

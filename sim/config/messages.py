@@ -57,6 +57,13 @@ def messages(err: ValidationError) -> list[str]:
                         seen.add(line)
                         out.append(line)
                 continue
+        elif kind == "finite_number":
+            msg = f"{path} must be a finite number; got {got!r}"
+        elif kind in ("int_type", "float_type", "string_type", "bool_type") and isinstance(got, (str, bool)):
+            what = {"int_type": "a whole number", "float_type": "a number", "string_type": "a string",
+                    "bool_type": "true or false"}[kind]
+            msg = f"{path} must be {what} (written without quotes); got {got!r}" if isinstance(got, str) \
+                else f"{path} must be {what}, not true or false; got {got!r}"
         elif kind == "missing":
             msg = f"{path} is required"
         elif kind == "literal_error":

@@ -23,6 +23,9 @@ from ..schedules import Schedule, iteroparous, semelparous, table
 
 __all__ = [
     "MAX_COUNT",
+    "MAX_SEED",
+    "MAX_REPLICATES",
+    "MAX_SWEEP_POINTS",
     "LINKED",
     "ConfigError",
     "Config",
@@ -37,6 +40,9 @@ __all__ = [
 ]
 
 MAX_COUNT = 2**32 - 1  # census counts are stored as uint32
+MAX_SEED = 2**64 - 1  # stored as uint64, and SeedSequence's entropy
+MAX_REPLICATES = 2**31 - 1  # replicate indices are stored as int32
+MAX_SWEEP_POINTS = 100_000  # points of a [sweep]: each is a config held in memory while running
 
 
 class ConfigError(ValueError):
@@ -74,7 +80,16 @@ NonNegative = Annotated[float, Field(strict=True), AfterValidator(_non_negative)
 
 
 class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=True, use_attribute_docstrings=True)
+    """The base of every config table: unknown keys refused, values frozen, and strict types.
+
+    ``strict``: a string or a boolean where a number belongs (``replicates =
+    "20"``, ``seed = true``) is refused, not converted; ``allow_inf_nan``: nan
+    and inf are refused wherever a number belongs (lists by age included).
+    Every section inherits both, so a new key needs no rule of its own.
+    """
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False,
+                              use_attribute_docstrings=True)
 
 
 class ExperimentSection(_Section):
@@ -82,23 +97,23 @@ class ExperimentSection(_Section):
 
     name: str = "experiment"
     """Label used in outputs."""
-    seed: int = Field(0, ge=0, strict=True)
+    seed: int = Field(0, ge=0, le=MAX_SEED)
     """Root of every replicate's random stream: replicate r of point p draws from SeedSequence(seed,
     spawn_key=(p, r))."""
-    replicates: int = Field(100, ge=1, strict=True)
+    replicates: int = Field(100, ge=1, le=MAX_REPLICATES)
     """Replicates per sweep point."""
-    max_steps: int = Field(1000, ge=1, strict=True)
+    max_steps: int = Field(1000, ge=1, le=MAX_REPLICATES)  # seasons are stored as int32
     """Seasons a replicate runs at most."""
     stop: Literal[words.STOP_RULES] = "fixation"
     """fixation: a replicate stops as soon as its outcome is decided; max-steps: every replicate
     runs to max_steps (or extinction, or the cap)."""
-    record_every: int = Field(1, ge=1, strict=True)
+    record_every: int = Field(1, ge=1, le=MAX_REPLICATES)
     """The census is recorded every n seasons; season 0 and the last season are always recorded."""
     engine: Literal[words.ENGINES] = "individual"
     """individual: numpy arrays of individuals, replicates batched; counts: counts by allele and
     age, exact in distribution, cost flat in N (broodline check says whether it is exact for the
     config); agents: one mesa.Agent per individual, slow, the readable reference."""
-    max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT, strict=True)
+    max_population: int = Field(1_000_000, ge=1, le=MAX_COUNT)
     """A replicate whose census passes it stops and is marked capped; the experiment goes on."""
     trajectory: Literal[words.TRAJECTORY_MODES] = "by-age"
     """What is stored of each recorded census: by-age (counts by allele and age), by-allele (summed
@@ -120,7 +135,7 @@ class DensitySection(_Section):
     """Who makes up D: census (everyone of age 1 and older), breeders (individuals with m(a) > 0),
     offspring (born this season; D taken after breeding, so not with acts_on = fecundity). A ceiling
     caps the census."""
-    capacity: float | None = Field(None, gt=0, strict=True)
+    capacity: float | None = Field(None, gt=0)
     """K; required unless form = none."""
 
     @model_validator(mode="after")
@@ -154,7 +169,8 @@ class OffspringSection(_Section):
     distribution: Literal[words.DISTRIBUTIONS] = "poisson"
     """poisson; fixed: floor(m), plus one more with probability m - floor(m), so the mean is exact;
     negative-binomial, with dispersion."""
-    dispersion: float | None = Field(None, gt=0, strict=True)
+    # below 1e-6 numpy's negative-binomial draw fails (its gamma-Poisson mixture overflows)
+    dispersion: float | None = Field(None, ge=1e-6)
     """negative-binomial only: k, with variance = m + m^2 / k."""
 
     @model_validator(mode="after")
@@ -185,16 +201,16 @@ class AlleleSection(_Section):
     """Survival s per season (a list by age for table); see breeding for when it is required."""
     juvenile_survival: Probability
     """c: survival from offspring to age 1."""
-    maturity_age: int = Field(1, ge=1, le=200, strict=True)
+    maturity_age: int = Field(1, ge=1, le=200)
     """First breeding age (not for table)."""
-    initial_count: int = Field(0, ge=0, le=MAX_COUNT, strict=True)
+    initial_count: int = Field(0, ge=0, le=MAX_COUNT)
     """Without [invasion]: individuals of this allele at the start, all of age 1."""
     orphan_survival: Probability | None = None
     """Juvenile survival of young whose parent dies in the season of their birth (default:
     juvenile_survival, i.e. no parental care; a semelparous parent always dies)."""
     brood_effect: Literal[words.BROOD_EFFECTS] = "none"
     """none; exponential: each young of a brood of b survives x exp(-(b - 1) / brood_scale)."""
-    brood_scale: float | None = Field(None, gt=0, strict=True)
+    brood_scale: float | None = Field(None, gt=0)
     """h of the exponential brood effect; required with brood_effect = "exponential"."""
 
     @model_serializer(mode="wrap")
@@ -267,7 +283,7 @@ class InvasionSection(_Section):
     """Name of the resident allele."""
     mutant: str
     """Name of the mutant allele (not the resident)."""
-    mutant_count: int = Field(1, ge=1, le=MAX_COUNT, strict=True)
+    mutant_count: int = Field(1, ge=1, le=MAX_COUNT)
     """Mutants added at age 1."""
     resident_count: Annotated[Any, AfterValidator(_resident_count)] = "equilibrium"
     """equilibrium: the resident starts at its mean-field equilibrium in its stable age distribution
@@ -431,6 +447,17 @@ def _check_sweep(config: Config) -> list[str]:
         if path != LINKED:
             check_path(f"sweep.{path!r}", path, values)
     groups = config.sweep.get(LINKED, [])
+    if not problems:
+        n_points = 1
+        for path, values in config.sweep.items():
+            if path != LINKED:
+                n_points *= len(values)
+        for group in groups:
+            if isinstance(group, dict) and group:
+                n_points *= max(len(v) if isinstance(v, list) else 1 for v in group.values())
+        if n_points > MAX_SWEEP_POINTS:
+            problems.append(f"sweep: {n_points:,} points; at most {MAX_SWEEP_POINTS:,} can be run "
+                            "(each is a config held in memory): split the sweep into several experiments")
     for g, group in enumerate(groups):
         where = f"sweep.linked[{g}]"
         if not isinstance(group, dict) or not group:

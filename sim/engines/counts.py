@@ -81,6 +81,7 @@ class CountsPopulations(ReplicateBatch):
         """
         kernel = self.kernel
         excess, _ = kernel.ceiling_excess(aged.sum(axis=1), born)
+        excess[aged.sum(axis=1) + born > self.limit] = 0  # capped: the run stops it as it is
         over = np.flatnonzero(excess).tolist()
         if kernel.ceiling_on_recruits:
             for r in over:

@@ -34,8 +34,8 @@ class IndividualPopulations(ReplicateBatch):
     Parameters are those of ``ReplicateBatch``.
     """
 
-    def __init__(self, life: LifeCycle, census: np.ndarray, rngs):
-        super().__init__(life, census, rngs)
+    def __init__(self, life: LifeCycle, census: np.ndarray, rngs, *, limit: int | None = None):
+        super().__init__(life, census, rngs, limit=limit)
         kernel, counts = self.kernel, self.counts
         self._dtype = np.min_scalar_type(max(kernel.n_classes - 1, 0))
         self._aged = kernel.aged.astype(self._dtype)
@@ -94,17 +94,22 @@ class IndividualPopulations(ReplicateBatch):
             survived, by_class = self._aged[survived[:total]], self.aged_counts(by_class)
         else:
             recruits = self.recruits_after_pass(recruits, births, f)
-        # 5. next census: survivors, then recruits at age 1; the kernel's removals
+        # 5. next census: survivors, then recruits at age 1; the kernel's removals. A
+        # replicate past the limit keeps its counts (the run stops it as capped) but not its
+        # recruits' cells: an exploding population never sizes the array.
         born = recruits.sum(axis=1)
-        cell = np.empty(total + int(born.sum()), dtype=self._dtype)
-        compiled.assemble(survived, survivors, recruits, self._first, cell)
+        over = survivors + born > self.limit
+        built = np.where(over[:, None], 0, recruits) if over.any() else recruits
+        cell = np.empty(total + int(built.sum()), dtype=self._dtype)
+        compiled.assemble(survived, survivors, built, self._first, cell)
         by_class[:, kernel.first] += recruits
-        sizes = survivors + born
+        sizes = survivors + built.sum(axis=1)
         excess, pool = kernel.ceiling_excess(survivors, born)
+        excess = np.where(over, 0, excess)
         if excess.any():
             cell, removed = self._remove(cell, sizes, excess, pool)
             by_class -= removed
-            sizes = by_class.sum(axis=1)
+            sizes = sizes - removed.sum(axis=1)
         self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
 
     def _remove(self, cell, sizes, excess, pool):

@@ -31,7 +31,13 @@ from ..lifecycle import LifeCycle
 from ..offspring import Poisson
 from . import compiled
 
-__all__ = ["ReplicateBatch", "OneReplicate"]
+__all__ = ["ReplicateBatch", "OneReplicate", "DRAW_LIMIT"]
+
+# The largest expected number a class's births or recruits are drawn with. A season can
+# overshoot a population by a factor of the fecundity (1e12, 1e300...); such a replicate ends
+# capped (its census passes max_population <= 2**32 - 1) whatever it drew beyond this, and
+# numpy's draws fail, or overflow int64, far above it.
+DRAW_LIMIT = 1e12
 
 
 class ReplicateBatch:
@@ -47,9 +53,14 @@ class ReplicateBatch:
     rngs : sequence of numpy.random.Generator
         One stream per replicate; replicate ``r`` draws only from ``rngs[r]``
         (held as an object array, so leaving replicates is one array operation).
+    limit : int, optional
+        ``experiment.max_population``: a replicate whose census passes it in a
+        season (before a ceiling's removal) is not built (the run stops it as
+        capped), so no array is sized by an exploding population.
     """
 
-    def __init__(self, life: LifeCycle, census: np.ndarray, rngs):
+    def __init__(self, life: LifeCycle, census: np.ndarray, rngs, *, limit: int | None = None):
+        self.limit = np.inf if limit is None else limit
         self.life = life
         self.kernel = kernel = life.kernel
         self.rngs = np.empty(len(rngs), dtype=object)
@@ -104,7 +115,7 @@ class ReplicateBatch:
             return out
         draw = self.life.offspring.draw_total
         for c, _, fecundity, _ in self.kernel.breeders:
-            out[:, c] = [int(draw(n, fecundity, g)) if n else 0
+            out[:, c] = [int(draw(n, min(fecundity, DRAW_LIMIT / n), g)) if n else 0
                          for n, g in zip(counts[:, c].tolist(), rngs)]
         return out
 
@@ -114,8 +125,8 @@ class ReplicateBatch:
         array it draws them into; both (n_replicates, 0) where the pass draws none
         (``recruits_in_pass`` false: ``recruits_after_pass`` draws them)."""
         n = self.counts.shape[0]
-        means = (self.kernel.expected_recruits(self.counts, f) if self.recruits_in_pass
-                 else np.empty((n, 0)))
+        means = (np.minimum(self.kernel.expected_recruits(self.counts, f), DRAW_LIMIT)
+                 if self.recruits_in_pass else np.empty((n, 0)))
         return means, np.empty(means.shape, dtype=np.int64)
 
     def recruits_after_pass(self, drawn: np.ndarray, births, f: Factors) -> np.ndarray:
@@ -132,8 +143,8 @@ class ReplicateBatch:
             for c, allele, fecundity, juvenile in self.kernel.breeders:
                 if not present[c]:
                     continue  # no replicate has this class: no draws to make
-                out[:, allele] += draw(counts[:, c], fecundity * f.fecundity,
-                                       juvenile * f.recruitment, rngs)
+                mean = np.minimum(fecundity * f.fecundity, DRAW_LIMIT / np.maximum(counts[:, c], 1))
+                out[:, allele] += draw(counts[:, c], mean, juvenile * f.recruitment, rngs)
         else:
             for c, allele, _, juvenile in self.kernel.breeders:
                 out[:, allele] += [g.binomial(n, k) if n else 0 for n, k, g in
@@ -209,7 +220,8 @@ class OneReplicate:
     def __init__(self, model, life: LifeCycle, census: np.ndarray):
         self.model = model
         self.life = life
-        self.batch = self.populations(life, np.asarray(census)[None], [model.rng])
+        self.batch = self.populations(life, np.asarray(census)[None], [model.rng],
+                                      limit=model.config.experiment.max_population)
 
     def step(self) -> None:
         """Advance one season."""

@@ -18,6 +18,7 @@ from .work import (
     default_batch_size,
     default_workers,
     plan_batches,
+    iter_batches,
     reduce_trajectory,
     run_batch,
 )
@@ -29,6 +30,7 @@ __all__ = [
     "BATCH_INDIVIDUALS",
     "CLUSTER_INSTALL",
     "plan_batches",
+    "iter_batches",
     "default_batch_size",
     "default_workers",
     "run_batch",

@@ -35,19 +35,44 @@ def _check_reachable(address: str, timeout: float) -> None:
     except (ValueError, TypeError) as err:
         raise ClusterError(f"cluster: {address!r} is not a dask scheduler address "
                            f"(e.g. tcp://HOST:8786): {err}") from None
+    if scheme == "inproc":
+        return  # a scheduler in this very process (a LocalCluster(processes=False))
     if scheme not in ("tcp", "tls"):
-        return
+        raise ClusterError(f"cluster: {address!r}: broodline reaches a dask scheduler over tcp:// "
+                           f"(or tls://), not {scheme}://; give tcp://HOST:PORT or a scheduler file")
     try:
         host, port = parse_host_port(location, default_port=8786)
     except ValueError as err:
         raise ClusterError(f"cluster: {address!r} is not a dask scheduler address "
                            f"(e.g. tcp://HOST:8786): {err}") from None
     try:
-        socket.create_connection((host, port), timeout=timeout).close()
+        connection = socket.create_connection((host, port), timeout=timeout)
     except OSError as err:
         reason = getattr(err, "strerror", None) or str(err) or type(err).__name__
         raise ClusterError(f"cannot reach the dask scheduler at {address!r}: {reason}. "
                            "Is it running, and is the address (host and port) right?") from None
+    with connection:
+        if scheme == "tcp" and not _greets_like_dask(connection, timeout):
+            raise ClusterError(f"{address!r} is not a dask scheduler: something listens there but "
+                               f"did not greet as one within {timeout:g} s (a web server, another "
+                               "program?); check the port")
+
+
+def _greets_like_dask(connection, timeout: float) -> bool:
+    """True if the peer speaks first, as a dask comm does: its handshake's frame header (two
+    little-endian 64-bit counts, both small) within ``timeout`` seconds."""
+    connection.settimeout(timeout)
+    head = b""
+    try:
+        while len(head) < 16:
+            chunk = connection.recv(16 - len(head))
+            if not chunk:
+                return False
+            head += chunk
+    except OSError:  # timed out, or reset
+        return False
+    first, second = int.from_bytes(head[:8], "little"), int.from_bytes(head[8:], "little")
+    return 0 < first < 2**24 and second < 2**16
 
 
 class DaskPool:
@@ -111,7 +136,13 @@ class DaskPool:
                 raise ClusterError(f"the cluster lost {where} with its worker too many times "
                                    f"({err}); finished batches are saved") from None
             except FutureCancelledError:
-                raise ClusterError(f"the cluster cancelled {where}; finished batches are saved") from None
+                raise ClusterError(f"the cluster cancelled {where} (did the scheduler stop?); finished "
+                                   "batches are saved: finish with resume=True") from None
+            except (OSError, TimeoutError) as err:  # distributed's CommClosedError is an OSError
+                raise ClusterError(
+                    f"lost the dask scheduler at {self.address!r} while waiting for {where} "
+                    f"({type(err).__name__}); finished batches are saved: restart the scheduler "
+                    "and its workers, then finish with resume=True") from None
             except ImportError as err:
                 raise ClusterError(f"a dask worker cannot import broodline ({err}); install "
                                    "broodline on every worker") from None

@@ -22,6 +22,7 @@ __all__ = [
     "PoolError",
     "ClusterError",
     "plan_batches",
+    "iter_batches",
     "default_batch_size",
     "default_workers",
     "run_batch",
@@ -76,14 +77,16 @@ def default_batch_size(n_replicates: int, slots: int, census_size: int = 1) -> i
 
 def plan_batches(missing: dict[int, list[range]], batch_size: int) -> list[Batch]:
     """Cut each point's runs of missing replicates into batches of at most ``batch_size``."""
+    return list(iter_batches(missing, batch_size))
+
+
+def iter_batches(missing: dict[int, list[range]], batch_size: int):
+    """``plan_batches`` one batch at a time: planning a billion replicates holds one batch."""
     if batch_size < 1:
         raise ValueError(f"batch_size must be >= 1; got {batch_size}")
-    batches = []
-    for point in sorted(missing):
-        for run in missing[point]:
-            for first in range(run.start, run.stop, batch_size):
-                batches.append(Batch(point, first, min(first + batch_size, run.stop) - 1))
-    return batches
+    return (Batch(point, first, min(first + batch_size, run.stop) - 1)
+            for point in sorted(missing) for run in missing[point]
+            for first in range(run.start, run.stop, batch_size))
 
 
 def reduce_trajectory(result: ReplicateResult, mode: str) -> ReplicateResult:

@@ -61,6 +61,8 @@ __all__ = [
     "REPLICATE_COLUMNS",
     "ResultsError",
     "ConfigMismatchError",
+    "DamagedResultsError",
+    "REQUIRED_ATTRS",
     "Shard",
     "parts_dir",
     "list_shards",
@@ -92,6 +94,11 @@ REPLICATE_COLUMNS = {
 
 class ResultsError(Exception):
     """A results file cannot be written, resumed or read as asked (the message says why)."""
+
+
+class DamagedResultsError(ResultsError, ValueError):
+    """A results file or shard that cannot be read: a dataset or attribute missing, a corrupted
+    HDF5 structure, a newer format (the message names the file and what is wrong)."""
 
 
 class ConfigMismatchError(ResultsError):
@@ -202,4 +209,29 @@ def open_results(path) -> h5py.File:
     if f.attrs.get("format") != _FORMAT:
         f.close()
         raise ValueError(f"{str(path)!r} is not a broodline results file")
+    problem = _header_problem(f)
+    if problem:
+        f.close()
+        raise DamagedResultsError(f"{str(path)!r} cannot be read: {problem}")
     return f
+
+
+# what every reader needs of the file's header; a file lacking one was cut short or damaged
+REQUIRED_ATTRS = ("format_version", "config", "alleles", "n_points", "replicates")
+
+
+def _header_problem(f) -> str | None:
+    """Why an open results file's header cannot be read, or None."""
+    try:
+        written = int(f.attrs.get("format_version", 1))
+        if written > FORMAT_VERSION:
+            return (f"it is in results format {written}, newer than this broodline reads "
+                    f"(formats 1 to {FORMAT_VERSION}): update broodline")
+        missing = [a for a in REQUIRED_ATTRS if a not in f.attrs and not (written == 1 and a != "config")]
+        if missing:
+            return f"its header lacks {', '.join(missing)} (damaged, or cut short while it was created)"
+        if "points" not in f or "config" not in f["points"]:
+            return "it has no /points table (damaged, or cut short while it was created)"
+    except (OSError, KeyError, ValueError, TypeError) as err:
+        return f"its header is damaged ({err})"
+    return None

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from contextlib import contextmanager
 from pathlib import Path
 
 import h5py
@@ -10,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from ..config import Config
-from .layout import _STR, REPLICATE_COLUMNS, list_shards, open_results, parts_dir
+from .layout import _STR, REPLICATE_COLUMNS, DamagedResultsError, list_shards, open_results, parts_dir
 
 __all__ = [
     "read_attrs",
@@ -19,27 +20,62 @@ __all__ = [
     "read_trajectories",
     "read_point_configs",
     "read_outcomes",
+    "count_outcomes",
 ]
+
+
+@contextmanager
+def _reading(path, *, shard: bool = False):
+    """A failed read of a results file or shard (a dataset deleted, a corrupted B-tree, a
+    truncated or garbage shard) as one ``DamagedResultsError`` naming the file."""
+    try:
+        yield
+    except FileNotFoundError:
+        raise
+    except (OSError, KeyError, ValueError, TypeError, json.JSONDecodeError) as err:
+        if isinstance(err, DamagedResultsError):
+            raise
+        reason = str(err).strip("'\"") or type(err).__name__
+        if shard:
+            raise DamagedResultsError(
+                f"shard {str(path)!r} cannot be read ({reason}): finishing the run with resume=True "
+                "deletes it and runs its batch again") from None
+        raise DamagedResultsError(f"{str(path)!r} cannot be read: {reason} (damaged or incomplete "
+                                  "results file)") from None
+
+
+def _valid_shards(parts, n_points: int, replicates: int) -> list:
+    """The shards a writer would keep: inside the experiment, none overlapping an earlier one."""
+    kept, end = [], {}
+    for shard in list_shards(parts):
+        if shard.point < n_points and shard.last < replicates and shard.first > end.get(shard.point, -1):
+            end[shard.point] = shard.last
+            kept.append(shard)
+    return kept
 
 
 class _Blocks:
     """The tables of a results file as blocks: the file itself when complete, else its shards.
 
     ``offsets`` are each block's first row in the concatenated /trajectories,
-    so ``trajectory_start`` means the same in both forms.
+    so ``trajectory_start`` means the same in both forms. Shards outside the
+    experiment or overlapping another are not read (a resume deletes them).
     """
 
     def __init__(self, path):
         self.path = Path(path)
-        with open_results(self.path) as f:
+        with open_results(self.path) as f, _reading(self.path):
             self.complete = bool(f.attrs.get("complete", True))
+            shape = (int(f.attrs.get("n_points", 0)), int(f.attrs.get("replicates", 0)))
         self.files = [self.path] if self.complete else \
-            [parts_dir(self.path) / s.name for s in list_shards(parts_dir(self.path))]
+            [parts_dir(self.path) / s.name for s in _valid_shards(parts_dir(self.path), *shape)]
 
     def __iter__(self):
         offset = 0
         for name in self.files:
-            with h5py.File(name, "r") as f:
+            with _reading(name, shard=not self.complete):
+                f = h5py.File(name, "r")
+            with f, _reading(name, shard=not self.complete):
                 yield f, offset
                 offset += f["trajectories"]["step"].shape[0]
 
@@ -48,8 +84,12 @@ def _read_blocks(path, read):
     """``read(file, offset)`` over every block, retried if the run finished (and merged) meanwhile."""
     for attempt in range(3):
         blocks = _Blocks(path)
+        out = []
         try:
-            return [read(f, offset) for f, offset in blocks]
+            for f, offset in blocks:
+                with _reading(f.filename, shard=not blocks.complete):
+                    out.append(read(f, offset))
+            return out
         except FileNotFoundError:
             if attempt == 2:
                 raise
@@ -58,10 +98,10 @@ def _read_blocks(path, read):
 
 def read_attrs(path) -> dict:
     """File-level metadata: versions, seed, alleles and the resolved config (as a dict)."""
-    with open_results(path) as f:
+    with open_results(path) as f, _reading(path):
         attrs = {k: (v.item() if hasattr(v, "item") else v) for k, v in f.attrs.items()}
-    attrs["config"] = json.loads(attrs["config"])
-    attrs["alleles"] = json.loads(attrs["alleles"])
+        attrs["config"] = json.loads(attrs["config"])
+        attrs["alleles"] = json.loads(attrs["alleles"])
     attrs.setdefault("complete", True)  # format 1 files were written whole
     attrs.setdefault("trajectory", "by-age")
     return attrs
@@ -69,7 +109,7 @@ def read_attrs(path) -> dict:
 
 def read_points(path) -> pd.DataFrame:
     """The sweep points: ``point`` and one column per swept key."""
-    with open_results(path) as f:
+    with open_results(path) as f, _reading(path):
         g = f["points"]
         data = {"point": g["index"][:]}
         for key in g:
@@ -81,7 +121,7 @@ def read_points(path) -> pd.DataFrame:
 
 def read_point_configs(path) -> list:
     """Each sweep point's full config, validated again as a ``Config``."""
-    with open_results(path) as f:
+    with open_results(path) as f, _reading(path):
         texts = f["points"]["config"].asstr()[:]
     return [Config.model_validate(json.loads(t)) for t in texts]
 
@@ -104,6 +144,29 @@ def read_outcomes(path) -> pd.DataFrame:
         return pd.DataFrame({"point": np.zeros(0, np.int32), "replicate": np.zeros(0, np.int32),
                              "outcome": np.zeros(0, object)})
     return pd.DataFrame({k: np.concatenate([p[k] for p in parts]) for k in parts[0]})
+
+
+_CHUNK_ROWS = 1 << 18  # rows read at once by count_outcomes: its memory is flat in replicates
+
+
+def count_outcomes(path) -> pd.DataFrame:
+    """How many replicates of each point ended in each outcome so far: ``point``, ``outcome``,
+    ``count``; read in chunks, so a billion replicates cost what a million do."""
+    def read(f, offset):
+        g, counts = f["replicates"], {}
+        for start in range(0, g["point"].shape[0], _CHUNK_ROWS):
+            chunk = pd.DataFrame({"point": g["point"][start:start + _CHUNK_ROWS],
+                                  "outcome": g["outcome"].asstr()[start:start + _CHUNK_ROWS]})
+            for key, n in chunk.value_counts(sort=False).items():
+                counts[key] = counts.get(key, 0) + n
+        return counts
+
+    total = {}
+    for counts in _read_blocks(path, read):
+        for key, n in counts.items():
+            total[key] = total.get(key, 0) + n
+    return pd.DataFrame([(int(p), o, int(n)) for (p, o), n in sorted(total.items())],
+                        columns=["point", "outcome", "count"])
 
 
 def read_replicates(path) -> pd.DataFrame:

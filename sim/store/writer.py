@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import logging
 import os
 import shutil
 import socket
@@ -39,6 +40,8 @@ except ImportError:  # pragma: no cover
     fcntl = None
 
 __all__ = ["ResultsWriter", "writer_state", "fill_header", "rewrite_header"]
+
+log = logging.getLogger(__name__)
 
 # rows buffered while merging shards: bounds the merge's memory whatever the experiment's size
 _MERGE_ROWS = 16384
@@ -105,6 +108,9 @@ class ResultsWriter:
             raise ResultsError(f"cannot write {where!r}: {str(folder)!r} is not a folder")
         if self.path.is_dir():
             raise ResultsError(f"cannot write {where!r}: it is a folder")
+        if self.path.exists() and not self.path.is_file():  # a FIFO, a device: never replaced
+            raise ResultsError(f"cannot write {where!r}: it exists and is not a regular file "
+                               "(a pipe, a device...); choose another output")
         if self.path.exists() and not (overwrite or resume):
             done = is_complete(self.path)
             hint = ("pass overwrite=True to replace it" if done is not False else
@@ -139,8 +145,13 @@ class ResultsWriter:
                 os.close(fd)
                 raise ResultsError(f"{str(self.path)!r} is being written by another broodline run "
                                    f"({holder}); wait for it or stop it first") from None
-        os.ftruncate(fd, 0)
-        os.write(fd, f"pid {os.getpid()} on {socket.gethostname()}".encode())
+        try:
+            os.ftruncate(fd, 0)
+            os.write(fd, f"pid {os.getpid()} on {socket.gethostname()}".encode())
+        except OSError as err:
+            os.close(fd)
+            raise ResultsError(f"could not start {str(self.path)!r}: {err.strerror or err} "
+                               "(nothing was written; free disk space and run again)") from None
         self._lock_fd = fd
 
     def _unlock(self) -> None:
@@ -153,7 +164,11 @@ class ResultsWriter:
             if leftover.name != "lock":
                 leftover.unlink() if leftover.is_file() else shutil.rmtree(leftover)
         self.path.unlink(missing_ok=True)
-        durable.write_atomic(self.path, self._write_header)
+        try:
+            durable.write_atomic(self.path, self._write_header)
+        except OSError as err:
+            raise ResultsError(f"could not start {str(self.path)!r}: {err.strerror or err} "
+                               "(nothing was written; free disk space and run again)") from None
 
     def _write_header(self, f) -> None:
         fill_header(f, self.config, self.points)
@@ -184,16 +199,17 @@ class ResultsWriter:
     def _scan(self) -> dict[tuple[int, int], Shard]:
         """Finished shards on disk; an unreadable or malformed one is deleted (its batch re-runs)."""
         shards = {}
-        covered: dict[int, set] = {}
+        end: dict[int, int] = {}  # per point, the last replicate covered so far (shards come sorted)
         for shard in list_shards(self.parts):
-            reps = covered.setdefault(shard.point, set())
-            span = set(range(shard.first, shard.last + 1))
             ok = (shard.point < len(self.points) and shard.last < self.replicates
-                  and not (reps & span) and _shard_rows(self.parts / shard.name) == shard.size)
+                  and shard.first > end.get(shard.point, -1)
+                  and _shard_rows(self.parts / shard.name, self.hash) == shard.size)
             if not ok:
+                log.warning("shard %s is unreadable, overlaps another or lies outside the "
+                            "experiment: deleted, its batch runs again", self.parts / shard.name)
                 (self.parts / shard.name).unlink()
                 continue
-            reps |= span
+            end[shard.point] = shard.last
             shards[(shard.point, shard.first)] = shard
         return shards
 
@@ -204,20 +220,27 @@ class ResultsWriter:
         return self.expected if self.complete else sum(s.size for s in self.shards.values())
 
     def missing(self) -> dict[int, list[range]]:
-        """Per point, the runs of replicate indices not yet written (empty when complete)."""
+        """Per point, the runs of replicate indices not yet written (empty when complete).
+
+        Read from the shards' spans, never a mask over every replicate: planning a
+        billion replicates costs what planning ten does.
+        """
         if self.complete:
             return {}
-        covered: dict[int, np.ndarray] = {}
-        for s in self.shards.values():
-            mask = covered.setdefault(s.point, np.zeros(self.replicates, bool))
-            mask[s.first:s.last + 1] = True
+        spans: dict[int, list[Shard]] = {}
+        for s in sorted(self.shards.values()):
+            spans.setdefault(s.point, []).append(s)
         out = {}
         for p in range(len(self.points)):
-            mask = covered.get(p, np.zeros(self.replicates, bool))
-            todo = np.flatnonzero(~mask)
-            if todo.size:
-                breaks = np.flatnonzero(np.diff(todo) != 1) + 1
-                out[p] = [range(int(run[0]), int(run[-1]) + 1) for run in np.split(todo, breaks)]
+            runs, start = [], 0
+            for s in spans.get(p, []):
+                if s.first > start:
+                    runs.append(range(start, s.first))
+                start = max(start, s.last + 1)
+            if start < self.replicates:
+                runs.append(range(start, self.replicates))
+            if runs:
+                out[p] = runs
         return out
 
     # -- writing batches ------------------------------------------------------------
@@ -247,6 +270,7 @@ class ResultsWriter:
         self.shards[(shard.point, shard.first)] = shard
 
     def _fill_shard(self, f, results) -> None:
+        f.attrs["config_hash"] = self.hash  # a shard from another run is refused, never merged
         lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
         starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
         columns = {
@@ -431,13 +455,20 @@ def rewrite_header(path, config, points, *, extra: dict | None = None) -> None:
     durable.write_atomic(path, lambda f: fill_header(f, config, points, created=created, extra=extra))
 
 
-def _shard_rows(path: Path) -> int:
-    """Replicate rows in a shard, or -1 if it cannot be read."""
+def _shard_rows(path: Path, config_hash: str) -> int:
+    """Replicate rows in a shard, or -1 if it cannot be read; ResultsError if another config
+    wrote it (a shard from an older broodline, without the hash, is taken as it is)."""
     try:
         with h5py.File(path, "r") as f:
-            return int(f["replicates"]["replicate"].shape[0])
+            written_by = f.attrs.get("config_hash", config_hash)
+            rows = int(f["replicates"]["replicate"].shape[0])
     except (OSError, KeyError):
         return -1
+    if written_by != config_hash:
+        raise ResultsError(f"shard {str(path)!r} was written by another config (hash "
+                           f"{str(written_by)[:12]}, this run {config_hash[:12]}): it is not merged; "
+                           "move it away, or pass overwrite=True to start again")
+    return rows
 
 
 def writer_state(path) -> str:
