@@ -5,11 +5,12 @@ from __future__ import annotations
 import numpy as np
 
 from .aggregation import counts_obstacles
+from . import vocabulary as words
 from .config import Config, sweep_factors, sweep_points
 from .lifecycle import initial_census
 from .meanfield import growth_rate
 
-__all__ = ["describe_experiment", "preflight", "counts_engine_note"]
+__all__ = ["describe_experiment", "describe_environment", "preflight", "counts_engine_note"]
 
 
 def _fmt(values) -> str:
@@ -38,6 +39,27 @@ def preflight(config: Config) -> list:
     return points
 
 
+def describe_environment(config: Config) -> str:
+    """The environment in words: constant, or its year types, multipliers and how they follow."""
+    env = config.environment
+    if env is None:
+        return "constant (every season alike)"
+    types = []
+    for y in env.year:
+        changed = [f"{key.replace('_', ' ')} x{getattr(y, key):g}" for key in words.YEAR_MULTIPLIERS
+                   if getattr(y, key) != 1.0]
+        chance = f" (probability {y.probability:g})" if y.probability is not None else ""
+        types.append(f"{y.name}{chance}: " + (", ".join(changed) or "rates as given"))
+    if env.switching == "iid":
+        law = "each season's year type drawn independently"
+    else:
+        law = (f"year types follow a Markov chain (transitions {env.transitions}), the first "
+               + ("from its stationary law" if env.start == words.STATIONARY else f"a {env.start!r} year"))
+    shared = "; all replicates of a point live through one sequence" if env.shared_years else \
+        "; each replicate draws its own sequence"
+    return f"{len(env.year)} year types, {law}{shared}: " + "; ".join(types)
+
+
 def describe_experiment(config: Config) -> str:
     """The experiment as resolved: alleles and schedules, density, sweep points, total work."""
     points = preflight(config)
@@ -52,6 +74,7 @@ def describe_experiment(config: Config) -> str:
         "mutation: " + ("none" if not config.mutation_model().active else
                         (f"rate {config.mutation.rate:g} per offspring" if config.mutation.matrix is None
                          else "by matrix")),
+        "environment: " + describe_environment(config),
         "alleles (m(a) fecundity and s(a) survival by census age 1, 2, ...; last age a plus-group):",
     ]
     for a, s in zip(config.allele, config.schedules()):

@@ -23,9 +23,13 @@ class BroodModel(mesa.Model):
         Starting counts by (allele, age index); by default ``initial_census``.
     rng : numpy.random.Generator or seed
         The replicate's random stream (mesa keeps it as ``self.rng``).
+    years : sim.year_draws.SeasonYears, optional
+        Its year types season by season, where the config has an
+        ``[environment]`` (required then; ``sim.replicates`` builds it from
+        the replicate's year stream).
     """
 
-    def __init__(self, config: Config, census: np.ndarray | None = None, *, rng=None):
+    def __init__(self, config: Config, census: np.ndarray | None = None, *, rng=None, years=None):
         rng = np.random.default_rng(rng)
         state = rng.bit_generator.state
         super().__init__(rng=rng)
@@ -33,6 +37,10 @@ class BroodModel(mesa.Model):
         # engine's draws are the replicate's stream from its start on every mesa version
         rng.bit_generator.state = state
         self.config = config
+        if years is None and config.environment is not None:
+            raise ValueError("years: a config with [environment] needs the replicate's year "
+                             "draws (sim.year_draws.SeasonYears)")
+        self.years = years
         self.life = LifeCycle.from_config(config)
         start = initial_census(config, self.life) if census is None else np.asarray(census)
         self.season = 0  # counted here: mesa 3.3 has no model.time

@@ -36,7 +36,15 @@ class ReplicateBatch:
     rngs : sequence of numpy.random.Generator
         One stream per replicate; replicate ``r`` draws only from ``rngs[r]``
         (held as an object array, so leaving replicates is one array operation).
+
+    Attributes
+    ----------
+    years : sim.year_draws.SeasonYears or None
+        Set by the caller in a variable environment: each replicate's year
+        type, drawn at the start of every season from its own year stream.
     """
+
+    years = None
 
     def __init__(self, life: LifeCycle, census: np.ndarray, rngs):
         self.life = life
@@ -63,6 +71,8 @@ class ReplicateBatch:
         which = np.asarray(which, dtype=bool)
         self.rngs, self.bitgens = self.rngs[which], self.bitgens[which]
         self.counts, self.recruits = self.counts[which], self.recruits[which]
+        if self.years is not None:
+            self.years.keep(which)
 
     # -- steps 1 and 2: density, and births where D counts them -------------------------
     def open_season(self) -> tuple[np.ndarray | None, Factors]:
@@ -72,21 +82,26 @@ class ReplicateBatch:
         elsewhere they are not needed and None is returned for them.
         """
         kernel, counts = self.kernel, self.counts
+        year = None if self.years is None else self.years.advance()
         if not kernel.counted_after_breeding:
-            return None, kernel.multipliers(kernel.census_factors(counts, len(counts)))
-        births = self.births()
-        return births, kernel.multipliers(kernel.birth_factors(births.sum(axis=1).astype(float)))
+            return None, kernel.multipliers(kernel.census_factors(counts, len(counts)), year=year)
+        births = self.births(None if year is None else year[:, 0])
+        return births, kernel.multipliers(kernel.birth_factors(births.sum(axis=1).astype(float)),
+                                          year=year)
 
     # Draws go class by class across the batch, each replicate from its own generator;
     # within a replicate they come in the same order whatever its batch.
-    def births(self) -> np.ndarray:
-        """Offspring born to each class, (n_replicates, n_classes) (drawn where D counts them)."""
+    def births(self, year_fecundity=None) -> np.ndarray:
+        """Offspring born to each class, (n_replicates, n_classes) (drawn where D counts them);
+        ``year_fecundity``: each replicate's year multiplier on fecundity (None: 1)."""
         counts, rngs = self.counts, self.rngs
         out = np.zeros(counts.shape, dtype=np.int64)
         draw = self.life.offspring.draw_total
         for c, _, fecundity, _ in self.kernel.breeders:
-            out[:, c] = [int(draw(n, fecundity, g)) if n else 0
-                         for n, g in zip(counts[:, c].tolist(), rngs)]
+            means = [fecundity] * len(rngs) if year_fecundity is None \
+                else (fecundity * year_fecundity).tolist()
+            out[:, c] = [int(draw(n, m, g)) if n else 0
+                         for n, m, g in zip(counts[:, c].tolist(), means, rngs)]
         return out
 
     # -- step 4: recruits ----------------------------------------------------------------

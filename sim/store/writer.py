@@ -19,6 +19,7 @@ from .layout import (
     _STR,
     FORMAT_VERSION,
     REPLICATE_COLUMNS,
+    YEARS,
     ConfigMismatchError,
     ResultsError,
     Shard,
@@ -26,6 +27,7 @@ from .layout import (
     _column,
     _counts_shape,
     _pad_ages,
+    _years_group,
     is_complete,
     list_shards,
     parts_dir,
@@ -193,6 +195,7 @@ class ResultsWriter:
         traj = f.create_group("trajectories")
         _column(traj, "step", np.int32, (), 4096)
         _column(traj, "counts", np.uint32, _counts_shape(self.mode, self.n_alleles, self.n_ages), 4096)
+        _years_group(f, self.config)
 
     def _open_existing(self) -> None:
         where = str(self.path)
@@ -309,6 +312,8 @@ class ResultsWriter:
         counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
         _column(traj, "step", np.int32, (), 4096, steps)
         _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
+        if self.config.environment is not None:
+            _years_group(f, self.config, np.concatenate([r.years for r in results]))
 
     def _write_failure(self, err: OSError) -> str:
         reason = err.strerror or str(err)
@@ -346,7 +351,7 @@ class ResultsWriter:
         out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
         self._empty_tables(out)
         reps, traj = out["replicates"], out["trajectories"]
-        buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts")}
+        buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
         rows = offset = 0
 
         def flush():
@@ -356,6 +361,8 @@ class ResultsWriter:
             for name in ("step", "counts"):
                 if buffer[name]:
                     _append(traj[name], np.concatenate(buffer[name]))
+            if buffer[YEARS]:
+                _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
             for values in buffer.values():
                 values.clear()
 
@@ -367,6 +374,8 @@ class ResultsWriter:
                     buffer[name].append(values)
                 buffer["step"].append(f["trajectories"]["step"][:])
                 buffer["counts"].append(f["trajectories"]["counts"][:])
+                if YEARS in f:
+                    buffer[YEARS].append(f[YEARS]["type"][:])
                 offset += f["trajectories"]["step"].shape[0]
             rows += shard.size
             if rows >= _MERGE_ROWS or sum(len(c) for c in buffer["step"]) >= _MERGE_RECORDS:
