@@ -11,7 +11,7 @@ from __future__ import annotations
 import difflib
 from typing import Annotated, Any, Literal
 
-from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_validator
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_serializer, model_validator
 
 from .. import vocabulary as words
 from ..aggregation import counts_obstacles
@@ -354,6 +354,14 @@ class Config(_Section):
 
     def allele_index(self, name: str) -> int:
         return self.allele_names.index(name)
+
+    @model_serializer(mode="wrap")
+    def _without_absent_environment(self, handler):
+        # a config without [environment] dumps (and hashes) as it did before the section existed
+        data = handler(self)
+        if isinstance(data, dict) and data.get("environment", 0) is None:
+            del data["environment"]
+        return data
 
     def year_types(self) -> YearTypes | None:
         """The environment's year types, or None for a constant environment."""
