@@ -118,7 +118,13 @@ def cmd_threshold(args) -> int:
         )
         return 0
     print(f"resident {result['resident']!r}, mutant {result['mutant']!r}")
-    points = result["points"].rename(
+    points = result["points"]
+    if "environment" in points:  # year types: say once what they are and which theory spoke
+        print(f"environment: {points['environment'].iloc[0]}")
+        print("prediction: stochastic theory (invasion fitness = exp of the mutant's long-run "
+              "growth rate in the resident's fluctuating environment; SE from batch means)")
+        points = points.drop(columns=["environment", "prediction"])
+    points = points.rename(
         columns={
             "density_index": "D*",
             "census_size": "census",
