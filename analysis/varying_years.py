@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pandas as pd
 
 from sim.config import Config, SweepFactor, sweep_points
 from sim.describe import describe_environment
@@ -33,7 +34,8 @@ from .stochastic import (
 )
 from .thresholds import ThresholdResult, _default_bracket, _setting, with_values
 
-__all__ = ["YEAR_DRAWS", "THEORY_STREAM", "year_draws", "stochastic_prediction", "stochastic_threshold_result"]
+__all__ = ["YEAR_DRAWS", "THEORY_STREAM", "year_draws", "stochastic_prediction",
+           "stochastic_threshold_result", "year_spans"]
 
 YEAR_DRAWS = {"n_batches": 20, "batch_length": 1000, "burn_in": 200}
 THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apart from any run's
@@ -137,3 +139,25 @@ def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,
                            invades_above=(g_hi > 0) if t.converged else None,
                            crossings=int(t.converged), message=message, linked=linked,
                            standard_error=t.standard_error)
+
+
+def year_spans(path, *, point: int = 0, replicate: int = 0) -> pd.DataFrame:
+    """Runs of seasons of one year type in one replicate, for shading a trajectory figure.
+
+    Returns
+    -------
+    DataFrame
+        Columns ``start``, ``stop`` (census steps: the run covers the seasons
+        from census ``start`` to census ``stop``) and ``year`` (its type), in
+        order; empty for a file without ``[environment]``.
+    """
+    from sim.store import read_years
+
+    years = read_years(path, points=[point], replicates=[replicate])
+    if years.empty:
+        return pd.DataFrame(columns=["start", "stop", "year"])
+    names = years["year"].to_numpy()
+    steps = years["step"].to_numpy()
+    breaks = np.flatnonzero(names[1:] != names[:-1]) + 1
+    first, last = np.r_[0, breaks], np.r_[breaks, names.size] - 1
+    return pd.DataFrame({"start": steps[first] - 1, "stop": steps[last], "year": names[first]})

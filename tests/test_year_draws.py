@@ -181,6 +181,15 @@ def test_the_results_file_stores_every_seasons_year(tmp_path):
             assert rows["step"].tolist() == list(range(1, expected[rep].steps + 1))
             assert rows["year"].tolist() == names.tolist()
     assert read_years(out, points=[1], replicates=[3])["replicate"].unique().tolist() == [3]
+    # runs of one year type, for shading figures: they tile the seasons 0..steps
+    from analysis.varying_years import year_spans
+
+    spans = year_spans(out, point=1, replicate=3)
+    one = years[(years["point"] == 1) & (years["replicate"] == 3)]
+    assert spans["start"].iloc[0] == 0 and spans["stop"].iloc[-1] == one["step"].max()
+    assert (spans["start"].iloc[1:].to_numpy() == spans["stop"].iloc[:-1].to_numpy()).all()
+    assert (spans["year"].iloc[1:].to_numpy() != spans["year"].iloc[:-1].to_numpy()).all()
+    assert [y for s in spans.itertuples() for y in [s.year] * (s.stop - s.start)] == one["year"].tolist()
 
 
 # --- the science ----------------------------------------------------------------------------------
