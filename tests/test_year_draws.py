@@ -150,17 +150,21 @@ def test_shared_years_give_a_point_one_sequence():
     assert len({r.years.tobytes() for r in shared}) == 1
 
 
-def test_brood_model_alone_takes_the_replicates_year_stream():
+@pytest.mark.parametrize("engine", ["individual", "counts", "agents"])
+def test_brood_model_alone_is_the_replicate_with_its_years(engine):
     from sim.model import BroodModel
 
-    config = _config(TWO_YEARS, experiment={"engine": "agents", "max_steps": 8, "stop": "max-steps"})
+    config = _config(TWO_YEARS, experiment={"engine": engine, "max_steps": 8, "stop": "max-steps"})
     model = BroodModel(config, rng=replicate_rng(4, 0, 2))
-    seen = []
+    seen, census = [], [model.census()]
     for _ in range(8):
         model.step()
         seen.append(int(model.years.current[0]))
+        census.append(model.census())
     assert seen == year_sequence(config.year_types(), 4, 0, 2, 8).tolist()
     assert isinstance(model.years, SeasonYears)
+    run = run_replicate(sweep_points(config)[0], 2, 4)
+    assert np.array_equal(np.array(census), run.trajectory)
 
 
 # --- the results file ---------------------------------------------------------------------------

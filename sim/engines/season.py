@@ -158,6 +158,7 @@ class OneReplicate:
         self.model = model
         self.life = life
         self.batch = self.populations(life, np.asarray(census)[None], [model.rng])
+        self.batch.years = getattr(model, "years", None)  # the replicate's years, if any
 
     def step(self) -> None:
         """Advance one season."""
