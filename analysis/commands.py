@@ -13,21 +13,9 @@ import math
 from pathlib import Path
 
 from sim.errors import UserError
+from .jsonable import jsonable
 
 __all__ = ["register", "finish_demo", "threshold_report", "jsonable"]
-
-
-def jsonable(value):
-    """Plain JSON values: nan and inf become null, numpy scalars Python numbers."""
-    if isinstance(value, dict):
-        return {str(k): jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [jsonable(v) for v in value]
-    if hasattr(value, "item") and not isinstance(value, (str, bytes)):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
 
 
 def _records(table) -> list[dict]:
@@ -291,3 +279,7 @@ def register(sub) -> None:
     p.add_argument("-o", "--output", required=True, help="HTML file to write")
     p.add_argument("--overwrite", action="store_true", help="replace an existing report")
     p.set_defaults(func=cmd_report)
+
+    from .lab import register as register_lab  # `broodline lab` (analysis/lab/command.py)
+
+    register_lab(sub)

@@ -4,16 +4,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..config import load_config
+from ..config import demo_config_path, load_config
 from ..describe import describe_experiment
 from .run import run_from_command_line
 
 __all__ = ["register", "demo_config_path"]
-
-
-def demo_config_path() -> Path:
-    """The demo experiment's config, shipped with the package."""
-    return Path(__file__).parent.parent / "demo.toml"
 
 
 def cmd_demo(args) -> int:

@@ -11,7 +11,7 @@ from .messages import messages
 from .schema import Config, ConfigError
 from .sweep import sweep_points
 
-__all__ = ["parse_config", "load_config"]
+__all__ = ["parse_config", "load_config", "demo_config_path"]
 
 
 def parse_config(raw: dict) -> Config:
@@ -36,3 +36,6 @@ def load_config(path: str | Path) -> Config:
     return parse_config(raw)
 
 
+def demo_config_path() -> Path:
+    """The demo experiment's config, shipped with the package (``sim/demo.toml``)."""
+    return Path(__file__).parent.parent / "demo.toml"

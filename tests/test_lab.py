@@ -1,0 +1,305 @@
+"""The lab's session logic (no browser): controls, replicates, tally, theory panel, saving."""
+
+import copy
+import tomllib
+
+import numpy as np
+import pytest
+from conftest import BASE, make_config
+from runs_support import assert_same_datasets
+
+from analysis import predict, threshold, wilson_interval
+from analysis.lab.controls import control_of, controls
+from analysis.lab.session import BATCH, LabSession, mutant_frequency
+from analysis.lab.theory import closed_form_threshold
+from analysis.lab.toml_text import toml_text
+from sim.cli import main
+from sim.config import (
+    AlleleSection,
+    ConfigError,
+    DensitySection,
+    ExperimentSection,
+    InvasionSection,
+    load_config,
+    parse_config,
+    sweep_points,
+)
+from sim.replicates import run_replicate, run_replicates
+
+
+@pytest.fixture
+def session():
+    return LabSession(make_config(experiment={"replicates": 12}))
+
+
+def test_starts_from_the_demo_dropping_its_sweep():
+    s = LabSession(load_config("configs/demo.toml"))
+    assert "sweep" not in s.raw and s.config.sweep is None
+    assert s.view()["settings"]["mutant.fecundity"] == 4.0
+
+
+def test_a_config_without_invasion_is_refused():
+    raw = copy.deepcopy(BASE)
+    del raw["invasion"]
+    raw["allele"][0]["initial_count"] = 10
+    with pytest.raises(ValueError, match=r"invasion: the lab needs an \[invasion\] table"):
+        LabSession(parse_config(raw))
+
+
+@pytest.mark.parametrize("key, value, toml_key", [
+    ("mutant.juvenile_survival", "1.3", ("allele", 1, "juvenile_survival", 1.3)),
+    ("resident.fecundity", "-2", ("allele", 0, "fecundity", -2)),
+    ("mutant.maturity_age", "0", ("allele", 1, "maturity_age", 0)),
+    ("density.capacity", "0", ("density", None, "capacity", 0)),
+    ("density.form", "ceiling", ("density", None, "form", "ceiling")),
+    ("invasion.mutant_count", "abc", ("invasion", None, "mutant_count", "abc")),
+    ("experiment.replicates", "0", ("experiment", None, "replicates", 0)),
+])
+def test_controls_are_refused_with_the_toml_messages(session, key, value, toml_key):
+    # the same value written in a TOML file gives the same messages
+    raw = copy.deepcopy(session.raw)
+    section, index, name, typed_value = toml_key
+    (raw[section][index] if index is not None else raw[section])[name] = typed_value
+    if key == "density.form":  # a ceiling cannot act on fecundity: make the clash as in the file
+        session.update({"density.acts_on": "fecundity"})
+        raw["density"]["acts_on"] = "fecundity"
+    with pytest.raises(ConfigError) as from_toml:
+        parse_config(tomllib.loads(_plain_toml(raw)))
+    assert session.update({key: value}) == from_toml.value.problems
+    assert control_of(session.problems[0], session.raw) == key if key != "density.form" else "density.acts_on"
+
+
+def _plain_toml(raw: dict) -> str:
+    lines = []
+    for section, value in raw.items():
+        for table in value if isinstance(value, list) else [value]:
+            lines.append(f"[[{section}]]" if isinstance(value, list) else f"[{section}]")
+            lines += [f"{k} = {v!r}".replace("'", '"') for k, v in table.items()]
+    return "\n".join(lines)
+
+
+def test_invalid_settings_block_runs_and_a_fix_restores_them(session):
+    assert session.update({"mutant.breeding": "iteroparous"}) == [
+        "allele[1].adult_survival: required for an iteroparous schedule"]
+    assert not session.step_season() and not session.run_many(3)
+    assert session.update({"mutant.adult_survival": "0.4"}) == []
+    assert session.config.allele[1].breeding == "iteroparous" and session.step_season()
+
+
+def test_a_table_schedule_is_edited_as_comma_separated_ages():
+    s = LabSession(load_config("configs/cinderwort-ages.toml"))
+    assert s.view()["settings"]["resident.fecundity"] == [0.0, 1.5, 3.0, 4.0]
+    assert s.update({"resident.fecundity": "0, 1.5, 3"}) == [
+        "allele[0].adult_survival: table lists must be of equal length; fecundity has 3 ages, adult_survival 4"]
+    assert s.update({"resident.adult_survival": "0.6, 0.7, 0.6"}) == []
+    assert s.config.allele[0].fecundity == [0.0, 1.5, 3.0]
+
+
+def test_a_resident_without_equilibrium_blocks_runs(session):
+    # semelparous resident with B c = 2 x 0.5 = 1: growth rate 1 at low density, no equilibrium
+    problems = session.update({"resident.breeding": "semelparous"})
+    assert len(problems) == 1 and "growth rate at low density is 1 <= 1" in problems[0]
+    assert not session.step_season() and session.theory.prediction is None
+    assert session.update({"resident.fecundity": "3"}) == [] and session.step_season()
+
+
+def test_moving_a_control_updates_the_theory_and_discards_replicates(session):
+    session.run_many(3)
+    session.wait()
+    assert session.tally().n == 3
+    before = session.theory.prediction["invasion_fitness"]
+    session.update({"mutant.fecundity": "5"})
+    assert session.tally().n == 0 and session.generation == 1
+    expected = predict(make_config(allele=[BASE["allele"][0], {**BASE["allele"][1], "fecundity": 5}]))
+    assert session.theory.prediction["invasion_fitness"] == pytest.approx(expected.invasion_fitness, rel=1e-12)
+    assert session.theory.prediction["invasion_fitness"] != before
+
+
+def test_seasons_step_the_replicate_run_replicate_gives(session):
+    session.update({"density.capacity": "30", "mutant.fecundity": "6"})
+    point, seed = sweep_points(session.config)[0], session.config.experiment.seed
+    expected = [run_replicate(point, r, seed) for r in range(3)]
+    seen = []  # (replicate, season, census) after each click
+    while session.tally().n < 3:
+        session.step_season()
+        shown = session.view()["shown"]
+        if shown["line"] is not None:
+            seen.append((shown["replicate"], shown["season"], np.array(shown["census"])))
+    for r, season, census in seen:
+        row = np.flatnonzero(expected[r].record_steps == season)[0]
+        assert np.array_equal(census, expected[r].trajectory[row]), (r, season)
+    for got, want in zip(session.results, expected):
+        assert (got.outcome, got.steps, got.final_census) == (want.outcome, want.steps, want.final_census)
+    assert [r for r, s, _ in seen if s == 0] == [0, 1, 2]
+
+
+def test_one_replicate_in_the_worker(session):
+    assert session.run_one()
+    session.wait()
+    want = run_replicate(sweep_points(session.config)[0], 0, session.config.experiment.seed)
+    assert session.results[0].outcome == want.outcome and session.results[0].steps == want.steps
+
+
+def test_stop_ends_a_run_between_batches(session):
+    session.update({"density.capacity": "400"})
+    session.run_many(100 * BATCH)
+    session.stop()
+    n = session.tally().n
+    assert not session.running and n < 100 * BATCH and n % BATCH == 0
+
+
+def test_tally_and_lines_of_n_replicates(session):
+    session.run_many(25)
+    session.wait()
+    results = run_replicates(sweep_points(session.config)[0], range(25), session.config.experiment.seed)
+    fixed = sum(r.outcome == "mutant-fixed" for r in results)
+    lost = sum(r.outcome == "mutant-lost" for r in results)
+    t = session.tally()
+    assert (t.fixed, t.lost, t.unresolved) == (fixed, lost, 25 - fixed - lost)
+    assert t.estimate == wilson_interval(fixed, 25)
+    view = session.view()
+    assert [line["outcome"] for line in view["lines"]] == [r.outcome for r in results]
+    mutant = session.config.allele_index("one-shot")
+    freq = mutant_frequency(results[4].trajectory, mutant)
+    assert view["lines"][4]["freq"][-1] == (None if np.isnan(freq[-1]) else round(freq[-1], 4))
+    assert view["running_tally"]["high"][-1] == t.estimate.high
+    assert session.view(since=20, generation=view["generation"])["lines"] == view["lines"][20:]
+
+
+def test_mutant_frequency_by_age_and_by_allele():
+    counts = np.array([[[3, 1], [1, 0]], [[0, 0], [0, 0]], [[0, 0], [2, 2]]])
+    assert np.allclose(mutant_frequency(counts, 1), [0.2, np.nan, 1.0], equal_nan=True)
+    assert np.allclose(mutant_frequency(counts.sum(axis=2), 1), [0.2, np.nan, 1.0], equal_nan=True)
+
+
+def test_saved_files_are_the_replicates_broodline_run_gives(session, tmp_path):
+    session.update({"mutant.fecundity": "5.5", "experiment.replicates": "7"})
+    session.step_season()  # a replicate opened a season at a time is run whole by the batch
+    session.run_many()
+    session.wait()
+    session.run_many(4)
+    session.wait()
+    saved = session.save(tmp_path / "page.toml", tmp_path / "page.h5")
+    assert load_config(saved.config).experiment.replicates == 11
+    assert main(["check", str(saved.config)]) == 0
+    assert main(["run", str(saved.config), "-o", str(tmp_path / "cli.h5"), "--quiet", "--workers", "1"]) == 0
+    assert_same_datasets(saved.results, tmp_path / "cli.h5")  # bit for bit
+    assert main(["compare", str(saved.results)]) == 0  # plot and report read it with the same reader
+    with pytest.raises(FileExistsError, match="exists"):
+        session.save(tmp_path / "page.toml", tmp_path / "page.h5")
+
+
+def test_saving_without_replicates_writes_the_config_only(session, tmp_path):
+    saved = session.save(tmp_path / "c.toml", tmp_path / "c.h5")
+    assert saved.results is None and not (tmp_path / "c.h5").exists()
+    assert load_config(saved.config) == session.saved_config()
+
+
+@pytest.mark.parametrize("path", ["configs/demo.toml", "configs/cinderwort-ages.toml",
+                                  "configs/crevice-periwinkle.toml"])
+def test_toml_text_reads_back_to_the_same_config(path):
+    config = load_config(path)
+    assert parse_config(tomllib.loads(toml_text(config, header="a line"))) == config
+
+
+@pytest.mark.parametrize("density, closed", [
+    # B_i = 2, P = 0.5, c = 0.5 (DESIGN.md's worked example):
+    ({"form": "beverton-holt", "acts_on": "recruitment"}, 4.0),  # B_i / (1 - P), Mylius & Diekmann 1995
+    ({"form": "ricker", "acts_on": "fecundity"}, 4.0),
+    ({"form": "ceiling", "acts_on": "recruitment"}, 4.0),
+    ({"form": "beverton-holt", "acts_on": "all-survival"}, 3.0),  # B_i + P / c, Mylius & Diekmann 1995
+    ({"form": "ceiling", "acts_on": "all-survival"}, 3.0),
+    ({"form": "none"}, 3.0),  # Charnov & Schaffer 1973
+])
+def test_closed_form_threshold_against_the_numerical_one(density, closed):
+    config = make_config(density={"acts_on": None, **density},
+                         invasion={"resident_count": 50} if density["form"] == "none" else {})
+    form = closed_form_threshold(config)
+    assert form.value == pytest.approx(closed, rel=1e-12)
+    numeric = threshold(config, "allele.one-shot.fecundity")
+    assert numeric.converged and numeric.value == pytest.approx(form.value, abs=1e-8)
+
+
+def test_closed_form_on_adult_survival_and_where_none_applies():
+    # on adult survival the resident needs B_i c < 1: B_i = 1.5, P = 0.8, c = 0.5; threshold 1 / c
+    config = make_config(density={"acts_on": "adult-survival"}, allele=[
+        {"name": "perennial", "breeding": "iteroparous", "fecundity": 1.5, "adult_survival": 0.8,
+         "juvenile_survival": 0.5}, BASE["allele"][1]])
+    assert closed_form_threshold(config).value == 2.0
+    assert threshold(config, "allele.one-shot.fecundity").value == pytest.approx(2.0, abs=1e-8)
+    later = make_config(allele=[BASE["allele"][0], {**BASE["allele"][1], "maturity_age": 2,
+                                                    "adult_survival": 0.9}])
+    assert closed_form_threshold(later) is None
+
+
+def test_every_control_names_a_schema_key():
+    for c in controls():
+        section, name = c.key.split(".")
+        model = {"density": DensitySection, "experiment": ExperimentSection,
+                 "invasion": InvasionSection}.get(section, AlleleSection)
+        assert name in model.model_fields, c.key
+
+
+def test_lab_command_refuses_bad_input(tmp_path, capsys):
+    assert main(["lab", str(tmp_path / "missing.toml"), "--no-browser"]) == 2
+    assert "not found" in capsys.readouterr().err
+    raw = copy.deepcopy(BASE)
+    del raw["invasion"]
+    raw["allele"][0]["initial_count"] = 5
+    path = tmp_path / "plain.toml"
+    path.write_text(_plain_toml(raw))
+    assert main(["lab", str(path), "--no-browser"]) == 2
+    assert "needs an [invasion] table" in capsys.readouterr().err
+    with pytest.raises(SystemExit):
+        main(["lab", "--port", "70000"])
+    import socket
+
+    with socket.socket() as taken:
+        taken.bind(("127.0.0.1", 0))
+        taken.listen()
+        port = taken.getsockname()[1]
+        assert main(["lab", "--port", str(port), "--no-browser", "-o", str(tmp_path)]) == 2
+    assert f"--port {port}: cannot listen on 127.0.0.1" in capsys.readouterr().err
+
+
+def test_lab_command_serves_on_loopback_and_prints_the_address(tmp_path):
+    import json
+    import re
+    import subprocess
+    import sys
+    import urllib.request
+
+    from runs_support import ROOT, env
+
+    proc = subprocess.Popen([sys.executable, "-m", "sim", "lab", "configs/demo.toml", "--no-browser", "--port", "0",
+                             "-o", str(tmp_path)], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            cwd=ROOT, env=env())
+    try:
+        line = proc.stdout.readline()
+        url = re.search(r"http://127\.0\.0\.1:\d+/", line).group(0)
+        assert "<title>broodline lab</title>" in urllib.request.urlopen(url, timeout=30).read().decode()
+        view = json.loads(urllib.request.urlopen(url + "api/view", timeout=30).read())
+        assert view["mutant"] == "one-shot" and view["settings"]["density.capacity"] == 100.0
+    finally:
+        proc.terminate()
+        proc.wait(timeout=30)
+
+
+def test_the_finite_n_hook_reaches_the_page(session, monkeypatch):
+    import sys
+    import types
+
+    from analysis.lab.theory import FiniteN, page_theory
+
+    assert session.theory.finite_n is None or isinstance(session.theory.finite_n, FiniteN)
+    fake = types.ModuleType("analysis.fixation")
+    fake.finite_population_prediction = lambda config: types.SimpleNamespace(
+        fixation_probability=config.density.capacity / 1000, valid=True, fixation_probability_note="a note")
+    monkeypatch.setitem(sys.modules, "analysis.fixation", fake)
+    assert page_theory(session.config).finite_n == FiniteN(0.05, True, "a note")  # K = 50 in the base config
+
+    def refuse(config):
+        raise ValueError("no regulated census")
+
+    fake.finite_population_prediction = refuse
+    assert page_theory(session.config).finite_n.note == "no regulated census"

@@ -1,0 +1,142 @@
+"""The lab page in a real browser: headless Chromium driven by Playwright.
+
+Skipped, with the reason, where Playwright (the test extra) or Debian's
+chromium is missing. The page's numbers are checked against the same
+replicates run through the Python API; screenshots go to the test's tmp dir.
+"""
+
+import shutil
+
+import pytest
+from runs_support import assert_same_datasets, cli
+
+from analysis import predict, wilson_interval
+from analysis.lab import LabServer, LabSession
+from sim.config import load_config, parse_config, sweep_points
+from sim.experiment import run_experiment
+from sim.replicates import run_replicates
+from sim.store import read_replicates
+
+sync_api = pytest.importorskip("playwright.sync_api", reason="needs Playwright: pip install '.[test]'")
+CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
+pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="needs Debian's chromium: apt-get install chromium")
+# never let Playwright fetch a browser of its own; these flags keep the system one offline and quiet
+ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+        "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+IDLE = "document.querySelector('#status').dataset.running === 'false'"
+
+
+@pytest.fixture(scope="module")
+def browser():
+    with sync_api.sync_playwright() as p:
+        b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
+        yield b
+        b.close()
+
+
+@pytest.fixture
+def lab(tmp_path):
+    server = LabServer(LabSession(load_config("configs/demo.toml")), port=0, output=tmp_path).start()
+    yield server
+    server.close()
+
+
+@pytest.fixture
+def page(browser, lab):
+    page = browser.new_page(viewport={"width": 1300, "height": 900})
+    errors = []
+    page.on("pageerror", lambda err: errors.append(err))
+    page.goto(lab.url)
+    page.wait_for_selector("#th-fitness")
+    yield page
+    page.close()
+    assert errors == []
+
+
+def set_control(page, key: str, value: str) -> None:
+    selector = "#ctl-" + key.replace(".", "-")
+    if page.eval_on_selector(selector, "e => e.tagName") == "SELECT":
+        page.select_option(selector, value)
+    else:
+        page.fill(selector, value)
+        page.press(selector, "Tab")  # fires "change"
+
+
+def text(page, selector: str) -> str:
+    return page.inner_text(selector).strip()
+
+
+def test_the_page_runs_replicates_and_saves_what_broodline_runs(page, lab, tmp_path):
+    assert lab.url.startswith("http://127.0.0.1:")
+    # move controls: the theory panel follows
+    set_control(page, "mutant.fecundity", "5")
+    set_control(page, "experiment.replicates", "40")
+    page.wait_for_function("document.querySelector('#btn-replicates').textContent === '40 replicates'")
+    raw = load_config("configs/demo.toml").model_dump(exclude_none=True, exclude={"sweep"})
+    raw["allele"][1]["fecundity"], raw["experiment"]["replicates"] = 5.0, 40
+    config = parse_config(raw)
+    theory = predict(config)
+    assert text(page, "#th-fitness") == f"{theory.invasion_fitness:.4f}"
+    assert text(page, "#th-verdict") == theory.verdict == "invades"
+    assert text(page, "#th-establishment") == f"{theory.establishment_probability:.4f}"
+    assert text(page, "#th-closed").startswith("B_s* = B_i / (1 − P) = 2 / (1 − 0.5) = 4.0000")
+
+    # a refused value shows the schema's message beside its control and blocks the buttons
+    set_control(page, "mutant.juvenile_survival", "1.3")
+    page.wait_for_selector("#row-ctl-mutant-juvenile_survival.bad")
+    assert text(page, "#row-ctl-mutant-juvenile_survival .msg") == \
+        "allele[1].juvenile_survival must be in [0, 1]; got 1.3"
+    assert page.is_disabled("#btn-replicates")
+    set_control(page, "mutant.juvenile_survival", "0.5")
+    page.wait_for_function("!document.querySelector('#btn-replicates').disabled")
+
+    # seasons: the census of the open replicate
+    page.click("#btn-season")
+    page.click("#btn-season")
+    page.wait_for_function("document.querySelector('#census-title').textContent.includes('season 1')")
+    page.screenshot(path=str(tmp_path / "lab-season.png"))
+
+    # N replicates: the tally is the Python API's for the same keyed streams
+    page.click("#btn-replicates")
+    page.wait_for_function(IDLE + " && +document.querySelector('#tally-n').textContent >= 40", timeout=30000)
+    n = int(text(page, "#tally-n"))
+    results = run_replicates(sweep_points(config)[0], range(n), config.experiment.seed)
+    fixed = sum(r.outcome == "mutant-fixed" for r in results)
+    lost = sum(r.outcome == "mutant-lost" for r in results)
+    assert (int(text(page, "#tally-fixed")), int(text(page, "#tally-lost")),
+            int(text(page, "#tally-unresolved"))) == (fixed, lost, n - fixed - lost)
+    interval = wilson_interval(fixed, n)
+    assert (text(page, "#tally-low"), text(page, "#tally-high")) == (f"{interval.low:.3f}", f"{interval.high:.3f}")
+    assert page.locator("#chart-freq path.freq-line").count() == n
+    page.screenshot(path=str(tmp_path / "lab-replicates.png"))
+
+    # save: the TOML passes `broodline check`, and the replicates are the API's
+    page.fill("#save-name", "from-page")
+    page.click("#btn-save")
+    page.wait_for_selector("#save-msg[data-saved='true']")
+    toml, h5 = tmp_path / "from-page.toml", tmp_path / "from-page.h5"
+    check = cli("check", toml)
+    assert check.returncode == 0, check.stderr
+    saved = read_replicates(h5)
+    assert saved["outcome"].tolist() == [r.outcome for r in results]
+    run_experiment(load_config(toml), tmp_path / "run.h5", progress=False)
+    assert_same_datasets(h5, tmp_path / "run.h5")  # what `broodline run` of the saved config writes, bit for bit
+
+
+def test_stop_and_reset(page):
+    set_control(page, "density.capacity", "1000")
+    set_control(page, "experiment.replicates", "2000")
+    page.wait_for_function("document.querySelector('#btn-replicates').textContent === '2000 replicates'")
+    page.click("#btn-replicates")
+    page.wait_for_function("document.querySelector('#status').dataset.running === 'true'")
+    set_control(page, "mutant.fecundity", "3.5")  # a control moved while running: the run stops
+    page.wait_for_function(IDLE + " && document.querySelector('#tally-n').textContent === '0'")
+    assert text(page, "#th-verdict") == "does not invade"  # below the threshold 4 (Mylius & Diekmann 1995)
+    page.click("#btn-replicates")
+    page.wait_for_function("+document.querySelector('#tally-n').textContent > 0")
+    page.click("#btn-stop")
+    page.wait_for_function(IDLE)
+    assert 0 < int(text(page, "#tally-n")) < 2000
+    page.click("#btn-reset")
+    page.wait_for_function("document.querySelector('#tally-n').textContent === '0'")
+    assert page.locator("#chart-freq path.freq-line").count() == 0
