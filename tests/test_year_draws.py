@@ -285,3 +285,20 @@ def test_a_mutant_that_invades_in_constant_years_fails_in_varying_ones(capacity,
         low, high = _wilson(fixed, replicates)
         neutral = neutral_expectation(config)
         assert (low > neutral) if invades else (high < neutral), (invades, fixed, replicates, neutral)
+
+
+@pytest.mark.slow
+def test_observed_fixation_crosses_neutral_on_either_side_of_the_stochastic_threshold():
+    # Same case at K = 100: the stochastic threshold (analysis.stochastic.stochastic_threshold,
+    # mean-field resident path) is B_s = 5.34. Well below it (4.5, invasion fitness 0.84) the
+    # observed fixation is below the neutral expectation, well above it (6.5, fitness 1.2)
+    # above; Wilson intervals at the 0.1% level on each side (Wilson 1927).
+    from analysis.invasion import neutral_expectation
+
+    for fecundity, invades in [(4.5, False), (6.5, True)]:
+        config = _invasion(fecundity, True, capacity=100, replicates=800, seed=29)
+        results = run_replicates(sweep_points(config)[0], range(800), 29)
+        fixed = sum(r.outcome == "mutant-fixed" for r in results)
+        low, high = _wilson(fixed, 800)
+        neutral = neutral_expectation(config)
+        assert (low > neutral) if invades else (high < neutral), (fecundity, fixed, neutral)
