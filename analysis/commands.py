@@ -156,6 +156,11 @@ def cmd_compare(args) -> int:
 
 def _print_compare(table, thresholds) -> None:
     from .comparison import SHOWN_COLUMNS
+    from .varying_years import STOCHASTIC_COLUMNS
+
+    if "environment" in table:  # year types: said once; their standard errors are in --json
+        print(f"environment: {table['environment'].iloc[0]}\nprediction: stochastic theory")
+        table = table.drop(columns=[c for c in STOCHASTIC_COLUMNS if c in table])
 
     swept = [
         c

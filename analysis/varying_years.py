@@ -34,9 +34,16 @@ from .stochastic import (
 )
 from .thresholds import ThresholdResult, _default_bracket, _setting, with_values
 
-__all__ = ["YEAR_DRAWS", "THEORY_STREAM", "year_draws", "stochastic_prediction",
+__all__ = ["STOCHASTIC_COLUMNS", "YEAR_DRAWS", "THEORY_STREAM", "year_draws", "stochastic_prediction",
            "stochastic_threshold_result", "year_spans"]
 
+# what a prediction adds to analysis.sweep.PREDICTION_COLUMNS in a variable environment
+STOCHASTIC_COLUMNS = (
+    "invasion_fitness_se", "log_invasion_fitness_se", "stochastic_growth_rate",
+    "stochastic_growth_rate_se", "small_noise_approximation", "resident_stochastic_growth_rate",
+    "resident_stochastic_growth_rate_se", "resident_small_noise_approximation",
+    "establishment_probability_se", "prediction", "environment",
+)
 YEAR_DRAWS = {"n_batches": 20, "batch_length": 1000, "burn_in": 200}
 THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apart from any run's
 

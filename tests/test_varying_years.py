@@ -97,3 +97,23 @@ def test_a_constant_config_keeps_its_columns():
     del raw["environment"], raw["sweep"]
     table = predict_configs([parse_config(raw)])
     assert "stochastic_growth_rate" not in table and "prediction" not in table
+
+
+def test_compare_reads_the_stochastic_prediction(tmp_path, capsys):
+    from sim.experiment import run_experiment
+
+    raw = copy.deepcopy(RAW)
+    raw["experiment"] = {"seed": 3, "replicates": 6, "max_steps": 200, "engine": "counts"}
+    raw["density"] = {"form": "beverton-holt", "acts_on": "recruitment", "capacity": 20}
+    del raw["invasion"]["resident_count"]
+    out = tmp_path / "env.h5"
+    run_experiment(parse_config(raw), out, progress=False)
+    assert main(["compare", str(out), "--json"]) == 0
+    result = json.loads(capsys.readouterr().out)
+    assert [p["prediction"] for p in result["points"]] == ["stochastic", "stochastic"]
+    assert all(p["stochastic_growth_rate_se"] > 0 and p["invasion_fitness_se"] > 0 for p in result["points"])
+    # the verdict is the stochastic one: B_s = 3 and 6 around the threshold 5.34 (K = 20 or any K:
+    # the mean-field path scales with K under Beverton-Holt)
+    assert [p["verdict"] for p in result["points"]] == ["does not invade", "invades"]
+    assert main(["compare", str(out)]) == 0
+    assert "prediction: stochastic theory" in capsys.readouterr().out
