@@ -66,7 +66,6 @@ class SeasonYears:
         self.rngs = list(rngs)
         self.shared = n_replicates is not None
         self.n_active = n_replicates if self.shared else len(self.rngs)
-        self._which = np.arange(len(self.rngs))  # stream of each active replicate
         self._state = None  # last year type of each stream (markov)
         self._uniforms = np.empty((len(self.rngs), 0))
         self._used = 0
@@ -98,8 +97,7 @@ class SeasonYears:
         u = self._uniforms[:, self._used]
         self._used += 1
         self._state = _next_years(self.years, u, self._state)
-        self.current = self._state[self._which] if not self.shared \
-            else np.repeat(self._state, self.n_active)
+        self.current = np.repeat(self._state, self.n_active) if self.shared else self._state
         return self.table[self.current]
 
     def keep(self, which) -> None:
@@ -113,7 +111,6 @@ class SeasonYears:
         self._uniforms = self._uniforms[which]
         if self._state is not None:
             self._state = self._state[which]
-        self._which = np.arange(len(self.rngs))
 
 
 def _next_years(years: YearTypes, u: np.ndarray, previous: np.ndarray | None) -> np.ndarray:
