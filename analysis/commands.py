@@ -224,9 +224,16 @@ def cmd_threshold(args) -> int:
     from .comparison import theory_table_text, threshold_lines
     from .fixation import shown_finite_columns  # the finite-N columns in short, notes below
 
-    points, notes = shown_finite_columns(result["points"])
+    points = result["points"]
+    if "environment" in points:  # year types: say once what they are and which theory spoke
+        print(f"environment: {points['environment'].iloc[0]}")
+        print("prediction: stochastic theory (invasion fitness = exp of the mutant's long-run "
+              "growth rate in the resident's fluctuating environment; SE from batch means)")
+        points = points.drop(columns=["environment", "prediction"])
+    points, notes = shown_finite_columns(points)
     print(theory_table_text(points))
-    print(notes)
+    if notes:
+        print(notes)
     if result["thresholds"]:
         print("\nthresholds:")
         for line in threshold_lines(config, result["thresholds"]):
@@ -279,6 +286,11 @@ def cmd_compare(args) -> int:
 
 def _print_compare(table, thresholds) -> None:
     from .comparison import compare_text
+    from .varying_years import STOCHASTIC_COLUMNS
+
+    if "environment" in table:  # year types: said once; their standard errors are in --json
+        print(f"environment: {table['environment'].iloc[0]}\nprediction: stochastic theory")
+        table = table.drop(columns=[c for c in STOCHASTIC_COLUMNS if c in table])
 
     print(compare_text(table, thresholds))
 

@@ -285,6 +285,9 @@ def _default_prediction(row: dict):
     u = row.get("fixation_probability", float("nan"))
     if bool(row.get("fixation_probability_valid", False)) and np.isfinite(u):
         return PredictedFixation(float(u), name=FINITE_PREDICTION)
+    if row.get("prediction") == "stochastic":  # year types: the verdict of the stochastic theory
+        return SideOfNeutral(row["verdict"], row["neutral_expectation"],
+                             name="side of the neutral expectation (stochastic invasion fitness)")
     return SideOfNeutral(row["verdict"], row["neutral_expectation"])
 
 

@@ -512,6 +512,8 @@ def shown_finite_columns(points):
     finite-N columns dropped, and a text listing each distinct note with its points.
     """
     table = points.copy()
+    if "fixation_probability_valid" not in table:  # e.g. the stochastic theory's rows: none to show
+        return table, ""
     valid = table.pop("fixation_probability_valid").astype(bool)
     u = table.pop("fixation_probability")
     table["finite_N"] = [f"{x:.4g}" if ok else f"({x:.4g})" for x, ok in zip(u, valid)]

@@ -45,6 +45,10 @@ PREDICTION_COLUMNS = [
 
 
 def _row(config: Config) -> dict:
+    if config.environment is not None:  # year types: the stochastic theory
+        from .varying_years import stochastic_prediction
+
+        return {**stochastic_prediction(config), "problem": ""}
     try:
         p = predict(config).as_dict()
         p["problem"] = (
@@ -67,9 +71,9 @@ def predict_configs(configs) -> pd.DataFrame:
     A point where the resident has no equilibrium gets nan values, verdict
     "undefined" and the reason in ``problem``.
     """
-    return pd.DataFrame(
-        [_row(c) for c in configs], columns=[*PREDICTION_COLUMNS, *FINITE_COLUMNS, "problem"]
-    )
+    rows = [_row(c) for c in configs]
+    extra = list(dict.fromkeys(k for r in rows for k in r if k not in PREDICTION_COLUMNS and k != "problem"))
+    return pd.DataFrame(rows, columns=[*PREDICTION_COLUMNS, *extra, "problem"])
 
 
 def predict_sweep(config: Config) -> pd.DataFrame:
@@ -135,6 +139,12 @@ def sweep_thresholds(config: Config, *, parameters=None, bracket=None) -> list[T
             if bracket is None and own is not None:
                 values = [float(v) for v in own.values[path]]
                 this = (min(values), max(values))
-            result = threshold(base, path, bracket=this, group=own if own is not None and own.linked else None)
+            group = own if own is not None and own.linked else None
+            if base.environment is not None:  # year types: the stochastic threshold
+                from .varying_years import stochastic_threshold_result
+
+                result = stochastic_threshold_result(base, path, bracket=this, group=group)
+            else:
+                result = threshold(base, path, bracket=this, group=group)
             out.append(ThresholdResult(**{**result.__dict__, "at": at}))
     return out

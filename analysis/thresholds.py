@@ -65,6 +65,9 @@ class ThresholdResult:
     linked : dict
         Along a ``[[sweep.linked]]`` group: the other members' values at the
         threshold (``parameter`` is the group's axis); empty otherwise.
+    standard_error : float
+        In a variable environment, the threshold's standard error from the
+        year sampling (``analysis.varying_years``); nan otherwise.
     """
 
     parameter: str
@@ -77,12 +80,15 @@ class ThresholdResult:
     message: str
     at: dict = field(default_factory=dict)
     linked: dict = field(default_factory=dict)
+    standard_error: float = float("nan")
 
     def as_dict(self) -> dict:
         d = asdict(self)
         d["bracket"], d["fitness_at_bracket"] = list(self.bracket), list(self.fitness_at_bracket)
         if not self.linked:  # the key appears only for a threshold along a linked group
             del d["linked"]
+        if math.isnan(self.standard_error):  # only in a variable environment
+            del d["standard_error"]
         return d
 
 

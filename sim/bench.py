@@ -23,6 +23,11 @@ the ``tracemalloc`` size of the model once built), and the peak during a
 season (that state plus the ``tracemalloc`` peak of what one more season
 allocates), each divided by the census size.
 
+The variable-environment case times the ``individual`` engine at N = 1e6 (or
+the largest N run) with two equally likely year types (juvenile survival x1.2
+and x0.8, drawn independently each season), against the floor and against
+the constant environment measured at the same N in the same run.
+
 The small-population experiment times a whole invasion experiment at K = 200
 (one mutant, to fixation, every season recorded) through
 ``replicates.run_replicates`` on one worker, batched, against the rate of the
@@ -49,6 +54,8 @@ __all__ = [
     "BenchRecord",
     "BenchReport",
     "ExperimentRecord",
+    "EnvironmentRecord",
+    "BENCH_YEARS",
     "bench_config",
     "format_report",
     "run_bench",
@@ -93,6 +100,18 @@ class ExperimentRecord:
 
 
 @dataclass
+class EnvironmentRecord:
+    """The individual engine with an iid two-year-type environment, at one census size."""
+
+    census_size: int
+    individual_steps_per_s: float
+    ratio_to_floor: float
+    ratio_to_constant: float
+    seasons: int
+    wall_s: float
+
+
+@dataclass
 class BenchReport:
     """Everything one ``run_bench`` measured."""
 
@@ -101,6 +120,7 @@ class BenchReport:
     seasons: int = 0
     min_time: float = 0.0
     reference_size: int | None = None  # N of the individual rate the experiment is set against
+    environment: EnvironmentRecord | None = None
     memory_method: str = MEMORY_METHOD
 
     def to_records(self) -> list[dict]:
@@ -115,32 +135,41 @@ class BenchReport:
                         "replicates": e.replicates, "replicate_seasons": e.replicate_seasons,
                         "ratio_to_individual": e.ratio_to_individual,
                         "reference_size": self.reference_size, "wall_s": e.wall_s})
+        if self.environment is not None:
+            e = self.environment
+            out.append({"engine": "individual, iid years", "kind": "environment",
+                        "ratio_to_agents": None, "bytes_per_individual": None,
+                        "peak_bytes_per_individual": None, **asdict(e)})
         return out
 
 
 CARE = {"orphan_survival": 0.3, "brood_effect": "exponential", "brood_scale": 8.0}
 CARE_ENGINE = "care"  # the individual engine with CARE on both alleles (a row of the table)
+BENCH_YEARS = {"switching": "iid", "year": [
+    {"name": "good", "probability": 0.5, "juvenile_survival": 1.2},
+    {"name": "bad", "probability": 0.5, "juvenile_survival": 0.8}]}
 
 
 def bench_config(census_size: int, *, engine: str = "individual", mutant_count: int | None = None,
                  replicates: int = 1, seed: int = 20261202, record_every: int = 1,
-                 care: bool = False) -> Config:
+                 care: bool = False, years: bool = False) -> Config:
     """The benchmark's model at equilibrium census ``census_size`` (K = N); with ``care``, both
     alleles also have orphan survival 0.3 and an exponential brood effect (h = 8), and K is
-    scaled so that the resident's equilibrium census is still N."""
+    scaled so that the resident's equilibrium census is still N; ``years``: with the iid
+    two-year-type environment ``BENCH_YEARS``."""
     config = _bench_config(census_size, census_size, engine, mutant_count, replicates, seed,
-                           record_every, CARE if care else {})
+                           record_every, CARE if care else {}, years)
     if not care:
         return config
     equilibrium = solve_equilibrium(config.schedules()[0], config.density_dependence(),
                                     offspring=config.offspring_distribution()).census_size
     return _bench_config(census_size, census_size**2 / equilibrium, engine, mutant_count,
-                         replicates, seed, record_every, CARE)
+                         replicates, seed, record_every, CARE, years)
 
 
 def _bench_config(census_size, capacity, engine, mutant_count, replicates, seed, record_every,
-                  extra) -> Config:
-    return parse_config({
+                  extra, years=False) -> Config:
+    return parse_config({**({"environment": BENCH_YEARS} if years else {}),
         "experiment": {"name": f"bench-{census_size}", "engine": engine, "seed": seed,
                        "replicates": replicates, "max_steps": 5000, "stop": "fixation",
                        "record_every": record_every, "max_population": 4_000_000_000},
@@ -331,6 +360,8 @@ def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, min_time: float = 1.0,
                 r.ratio_to_agents = r.individual_steps_per_s / agents.individual_steps_per_s
         records += rows
     report = BenchReport(records=records, seasons=seasons, min_time=min_time)
+    if records:
+        report.environment = _time_environment(records, seasons, seed, min_time, say)
     if replicates > 0:
         for engine in ("individual", "counts"):
             say(f"{engine}, {replicates} replicates at K = {capacity}, batched")
@@ -347,6 +378,21 @@ def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, min_time: float = 1.0,
             for e in report.experiment:
                 e.ratio_to_individual = e.individual_steps_per_s / ref.individual_steps_per_s
     return report
+
+
+def _time_environment(records, seasons, seed, min_time, say) -> EnvironmentRecord:
+    """The individual engine in the iid two-year-type environment at N = 1e6 (else the largest N)."""
+    sizes = sorted({r.census_size for r in records})
+    n = REFERENCE_SIZE if REFERENCE_SIZE in sizes else sizes[-1]
+    constant = next(r for r in records if r.engine == "individual" and r.census_size == n)
+    floor = next(r for r in records if r.engine == "floor" and r.census_size == n)
+    say(f"individual with two year types, N = {n}")
+    wall, trace, _, _ = _time_engine(bench_config(n, years=True), seasons, seed, min_time)
+    rate = sum(trace) / wall if wall > 0 else float("inf")
+    return EnvironmentRecord(census_size=n, individual_steps_per_s=rate,
+                             ratio_to_floor=rate / floor.individual_steps_per_s,
+                             ratio_to_constant=rate / constant.individual_steps_per_s,
+                             seasons=len(trace), wall_s=wall)
 
 
 # -- output --------------------------------------------------------------------------------
@@ -392,4 +438,11 @@ def format_report(report: BenchReport) -> str:
                          f"{e.individual_steps_per_s:>14.3g}{_num(e.ratio_to_individual, '.3g'):>14}")
         if report.reference_size:
             lines.append(f"x individual: against the individual engine at N = {report.reference_size:,}.")
+    if report.environment is not None:
+        e = report.environment
+        lines += ["", (f"Variable environment (two year types, juvenile survival x1.2 or x0.8, iid), "
+                       f"individual engine at N = {e.census_size:,}:"),
+                  f"{'ind-steps/s':>14}{'x floor':>10}{'x constant':>12}",
+                  f"{e.individual_steps_per_s:>14.3g}{e.ratio_to_floor:>10.3g}{e.ratio_to_constant:>12.3g}",
+                  "x constant: against the same engine without an environment, same N, same run."]
     return "\n".join(lines)

@@ -5,12 +5,14 @@ from __future__ import annotations
 import numpy as np
 
 from .aggregation import counts_obstacles
+from . import vocabulary as words
 from .config import Config, ConfigError, sweep_factors, sweep_points, swept_values
 from .density import Factors
 from .lifecycle import initial_census
 from .meanfield import growth_rate
 
-__all__ = ["BUDGET", "ConfigWarning", "config_warnings", "describe_experiment", "preflight", "counts_engine_note"]
+__all__ = ["BUDGET", "ConfigWarning", "config_warnings", "describe_experiment", "describe_environment",
+           "preflight", "counts_engine_note"]
 
 
 class ConfigWarning(UserWarning):
@@ -134,6 +136,27 @@ def _census_problems(config: Config, census: np.ndarray) -> list[str]:
     return []
 
 
+def describe_environment(config: Config) -> str:
+    """The environment in words: constant, or its year types, multipliers and how they follow."""
+    env = config.environment
+    if env is None:
+        return "constant (every season alike)"
+    types = []
+    for y in env.year:
+        changed = [f"{key.replace('_', ' ')} x{getattr(y, key):g}" for key in words.YEAR_MULTIPLIERS
+                   if getattr(y, key) != 1.0]
+        chance = f" (probability {y.probability:g})" if y.probability is not None else ""
+        types.append(f"{y.name}{chance}: " + (", ".join(changed) or "rates as given"))
+    if env.switching == "iid":
+        law = "each season's year type drawn independently"
+    else:
+        law = (f"year types follow a Markov chain (transitions {env.transitions}), the first "
+               + ("from its stationary law" if env.start == words.STATIONARY else f"a {env.start!r} year"))
+    shared = "; all replicates of a point live through one sequence" if env.shared_years else \
+        "; each replicate draws its own sequence"
+    return f"{len(env.year)} year types, {law}{shared}: " + "; ".join(types)
+
+
 def describe_experiment(config: Config, *, budget: bool = True) -> str:
     """The experiment as resolved: alleles and schedules, density, sweep points, total work."""
     import warnings
@@ -152,6 +175,7 @@ def describe_experiment(config: Config, *, budget: bool = True) -> str:
         "mutation: " + ("none" if not config.mutation_model().active else
                         (f"rate {config.mutation.rate:g} per offspring" if config.mutation.matrix is None
                          else "by matrix")),
+        "environment: " + describe_environment(config),
         "alleles (m(a) fecundity and s(a) survival by census age 1, 2, ...; last age a plus-group):",
     ]
     for a, s in zip(config.allele, config.schedules()):

@@ -22,7 +22,7 @@ Seams (documented in DEVELOPERS.md)
 -----------------------------------
 ``multipliers(factors, year=...)`` is where a year's multipliers on
 fecundity, adult survival and juvenile survival join the density factors,
-per replicate (not built yet); ``recruitment(factors, parent_survived=...,
+per replicate (variable environments, ``sim.years``); ``recruitment(factors, parent_survived=...,
 brood=...)`` is where a young's recruitment depends on its parent's fate
 (c_care or c_orphan) and brood size (x exp(-(b - 1) / h)), from the
 alleles' ``sim.care.ParentalCare``; a trade-off curve for effort alleles is
@@ -178,14 +178,29 @@ class SeasonKernel:
     def multipliers(self, factors: Factors, *, year=None) -> Factors:
         """The season's multipliers on fecundity, adult survival and recruitment.
 
-        Today the density factors themselves. Seam for variable environments:
-        ``year`` (multipliers on fecundity, adult survival and juvenile
-        survival, one per replicate) multiplies the allele's rates before the
-        density factors apply; the compiled passes already take one multiplier
-        per replicate.
+        Parameters
+        ----------
+        factors : Factors
+            The density factors (numbers, or one per replicate).
+        year : array_like, shape (3,) or (n_replicates, 3), optional
+            The year's multipliers on (fecundity, adult survival, juvenile
+            survival) (a row of ``sim.years.YearTypes.multipliers``, one per
+            replicate); None in a constant environment.
+
+        Returns
+        -------
+        Factors
+            The density factors, times the year's multipliers: a year
+            multiplies every allele's m(a), s(a) and c, then density acts.
         """
-        assert year is None, "year types are not part of the model yet"
-        return factors
+        if year is None:
+            return factors
+        year = np.asarray(year, dtype=float)
+        if year.ndim == 1:
+            return Factors(*(float(f) * float(y) for f, y in zip(factors, year)))
+        # contiguous float arrays: what the compiled passes take
+        return Factors(*(np.ascontiguousarray(np.asarray(f, dtype=float) * year[:, k])
+                         for k, f in enumerate(factors)))
 
     def recruitment(self, factors: Factors, *, parent_survived=None, brood=None):
         """Probability that each offspring of each class recruits at age 1.

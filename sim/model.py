@@ -8,6 +8,7 @@ import numpy as np
 from .config import Config
 from .engines import ENGINES
 from .lifecycle import LifeCycle, initial_census
+from .year_draws import YEAR_STREAM, SeasonYears
 
 __all__ = ["BroodModel"]
 
@@ -23,9 +24,16 @@ class BroodModel(mesa.Model):
         Starting counts by (allele, age index); by default ``initial_census``.
     rng : numpy.random.Generator or seed
         The replicate's random stream (mesa keeps it as ``self.rng``).
+    years : sim.year_draws.SeasonYears, optional
+        Its year types season by season, where the config has an
+        ``[environment]``. By default they come from the stream keyed like
+        ``rng``'s SeedSequence with one more key entry, 1
+        (``sim.year_draws``): for ``replicate_rng(seed, i, r)`` the
+        replicate's own year stream, as in a run (shared years need
+        ``sim.replicates``).
     """
 
-    def __init__(self, config: Config, census: np.ndarray | None = None, *, rng=None):
+    def __init__(self, config: Config, census: np.ndarray | None = None, *, rng=None, years=None):
         rng = np.random.default_rng(rng)
         state = rng.bit_generator.state
         super().__init__(rng=rng)
@@ -33,6 +41,9 @@ class BroodModel(mesa.Model):
         # engine's draws are the replicate's stream from its start on every mesa version
         rng.bit_generator.state = state
         self.config = config
+        if years is None and config.environment is not None:
+            years = _own_years(config, rng)
+        self.years = years
         self.life = LifeCycle.from_config(config)
         start = initial_census(config, self.life) if census is None else np.asarray(census)
         self.season = 0  # counted here: mesa 3.3 has no model.time
@@ -46,3 +57,12 @@ class BroodModel(mesa.Model):
     def census(self) -> np.ndarray:
         """Counts by (allele, age index) at this season's census."""
         return self.engine.census()
+
+
+def _own_years(config: Config, rng: np.random.Generator) -> SeasonYears:
+    seq = rng.bit_generator.seed_seq
+    if not isinstance(seq, np.random.SeedSequence):
+        raise ValueError("years: a config with [environment] needs the replicate's year draws "
+                         "(sim.year_draws.SeasonYears) when rng is not built from a SeedSequence")
+    stream = np.random.SeedSequence(seq.entropy, spawn_key=(*seq.spawn_key, YEAR_STREAM))
+    return SeasonYears(config.year_types(), [np.random.default_rng(stream)])

@@ -26,6 +26,7 @@ from .lifecycle import LifeCycle, initial_census
 from .model import BroodModel
 from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, classify
 from .streams import keyed_generators
+from .year_draws import SeasonYears
 
 __all__ = ["ReplicateResult", "replicate_rng", "run_replicates", "run_replicate"]
 
@@ -46,6 +47,7 @@ class ReplicateResult:
     final_census: int
     record_steps: np.ndarray  # (n_records,)
     trajectory: np.ndarray  # (n_records, n_alleles, n_ages) uint32
+    years: np.ndarray | None = None  # year type of seasons 1..steps (uint8); None: constant
 
 
 def replicate_rng(seed: int, point: int, replicate: int) -> np.random.Generator:
@@ -61,8 +63,9 @@ def replicate_rng(seed: int, point: int, replicate: int) -> np.random.Generator:
 class _Models:
     """Replicates of an engine without a batch form, one ``BroodModel`` each, as a batch."""
 
-    def __init__(self, config, rngs):
-        self.models = [BroodModel(config, rng=rng) for rng in rngs]
+    def __init__(self, config, rngs, years=None):
+        years = [None] * len(rngs) if years is None else years
+        self.models = [BroodModel(config, rng=rng, years=y) for rng, y in zip(rngs, years, strict=True)]
 
     def step(self) -> None:
         for model in self.models:
@@ -73,6 +76,10 @@ class _Models:
 
     def keep(self, which: np.ndarray) -> None:
         self.models = [m for m, k in zip(self.models, which, strict=True) if k]
+
+    @property
+    def year_now(self) -> np.ndarray:
+        return np.concatenate([m.years.current for m in self.models])
 
 
 class _Records:
@@ -96,6 +103,27 @@ class _Records:
         census = np.minimum(np.concatenate(self.census)[order], MAX_COUNT).astype(np.uint32)
         bounds = np.searchsorted(replicate[order], np.arange(n + 1))
         return [(steps[a:b], census[a:b]) for a, b in pairwise(bounds)]
+
+
+class _YearRecords:
+    """The year type of every season of a batch's replicates, split by replicate at the end."""
+
+    def __init__(self):
+        self.replicate, self.year = [], []
+
+    def add(self, replicates: np.ndarray, years: np.ndarray) -> None:
+        self.replicate.append(replicates)
+        self.year.append(years.astype(np.uint8))
+
+    def by_replicate(self, n: int) -> list[np.ndarray]:
+        """Each replicate's year types, seasons 1, 2, ... in order."""
+        if not self.replicate:
+            return [np.empty(0, dtype=np.uint8)] * n
+        replicate = np.concatenate(self.replicate)
+        order = np.argsort(replicate, kind="stable")
+        years = np.concatenate(self.year)[order]
+        bounds = np.searchsorted(replicate[order], np.arange(n + 1))
+        return [years[a:b] for a, b in pairwise(bounds)]
 
 
 @contextmanager
@@ -160,13 +188,19 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
         return []
     rngs = keyed_generators(seed, point.index, reps)  # replicate_rng's, built together
     engine = ENGINES[exp.engine]
+    years = config.year_types()  # None: a constant environment, no year stream at all
+    shared = years is not None and config.environment.shared_years
     if hasattr(engine, "populations"):
         life = LifeCycle.from_config(config)
         start = initial_census(config, life)
         batch = engine.populations(life, np.broadcast_to(start, (n, *start.shape)), rngs,
                                    limit=exp.max_population)
+        if years is not None:
+            batch.years = SeasonYears.for_replicates(years, seed, point.index, reps, shared=shared)
     else:
-        batch = _Models(config, rngs)
+        batch = _Models(config, rngs, None if years is None else [
+            SeasonYears.for_replicates(years, seed, point.index, [r], shared=shared) for r in reps])
+    year_records = None if years is None else _YearRecords()
 
     outcome = np.full(n, -1)  # codes into OUTCOMES
     steps, since_final, winner_final, final_census = (np.zeros(n, dtype=np.int64) for _ in range(4))
@@ -202,6 +236,9 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
             break
         batch.step()
         season += 1
+        if year_records is not None:
+            year_records.add(active, batch.year_now if isinstance(batch, _Models)
+                             else batch.years.current)
         census = batch.census()
         new_state, winner = classify(census.sum(axis=2), config)
         since = np.where(new_state != state, season, since)
@@ -217,9 +254,10 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
 
     out = []
     columns = (outcome.tolist(), winner_final.tolist(), steps.tolist(), since_final.tolist(),
-               final_census.tolist(), records.by_replicate(n))  # Python numbers: one conversion each
-    for i, (code, winner_i, steps_i, since_i, census_i, (record_steps, trajectory)) in enumerate(
-            zip(*columns, strict=True)):
+               final_census.tolist(), records.by_replicate(n),
+               [None] * n if year_records is None else year_records.by_replicate(n))
+    for i, (code, winner_i, steps_i, since_i, census_i, (record_steps, trajectory), years_i) in (
+            enumerate(zip(*columns, strict=True))):
         name = OUTCOMES[code]
         out.append(ReplicateResult(
             point=point.index,
@@ -232,5 +270,6 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
             final_census=census_i,
             record_steps=record_steps,
             trajectory=trajectory,
+            years=years_i,
         ))
     return out

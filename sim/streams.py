@@ -93,8 +93,13 @@ class _Seeded(ISeedSequence):
         return self.words.copy()
 
 
-def keyed_generators(seed: int, point: int, replicates) -> list[np.random.Generator]:
+def keyed_generators(seed: int, point: int, replicates, *, stream: int | None = None
+                     ) -> list[np.random.Generator]:
     """``default_rng(SeedSequence(seed, spawn_key=(point, r)))`` for each replicate r.
+
+    With ``stream`` the key is ``(point, r, stream)``: another stream of the
+    same replicate (its year sequence, ``sim.year_draws``), never one of the
+    demographic keys, which have two entries.
 
     Parameters
     ----------
@@ -105,16 +110,28 @@ def keyed_generators(seed: int, point: int, replicates) -> list[np.random.Genera
     replicates : sequence of int
         Replicate indices (>= 0).
 
+    stream : int, optional
+        A third key entry (>= 0, below 2^32).
+
     Returns
     -------
     list of numpy.random.Generator, one per replicate, in order.
     """
+    if stream is not None and not 0 <= stream <= _MASK:
+        raise ValueError(f"stream must be in [0, 2^32); got {stream}")
     reps = [int(r) for r in replicates]
     if not reps:
         return []
     if seed < 0 or not 0 <= point <= _MASK or min(reps) < 0 or max(reps) > _MASK:
         # outside the one-word keys written out above: numpy's own construction
-        return [np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(point, r))) for r in reps]
-    keys = np.empty((len(reps), 2), dtype=np.uint64)
+        return [np.random.default_rng(np.random.SeedSequence(seed, spawn_key=_key(point, r, stream)))
+                for r in reps]
+    keys = np.empty((len(reps), 2 if stream is None else 3), dtype=np.uint64)
     keys[:, 0], keys[:, 1] = point, reps
+    if stream is not None:
+        keys[:, 2] = stream
     return [np.random.Generator(np.random.PCG64(_Seeded(w))) for w in _seeding_words(seed, keys)]
+
+
+def _key(point: int, replicate: int, stream: int | None) -> tuple:
+    return (point, replicate) if stream is None else (point, replicate, stream)

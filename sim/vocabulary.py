@@ -11,6 +11,7 @@ This module imports nothing, so any module may import it.
 __all__ = [
     "ENGINES", "STOP_RULES", "TRAJECTORY_MODES", "DENSITY_FORMS", "PLACEMENTS", "COUNTED",
     "DISTRIBUTIONS", "BREEDING", "BROOD_EFFECTS", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED",
+    "SWITCHING", "STATIONARY", "YEAR_MULTIPLIERS",
 ]
 
 ENGINES = ("individual", "agents", "counts")
@@ -22,6 +23,12 @@ COUNTED = ("census", "breeders", "offspring")
 DISTRIBUTIONS = ("poisson", "fixed", "negative-binomial")
 BREEDING = ("semelparous", "iteroparous", "table")
 BROOD_EFFECTS = ("none", "exponential")  # a young's survival in a brood of b: x 1, x exp(-(b - 1) / h)
+
+# [environment]: how year types follow one another; ``start`` of a Markov chain is a year
+# name or STATIONARY; the multipliers a ``[[environment.year]]`` may give (default 1)
+SWITCHING = ("iid", "markov")
+STATIONARY = "stationary"
+YEAR_MULTIPLIERS = ("fecundity", "adult_survival", "juvenile_survival")
 
 # A replicate's outcome (the ``outcome`` column of /replicates). The order is the summary
 # table's column order.

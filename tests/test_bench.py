@@ -42,6 +42,9 @@ def test_bench_json_records(capsys):
         "individual (batched)", "counts (batched)", "individual (one replicate at a time)"]
     assert [r["replicates"] for r in experiment] == [30, 30, 5]
     assert all(r["census_size"] == 200 and r["ratio_to_individual"] > 0 for r in experiment)
+    years = [r for r in records if r["kind"] == "environment"]
+    assert len(years) == 1 and years[0]["census_size"] == 1000
+    assert years[0]["ratio_to_floor"] > 0 and years[0]["ratio_to_constant"] > 0
 
 
 def test_bench_table(capsys):
@@ -54,6 +57,7 @@ def test_bench_table(capsys):
     assert "care: the individual engine with orphan survival" in scale and "at N = 1,000" in scale
     assert all(len(r) == 7 for r in rows[1:]) and rows[0][-2] == "-"
     assert "individual (batched)" in experiment
+    assert "Variable environment (two year types" in experiment and "x constant" in experiment
 
 
 @pytest.mark.parametrize("argv, message", [

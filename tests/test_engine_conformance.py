@@ -100,6 +100,15 @@ SHARED_CONFIGS = {
                  "brood_effect": "exponential", "brood_scale": 8.0}],
         invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
     ),
+    "two year types (iid), beverton-holt on recruitment": _raw(
+        experiment={"max_steps": 12, "stop": "max-steps"},
+        density={"form": "beverton-holt", "acts_on": "recruitment", "capacity": 25},
+        invasion={"resident": "perennial", "mutant": "one-shot", "mutant_count": 6},
+        environment={"switching": "iid", "year": [
+            {"name": "good", "probability": 0.4, "juvenile_survival": 1.6, "fecundity": 1.2,
+             "adult_survival": 1.3},
+            {"name": "bad", "probability": 0.6, "juvenile_survival": 0.3, "adult_survival": 0.7}]},
+    ),
 }
 
 

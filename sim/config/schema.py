@@ -20,6 +20,7 @@ from ..density import DensityDependence
 from ..mutation import Mutation, uniform_mutation
 from ..offspring import make_offspring
 from ..schedules import Schedule, iteroparous, semelparous, table
+from ..years import YearType, YearTypes, scaled_schedule
 
 __all__ = [
     "MAX_COUNT",
@@ -35,6 +36,8 @@ __all__ = [
     "AlleleSection",
     "InvasionSection",
     "MutationSection",
+    "YearSection",
+    "EnvironmentSection",
     "SECTIONS",
     "check_sweep_path",
 ]
@@ -307,6 +310,82 @@ class MutationSection(_Section):
         return self
 
 
+class YearSection(_Section):
+    """``[[environment.year]]``: one year type and its multipliers on every allele's rates."""
+
+    name: str = Field(min_length=1)
+    """Unique name of the year type (sweep paths environment.year.NAME.KEY)."""
+    probability: Probability | None = None
+    """switching = "iid" only: the chance of this year type each season (the probabilities sum to 1)."""
+    fecundity: NonNegative = 1.0
+    """Multiplier on every allele's fecundity in such a year (before density factors)."""
+    adult_survival: NonNegative = 1.0
+    """Multiplier on every allele's survival in such a year; a product above 1 is refused."""
+    juvenile_survival: NonNegative = 1.0
+    """Multiplier on every allele's juvenile survival (and orphan survival) in such a year."""
+
+    def year_type(self) -> YearType:
+        return YearType(self.name, **{key: getattr(self, key) for key in words.YEAR_MULTIPLIERS})
+
+
+class EnvironmentSection(_Section):
+    """``[environment]``: named year types and how they follow one another."""
+
+    switching: Literal[words.SWITCHING] = "iid"
+    """iid: each season's year type drawn afresh; markov: drawn from the last one by transitions."""
+    start: str = words.STATIONARY
+    """switching = "markov" only: the first year type, from the stationary law or a year name."""
+    shared_years: bool = False
+    """true: all replicates of a sweep point live through one year sequence."""
+    transitions: list[list[Probability]] | None = None
+    """switching = "markov" only: row = this year type, column = next; rows sum to 1."""
+    year: list[YearSection] = Field(min_length=2)
+    """The year types, two or more ([[environment.year]])."""
+
+    @model_validator(mode="after")
+    def _consistent(self):
+        names = [y.name for y in self.year]
+        for i, name in enumerate(names):
+            if name in names[:i]:
+                raise ValueError(f"year[{i}].name: {name!r} is used twice")
+        given = [y.probability is not None for y in self.year]
+        if self.switching == "iid":
+            if not all(given):
+                raise ValueError(f"year[{given.index(False)}].probability: required for "
+                                 "switching = 'iid'")
+            total = sum(y.probability for y in self.year)
+            if abs(total - 1.0) > 1e-9:
+                raise ValueError(f"year.probability: the probabilities must sum to 1; got {total:.12g}")
+            if self.transitions is not None:
+                raise ValueError("transitions: only used by switching = 'markov'")
+            if self.start != words.STATIONARY:
+                raise ValueError("start: only used by switching = 'markov'")
+            return self
+        if any(given):
+            raise ValueError(f"year[{given.index(True)}].probability: not used by switching = "
+                             "'markov' (the transitions give the law)")
+        k, t = len(self.year), self.transitions
+        if t is None:
+            raise ValueError("transitions: required for switching = 'markov'")
+        if len(t) != k or any(len(row) != k for row in t):
+            raise ValueError(f"transitions: must be {k} x {k} (one row and column per year type)")
+        for i, row in enumerate(t):
+            if abs(sum(row) - 1.0) > 1e-9:
+                raise ValueError(f"transitions[{i}]: row must sum to 1; got {sum(row):.12g}")
+        if self.start != words.STATIONARY and self.start not in names:
+            raise ValueError(f"start: {words.STATIONARY!r} or a year name {names}; got {self.start!r}")
+        self.year_types()  # a chain without a unique stationary law is refused here
+        return self
+
+    def year_types(self) -> YearTypes:
+        """The ``YearTypes`` this section describes (the one place they are built from a config)."""
+        types = tuple(y.year_type() for y in self.year)
+        if self.switching == "iid":
+            return YearTypes(types, "iid", probabilities=tuple(y.probability for y in self.year))
+        return YearTypes(types, "markov", transitions=tuple(map(tuple, self.transitions)),
+                         start=self.start)
+
+
 class Config(_Section):
     """A whole experiment as written in TOML (the ``[sweep]`` table kept unexpanded)."""
 
@@ -322,6 +401,8 @@ class Config(_Section):
     """[invasion]: optional; a resident at equilibrium and a few mutants."""
     mutation: MutationSection = MutationSection()
     """[mutation]: per-offspring mutation between alleles."""
+    environment: EnvironmentSection | None = None
+    """[environment]: year types that differ (optional; without it every season is alike)."""
     sweep: dict[str, list[Any]] | None = None
     """[sweep]: optional; "PATH" = [values] (the cartesian product of the lists), and
     [[sweep.linked]] groups of lists read in step. PATH is allele.NAME.KEY or SECTION.KEY;
@@ -357,6 +438,11 @@ class Config(_Section):
                 for i, row in enumerate(q):
                     if abs(sum(row) - 1.0) > 1e-9:
                         problems.append(f"mutation.matrix[{i}]: row must sum to 1; got {sum(row):.12g}")
+        if self.environment is not None and self.sweep is None:
+            problems += _survival_in_years(self)  # (with a sweep: at each point, sweep_points)
+        if self.environment is not None and self.experiment.replicates > MAX_COUNT:
+            problems.append(f"experiment.replicates: at most {MAX_COUNT} with an [environment] "
+                            "(replicate indices key the year streams as one 32-bit word)")
         if self.sweep is not None:
             problems += _check_sweep(self)
         if self.experiment.engine == "counts":
@@ -390,6 +476,30 @@ class Config(_Section):
     def allele_index(self, name: str) -> int:
         return self.allele_names.index(name)
 
+    @model_serializer(mode="wrap")
+    def _without_absent_environment(self, handler):
+        # a config without [environment] dumps (and hashes) as it did before the section existed
+        data = handler(self)
+        if isinstance(data, dict) and data.get("environment", 0) is None:
+            del data["environment"]
+        return data
+
+    def year_types(self) -> YearTypes | None:
+        """The environment's year types, or None for a constant environment."""
+        return None if self.environment is None else self.environment.year_types()
+
+
+def _survival_in_years(config: Config) -> list[str]:
+    """An allele whose survival a year type pushes above 1 (``sim.years.scaled_schedule``)."""
+    problems = []
+    for schedule in config.schedules():
+        for year in config.environment.year:
+            try:
+                scaled_schedule(schedule, year.year_type())
+            except ValueError as err:
+                problems.append(f"environment.year.{year.name}: {err}; a survival must stay <= 1")
+    return problems
+
 
 # -- the [sweep] table --------------------------------------------------------------
 SECTIONS = {
@@ -398,6 +508,7 @@ SECTIONS = {
     "offspring": OffspringSection,
     "invasion": InvasionSection,
     "mutation": MutationSection,
+    "environment": EnvironmentSection,
 }
 
 
@@ -412,17 +523,32 @@ def check_sweep_path(config: Config, path: str) -> str | None:
         if parts[2] == "name" or parts[2] not in AlleleSection.model_fields:
             return f"allele has no sweepable key {parts[2]!r}{suggest(parts[2], AlleleSection)}"
         return None
+    if parts[:2] == ["environment", "year"]:
+        return _check_year_path(config, parts)
     if parts[0] not in SECTIONS or len(parts) != 2:
-        return ("a path reads SECTION.KEY or allele.NAME.KEY "
-                "(sections: experiment, density, offspring, invasion, mutation)")
+        return ("a path reads SECTION.KEY, allele.NAME.KEY or environment.year.NAME.KEY "
+                "(sections: experiment, density, offspring, invasion, mutation, environment)")
     section = SECTIONS[parts[0]]
     if parts[1] not in section.model_fields:
         return f"[{parts[0]}] has no key {parts[1]!r}{suggest(parts[1], section)}"
-    if parts[0] == "invasion" and config.invasion is None:
-        return "the config has no [invasion] table"
+    if parts[0] in ("invasion", "environment") and getattr(config, parts[0]) is None:
+        return f"the config has no [{parts[0]}] table"
     if path in ("experiment.seed", "experiment.replicates", "experiment.engine", "experiment.name",
                 "experiment.trajectory"):
         return "is set once per experiment and cannot be swept"
+    return None
+
+
+def _check_year_path(config: Config, parts: list[str]) -> str | None:
+    if config.environment is None:
+        return "the config has no [environment] table"
+    if len(parts) != 4:
+        return "a year path reads environment.year.NAME.KEY"
+    names = [y.name for y in config.environment.year]
+    if parts[2] not in names:
+        return f"no year type is named {parts[2]!r} (year types: {names})"
+    if parts[3] == "name" or parts[3] not in YearSection.model_fields:
+        return f"a year type has no sweepable key {parts[3]!r}{suggest(parts[3], YearSection)}"
     return None
 
 

@@ -1,7 +1,8 @@
 """Sweep paths: read a path, write a path, expand ``[sweep]`` into points.
 
 A path names one key of a config: ``SECTION.KEY`` (``density.capacity``) or
-``allele.NAME.KEY`` (``allele.one-shot.fecundity``). ``[sweep]`` maps paths to
+``allele.NAME.KEY`` (``allele.one-shot.fecundity``) or
+``environment.year.NAME.KEY`` (``environment.year.harsh.juvenile_survival``). ``[sweep]`` maps paths to
 lists of values; each plain key is a factor, each ``[[sweep.linked]]`` group
 one factor whose lists advance together. The simulator (``sweep_points``) and
 the analysis layer (thresholds, comparisons, figures) read sweeps only
@@ -116,6 +117,12 @@ def set_path(raw: dict, path: str, value) -> None:
                 allele[parts[2]] = value
                 return
         raise KeyError(path)
+    if parts[:2] == ["environment", "year"]:
+        for year in raw["environment"]["year"]:
+            if year.get("name") == parts[2]:
+                year[parts[3]] = value
+                return
+        raise KeyError(path)
     raw.setdefault(parts[0], {})[parts[1]] = value
 
 
@@ -187,6 +194,8 @@ def get_path(config: Config, path: str):
     parts = path.split(".")
     if parts[0] == "allele":
         return getattr(config.allele[config.allele_index(parts[1])], parts[2])
+    if parts[:2] == ["environment", "year"]:
+        return getattr(next(y for y in config.environment.year if y.name == parts[2]), parts[3])
     return getattr(getattr(config, parts[0]), parts[1])
 
 

@@ -86,14 +86,16 @@ class AgentsEngine:
     def step(self) -> None:
         kernel = self.kernel
         adults = list(self.model.agents)
+        # 0. this season's year type (its multipliers; None in a constant environment)
+        year = None if self.model.years is None else self.model.years.advance()[0]
         # 1. density index from the census (where D counts births, after 2.)
-        f = kernel.multipliers(kernel.census_factors(self.census()))
+        f = kernel.multipliers(kernel.census_factors(self.census()), year=year)
         rates = kernel.rates(f)
         # 2. breeding
         for agent in adults:
             agent.breed(rates)
         if kernel.counted_after_breeding:
-            f = kernel.multipliers(kernel.birth_factors(sum(a.births for a in adults)))
+            f = kernel.multipliers(kernel.birth_factors(sum(a.births for a in adults)), year=year)
             rates = kernel.rates(f)
         # 3. survival (independent of the brood) and 4. recruitment, by the parent's fate and brood
         survivors, newborn = [], []

@@ -57,7 +57,15 @@ class ReplicateBatch:
         ``experiment.max_population``: a replicate whose census passes it in a
         season (before a ceiling's removal) is not built (the run stops it as
         capped), so no array is sized by an exploding population.
+
+    Attributes
+    ----------
+    years : sim.year_draws.SeasonYears or None
+        Set by the caller in a variable environment: each replicate's year
+        type, drawn at the start of every season from its own year stream.
     """
+
+    years = None
 
     def __init__(self, life: LifeCycle, census: np.ndarray, rngs, *, limit: int | None = None):
         self.limit = np.inf if limit is None else limit
@@ -86,6 +94,8 @@ class ReplicateBatch:
         which = np.asarray(which, dtype=bool)
         self.rngs, self.bitgens = self.rngs[which], self.bitgens[which]
         self.counts, self.recruits = self.counts[which], self.recruits[which]
+        if self.years is not None:
+            self.years.keep(which)
 
     # -- steps 1 and 2: density, and births where D counts them -------------------------
     def open_season(self) -> tuple[np.ndarray | None, Factors]:
@@ -95,15 +105,18 @@ class ReplicateBatch:
         elsewhere they are not needed and None is returned for them.
         """
         kernel, counts = self.kernel, self.counts
+        year = None if self.years is None else self.years.advance()
         if not kernel.counted_after_breeding:
-            return None, kernel.multipliers(kernel.census_factors(counts, len(counts)))
-        births = self.births()
-        return births, kernel.multipliers(kernel.birth_factors(births.sum(axis=1).astype(float)))
+            return None, kernel.multipliers(kernel.census_factors(counts, len(counts)), year=year)
+        births = self.births(None if year is None else year[:, 0])
+        return births, kernel.multipliers(kernel.birth_factors(births.sum(axis=1).astype(float)),
+                                          year=year)
 
     # Draws go class by class across the batch, each replicate from its own generator;
     # within a replicate they come in the same order whatever its batch.
-    def births(self) -> np.ndarray:
-        """Offspring born to each class, (n_replicates, n_classes) (drawn where D counts them)."""
+    def births(self, year_fecundity=None) -> np.ndarray:
+        """Offspring born to each class, (n_replicates, n_classes) (drawn where D counts them);
+        ``year_fecundity``: each replicate's year multiplier on fecundity (None: 1)."""
         counts, rngs = self.counts, self.rngs
         out = np.zeros(counts.shape, dtype=np.int64)
         if self.kernel.parental:  # brood sizes kept for ``parental_recruits``
@@ -115,8 +128,10 @@ class ReplicateBatch:
             return out
         draw = self.life.offspring.draw_total
         for c, _, fecundity, _ in self.kernel.breeders:
-            out[:, c] = [int(draw(n, min(fecundity, DRAW_LIMIT / n), g)) if n else 0
-                         for n, g in zip(counts[:, c].tolist(), rngs)]
+            means = [fecundity] * len(rngs) if year_fecundity is None \
+                else (fecundity * year_fecundity).tolist()
+            out[:, c] = [int(draw(n, min(m, DRAW_LIMIT / n), g)) if n else 0
+                         for n, m, g in zip(counts[:, c].tolist(), means, rngs)]
         return out
 
     # -- step 4: recruits ----------------------------------------------------------------
@@ -222,6 +237,7 @@ class OneReplicate:
         self.life = life
         self.batch = self.populations(life, np.asarray(census)[None], [model.rng],
                                       limit=model.config.experiment.max_population)
+        self.batch.years = getattr(model, "years", None)  # the replicate's years, if any
 
     def step(self) -> None:
         """Advance one season."""

@@ -34,11 +34,19 @@ equal-length column datasets, chunked and gzip-compressed)::
         step               int32 (n_records,)
         counts             uint32 (n_records, n_alleles, n_ages) by age,
                            (n_records, n_alleles) by allele, no rows for "none"
+    /years/                only with [environment]: the year type of every season
+                           attrs: names (JSON list of the year types, in config order),
+                                  shared (True for shared_years)
+        type               uint8 (sum of steps,): index into names of seasons 1..steps
+                           of each replicate in turn, in /replicates order (a
+                           replicate's years start at the sum of the steps before
+                           it); with shared_years every replicate of a point holds
+                           the first seasons of the point's one sequence
 
 While running (or after a run was stopped) the file holds the attributes and
 /points with ``complete = False`` and empty tables; each finished batch is a
 shard ``NAME.parts/pPPPPPP-rFFFFFFFFF-LLLLLLLLL.h5`` (point P, replicates F to
-L) with the same /replicates and /trajectories groups (``trajectory_start``
+L) with the same /replicates, /trajectories (and /years) groups (``trajectory_start``
 counted within the shard). A shard is written as ``.tmp``, flushed, fsynced,
 closed and renamed into place, so a shard either exists whole or not at all;
 the final file is built the same way and replaces the running one in one
@@ -47,6 +55,7 @@ rename. ``NAME.parts/lock`` is held (``flock``) by the one writing process.
 
 from __future__ import annotations
 
+import json
 import os
 import re
 from dataclasses import dataclass
@@ -172,6 +181,19 @@ def _append(ds, values) -> None:
     n = ds.shape[0]
     ds.resize(n + len(values), axis=0)
     ds[n:] = values
+
+
+YEARS = "years"  # the group of year types (variable environments)
+
+
+def _years_group(f, config, data=None) -> None:
+    """Create ``/years`` (where the config has an [environment]), holding ``data`` if given."""
+    if config.environment is None:
+        return
+    g = f.create_group(YEARS)
+    g.attrs["names"] = json.dumps([y.name for y in config.environment.year])
+    g.attrs["shared"] = bool(config.environment.shared_years)
+    _column(g, "type", np.uint8, (), 4096, data)
 
 
 def _pad_ages(trajectory: np.ndarray, n_ages: int) -> np.ndarray:

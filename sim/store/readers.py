@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from ..config import Config
-from .layout import _STR, REPLICATE_COLUMNS, DamagedResultsError, list_shards, open_results, parts_dir
+from .layout import _STR, REPLICATE_COLUMNS, YEARS, DamagedResultsError, list_shards, open_results, parts_dir
 
 __all__ = [
     "read_attrs",
@@ -21,6 +21,7 @@ __all__ = [
     "read_point_configs",
     "read_outcomes",
     "count_outcomes",
+    "read_years",
 ]
 
 
@@ -234,4 +235,38 @@ def read_trajectories(path, *, points=None, replicates=None, by_age: bool = True
     if not frames:
         cols = ["point", "replicate", "step", "allele", "age", "count"]
         return pd.DataFrame(columns=cols if by_age else [c for c in cols if c != "age"])
+    return pd.concat(frames, ignore_index=True)
+
+
+def read_years(path, *, points=None, replicates=None) -> pd.DataFrame:
+    """The year type of every season, in long form: point, replicate, step, year.
+
+    ``step`` is the season (1 for the first season run; the census at step t
+    follows the season of year type ``year`` at step t). ``points`` and
+    ``replicates`` select as in ``read_trajectories``. A file without
+    ``[environment]`` has no years (an empty table).
+    """
+    def read(f, offset):
+        if YEARS not in f:
+            return []
+        names = np.array(json.loads(f[YEARS].attrs["names"]), dtype=object)
+        reps = _replicate_columns(f, 0, ("point", "replicate", "steps"))
+        starts = np.concatenate([[0], np.cumsum(reps["steps"].astype(np.int64))[:-1]])
+        keep = np.ones(reps["point"].size, bool)
+        if points is not None:
+            keep &= np.isin(reps["point"], list(points))
+        if replicates is not None:
+            keep &= np.isin(reps["replicate"], list(replicates))
+        types = f[YEARS]["type"]
+        frames = []
+        for i in np.flatnonzero(keep):
+            n = int(reps["steps"][i])
+            frames.append(pd.DataFrame({
+                "point": reps["point"][i], "replicate": reps["replicate"][i],
+                "step": np.arange(1, n + 1), "year": names[types[starts[i]:starts[i] + n]]}))
+        return frames
+
+    frames = [frame for block in _read_blocks(path, read) for frame in block]
+    if not frames:
+        return pd.DataFrame(columns=["point", "replicate", "step", "year"])
     return pd.concat(frames, ignore_index=True)

@@ -20,6 +20,7 @@ from .layout import (
     _STR,
     FORMAT_VERSION,
     REPLICATE_COLUMNS,
+    YEARS,
     ConfigMismatchError,
     ResultsError,
     Shard,
@@ -27,6 +28,7 @@ from .layout import (
     _column,
     _counts_shape,
     _pad_ages,
+    _years_group,
     is_complete,
     list_shards,
     parts_dir,
@@ -297,6 +299,8 @@ class ResultsWriter:
         counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
         _column(traj, "step", np.int32, (), 4096, steps)
         _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
+        if self.config.environment is not None:
+            _years_group(f, self.config, np.concatenate([r.years for r in results]))
 
     def _write_failure(self, err: OSError) -> str:
         reason = err.strerror or str(err)
@@ -333,8 +337,9 @@ class ResultsWriter:
             head.copy("points", out)
         out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
         _empty_tables(out, self.mode, self.n_alleles, self.n_ages)
+        _years_group(out, self.config)
         reps, traj = out["replicates"], out["trajectories"]
-        buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts")}
+        buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
         rows = offset = 0
 
         def flush():
@@ -344,6 +349,8 @@ class ResultsWriter:
             for name in ("step", "counts"):
                 if buffer[name]:
                     _append(traj[name], np.concatenate(buffer[name]))
+            if buffer[YEARS]:
+                _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
             for values in buffer.values():
                 values.clear()
 
@@ -355,6 +362,8 @@ class ResultsWriter:
                     buffer[name].append(values)
                 buffer["step"].append(f["trajectories"]["step"][:])
                 buffer["counts"].append(f["trajectories"]["counts"][:])
+                if YEARS in f:
+                    buffer[YEARS].append(f[YEARS]["type"][:])
                 offset += f["trajectories"]["step"].shape[0]
             rows += shard.size
             if rows >= _MERGE_ROWS or sum(len(c) for c in buffer["step"]) >= _MERGE_RECORDS:
@@ -436,6 +445,7 @@ def fill_header(f, config, points, *, created: str | None = None, extra: dict | 
         except (TypeError, ValueError):
             pts.create_dataset(key, data=[json.dumps(v) for v in values], dtype=_STR)
     _empty_tables(f, mode, len(config.allele), n_ages)
+    _years_group(f, config)
     if created is not None:
         f.attrs["created"] = created
     f.attrs.update(extra or {})

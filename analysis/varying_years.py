@@ -1,0 +1,170 @@
+"""Predictions and thresholds of a config with ``[environment]``: the stochastic theory wired in.
+
+``analysis.sweep`` asks this module for a sweep point's prediction and a
+parameter's threshold when the config has year types. The numbers come from
+``analysis.stochastic`` (stochastic growth rates, invasion fitness in the
+resident's fluctuating environment) and ``analysis.random_branching``
+(establishment over random year sequences). Every estimate uses the same
+year draws: the uniforms of ``year_draws(config)``, fixed by the experiment
+seed, re-read under each point's year law, so points of a sweep and trial
+values of a threshold see common random numbers.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from sim.config import Config, SweepFactor, sweep_points
+from sim.describe import describe_environment
+from sim.meanfield import NoEquilibriumError
+
+from .environment import invasion_pair
+from .invasion import neutral_expectation
+from .random_branching import establishment_in_years
+from .stochastic import (
+    InvasionSetting,
+    YearSequences,
+    draw_year_sequences,
+    regulated,
+    stochastic_invasion,
+    stochastic_threshold,
+)
+from .thresholds import ThresholdResult, _default_bracket, _setting, with_values
+
+__all__ = ["STOCHASTIC_COLUMNS", "YEAR_DRAWS", "THEORY_STREAM", "year_draws", "stochastic_prediction",
+           "stochastic_threshold_result", "year_spans"]
+
+# what a prediction adds to analysis.sweep.PREDICTION_COLUMNS in a variable environment
+STOCHASTIC_COLUMNS = (
+    "invasion_fitness_se", "log_invasion_fitness_se", "stochastic_growth_rate",
+    "stochastic_growth_rate_se", "small_noise_approximation", "resident_stochastic_growth_rate",
+    "resident_stochastic_growth_rate_se", "resident_small_noise_approximation",
+    "establishment_probability_se", "prediction", "environment",
+)
+YEAR_DRAWS = {"n_batches": 20, "batch_length": 1000, "burn_in": 200}
+THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apart from any run's
+
+
+def year_draws(config: Config) -> YearSequences:
+    """The theory's year sequences for ``config`` (the same uniforms for every point)."""
+    rng = np.random.default_rng(np.random.SeedSequence(config.experiment.seed, spawn_key=(THEORY_STREAM,)))
+    return draw_year_sequences(config.year_types(), rng, **YEAR_DRAWS)
+
+
+def _setting_of(config: Config) -> InvasionSetting:
+    r, m = invasion_pair(config)
+    schedules = config.schedules()
+    density = config.density_dependence()
+    return InvasionSetting(schedules[r], schedules[m], config.year_types(),
+                           density if regulated(density) else None)
+
+
+def stochastic_prediction(config: Config) -> dict:
+    """A sweep point's prediction in a variable environment, keyed like ``analysis.predict``.
+
+    Returns
+    -------
+    dict
+        ``analysis.sweep.PREDICTION_COLUMNS`` read from the stochastic
+        theory (invasion fitness exp of the mutant's long-run growth rate in
+        the resident's fluctuating environment, or the ratio of stochastic
+        growth rates without density dependence; establishment by Monte Carlo
+        over year sequences), plus ``invasion_fitness_se``,
+        ``stochastic_growth_rate`` (the mutant's log lambda_s),
+        ``stochastic_growth_rate_se``, ``small_noise_approximation`` (and the
+        resident's), ``establishment_probability_se``, ``prediction``
+        ("stochastic") and ``environment`` (in words).
+    """
+    s = _setting_of(config)
+    draws = year_draws(config)
+    inv = stochastic_invasion(s.resident, s.mutant, s.years, s.density, draws)
+    est = establishment_in_years(s.resident, s.mutant, s.years, s.density,
+                                 config.offspring_distribution(), draws,
+                                 count=config.invasion.mutant_count)
+    try:
+        neutral = neutral_expectation(config)
+    except NoEquilibriumError:
+        neutral = float("nan")
+    growth = inv.as_dict()
+    fitness = inv.invasion_fitness
+    return {
+        "density_index": float("nan"),
+        "census_size": inv.mean_census_size,
+        # regulated: the resident's long-run growth is 0 (rate 1) and the mutant's is the
+        # invasion fitness; density-free: each allele's exp(log lambda_s)
+        "resident_growth_rate": 1.0 if inv.regulated else math.exp(growth["resident_stochastic_growth_rate"]),
+        "mutant_growth_rate": fitness if inv.regulated else math.exp(growth["stochastic_growth_rate"]),
+        "invasion_fitness": fitness,
+        "verdict": "invades" if fitness > 1 else "does not invade" if fitness < 1 else "neutral",
+        "establishment_probability": est.establishment_probability,
+        "neutral_expectation": neutral,
+        **{k: v for k, v in growth.items() if k not in ("resident", "mutant", "regulated",
+                                                        "invasion_fitness", "mean_census_size")},
+        "establishment_probability_se": est.standard_error,
+        "prediction": "stochastic",
+        "environment": describe_environment(config),
+    }
+
+
+def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,
+                                group: SweepFactor | None = None) -> ThresholdResult:
+    """Where the stochastic invasion fitness crosses 1 along ``parameter`` (common random numbers).
+
+    The bracket defaults as in ``analysis.threshold`` (the swept range, [0, 1]
+    for a probability, else [0, 2 x the current value]). The result's
+    ``standard_error`` is the threshold's, from the year sampling (delta
+    method, ``analysis.stochastic.stochastic_threshold``).
+    """
+    setting = _setting(parameter, group)
+    lo, hi = (float(b) for b in bracket) if bracket is not None else _default_bracket(config, parameter)[:2]
+    base = config.model_copy(update={"sweep": None})
+    try:
+        with_values(config, setting(lo))
+    except Exception:  # a key that must be > 0 (e.g. density.capacity)
+        lo = lo + 1e-3 * (hi - lo)
+    draws = year_draws(config)
+
+    def at(value: float) -> InvasionSetting:
+        sweep = {path: [v] for path, v in setting(value).items()}
+        return _setting_of(sweep_points(base.model_copy(update={"sweep": sweep}))[0].config)
+
+    t = stochastic_threshold(at, draws, bracket=(lo, hi))
+    g_lo, g_hi = t.log_fitness_at_bracket
+    env = describe_environment(config)
+    message = (f"{parameter}: stochastic invasion fitness is 1 at {t.value:.6g} (SE {t.standard_error:.2g}); "
+               if t.converged else f"{parameter}: no stochastic threshold in [{lo:g}, {hi:g}] ({t.message}); ")
+    message += (f"mutant invades {'above' if g_hi > 0 else 'below'} it. " if t.converged else "") + \
+        (f"Prediction: stochastic theory ({draws.n_batches} batches of {draws.batch_length} seasons, "
+         f"the same years for every trial value); environment: {env}")
+    linked = {p: v for p, v in group.along(t.value).items() if p != parameter} \
+        if group is not None and t.converged else {}
+    return ThresholdResult(parameter=parameter, value=t.value, converged=t.converged, bracket=(lo, hi),
+                           fitness_at_bracket=(math.exp(g_lo), math.exp(g_hi)),
+                           invades_above=(g_hi > 0) if t.converged else None,
+                           crossings=int(t.converged), message=message, linked=linked,
+                           standard_error=t.standard_error)
+
+
+def year_spans(path, *, point: int = 0, replicate: int = 0) -> pd.DataFrame:
+    """Runs of seasons of one year type in one replicate, for shading a trajectory figure.
+
+    Returns
+    -------
+    DataFrame
+        Columns ``start``, ``stop`` (census steps: the run covers the seasons
+        from census ``start`` to census ``stop``) and ``year`` (its type), in
+        order; empty for a file without ``[environment]``.
+    """
+    from sim.store import read_years
+
+    years = read_years(path, points=[point], replicates=[replicate])
+    if years.empty:
+        return pd.DataFrame(columns=["start", "stop", "year"])
+    names = years["year"].to_numpy()
+    steps = years["step"].to_numpy()
+    breaks = np.flatnonzero(names[1:] != names[:-1]) + 1
+    first, last = np.r_[0, breaks], np.r_[breaks, names.size] - 1
+    return pd.DataFrame({"start": steps[first] - 1, "stop": steps[last], "year": names[first]})
