@@ -20,7 +20,7 @@ DENSITY_FORMS = ("none", "beverton-holt", "ricker", "ceiling")
 PLACEMENTS = ("recruitment", "fecundity", "adult-survival", "all-survival")
 COUNTED = ("census", "breeders", "offspring")
 DISTRIBUTIONS = ("poisson", "fixed", "negative-binomial")
-BREEDING = ("semelparous", "iteroparous", "table")
+BREEDING = ("semelparous", "iteroparous", "table", "effort")
 
 # A replicate's outcome (the ``outcome`` column of /replicates). The order is the summary
 # table's column order.

@@ -77,7 +77,7 @@ class ResultsWriter:
         self.replicates = config.experiment.replicates
         self.expected = len(points) * self.replicates
         self.mode = config.experiment.trajectory
-        self.n_alleles = len(config.allele)
+        self.n_alleles = len(config.allele_names)
         self.n_ages = max(max(s.n_ages for s in p.config.schedules()) for p in points)
         self.hash = config_hash(config)
         self.complete = False
@@ -174,6 +174,8 @@ class ResultsWriter:
             replicates=self.replicates,
             complete=False,
         )
+        if config.trait is not None:  # each allele's effort: turns counts by allele into the trait
+            f.attrs["trait_efforts"] = json.dumps(config.efforts())
         pts = f.create_group("points", track_order=True)  # columns in sweep order
         pts.create_dataset("index", data=np.array([p.index for p in self.points], dtype=np.int32))
         pts.create_dataset("config", data=[json.dumps(p.config.model_dump(mode="json"))
