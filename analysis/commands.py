@@ -71,6 +71,12 @@ def _free(paths, overwrite: bool) -> None:
             raise FileNotFoundError(f"output folder {str(Path(p).parent)!r} does not exist")
 
 
+def _trait_run(path) -> bool:
+    from .trait import is_trait_run
+
+    return is_trait_run(path)
+
+
 # -- threshold ------------------------------------------------------------------------
 def threshold_report(config, *, parameters=None, bracket=None) -> dict:
     """What ``broodline threshold`` prints: predictions per sweep point and thresholds.
@@ -145,6 +151,10 @@ def cmd_compare(args) -> int:
     from .comparison import compare, compare_thresholds
 
     path = _results(args.results)
+    if _trait_run(path):
+        from .trait_commands import compare_trait_run
+
+        return compare_trait_run(args)
     if args.csv:
         _free([args.csv], args.overwrite)
     table = compare(path)
@@ -206,6 +216,10 @@ def cmd_plot(args) -> int:
     out = Path(args.output)
     if out.exists() and not out.is_dir():
         raise UserError(f"-o {out}: exists and is not a folder")
+    if _trait_run(path):
+        from .trait_commands import plot_trait_run
+
+        return plot_trait_run(args)
     _free(
         [out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
         args.overwrite,

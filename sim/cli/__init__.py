@@ -32,6 +32,7 @@ COMMANDS = [
     "sim.cli.demo:register",
     "sim.cli.status:register",
     "analysis.commands:register",
+    "analysis.trait_commands:register",
     "sim.cli.bench:register",
 ]
 
