@@ -4,7 +4,9 @@
 ``[density]`` into the ``analysis.adaptive.EffortModel`` the theory takes;
 ``trait_analysis`` analyses it on the config's grid; ``compare_trait``
 states, for every replicate of a ``[trait]`` run, whether its mean effort
-ended within one grid step of a predicted evolutionarily stable attractor.
+ended within one grid step of a predicted evolutionarily stable attractor
+("ended": the mean effort averaged over the last ``END_SHARE`` of its
+recorded censuses, so one season's drift does not decide the verdict).
 """
 
 from __future__ import annotations
@@ -20,6 +22,7 @@ from .adaptive import AdaptiveAnalysis, EffortModel, analyse_effort
 __all__ = ["DEFAULT_GRID", "effort_model", "effort_grid", "trait_analysis", "is_trait_run", "compare_trait"]
 
 DEFAULT_GRID = 101  # evenly spaced efforts on [0, 1] where the config has no [trait] grid
+END_SHARE = 0.1  # the closing stretch of a run (share of its recorded censuses) its verdict reads
 
 
 def effort_model(config: Config) -> EffortModel:
@@ -78,18 +81,23 @@ def compare_trait(path) -> pd.DataFrame:
     -------
     DataFrame
         One row per replicate: ``point``, ``replicate``, ``final_step``,
-        ``final_census``, ``final_mean_effort``, ``final_sd_effort``,
+        ``final_census``, ``final_mean_effort``, ``final_sd_effort`` (at the
+        last census), ``end_mean_effort`` (the mean effort averaged over the
+        last ``END_SHARE`` of the recorded censuses, at least one),
         ``attractors`` (the point's evolutionarily stable attractors,
-        Geritz et al. 1998, as a list), ``nearest_attractor``, ``distance``,
+        Geritz et al. 1998, as a list), ``nearest_attractor``, ``distance``
+        (of ``end_mean_effort`` from it),
         ``grid_step`` (the grid's spacing there) and ``verdict``: "at
         attractor" (within one grid step), "away from attractor",
         "extinct" or "no attractor predicted".
     """
     configs = read_point_configs(path)
     points = read_points(path)["point"].to_numpy()
-    trait = read_trait(path)
-    last = trait.sort_values("step").groupby(["point", "replicate"], sort=True).tail(1)
-    last = last.sort_values(["point", "replicate"]).reset_index(drop=True)
+    trait = read_trait(path).sort_values(["point", "replicate", "step"], kind="stable")
+    runs = trait.groupby(["point", "replicate"], sort=True)
+    last = runs.tail(1).reset_index(drop=True)
+    end = runs["mean_effort"].apply(lambda m: m.iloc[-max(1, int(round(END_SHARE * m.size))):].mean())
+    last["end_mean_effort"] = end.to_numpy()
     attractors = {int(p): trait_analysis(c).attractors for p, c in zip(points, configs)}
     grids = {int(p): c.trait.grid() for p, c in zip(points, configs)}
     rows = []
@@ -97,16 +105,16 @@ def compare_trait(path) -> pd.DataFrame:
         found = attractors[int(r.point)]
         row = {"point": int(r.point), "replicate": int(r.replicate), "final_step": int(r.step),
                "final_census": int(r.census), "final_mean_effort": r.mean_effort,
-               "final_sd_effort": r.sd_effort, "attractors": found}
+               "final_sd_effort": r.sd_effort, "end_mean_effort": r.end_mean_effort, "attractors": found}
         if r.census == 0:
             row.update(nearest_attractor=np.nan, distance=np.nan, grid_step=np.nan, verdict="extinct")
         elif not found:
             row.update(nearest_attractor=np.nan, distance=np.nan, grid_step=np.nan,
                        verdict="no attractor predicted")
         else:
-            near = min(found, key=lambda a: abs(a - r.mean_effort))
+            near = min(found, key=lambda a: abs(a - r.end_mean_effort))
             step = _step_near(grids[int(r.point)], near)
-            distance = abs(r.mean_effort - near)
+            distance = abs(r.end_mean_effort - near)
             row.update(nearest_attractor=near, distance=distance, grid_step=step,
                        verdict="at attractor" if distance <= step else "away from attractor")
         rows.append(row)
