@@ -154,7 +154,7 @@ def cmd_compare(args) -> int:
     if _trait_run(path):
         from .trait_commands import compare_trait_run
 
-        return compare_trait_run(args)
+        return compare_trait_run(args, free=_free, show=_print_table, records=_records)
     if args.csv:
         _free([args.csv], args.overwrite)
     table = compare(path)
@@ -219,7 +219,7 @@ def cmd_plot(args) -> int:
     if _trait_run(path):
         from .trait_commands import plot_trait_run
 
-        return plot_trait_run(args)
+        return plot_trait_run(args, free=_free)
     _free(
         [out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
         args.overwrite,

@@ -2,7 +2,9 @@
 
 ``register`` adds ``invasibility`` to the ``broodline`` parser
 (``sim.cli.COMMANDS`` names it); ``analysis.commands`` hands a trait run's
-results file to ``plot_trait_run`` and ``compare_trait_run``.
+results file to ``plot_trait_run`` and ``compare_trait_run``, with its own
+helpers (refusing to overwrite, printing tables) so this module does not
+import it back.
 """
 
 from __future__ import annotations
@@ -17,7 +19,6 @@ def cmd_invasibility(args) -> int:
     from sim.config import load_config
     from sim.errors import UserError
 
-    from .commands import jsonable
     from .invasibility import invasibility
     from .trait import effort_grid, effort_model
 
@@ -30,7 +31,7 @@ def cmd_invasibility(args) -> int:
         raise UserError(f"--grid must be at least 3; got {args.grid}")
     result = invasibility(model, out, grid=args.grid if args.grid is not None else effort_grid(config))
     if args.json:
-        print(json.dumps(jsonable(result.as_dict()), indent=2))
+        print(json.dumps(result.as_dict(), indent=2))  # as_dict is JSON-ready (non-finite as null)
         return 0
     for s in result.analysis.singular:
         print(f"E = {s.effort:.6g} ({s.position}): {s.kind}; gradient {s.gradient:.4g}")
@@ -40,34 +41,39 @@ def cmd_invasibility(args) -> int:
     return 0
 
 
-def plot_trait_run(args) -> int:
-    """``broodline plot`` of a trait run: the mean effort over time over the singular efforts."""
-    from .commands import _free
+def plot_trait_run(args, *, free) -> int:
+    """``broodline plot`` of a trait run: the mean effort over time over the singular efforts.
+
+    ``free(paths, overwrite)`` refuses existing files unless ``--overwrite``.
+    """
     from .trait_plots import TRAIT_FIGURES, plot_trait
 
     out = Path(args.output)
-    _free([out / f"{n}.{e}" for n in TRAIT_FIGURES for e in ("png", "svg")] if out.is_dir() else [],
-          args.overwrite)
+    free([out / f"{n}.{e}" for n in TRAIT_FIGURES for e in ("png", "svg")] if out.is_dir() else [],
+         args.overwrite)
     for name, files in plot_trait(args.results, out).items():
         print(f"{name}: {files['png']}  {files['svg']}")
     return 0
 
 
-def compare_trait_run(args) -> int:
-    """``broodline compare`` of a trait run: each replicate's end against the predicted attractors."""
-    from .commands import _free, _print_table, _records
+def compare_trait_run(args, *, free, show, records) -> int:
+    """``broodline compare`` of a trait run: each replicate's end against the predicted attractors.
+
+    ``free`` refuses existing files, ``show`` prints a table, ``records`` makes JSON rows
+    (``analysis.commands``'s helpers).
+    """
     from .trait import compare_trait
 
     if args.csv:
-        _free([args.csv], args.overwrite)
+        free([args.csv], args.overwrite)
     table = compare_trait(args.results)
     if args.csv:
         table.to_csv(args.csv, index=False)
     if args.json:
-        print(json.dumps({"replicates": _records(table)}, indent=2))
+        print(json.dumps({"replicates": records(table)}, indent=2))
         return 0
     shown = table.assign(attractors=[", ".join(f"{a:.4g}" for a in v) for v in table["attractors"]])
-    _print_table(shown)
+    show(shown)
     counts = table["verdict"].value_counts()
     print("\n" + ", ".join(f"{n} {verdict}" for verdict, n in counts.items()) + f" (of {len(table)} replicates)")
     return 0
