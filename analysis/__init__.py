@@ -18,9 +18,23 @@ from .environment import ResidentEnvironment, resident_environment
 from .estimates import FixationEstimate, ObservedThreshold, observed_threshold, wilson_interval
 from .invasion import Prediction, invasion_fitness, neutral_expectation, predict
 from .sweep import predict_sweep, sweep_thresholds
+from .adaptive import AdaptiveAnalysis, EffortModel, SingularStrategy, analyse_effort, pairwise_invasibility
+from .adaptive import selection_gradient, singular_strategies
+from .trait import compare_trait, effort_model, trait_analysis
 from .thresholds import ThresholdResult, threshold, with_values
 
 __all__ = [
+    "AdaptiveAnalysis",
+    "EffortModel",
+    "SingularStrategy",
+    "analyse_effort",
+    "compare_trait",
+    "effort_model",
+    "invasibility",
+    "pairwise_invasibility",
+    "selection_gradient",
+    "singular_strategies",
+    "trait_analysis",
     "Demography",
     "Extinction",
     "FixationEstimate",
@@ -58,6 +72,10 @@ def __getattr__(name):
         from .plots import plot
 
         return plot
+    if name == "invasibility":
+        from .invasibility import invasibility
+
+        return invasibility
     if name == "report":
         from .reporting import report
 

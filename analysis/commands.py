@@ -166,6 +166,20 @@ JSON_KEYS = {
 }
 
 
+def _show_table(table) -> None:
+    import pandas as pd
+
+    with pd.option_context("display.width", 160, "display.max_columns", 30,
+                           "display.float_format", "{:.4g}".format):
+        print(table.to_string(index=False))
+
+
+def _trait_run(path) -> bool:
+    from .trait import is_trait_run
+
+    return is_trait_run(path)
+
+
 # -- threshold ------------------------------------------------------------------------
 def threshold_report(config, *, parameters=None, bracket=None, sensitivities=False) -> dict:
     """What ``broodline threshold`` prints: predictions per sweep point and thresholds.
@@ -266,6 +280,10 @@ def cmd_compare(args) -> int:
     from .comparison import IncompleteResultsWarning, compare, compare_thresholds
 
     path = _results(args.results)
+    if _trait_run(path):
+        from .trait_commands import compare_trait_run
+
+        return compare_trait_run(args, free=_free, show=_show_table, records=_records)
     if args.csv:
         _free([args.csv], args.overwrite)
     _warn_incomplete("compare", path)
@@ -303,6 +321,10 @@ def cmd_plot(args) -> int:
     out = Path(args.output)
     if out.exists() and not out.is_dir():
         raise UserError(f"-o {out}: exists and is not a folder")
+    if _trait_run(path):
+        from .trait_commands import plot_trait_run
+
+        return plot_trait_run(args, free=_free)
     _free(
         [out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
         args.overwrite,

@@ -178,7 +178,7 @@ def describe_experiment(config: Config, *, budget: bool = True) -> str:
         "environment: " + describe_environment(config),
         "alleles (m(a) fecundity and s(a) survival by census age 1, 2, ...; last age a plus-group):",
     ]
-    for a, s in zip(config.allele, config.schedules()):
+    for a, s in zip(config.alleles, config.schedules()):
         lines.append(f"  {a.name}: {a.breeding}, m = {_fmt(s.fecundity)}, s = {_fmt(s.survival)}, "
                      f"c = {s.juvenile_survival:g}; growth rate without density dependence "
                      f"{growth_rate(s, offspring=config.offspring_distribution()):.4g}")
@@ -197,8 +197,13 @@ def describe_experiment(config: Config, *, budget: bool = True) -> str:
         lines.append(f"invasion: {inv.mutant_count} x {inv.mutant!r} (age 1) into {inv.resident!r} "
                      f"({how}: {int(start[r].sum())} individuals by age {start[r].tolist()})")
     else:
-        lines.append("start: " + ", ".join(f"{a.name} {a.initial_count}" for a in config.allele)
+        shown = [a for a in config.alleles if a.initial_count or config.trait is None]
+        lines.append("start: " + ", ".join(f"{a.name} {a.initial_count}" for a in shown)
                      + " individuals at age 1")
+    if config.trait is not None:
+        grid = config.trait.grid()
+        lines.append(f"trait: {grid.size} effort alleles from {grid[0]:g} to {grid[-1]:g}, each offspring "
+                     f"mutating to a neighbouring value with probability {config.mutation.rate:g}")
     factors = sweep_factors(config)
     sizes = [f"{f.levels} ({' with '.join(f.paths)})" for f in factors]
     lines.append(f"sweep points: {len(points)}" + (f" = {' x '.join(sizes)}" if factors else ""))

@@ -96,7 +96,7 @@ def initial_census(config: Config, life: LifeCycle | None = None) -> np.ndarray:
     census = np.zeros((life.n_alleles, life.n_ages), dtype=np.int64)
     inv = config.invasion
     if inv is None:
-        census[:, 0] = [a.initial_count for a in config.allele]
+        census[:, 0] = [a.initial_count for a in config.alleles]
         return census
     r = config.allele_index(inv.resident)
     schedule = config.schedules()[r].padded(life.n_ages)

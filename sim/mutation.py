@@ -6,7 +6,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["Mutation", "uniform_mutation"]
+__all__ = ["Mutation", "uniform_mutation", "neighbour_mutation"]
 
 
 @dataclass(frozen=True)
@@ -56,4 +56,22 @@ def uniform_mutation(n_alleles: int, rate: float) -> Mutation:
         return Mutation(np.eye(n_alleles))
     q = np.full((n_alleles, n_alleles), rate / (n_alleles - 1))
     np.fill_diagonal(q, 1.0 - rate)
+    return Mutation(q)
+
+
+def neighbour_mutation(n_alleles: int, rate: float) -> Mutation:
+    """Mutation at ``rate`` per offspring to a neighbouring allele on a line (a trait grid).
+
+    An interior allele i mutates to i - 1 and to i + 1 with ``rate / 2`` each;
+    an allele at an end mutates to its one neighbour with the whole ``rate``
+    (the walk is reflected at the ends, so every allele mutates at the same
+    rate). One allele, or rate 0, is no mutation.
+    """
+    q = np.eye(n_alleles)
+    if n_alleles == 1 or rate == 0:
+        return Mutation(q)
+    for i in range(n_alleles):
+        neighbours = [j for j in (i - 1, i + 1) if 0 <= j < n_alleles]
+        q[i, i] = 1.0 - rate
+        q[i, neighbours] = rate / len(neighbours)
     return Mutation(q)

@@ -23,13 +23,6 @@ from .schedules import Schedule, table
 __all__ = ["TradeOff", "check_effort"]
 
 
-def _positive(value, path: str) -> float:
-    value = float(value)
-    if not np.isfinite(value) or value <= 0:
-        raise ValueError(f"{path} must be a finite number > 0; got {value!r}")
-    return value
-
-
 def check_effort(effort, path: str = "effort") -> np.ndarray:
     """Efforts as a float array, each in [0, 1]; ValueError naming ``path`` otherwise."""
     e = np.asarray(effort, dtype=float)
@@ -72,16 +65,14 @@ class TradeOff:
     survival_shape: float = 1.0
 
     def __post_init__(self):
-        b = float(self.max_fecundity)
-        if not np.isfinite(b) or b < 0:
-            raise ValueError(f"tradeoff.max_fecundity must be a finite number >= 0; got {b!r}")
-        p = float(self.max_adult_survival)
-        if not 0.0 <= p <= 1.0:
-            raise ValueError(f"tradeoff.max_adult_survival must be in [0, 1]; got {p!r}")
-        object.__setattr__(self, "max_fecundity", b)
-        object.__setattr__(self, "max_adult_survival", p)
-        for key in ("fecundity_shape", "survival_shape"):
-            object.__setattr__(self, key, _positive(getattr(self, key), f"tradeoff.{key}"))
+        # the config schema (sim.config.schema.TradeOffSection) states the ranges and names the
+        # keys; this guards a curve built by hand
+        for key in ("max_fecundity", "fecundity_shape", "max_adult_survival", "survival_shape"):
+            object.__setattr__(self, key, float(getattr(self, key)))
+        assert np.isfinite(self.max_fecundity) and self.max_fecundity >= 0, self
+        assert 0.0 <= self.max_adult_survival <= 1.0, self
+        assert self.fecundity_shape > 0 and self.survival_shape > 0, self
+        assert np.isfinite(self.fecundity_shape) and np.isfinite(self.survival_shape), self
 
     def fecundity(self, effort) -> np.ndarray:
         """B(E) = max_fecundity * E ** fecundity_shape (vectorised over E)."""

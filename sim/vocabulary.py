@@ -21,7 +21,7 @@ DENSITY_FORMS = ("none", "beverton-holt", "ricker", "ceiling")
 PLACEMENTS = ("recruitment", "fecundity", "adult-survival", "all-survival")
 COUNTED = ("census", "breeders", "offspring")
 DISTRIBUTIONS = ("poisson", "fixed", "negative-binomial")
-BREEDING = ("semelparous", "iteroparous", "table")
+BREEDING = ("semelparous", "iteroparous", "table", "effort")
 BROOD_EFFECTS = ("none", "exponential")  # a young's survival in a brood of b: x 1, x exp(-(b - 1) / h)
 
 # [environment]: how year types follow one another; ``start`` of a Markov chain is a year

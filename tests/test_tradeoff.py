@@ -63,13 +63,23 @@ def test_years_before_maturity_pay_no_cost():
     np.testing.assert_allclose(s.survival, [0.9, 0.9, 0.9 * 0.25])
 
 
+def _tradeoff_config(**tradeoff):
+    """A config whose [tradeoff] has these keys (the schema states the curve's ranges)."""
+    from sim.config import parse_config
+
+    curve = {"max_fecundity": 3.0, "max_adult_survival": 0.9, **tradeoff}
+    return parse_config({"tradeoff": curve, "allele": [
+        {"name": "e", "breeding": "effort", "effort": 0.5, "juvenile_survival": 0.5, "initial_count": 5}]})
+
+
 @pytest.mark.parametrize(
     "build, match",
     [
-        (lambda: TradeOff(-1.0), r"tradeoff\.max_fecundity must be .*>= 0; got -1"),
-        (lambda: TradeOff(2.0, 0.0), r"tradeoff\.fecundity_shape must be .*> 0; got 0"),
-        (lambda: TradeOff(2.0, 1.0, 1.2), r"tradeoff\.max_adult_survival must be in \[0, 1\]; got 1\.2"),
-        (lambda: TradeOff(2.0, 1.0, 0.5, -2), r"tradeoff\.survival_shape must be .*> 0; got -2"),
+        (lambda: _tradeoff_config(max_fecundity=-1.0), r"tradeoff\.max_fecundity must be >= 0; got -1"),
+        (lambda: _tradeoff_config(fecundity_shape=0.0), r"tradeoff\.fecundity_shape must be > 0.*; got 0"),
+        (lambda: _tradeoff_config(max_adult_survival=1.2),
+         r"tradeoff\.max_adult_survival must be in \[0, 1\]; got 1\.2"),
+        (lambda: _tradeoff_config(survival_shape=-2), r"tradeoff\.survival_shape must be > 0.*; got -2"),
         (lambda: CURVE.fecundity([0.2, 1.5]), r"effort must be in \[0, 1\]; got 1\.5"),
         (lambda: CURVE.schedule(0.5, 1.5), r"juvenile_survival must be in \[0, 1\]; got 1\.5"),
         (lambda: CURVE.schedule(0.5, 0.5, maturity_age=0), r"maturity_age must be an integer >= 1; got 0"),

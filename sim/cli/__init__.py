@@ -33,6 +33,7 @@ COMMANDS = [
     "sim.cli.trace:register",
     "sim.cli.status:register",
     "analysis.commands:register",
+    "analysis.trait_commands:register",
     "sim.cli.bench:register",
 ]
 

@@ -10,16 +10,18 @@ from __future__ import annotations
 
 import difflib
 from dataclasses import replace
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, ClassVar, Literal
 
+import numpy as np
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, model_serializer, model_validator
 
 from .. import vocabulary as words
 from ..aggregation import counts_obstacles
 from ..density import DensityDependence
-from ..mutation import Mutation, uniform_mutation
+from ..mutation import Mutation, neighbour_mutation, uniform_mutation
 from ..offspring import make_offspring
 from ..schedules import Schedule, iteroparous, semelparous, table
+from ..tradeoff import TradeOff
 from ..years import YearType, YearTypes, scaled_schedule
 
 __all__ = [
@@ -38,6 +40,8 @@ __all__ = [
     "MutationSection",
     "YearSection",
     "EnvironmentSection",
+    "TradeOffSection",
+    "TraitSection",
     "SECTIONS",
     "check_sweep_path",
 ]
@@ -93,6 +97,20 @@ class _Section(BaseModel):
 
     model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False,
                               use_attribute_docstrings=True)
+
+    # Keys added after 0.2.0 are left out of a dump while they hold their default (given
+    # here), so an older config's resolved form (its config_hash, the results file's
+    # /points/config, what --resume compares) stays as it was.
+    _omit_defaults: ClassVar[dict[str, Any]] = {}
+
+    @model_serializer(mode="wrap")
+    def _without_unused_additions(self, handler):
+        data = handler(self)
+        if isinstance(data, dict):
+            for key, default in self._omit_defaults.items():
+                if key in data and data[key] == default:
+                    del data[key]
+        return data
 
 
 class ExperimentSection(_Section):
@@ -197,9 +215,10 @@ class AlleleSection(_Section):
     """semelparous: breeds once at maturity_age, then dies (adult_survival is then the survival of
     the years before breeding, required if maturity_age > 1); iteroparous: breeds every season from
     maturity_age with survival adult_survival; table: fecundity and adult_survival are lists by age
-    1, 2, ... of equal length, the last age a plus-group that keeps its own survival."""
-    fecundity: NonNegative | list[NonNegative]
-    """Mean offspring m per breeding season (a list by age for table)."""
+    1, 2, ... of equal length, the last age a plus-group that keeps its own survival; effort:
+    fecundity and adult_survival come from the [tradeoff] curve at this allele's effort."""
+    fecundity: NonNegative | list[NonNegative] | None = None
+    """Mean offspring m per breeding season (a list by age for table; not for effort)."""
     adult_survival: Probability | list[Probability] | None = None
     """Survival s per season (a list by age for table); see breeding for when it is required."""
     juvenile_survival: Probability
@@ -215,16 +234,10 @@ class AlleleSection(_Section):
     """none; exponential: each young of a brood of b survives x exp(-(b - 1) / brood_scale)."""
     brood_scale: float | None = Field(None, gt=0)
     """h of the exponential brood effect; required with brood_effect = "exponential"."""
+    effort: Probability | None = None
+    """breeding = "effort" only: E, the share of resources put into each season's breeding."""
 
-    @model_serializer(mode="wrap")
-    def _unused_care_left_out(self, handler):
-        # a config that does not use care dumps as before these keys existed, so its stored
-        # config, its hash and a resume of an older results file are unchanged
-        data = handler(self)
-        for key, default in _CARE_DEFAULTS.items():
-            if key in data and data[key] == default:
-                del data[key]
-        return data
+    _omit_defaults: ClassVar[dict[str, Any]] = {**_CARE_DEFAULTS, "effort": None}
 
     @model_validator(mode="after")
     def _brood(self):
@@ -236,6 +249,17 @@ class AlleleSection(_Section):
 
     @model_validator(mode="after")
     def _shape(self):
+        if self.breeding == "effort":
+            if self.effort is None:
+                raise ValueError("effort: required for breeding = 'effort' (a share in [0, 1])")
+            for key in ("fecundity", "adult_survival"):
+                if getattr(self, key) is not None:
+                    raise ValueError(f"{key}: an effort allele takes it from the [tradeoff] curve; remove it")
+            return self
+        if self.effort is not None:
+            raise ValueError(f"effort: only used by breeding = 'effort', not {self.breeding!r}")
+        if self.fecundity is None:
+            raise ValueError(f"fecundity: required for breeding = {self.breeding!r}")
         if self.breeding == "table":
             if not isinstance(self.fecundity, list) or not isinstance(self.adult_survival, list):
                 raise ValueError("fecundity: a table schedule takes lists by age for fecundity and adult_survival")
@@ -261,14 +285,19 @@ class AlleleSection(_Section):
             )
         return self
 
-    def schedule(self) -> Schedule:
-        """The breeding schedule this allele fixes, with its parental effects."""
-        schedule = self._life_history()
+    def schedule(self, tradeoff: TradeOff | None = None) -> Schedule:
+        """The breeding schedule this allele fixes, with its parental effects (an effort allele
+        reads ``tradeoff``)."""
+        schedule = self._life_history(tradeoff)
         if self.orphan_survival is None and self.brood_scale is None:
             return schedule
         return replace(schedule, orphan_survival=self.orphan_survival, brood_scale=self.brood_scale)
 
-    def _life_history(self) -> Schedule:
+    def _life_history(self, tradeoff: TradeOff | None = None) -> Schedule:
+        if self.breeding == "effort":
+            assert tradeoff is not None, "an effort allele needs the config's [tradeoff]"
+            return tradeoff.schedule(self.effort, self.juvenile_survival,
+                                     maturity_age=self.maturity_age, name=self.name)
         if self.breeding == "table":
             return table(self.name, self.fecundity, self.adult_survival, self.juvenile_survival)
         if self.breeding == "iteroparous":
@@ -386,6 +415,85 @@ class EnvironmentSection(_Section):
                          start=self.start)
 
 
+class TradeOffSection(_Section):
+    """``[tradeoff]``: fecundity B(E) against adult survival P(E), shared by every effort allele."""
+
+    max_fecundity: NonNegative = Field(allow_inf_nan=False)
+    """B(E) = max_fecundity * E ** fecundity_shape: the mean offspring at full effort."""
+    fecundity_shape: float = Field(1.0, gt=0, allow_inf_nan=False)
+    """< 1: diminishing returns of effort in offspring; > 1: accelerating."""
+    max_adult_survival: Probability
+    """P(E) = max_adult_survival * (1 - E) ** survival_shape: survival at no effort."""
+    survival_shape: float = Field(1.0, gt=0, allow_inf_nan=False)
+    """Curvature of the survival cost of effort."""
+
+    def tradeoff(self) -> TradeOff:
+        return TradeOff(self.max_fecundity, self.fecundity_shape, self.max_adult_survival, self.survival_shape)
+
+
+GRID_TOLERANCE = 1e-9  # two efforts closer than this are one grid value
+
+
+class TraitSection(_Section):
+    """``[trait]``: effort alleles on a grid, copied from a template, mutating to grid neighbours."""
+
+    allele: str
+    """The template effort allele, copied once per grid value with its effort replaced."""
+    values: list[Probability] | None = None
+    """The grid of efforts (or give start, stop and step)."""
+    start: Probability | None = None
+    """First grid value (with stop and step)."""
+    stop: Probability | None = None
+    """Last grid value (with start and step)."""
+    step: float | None = Field(None, gt=0, allow_inf_nan=False)
+    """Grid spacing (with start and stop)."""
+    initial: Probability
+    """The effort every individual starts with (a grid value): a monomorphic start."""
+
+    @model_validator(mode="after")
+    def _one_grid(self):
+        ranged = [k for k in ("start", "stop", "step") if getattr(self, k) is not None]
+        if self.values is not None:
+            if ranged:
+                raise ValueError(f"{ranged[0]}: give either values or start / stop / step, not both")
+            if len(self.values) < 2:
+                raise ValueError(f"values: a grid needs at least 2 efforts; got {self.values}")
+            if any(b - a <= GRID_TOLERANCE for a, b in zip(self.values, self.values[1:])):
+                raise ValueError(f"values: must be strictly increasing; got {self.values}")
+        else:
+            if len(ranged) < 3:
+                missing = [k for k in ("start", "stop", "step") if k not in ranged]
+                raise ValueError(f"{missing[0]}: required (give values, or start, stop and step)")
+            if self.stop <= self.start:
+                raise ValueError(f"stop: must be > start ({self.start}); got {self.stop}")
+            n = (self.stop - self.start) / self.step
+            if abs(n - round(n)) > 1e-6:
+                raise ValueError(f"step: must divide stop - start ({self.stop - self.start:g}) into "
+                                 f"whole steps; got {self.step}")
+        grid = self.grid()
+        if not np.any(np.abs(grid - self.initial) <= GRID_TOLERANCE):
+            raise ValueError(f"initial: must be one of the grid values {grid.tolist()}; got {self.initial}")
+        return self
+
+    def grid(self) -> np.ndarray:
+        """The efforts of the grid, increasing."""
+        if self.values is not None:
+            return np.array(self.values, dtype=float)
+        n = int(round((self.stop - self.start) / self.step)) + 1
+        return np.round(self.start + self.step * np.arange(n), 12)
+
+    def names(self) -> list[str]:
+        """Allele names by value, e.g. ``e0.30``: two decimals, or as many as tell them apart."""
+        grid = self.grid()
+        for decimals in range(2, 13):
+            if np.all(np.abs(np.round(grid, decimals) - grid) <= GRID_TOLERANCE):
+                break
+        return [f"e{v:.{decimals}f}" for v in grid]
+
+    def initial_index(self) -> int:
+        return int(np.argmin(np.abs(self.grid() - self.initial)))
+
+
 class Config(_Section):
     """A whole experiment as written in TOML (the ``[sweep]`` table kept unexpanded)."""
 
@@ -403,10 +511,16 @@ class Config(_Section):
     """[mutation]: per-offspring mutation between alleles."""
     environment: EnvironmentSection | None = None
     """[environment]: year types that differ (optional; without it every season is alike)."""
+    tradeoff: TradeOffSection | None = None
+    """[tradeoff]: the curve B(E), P(E) shared by every effort allele (required with one)."""
+    trait: TraitSection | None = None
+    """[trait]: effort alleles generated on a grid from a template allele (optional)."""
     sweep: dict[str, list[Any]] | None = None
     """[sweep]: optional; "PATH" = [values] (the cartesian product of the lists), and
     [[sweep.linked]] groups of lists read in step. PATH is allele.NAME.KEY or SECTION.KEY;
     experiment.seed, replicates, engine, name and trajectory cannot be swept."""
+
+    _omit_defaults: ClassVar[dict[str, Any]] = {"tradeoff": None, "trait": None, "environment": None}
 
     @model_validator(mode="after")
     def _cross_checks(self):
@@ -429,7 +543,8 @@ class Config(_Section):
                 )
         elif sum(a.initial_count for a in self.allele) == 0:
             problems.append("allele: without [invasion], give some allele an initial_count > 0")
-        if self.mutation.matrix is not None:
+        problems += self._effort_checks()
+        if self.mutation.matrix is not None and self.trait is None:
             n = len(self.allele)
             q = self.mutation.matrix
             if len(q) != n or any(len(row) != n for row in q):
@@ -452,14 +567,61 @@ class Config(_Section):
             raise ValueError("\n".join(problems))
         return self
 
+    def _effort_checks(self) -> list[str]:
+        """[tradeoff] exactly when some allele has breeding = "effort"; [trait]'s cross-checks."""
+        problems = []
+        effort = [a.name for a in self.allele if a.breeding == "effort"]
+        if effort and self.tradeoff is None:
+            problems.append(f"tradeoff: required: allele {effort[0]!r} has breeding = 'effort' "
+                            "(give max_fecundity and max_adult_survival)")
+        if not effort and self.tradeoff is not None:
+            problems.append("tradeoff: no allele has breeding = 'effort'; remove [tradeoff]")
+        t = self.trait
+        if t is None:
+            return problems
+        written = [a.name for a in self.allele]
+        if t.allele not in written:
+            problems.append(f"trait.allele: no allele is named {t.allele!r} (alleles: {written})")
+        elif t.allele not in effort:
+            problems.append(f"trait.allele: {t.allele!r} must have breeding = 'effort'")
+        if len(self.allele) != 1:
+            problems.append(f"allele: with [trait] the template {t.allele!r} is the only [[allele]] "
+                            f"(the grid makes the others); got {written}")
+        if self.invasion is not None:
+            problems.append("invasion: a [trait] run starts monomorphic at trait.initial; remove [invasion]")
+        if self.experiment.stop != "max-steps":
+            problems.append("experiment.stop: a [trait] run mutates for ever, so it stops at max_steps; "
+                            f"set stop = 'max-steps'; got {self.experiment.stop!r}")
+        if self.mutation.matrix is not None:
+            problems.append("mutation.matrix: a [trait] run mutates to neighbouring grid values at "
+                            "mutation.rate; give rate instead")
+        return problems
+
     # -- the model objects this config describes ---------------------------------
     @property
+    def alleles(self) -> list[AlleleSection]:
+        """The alleles a run holds: as written, or with [trait] one copy of the template per grid
+        value (named by value, ``effort`` replaced, the template's ``initial_count`` at ``initial``)."""
+        if self.trait is None:
+            return list(self.allele)
+        template = self.allele[0]
+        start = self.trait.initial_index()
+        return [template.model_copy(update={"name": name, "effort": float(e),
+                                            "initial_count": template.initial_count if i == start else 0})
+                for i, (name, e) in enumerate(zip(self.trait.names(), self.trait.grid()))]
+
+    @property
     def allele_names(self) -> list[str]:
-        return [a.name for a in self.allele]
+        return [a.name for a in self.alleles]
+
+    def efforts(self) -> list[float | None]:
+        """Each allele's effort E (None for an allele that is not an effort allele)."""
+        return [a.effort for a in self.alleles]
 
     def schedules(self) -> list[Schedule]:
         """One breeding schedule per allele, in config order."""
-        return [a.schedule() for a in self.allele]
+        tradeoff = self.tradeoff.tradeoff() if self.tradeoff is not None else None
+        return [a.schedule(tradeoff) for a in self.alleles]
 
     def density_dependence(self) -> DensityDependence:
         d = self.density
@@ -469,20 +631,14 @@ class Config(_Section):
         return make_offspring(self.offspring.distribution, self.offspring.dispersion)
 
     def mutation_model(self) -> Mutation:
+        if self.trait is not None:
+            return neighbour_mutation(len(self.alleles), self.mutation.rate)
         if self.mutation.matrix is not None:
             return Mutation(self.mutation.matrix)
         return uniform_mutation(len(self.allele), self.mutation.rate)
 
     def allele_index(self, name: str) -> int:
         return self.allele_names.index(name)
-
-    @model_serializer(mode="wrap")
-    def _without_absent_environment(self, handler):
-        # a config without [environment] dumps (and hashes) as it did before the section existed
-        data = handler(self)
-        if isinstance(data, dict) and data.get("environment", 0) is None:
-            del data["environment"]
-        return data
 
     def year_types(self) -> YearTypes | None:
         """The environment's year types, or None for a constant environment."""
@@ -509,7 +665,12 @@ SECTIONS = {
     "invasion": InvasionSection,
     "mutation": MutationSection,
     "environment": EnvironmentSection,
+    "tradeoff": TradeOffSection,
+    "trait": TraitSection,
 }
+_FIXED_PER_EXPERIMENT = ("experiment.seed", "experiment.replicates", "experiment.engine", "experiment.name",
+                         "experiment.trajectory", "trait.allele", "trait.values", "trait.start", "trait.stop",
+                         "trait.step")
 
 
 def check_sweep_path(config: Config, path: str) -> str | None:
@@ -518,8 +679,9 @@ def check_sweep_path(config: Config, path: str) -> str | None:
     if parts[0] == "allele":
         if len(parts) != 3:
             return "an allele path reads allele.NAME.KEY"
-        if parts[1] not in config.allele_names:
-            return f"no allele is named {parts[1]!r} (alleles: {config.allele_names})"
+        written = [a.name for a in config.allele]  # as written: a [trait] template is swept by its name
+        if parts[1] not in written:
+            return f"no allele is named {parts[1]!r} (alleles: {written})"
         if parts[2] == "name" or parts[2] not in AlleleSection.model_fields:
             return f"allele has no sweepable key {parts[2]!r}{suggest(parts[2], AlleleSection)}"
         return None
@@ -527,14 +689,13 @@ def check_sweep_path(config: Config, path: str) -> str | None:
         return _check_year_path(config, parts)
     if parts[0] not in SECTIONS or len(parts) != 2:
         return ("a path reads SECTION.KEY, allele.NAME.KEY or environment.year.NAME.KEY "
-                "(sections: experiment, density, offspring, invasion, mutation, environment)")
+                f"(sections: {', '.join(SECTIONS)})")
     section = SECTIONS[parts[0]]
     if parts[1] not in section.model_fields:
         return f"[{parts[0]}] has no key {parts[1]!r}{suggest(parts[1], section)}"
-    if parts[0] in ("invasion", "environment") and getattr(config, parts[0]) is None:
+    if parts[0] in ("invasion", "environment", "tradeoff", "trait") and getattr(config, parts[0]) is None:
         return f"the config has no [{parts[0]}] table"
-    if path in ("experiment.seed", "experiment.replicates", "experiment.engine", "experiment.name",
-                "experiment.trajectory"):
+    if path in _FIXED_PER_EXPERIMENT:
         return "is set once per experiment and cannot be swept"
     return None
 

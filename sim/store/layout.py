@@ -14,7 +14,11 @@ equal-length column datasets, chunked and gzip-compressed)::
                                   resident, mutant ("" without [invasion]),
                                   trajectory ("by-age" | "by-allele" | "none"),
                                   n_points, replicates (per point),
-                                  complete (True once every replicate is in)
+                                  complete (True once every replicate is in),
+                                  trait_efforts (only for a [trait] run: JSON list,
+                                  each allele's effort E in allele order, so counts
+                                  by allele are the effort distribution; see
+                                  readers.read_trait)
     /points/               one row per sweep point
         index              int32
         config             the point's full config as JSON (str)

@@ -22,6 +22,7 @@ __all__ = [
     "read_outcomes",
     "count_outcomes",
     "read_years",
+    "read_trait",
 ]
 
 
@@ -103,6 +104,8 @@ def read_attrs(path) -> dict:
         attrs = {k: (v.item() if hasattr(v, "item") else v) for k, v in f.attrs.items()}
         attrs["config"] = json.loads(attrs["config"])
         attrs["alleles"] = json.loads(attrs["alleles"])
+        if "trait_efforts" in attrs:
+            attrs["trait_efforts"] = json.loads(attrs["trait_efforts"])
     attrs.setdefault("complete", True)  # format 1 files were written whole
     attrs.setdefault("trajectory", "by-age")
     return attrs
@@ -269,4 +272,64 @@ def read_years(path, *, points=None, replicates=None) -> pd.DataFrame:
     frames = [frame for block in _read_blocks(path, read) for frame in block]
     if not frames:
         return pd.DataFrame(columns=["point", "replicate", "step", "year"])
+    return pd.concat(frames, ignore_index=True)
+
+
+def read_trait(path, *, points=None, replicates=None) -> pd.DataFrame:
+    """The effort distribution of a ``[trait]`` run over time, one row per recorded census.
+
+    Each allele of a trait run is one grid value of effort (the file's
+    ``trait_efforts`` attribute, in allele order), so the census counts by
+    allele are the distribution of effort among individuals.
+
+    Parameters
+    ----------
+    path : path-like
+        A results file of a config with ``[trait]`` and trajectories recorded
+        (``experiment.trajectory`` "by-allele" or "by-age").
+    points, replicates : list of int, optional
+        Select replicates before anything is read.
+
+    Returns
+    -------
+    DataFrame
+        ``point``, ``replicate``, ``step``, ``census`` (individuals counted),
+        ``mean_effort`` and ``sd_effort`` (mean and standard deviation of E
+        over the census's individuals; NaN for an empty census).
+    """
+    attrs = read_attrs(path)
+    if "trait_efforts" not in attrs:
+        raise ValueError(f"{str(path)!r} is not a [trait] run (no trait_efforts attribute)")
+    if attrs["trajectory"] == "none":
+        raise ValueError(f"{str(path)!r} recorded no trajectories (experiment.trajectory = 'none')")
+    efforts = np.asarray(attrs["trait_efforts"], dtype=float)
+
+    def read(f, offset):
+        reps = _replicate_columns(f, 0, ("point", "replicate", "trajectory_start", "trajectory_length"))
+        keep = np.ones(reps["point"].size, bool)
+        if points is not None:
+            keep &= np.isin(reps["point"], list(points))
+        if replicates is not None:
+            keep &= np.isin(reps["replicate"], list(replicates))
+        frames = []
+        for i in np.flatnonzero(keep):
+            start = int(reps["trajectory_start"][i])
+            sl = slice(start, start + int(reps["trajectory_length"][i]))
+            counts = f["trajectories"]["counts"][sl].astype(np.float64)
+            if counts.ndim == 3:
+                counts = counts.sum(axis=2)
+            n = counts.sum(axis=1)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                mean = counts @ efforts / n
+                var = counts @ efforts**2 / n - mean**2
+            frames.append(pd.DataFrame({
+                "point": reps["point"][i], "replicate": reps["replicate"][i],
+                "step": f["trajectories"]["step"][sl], "census": n.astype(np.int64),
+                "mean_effort": mean, "sd_effort": np.sqrt(np.clip(var, 0.0, None)),
+            }))
+        return frames
+
+    frames = [frame for block in _read_blocks(path, read) for frame in block]
+    if not frames:
+        return pd.DataFrame(columns=["point", "replicate", "step", "census", "mean_effort", "sd_effort"])
     return pd.concat(frames, ignore_index=True)

@@ -82,7 +82,7 @@ class ResultsWriter:
         self.replicates = config.experiment.replicates
         self.expected = len(points) * self.replicates
         self.mode = config.experiment.trajectory
-        self.n_alleles = len(config.allele)
+        self.n_alleles = len(config.allele_names)
         self.n_ages = max(max(s.n_ages for s in p.config.schedules()) for p in points)
         self.hash = config_hash(config)
         self.complete = False
@@ -444,7 +444,9 @@ def fill_header(f, config, points, *, created: str | None = None, extra: dict | 
             pts.create_dataset(key, data=np.asarray(values, dtype=float))
         except (TypeError, ValueError):
             pts.create_dataset(key, data=[json.dumps(v) for v in values], dtype=_STR)
-    _empty_tables(f, mode, len(config.allele), n_ages)
+    if config.trait is not None:  # each allele's effort: turns counts by allele into the trait
+        f.attrs["trait_efforts"] = json.dumps(config.efforts())
+    _empty_tables(f, mode, len(config.allele_names), n_ages)
     _years_group(f, config)
     if created is not None:
         f.attrs["created"] = created

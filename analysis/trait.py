@@ -1,0 +1,121 @@
+"""Effort configs and trait runs against adaptive-dynamics theory.
+
+``effort_model(config)`` turns a config's effort alleles, ``[tradeoff]`` and
+``[density]`` into the ``analysis.adaptive.EffortModel`` the theory takes;
+``trait_analysis`` analyses it on the config's grid; ``compare_trait``
+states, for every replicate of a ``[trait]`` run, whether its mean effort
+ended within one grid step of a predicted evolutionarily stable attractor
+("ended": the mean effort averaged over the last ``END_SHARE`` of its
+recorded censuses, so one season's drift does not decide the verdict).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from sim.config import Config, ConfigError
+from sim.store import read_attrs, read_point_configs, read_points, read_trait
+
+from .adaptive import AdaptiveAnalysis, EffortModel, analyse_effort
+
+__all__ = ["DEFAULT_GRID", "effort_model", "effort_grid", "trait_analysis", "is_trait_run", "compare_trait"]
+
+DEFAULT_GRID = 101  # evenly spaced efforts on [0, 1] where the config has no [trait] grid
+END_SHARE = 0.1  # the closing stretch of a run (share of its recorded censuses) its verdict reads
+
+
+def effort_model(config: Config) -> EffortModel:
+    """The config's effort alleles as one ``EffortModel`` (the unswept values of a swept config).
+
+    Raises
+    ------
+    ConfigError
+        Where no allele has ``breeding = "effort"``, or where effort alleles
+        differ in ``juvenile_survival`` or ``maturity_age`` (the theory puts
+        every effort on one life cycle), naming the allele.
+    """
+    alleles = [a for a in config.alleles if a.breeding == "effort"]
+    if not alleles:
+        raise ConfigError("allele: no allele has breeding = 'effort' (the invasibility analysis "
+                          "compares efforts on the [tradeoff] curve)")
+    first = alleles[0]
+    for a in alleles[1:]:
+        for key in ("juvenile_survival", "maturity_age"):
+            if getattr(a, key) != getattr(first, key):
+                raise ConfigError(
+                    f"allele {a.name!r}: {key} = {getattr(a, key)!r} differs from {first.name!r}'s "
+                    f"{getattr(first, key)!r}; the effort analysis needs one {key} for every effort allele")
+    return EffortModel(config.tradeoff.tradeoff(), first.juvenile_survival, first.maturity_age,
+                       config.density_dependence())
+
+
+def effort_grid(config: Config):
+    """The ``[trait]`` grid where it has 3 or more values, else ``DEFAULT_GRID`` points."""
+    if config.trait is not None and config.trait.grid().size >= 3:
+        return config.trait.grid()
+    return DEFAULT_GRID
+
+
+def trait_analysis(config: Config, *, grid=None) -> AdaptiveAnalysis:
+    """``analyse_effort`` of ``effort_model(config)`` on ``grid`` (default ``effort_grid(config)``)."""
+    return analyse_effort(effort_model(config), grid=effort_grid(config) if grid is None else grid)
+
+
+def is_trait_run(path) -> bool:
+    """True for a results file of a config with ``[trait]``."""
+    return "trait_efforts" in read_attrs(path)
+
+
+def _step_near(grid: np.ndarray, effort: float) -> float:
+    """The grid step at ``effort``: the wider of the two spacings around its nearest grid value."""
+    i = int(np.argmin(np.abs(grid - effort)))
+    gaps = [grid[j + 1] - grid[j] for j in (i - 1, i) if 0 <= j < grid.size - 1]
+    return float(max(gaps))
+
+
+def compare_trait(path) -> pd.DataFrame:
+    """Every replicate's final mean effort against the predicted attractors of its sweep point.
+
+    Returns
+    -------
+    DataFrame
+        One row per replicate: ``point``, ``replicate``, ``final_step``,
+        ``final_census``, ``final_mean_effort``, ``final_sd_effort`` (at the
+        last census), ``end_mean_effort`` (the mean effort averaged over the
+        last ``END_SHARE`` of the recorded censuses, at least one),
+        ``attractors`` (the point's evolutionarily stable attractors,
+        Geritz et al. 1998, as a list), ``nearest_attractor``, ``distance``
+        (of ``end_mean_effort`` from it),
+        ``grid_step`` (the grid's spacing there) and ``verdict``: "at
+        attractor" (within one grid step), "away from attractor",
+        "extinct" or "no attractor predicted".
+    """
+    configs = read_point_configs(path)
+    points = read_points(path)["point"].to_numpy()
+    trait = read_trait(path).sort_values(["point", "replicate", "step"], kind="stable")
+    runs = trait.groupby(["point", "replicate"], sort=True)
+    last = runs.tail(1).reset_index(drop=True)
+    end = runs["mean_effort"].apply(lambda m: m.iloc[-max(1, int(round(END_SHARE * m.size))):].mean())
+    last["end_mean_effort"] = end.to_numpy()
+    attractors = {int(p): trait_analysis(c).attractors for p, c in zip(points, configs)}
+    grids = {int(p): c.trait.grid() for p, c in zip(points, configs)}
+    rows = []
+    for r in last.itertuples():
+        found = attractors[int(r.point)]
+        row = {"point": int(r.point), "replicate": int(r.replicate), "final_step": int(r.step),
+               "final_census": int(r.census), "final_mean_effort": r.mean_effort,
+               "final_sd_effort": r.sd_effort, "end_mean_effort": r.end_mean_effort, "attractors": found}
+        if r.census == 0:
+            row.update(nearest_attractor=np.nan, distance=np.nan, grid_step=np.nan, verdict="extinct")
+        elif not found:
+            row.update(nearest_attractor=np.nan, distance=np.nan, grid_step=np.nan,
+                       verdict="no attractor predicted")
+        else:
+            near = min(found, key=lambda a: abs(a - r.end_mean_effort))
+            step = _step_near(grids[int(r.point)], near)
+            distance = abs(r.end_mean_effort - near)
+            row.update(nearest_attractor=near, distance=distance, grid_step=step,
+                       verdict="at attractor" if distance <= step else "away from attractor")
+        rows.append(row)
+    return pd.DataFrame(rows)

@@ -1,0 +1,93 @@
+"""The ``invasibility`` command, and what ``plot`` and ``compare`` do with a ``[trait]`` run.
+
+``register`` adds ``invasibility`` to the ``broodline`` parser
+(``sim.cli.COMMANDS`` names it); ``analysis.commands`` hands a trait run's
+results file to ``plot_trait_run`` and ``compare_trait_run``, with its own
+helpers (refusing to overwrite, printing tables) so this module does not
+import it back.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+__all__ = ["register", "cmd_invasibility", "plot_trait_run", "compare_trait_run"]
+
+
+def cmd_invasibility(args) -> int:
+    from sim.config import load_config
+    from sim.errors import UserError
+
+    from .invasibility import invasibility
+    from .trait import effort_grid, effort_model
+
+    config = load_config(args.config)
+    model = effort_model(config)
+    out = Path(args.output)
+    if out.exists() and not out.is_dir():
+        raise UserError(f"-o {out}: exists and is not a folder")
+    if args.grid is not None and args.grid < 3:
+        raise UserError(f"--grid must be at least 3; got {args.grid}")
+    result = invasibility(model, out, grid=args.grid if args.grid is not None else effort_grid(config))
+    if args.json:
+        print(json.dumps(result.as_dict(), indent=2))  # as_dict is JSON-ready (non-finite as null)
+        return 0
+    for s in result.analysis.singular:
+        print(f"E = {s.effort:.6g} ({s.position}): {s.kind}; gradient {s.gradient:.4g}")
+    print(f"attractors: {', '.join(f'{a:.6g}' for a in result.analysis.attractors) or 'none'}")
+    for name, path in result.files.items():
+        print(f"{name}: {path}")
+    return 0
+
+
+def plot_trait_run(args, *, free) -> int:
+    """``broodline plot`` of a trait run: the mean effort over time over the singular efforts.
+
+    ``free(paths, overwrite)`` refuses existing files unless ``--overwrite``.
+    """
+    from .trait_plots import TRAIT_FIGURES, plot_trait
+
+    out = Path(args.output)
+    free([out / f"{n}.{e}" for n in TRAIT_FIGURES for e in ("png", "svg")] if out.is_dir() else [],
+         args.overwrite)
+    for name, files in plot_trait(args.results, out).items():
+        print(f"{name}: {files['png']}  {files['svg']}")
+    return 0
+
+
+def compare_trait_run(args, *, free, show, records) -> int:
+    """``broodline compare`` of a trait run: each replicate's end against the predicted attractors.
+
+    ``free`` refuses existing files, ``show`` prints a table, ``records`` makes JSON rows
+    (``analysis.commands``'s helpers).
+    """
+    from .trait import compare_trait
+
+    if args.csv:
+        free([args.csv], args.overwrite)
+    table = compare_trait(args.results)
+    if args.csv:
+        table.to_csv(args.csv, index=False)
+    if args.json:
+        print(json.dumps({"replicates": records(table)}, indent=2))
+        return 0
+    shown = table.assign(attractors=[", ".join(f"{a:.4g}" for a in v) for v in table["attractors"]])
+    show(shown)
+    counts = table["verdict"].value_counts()
+    print("\n" + ", ".join(f"{n} {verdict}" for verdict, n in counts.items()) + f" (of {len(table)} replicates)")
+    return 0
+
+
+def register(sub) -> None:
+    """Add ``invasibility`` to the ``broodline`` subparsers."""
+    p = sub.add_parser(
+        "invasibility",
+        help="pairwise invasibility plot and singular efforts of a config's effort alleles",
+    )
+    p.add_argument("config", help="config (TOML) with effort alleles and a [tradeoff] table")
+    p.add_argument("-o", "--output", required=True, help="folder for the figures, CSV and JSON")
+    p.add_argument("--json", action="store_true", help="print the analysis as JSON")
+    p.add_argument("--grid", type=int, metavar="N",
+                   help="N evenly spaced efforts on [0, 1] (default: the [trait] values, else 101)")
+    p.set_defaults(func=cmd_invasibility)
