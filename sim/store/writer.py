@@ -205,7 +205,7 @@ class ResultsWriter:
         for shard in list_shards(self.parts):
             ok = (shard.point < len(self.points) and shard.last < self.replicates
                   and shard.first > end.get(shard.point, -1)
-                  and _shard_rows(self.parts / shard.name, self.hash) == shard.size)
+                  and _shard_rows(self.parts / shard.name, self._point_hash(shard.point)) == shard.size)
             if not ok:
                 log.warning("shard %s is unreadable, overlaps another or lies outside the "
                             "experiment: deleted, its batch runs again", self.parts / shard.name)
@@ -271,8 +271,20 @@ class ResultsWriter:
             raise ResultsError(self._write_failure(err)) from None
         self.shards[(shard.point, shard.first)] = shard
 
+    def _point_hash(self, point: int) -> str:
+        """The hash of one sweep point's resolved config: what a shard of that point carries.
+
+        Per point, not per experiment, so a design that adds sweep points as it goes
+        (``analysis.locate``) keeps its earlier shards, while a shard from another seed,
+        schedule or point is refused."""
+        cache = self.__dict__.setdefault("_point_hashes", {})
+        if point not in cache:
+            cache[point] = config_hash(self.points[point].config)
+        return cache[point]
+
     def _fill_shard(self, f, results) -> None:
-        f.attrs["config_hash"] = self.hash  # a shard from another run is refused, never merged
+        # a shard from another run (or another point's config) is refused, never merged
+        f.attrs["config_hash"] = self._point_hash(results[0].point)
         lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
         starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
         columns = {
