@@ -137,6 +137,10 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         raise
     tracker = None
     try:
+        # said once the file is accepted (after any refusal), not before
+        where = f"dask scheduler {cluster}" if cluster else \
+            (f"{workers} worker processes" if workers > 1 else "1 process")
+        log.info("running %s on %s", out, where)
         if resume and writer.fresh:
             log.info("nothing to resume at %s: starting", out)
         elif writer.complete:

@@ -62,3 +62,12 @@ def test_run_writes_results_and_prints_summary(tmp_path, capsys):
     assert main(["run", str(cfg), "-o", str(out), "--quiet"]) == 0
     text = capsys.readouterr().out
     assert f"Results: {out}" in text and "fixed_fraction" in text
+
+
+def test_a_refused_output_is_not_announced_as_running(tmp_path):
+    # the "running OUT on N workers" line comes only once the results file is accepted
+    from tests.runs_support import cli
+
+    done = cli("run", "configs/demo.toml", "-o", "/nonexistent-folder/x.h5")
+    assert done.returncode == 2
+    assert "does not exist" in done.stderr and "running" not in done.stderr

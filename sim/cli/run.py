@@ -131,9 +131,6 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
         logging.getLogger("sim.experiment").warning(
             "warning: --workers %d is more than the %d cores this process may use: the workers "
             "share them, which is no faster and holds %d batches in memory", workers, cores, workers)
-    where = f"dask scheduler {cluster}" if cluster else \
-        (f"{workers} worker processes" if workers > 1 else "1 process")
-    logging.getLogger("sim.experiment").info("running %s on %s", out, where)
     try:
         summary = run_experiment(config, out, overwrite=overwrite, resume=resume, workers=workers,
                                  cluster=cluster, progress=not quiet, batch_size=batch_size,
