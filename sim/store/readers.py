@@ -191,6 +191,16 @@ def read_replicates(path) -> pd.DataFrame:
     return df
 
 
+def _selected(reps: dict, points, replicates) -> np.ndarray:
+    """Which replicate rows the ``points`` and ``replicates`` selections keep (None: all)."""
+    keep = np.ones(reps["point"].size, bool)
+    if points is not None:
+        keep &= np.isin(reps["point"], list(points))
+    if replicates is not None:
+        keep &= np.isin(reps["replicate"], list(replicates))
+    return keep
+
+
 def read_trajectories(path, *, points=None, replicates=None, by_age: bool = True) -> pd.DataFrame:
     """Census trajectories in long form: point, replicate, step, allele, [age,] count.
 
@@ -207,11 +217,7 @@ def read_trajectories(path, *, points=None, replicates=None, by_age: bool = True
 
     def read(f, offset):
         reps = _replicate_columns(f, 0, ("point", "replicate", "trajectory_start", "trajectory_length"))
-        keep = np.ones(reps["point"].size, bool)
-        if points is not None:
-            keep &= np.isin(reps["point"], list(points))
-        if replicates is not None:
-            keep &= np.isin(reps["replicate"], list(replicates))
+        keep = _selected(reps, points, replicates)
         steps_ds, counts_ds = f["trajectories"]["step"], f["trajectories"]["counts"]
         frames = []
         for i in np.flatnonzero(keep):
@@ -255,11 +261,7 @@ def read_years(path, *, points=None, replicates=None) -> pd.DataFrame:
         names = np.array(json.loads(f[YEARS].attrs["names"]), dtype=object)
         reps = _replicate_columns(f, 0, ("point", "replicate", "steps"))
         starts = np.concatenate([[0], np.cumsum(reps["steps"].astype(np.int64))[:-1]])
-        keep = np.ones(reps["point"].size, bool)
-        if points is not None:
-            keep &= np.isin(reps["point"], list(points))
-        if replicates is not None:
-            keep &= np.isin(reps["replicate"], list(replicates))
+        keep = _selected(reps, points, replicates)
         types = f[YEARS]["type"]
         frames = []
         for i in np.flatnonzero(keep):
@@ -306,11 +308,7 @@ def read_trait(path, *, points=None, replicates=None) -> pd.DataFrame:
 
     def read(f, offset):
         reps = _replicate_columns(f, 0, ("point", "replicate", "trajectory_start", "trajectory_length"))
-        keep = np.ones(reps["point"].size, bool)
-        if points is not None:
-            keep &= np.isin(reps["point"], list(points))
-        if replicates is not None:
-            keep &= np.isin(reps["replicate"], list(replicates))
+        keep = _selected(reps, points, replicates)
         frames = []
         for i in np.flatnonzero(keep):
             start = int(reps["trajectory_start"][i])
