@@ -36,3 +36,16 @@ def make_config(**sections):
 @pytest.fixture
 def base_raw():
     return copy.deepcopy(BASE)
+
+
+@pytest.fixture(autouse=True)
+def _fresh_sim_logger():
+    """Undo what an in-process `broodline run` did to the "sim" logger (a stderr handler
+    and level INFO), so one test's log lines never land in another test's captured stderr."""
+    import logging
+
+    logger = logging.getLogger("sim")
+    handlers, level = list(logger.handlers), logger.level
+    yield
+    logger.handlers[:] = handlers
+    logger.setLevel(level)

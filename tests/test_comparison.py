@@ -204,6 +204,7 @@ def test_a_stopped_file_is_warned_about(tmp_path, monkeypatch, capsys):
     # at the command line: one plain warning line before the table
     from sim.cli import main
 
+    capsys.readouterr()  # only what `compare` itself prints
     assert main(["compare", str(path)]) == 0
     err = capsys.readouterr().err
     assert err.startswith("broodline compare: warning: ") and "--resume" in err
