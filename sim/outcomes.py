@@ -7,11 +7,15 @@ on arrays of codes (``classify``) and names appear only when results are made.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-import pandas as pd
 
 from .config import Config
 from .vocabulary import DECIDED, DECIDED_WITH_WINNER, OUTCOMES
+
+if TYPE_CHECKING:  # pandas is imported where a table is made: a worker process never needs it
+    import pandas as pd
 
 __all__ = ["OUTCOMES", "DECIDED", "DECIDED_WITH_WINNER", "CODES", "classify", "fixed_outcome",
            "summarize"]
@@ -74,6 +78,8 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
         The outcome ``fixed_fraction`` counts: ``fixed_outcome(config)``
         ("fixed" for an experiment without ``[invasion]``).
     """
+    import pandas as pd
+
     if "count" in replicates:
         counts = replicates.pivot_table(index="point", columns="outcome", values="count",
                                         aggfunc="sum", fill_value=0)

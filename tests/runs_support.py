@@ -123,8 +123,12 @@ from pathlib import Path
 import sim.store as store
 import sim.store.durable as durable
 
-where, n, marker = (sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])) if __name__ == "__main__" \
-    else ("", 0, None)
+# the stop applies in the writer and in its spawned workers (which save their own shards): they
+# import this file as __mp_main__ and read it from the environment they inherit
+if __name__ == "__main__":
+    os.environ["BROODLINE_TEST_STOP"] = "\n".join(sys.argv[1:4])
+spec = os.environ.get("BROODLINE_TEST_STOP", "").split("\n")
+where, n, marker = (spec[0], int(spec[1]), Path(spec[2])) if len(spec) == 3 else ("", 0, None)
 calls = {"n": 0}
 
 def stop_here():
@@ -137,10 +141,10 @@ def nth():
 
 W = store.ResultsWriter
 if where == "before-any-shard":
-    original = W._write_shard
-    def patched(self, results):
+    import sim.store.writer as writer
+    def patched(target, results):
         stop_here()
-    W._write_shard = patched
+    writer.write_shard = patched
 elif where == "mid-shard-write":  # the .tmp shard half written to disk
     original = durable._write_file
     def patched(path, data):

@@ -7,7 +7,7 @@ import socket
 import uuid
 from pathlib import Path
 
-from .work import ClusterError, run_batch
+from .work import ClusterError, Job, run_job
 
 __all__ = ["DaskPool", "CLUSTER_INSTALL"]
 
@@ -81,8 +81,11 @@ class DaskPool:
     Each batch is one task with its own key, so no two batches are merged. A
     worker lost mid-batch has its task rerun elsewhere by the scheduler (up
     to its ``allowed-failures``); the result still comes back once, so no
-    row is written twice.
+    row is written twice. The workers may not see this machine's disk
+    (``shares_disk`` is False): their results come back to the writer.
     """
+
+    shares_disk = False
 
     def __init__(self, address: str, *, timeout: float = 10.0):
         try:
@@ -107,19 +110,23 @@ class DaskPool:
         return max(1, sum(self.client.nthreads().values()))
 
     def run(self, tasks):
+        for batch, output in self.run_jobs(Job(batch, point, seed) for batch, point, seed in tasks):
+            yield batch, output.results
+
+    def run_jobs(self, jobs):
         from distributed import as_completed
         from distributed.client import FutureCancelledError
         from distributed.scheduler import KilledWorker
 
-        tasks = iter(tasks)
+        jobs = iter(jobs)
         queue = as_completed(loop=self.client.loop)
         futures = self._futures
 
         def submit_next() -> None:
-            for batch, point, seed in tasks:
+            for job in jobs:
+                batch = job.batch
                 key = f"broodline-{self._run_id}-p{batch.point}-r{batch.first}-{batch.last}"
-                future = self.client.submit(run_batch, point, batch.first, batch.last, seed,
-                                            key=key, pure=False)
+                future = self.client.submit(run_job, job, key=key, pure=False)
                 futures[future.key] = (future, batch)
                 queue.add(future)
                 return

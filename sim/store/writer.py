@@ -7,6 +7,7 @@ import logging
 import os
 import shutil
 import socket
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -34,14 +35,13 @@ from .layout import (
     parts_dir,
     software_version,
 )
-from .readers import read_attrs
 
 try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
     import fcntl
 except ImportError:  # pragma: no cover
     fcntl = None
 
-__all__ = ["ResultsWriter", "writer_state", "fill_header", "rewrite_header"]
+__all__ = ["ResultsWriter", "ShardTarget", "write_shard", "writer_state", "fill_header", "rewrite_header"]
 
 log = logging.getLogger(__name__)
 
@@ -176,6 +176,8 @@ class ResultsWriter:
         fill_header(f, self.config, self.points)
 
     def _open_existing(self) -> None:
+        from .readers import read_attrs  # pandas: only where a file is resumed
+
         where = str(self.path)
         try:
             attrs = read_attrs(self.path)
@@ -261,14 +263,31 @@ class ResultsWriter:
 
     def _write_shard(self, results) -> None:
         shard = Shard(results[0].point, results[0].replicate, results[-1].replicate)
+        self._check_overlap(shard)
+        try:
+            write_shard(self.shard_target(shard.point), results)
+        except OSError as err:
+            raise ResultsError(self._write_failure(err)) from None
+        self.shards[(shard.point, shard.first)] = shard
+
+    def _check_overlap(self, shard: Shard) -> None:
         for s in self.shards.values():
             if s.point == shard.point and s.first <= shard.last and shard.first <= s.last:
                 raise ResultsError(f"replicates {shard.first}-{shard.last} of point {shard.point} "
                                    f"overlap shard {s.name}, already written")
-        try:
-            durable.write_atomic(self.parts / shard.name, lambda f: self._fill_shard(f, results))
-        except OSError as err:
-            raise ResultsError(self._write_failure(err)) from None
+
+    def shard_target(self, point: int) -> ShardTarget:
+        """Where and how a batch of sweep point ``point`` is saved: what a worker process needs
+        to write its own shard (``write_shard``), so that this writer only records it."""
+        cache = self.__dict__.setdefault("_targets", {})
+        if point not in cache:
+            cache[point] = ShardTarget(self.parts, self.mode, self.n_alleles, self.n_ages,
+                                       self._point_hash(point), self.config.environment)
+        return cache[point]
+
+    def add_shard(self, shard: Shard) -> None:
+        """Record a shard a worker wrote itself (``write_shard`` with ``shard_target``)."""
+        self._check_overlap(shard)
         self.shards[(shard.point, shard.first)] = shard
 
     def _point_hash(self, point: int) -> str:
@@ -281,38 +300,6 @@ class ResultsWriter:
         if point not in cache:
             cache[point] = config_hash(self.points[point].config)
         return cache[point]
-
-    def _fill_shard(self, f, results) -> None:
-        # a shard from another run (or another point's config) is refused, never merged
-        f.attrs["config_hash"] = self._point_hash(results[0].point)
-        lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
-        starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
-        columns = {
-            "point": [r.point for r in results],
-            "replicate": [r.replicate for r in results],
-            "seed": [r.seed for r in results],
-            "spawn_key": [(r.point, r.replicate) for r in results],
-            "outcome": [r.outcome for r in results],
-            "winner": [r.winner for r in results],
-            "steps": [r.steps for r in results],
-            "fixation_step": [r.fixation_step for r in results],
-            "final_census": [r.final_census for r in results],
-            "trajectory_start": starts,
-            "trajectory_length": lengths,
-        }
-        reps = f.create_group("replicates")
-        for name, (dtype, shape) in REPLICATE_COLUMNS.items():
-            _column(reps, name, dtype, shape, 1024, columns[name])
-        traj = f.create_group("trajectories")
-        counts_shape = _counts_shape(self.mode, self.n_alleles, self.n_ages)
-        steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
-        counts = [r.trajectory if self.mode == "by-allele" else _pad_ages(r.trajectory, self.n_ages)
-                  for r in results]
-        counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
-        _column(traj, "step", np.int32, (), 4096, steps)
-        _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
-        if self.config.environment is not None:
-            _years_group(f, self.config, np.concatenate([r.years for r in results]))
 
     def _write_failure(self, err: OSError) -> str:
         reason = err.strerror or str(err)
@@ -349,7 +336,7 @@ class ResultsWriter:
             head.copy("points", out)
         out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
         _empty_tables(out, self.mode, self.n_alleles, self.n_ages)
-        _years_group(out, self.config)
+        _years_group(out, self.config.environment)
         reps, traj = out["replicates"], out["trajectories"]
         buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
         rows = offset = 0
@@ -415,6 +402,65 @@ class ResultsWriter:
             self.release()
 
 
+@dataclass(frozen=True)
+class ShardTarget:
+    """Everything needed to save a batch of one sweep point as a shard, in any process:
+    the shards' folder, the trajectory mode and counts shape of the file, the point's config
+    hash (a shard carries it) and the ``[environment]`` section (None: no years)."""
+
+    parts: Path
+    mode: str
+    n_alleles: int
+    n_ages: int
+    point_hash: str
+    environment: object = None
+
+
+def write_shard(target: ShardTarget, results) -> Shard:
+    """Save finished replicates (one point, consecutive replicates, in order) as a durable shard.
+
+    The shard is written as ``.tmp``, fsynced and renamed into place
+    (``durable.write_atomic``), so it exists whole or not at all; a worker
+    process calls this for its own batch, and the writer only records it.
+    """
+    shard = Shard(results[0].point, results[0].replicate, results[-1].replicate)
+    durable.write_atomic(target.parts / shard.name, lambda f: _fill_shard(f, target, results))
+    return shard
+
+
+def _fill_shard(f, target: ShardTarget, results) -> None:
+    # a shard from another run (or another point's config) is refused, never merged
+    f.attrs["config_hash"] = target.point_hash
+    lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
+    starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
+    columns = {
+        "point": [r.point for r in results],
+        "replicate": [r.replicate for r in results],
+        "seed": [r.seed for r in results],
+        "spawn_key": [(r.point, r.replicate) for r in results],
+        "outcome": [r.outcome for r in results],
+        "winner": [r.winner for r in results],
+        "steps": [r.steps for r in results],
+        "fixation_step": [r.fixation_step for r in results],
+        "final_census": [r.final_census for r in results],
+        "trajectory_start": starts,
+        "trajectory_length": lengths,
+    }
+    reps = f.create_group("replicates")
+    for name, (dtype, shape) in REPLICATE_COLUMNS.items():
+        _column(reps, name, dtype, shape, 1024, columns[name])
+    traj = f.create_group("trajectories")
+    counts_shape = _counts_shape(target.mode, target.n_alleles, target.n_ages)
+    steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
+    counts = [r.trajectory if target.mode == "by-allele" else _pad_ages(r.trajectory, target.n_ages)
+              for r in results]
+    counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
+    _column(traj, "step", np.int32, (), 4096, steps)
+    _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
+    if target.environment is not None:
+        _years_group(f, target.environment, np.concatenate([r.years for r in results]))
+
+
 def _empty_tables(f, mode, n_alleles, n_ages) -> None:
     reps = f.create_group("replicates")
     for name, (dtype, shape) in REPLICATE_COLUMNS.items():
@@ -459,7 +505,7 @@ def fill_header(f, config, points, *, created: str | None = None, extra: dict | 
     if config.trait is not None:  # each allele's effort: turns counts by allele into the trait
         f.attrs["trait_efforts"] = json.dumps(config.efforts())
     _empty_tables(f, mode, len(config.allele_names), n_ages)
-    _years_group(f, config)
+    _years_group(f, config.environment)
     if created is not None:
         f.attrs["created"] = created
     f.attrs.update(extra or {})
