@@ -94,9 +94,9 @@ class RunTimings:
     clock as the workers' ``BatchClock``): ``started`` (the call), ``pool_started``,
     ``checked`` (config and sweep checked), ``file_ready`` (header written, lock
     held), ``finished_batches`` (the last batch recorded), ``finished`` (merged,
-    returned). ``writer_s`` / ``writer_cpu_s`` are the wall and CPU seconds this
-    process spent recording batches (saving them, where the workers do not);
-    ``merge_s`` / ``merge_cpu_s`` the final merge's. ``batches`` holds every batch's
+    returned). ``replicates`` were run now, in batches of ``batch_size``;
+    ``writer_s`` / ``writer_cpu_s`` are the wall and CPU seconds this process spent
+    recording batches (saving them, where the workers do not); ``merge_s`` / ``merge_cpu_s`` the final merge's. ``batches`` holds every batch's
     ``BatchClock``; ``workers`` each started worker's (pid, ready at, start-up CPU).
     """
 
@@ -111,6 +111,7 @@ class RunTimings:
     merge_s: float = 0.0
     merge_cpu_s: float = 0.0
     replicates: int = 0
+    batch_size: int = 0
     batches: list[BatchClock] = field(default_factory=list)
     workers: list[tuple[int, float, float]] = field(default_factory=list)
 
@@ -199,6 +200,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         starts = {p.index: initial_census(p.config) for p in points}  # workers solve no equilibrium
         census = max(int(start.sum()) for start in starts.values())
         size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
+        clock.batch_size = size
         shards = pool.shares_disk  # the workers save their own shards; the writer indexes them
         jobs = (Job(batch, points[batch.point], seed, starts[batch.point],
                     writer.shard_target(batch.point) if shards else None)

@@ -168,13 +168,23 @@ elif where == "between-shards":
         if path.parent.name.endswith(".parts") and nth():
             stop_here()
     durable._commit = patched
-elif where == "mid-merge":  # the merged .tmp file half written
-    original = W._merge
-    def patched(self, out, shards):
-        original(self, out, shards[: len(shards) // 2])
-        out.flush()
+elif where == "mid-merge":  # every row in the merged .tmp file, not yet marked complete nor renamed
+    import sim.store.writer as writer
+    def patched(self):
+        self._flush()
+        self.file.flush()
         stop_here()
-    W._merge = patched
+    writer._MergedFile.commit = patched
+elif where == "merging-during-run":  # the merged .tmp file holds the first shards, the run goes on
+    import sim.store.writer as writer
+    original = writer._MergedFile._read
+    def patched(self, path):
+        original(self, path)
+        if nth():
+            self._flush()
+            self.file.flush()
+            stop_here()
+    writer._MergedFile._read = patched
 elif where == "slow-commits":  # every shard takes a while: time to press Ctrl-C mid-run
     original = durable._commit
     def patched(tmp, path):

@@ -55,10 +55,23 @@ def _watch_parent(parent: int) -> None:
             os._exit(1)
 
 
+def _warm_compiler() -> None:
+    """Set up numba's code generator now (about 0.2 s), while the writer checks the config,
+    rather than in the worker's first batch, where loading the engines' cached machine code
+    would do it."""
+    try:
+        from numba.core.registry import cpu_target
+
+        cpu_target.target_context.refresh()
+    except Exception:  # an internal of numba: if it moves, the first batch does this itself
+        pass
+
+
 def _worker_init(parent: int) -> None:
     # Ctrl-C in a terminal reaches the whole process group; the writer alone handles it.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     threading.Thread(target=_watch_parent, args=(parent,), daemon=True).start()
+    _warm_compiler()
 
 
 def _ready() -> tuple[int, float, float]:

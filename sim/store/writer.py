@@ -166,6 +166,7 @@ class ResultsWriter:
             if leftover.name != "lock":
                 leftover.unlink() if leftover.is_file() else shutil.rmtree(leftover)
         self.path.unlink(missing_ok=True)
+        self.path.with_name(self.path.name + ".tmp").unlink(missing_ok=True)
         try:
             durable.write_atomic(self.path, self._write_header)
         except OSError as err:
@@ -269,6 +270,7 @@ class ResultsWriter:
         except OSError as err:
             raise ResultsError(self._write_failure(err)) from None
         self.shards[(shard.point, shard.first)] = shard
+        self._merge_ready()
 
     def _check_overlap(self, shard: Shard) -> None:
         for s in self.shards.values():
@@ -289,6 +291,7 @@ class ResultsWriter:
         """Record a shard a worker wrote itself (``write_shard`` with ``shard_target``)."""
         self._check_overlap(shard)
         self.shards[(shard.point, shard.first)] = shard
+        self._merge_ready()
 
     def _point_hash(self, point: int) -> str:
         """The hash of one sweep point's resolved config: what a shard of that point carries.
@@ -308,68 +311,41 @@ class ResultsWriter:
                 "(free disk space, permissions) and finish with resume=True")
 
     # -- finishing ------------------------------------------------------------------
+    def _merge_ready(self) -> None:
+        """Append to the merged file every shard whose predecessors in (point, replicate) order
+        are in (the merge goes on while the run does: at the end only the last shards are left)."""
+        if self.complete:
+            return
+        merge = self.__dict__.get("_merging")
+        if merge is None:
+            merge = self._merging = _MergedFile(self)
+        try:
+            merge.advance(self.shards)
+        except OSError as err:
+            raise ResultsError(self._write_failure(err).replace("intact", "intact (as shards)")) from None
+
     def finalize(self) -> bool:
         """Merge every shard into the one results file, if all replicates are in.
 
-        The merged file is built beside the running one and renamed over it,
-        then the shards are removed. Returns True when the file is complete.
+        The merged file is built beside the running one (``NAME.tmp``, filled
+        while the run goes on), made durable and renamed over it, then the
+        shards are removed. Returns True when the file is complete.
         """
         if self.complete:
             self._remove_parts()
             return True
         if self.done < self.expected:
             return False
-        shards = sorted(self.shards.values())
+        self._merge_ready()
         try:
-            durable.write_atomic(self.path, lambda f: self._merge(f, shards), in_memory=False)
+            self._merging.commit()
         except OSError as err:
             raise ResultsError(self._write_failure(err).replace(
                 "intact", "intact (as shards)")) from None
+        self._merging = None
         self.complete = True
         self._remove_parts()
         return True
-
-    def _merge(self, out, shards) -> None:
-        with h5py.File(self.path, "r") as head:
-            for key, value in head.attrs.items():
-                out.attrs[key] = value
-            head.copy("points", out)
-        out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
-        _empty_tables(out, self.mode, self.n_alleles, self.n_ages)
-        _years_group(out, self.config.environment)
-        reps, traj = out["replicates"], out["trajectories"]
-        buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
-        rows = offset = 0
-
-        def flush():
-            for name in REPLICATE_COLUMNS:
-                if buffer[name]:
-                    _append(reps[name], np.concatenate(buffer[name]))
-            for name in ("step", "counts"):
-                if buffer[name]:
-                    _append(traj[name], np.concatenate(buffer[name]))
-            if buffer[YEARS]:
-                _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
-            for values in buffer.values():
-                values.clear()
-
-        for shard in shards:
-            with h5py.File(self.parts / shard.name, "r") as f:
-                table = {name: f["replicates"][name][:] for name in REPLICATE_COLUMNS}
-                table["trajectory_start"] = table["trajectory_start"] + offset
-                for name, values in table.items():
-                    buffer[name].append(values)
-                buffer["step"].append(f["trajectories"]["step"][:])
-                buffer["counts"].append(f["trajectories"]["counts"][:])
-                if YEARS in f:
-                    buffer[YEARS].append(f[YEARS]["type"][:])
-                offset += f["trajectories"]["step"].shape[0]
-            rows += shard.size
-            if rows >= _MERGE_ROWS or sum(len(c) for c in buffer["step"]) >= _MERGE_RECORDS:
-                flush()
-                rows = 0
-        flush()
-        out.attrs["complete"] = True
 
     def _remove_parts(self) -> None:
         for shard in list_shards(self.parts):
@@ -387,6 +363,9 @@ class ResultsWriter:
 
     def release(self) -> None:
         """Release the lock without merging (after an interruption or a failure)."""
+        merge = self.__dict__.pop("_merging", None)
+        if merge is not None:
+            merge.abandon()
         if self._lock_fd is not None:
             for leftover in self.parts.glob("*.tmp"):
                 leftover.unlink(missing_ok=True)
@@ -400,6 +379,109 @@ class ResultsWriter:
             self.close()
         else:
             self.release()
+
+
+class _MergedFile:
+    """The finished results file under construction, as ``NAME.tmp`` beside the running one.
+
+    Shards are appended in canonical order (point, replicate) as soon as every
+    shard before them is in, so the merge goes on during the run instead of a
+    second pass over every shard at its end. Rows are buffered (at most
+    ``_MERGE_ROWS`` replicates or ``_MERGE_RECORDS`` census records) to keep
+    memory flat. Until ``commit`` renames it into place nothing reads it: a
+    crash leaves a ``.tmp`` that a resume deletes, and the shards stay until
+    the merged file is in place.
+    """
+
+    def __init__(self, writer: ResultsWriter):
+        self.writer = writer
+        self.tmp = writer.path.with_name(writer.path.name + ".tmp")
+        self.file = None
+        self.next = (0, 0)  # the (point, first replicate) of the shard needed next
+        self.buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
+        self.rows = self.records = self.offset = 0
+
+    def _open(self) -> None:
+        w = self.writer
+        with durable.h5_write_errors():
+            out = h5py.File(self.tmp, "w")
+            self.file = out
+            with h5py.File(w.path, "r") as head:
+                for key, value in head.attrs.items():
+                    out.attrs[key] = value
+                head.copy("points", out)
+            out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
+            _empty_tables(out, w.mode, w.n_alleles, w.n_ages)
+            _years_group(out, w.config.environment)
+
+    def advance(self, shards: dict) -> None:
+        """Append every shard that comes next in order (``shards``: (point, first) -> Shard)."""
+        w = self.writer
+        while (shard := shards.get(self.next)) is not None:
+            if self.file is None:
+                self._open()
+            self._read(w.parts / shard.name)
+            after = shard.last + 1
+            self.next = (shard.point, after) if after < w.replicates else (shard.point + 1, 0)
+            self.rows += shard.size
+            if self.rows >= _MERGE_ROWS or self.records >= _MERGE_RECORDS:
+                self._flush()
+
+    def _read(self, path: Path) -> None:
+        buffer = self.buffer
+        with h5py.File(path, "r") as f:
+            reps, traj = f["replicates"], f["trajectories"]
+            for name in REPLICATE_COLUMNS:
+                buffer[name].append(reps[name][()])
+            buffer["trajectory_start"][-1] = buffer["trajectory_start"][-1] + self.offset
+            steps = traj["step"][()]
+            buffer["step"].append(steps)
+            buffer["counts"].append(traj["counts"][()])
+            if YEARS in f:
+                buffer[YEARS].append(f[YEARS]["type"][()])
+        self.offset += steps.shape[0]
+        self.records += steps.shape[0]
+
+    def _flush(self) -> None:
+        out, buffer = self.file, self.buffer
+        with durable.h5_write_errors():
+            for name in REPLICATE_COLUMNS:
+                if buffer[name]:
+                    _append(out["replicates"][name], np.concatenate(buffer[name]))
+            for name in ("step", "counts"):
+                if buffer[name]:
+                    _append(out["trajectories"][name], np.concatenate(buffer[name]))
+            if buffer[YEARS]:
+                _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
+        for values in buffer.values():
+            values.clear()
+        self.rows = self.records = 0
+
+    def commit(self) -> None:
+        """Every shard is in: mark the file complete, make it durable, rename it into place."""
+        if self.file is None:
+            self._open()
+        try:
+            self._flush()
+            with durable.h5_write_errors():
+                self.file.attrs["complete"] = True
+                self.file.flush()
+                self.file.close()
+            self.file = None
+            durable.commit_file(self.tmp, self.writer.path)
+        except BaseException:
+            self.abandon()
+            raise
+
+    def abandon(self) -> None:
+        """Stop without a file: close and delete the ``.tmp`` (the shards hold every row)."""
+        try:
+            if self.file is not None:
+                self.file.close()
+        except Exception:  # a file already broken (full disk): it is deleted anyway
+            pass
+        self.file = None
+        self.tmp.unlink(missing_ok=True)
 
 
 @dataclass(frozen=True)
