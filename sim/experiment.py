@@ -220,6 +220,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
             if _STOP.is_set():
                 raise KeyboardInterrupt
         clock.finished_batches = wall = time.perf_counter()
+        if timings is not None and hasattr(pool, "workers_ready"):
+            timings.workers = pool.workers_ready()
+        pool.shutdown(wait=False)  # idle workers exit while the last shards are merged
         cpu = time.process_time()
         writer.finalize()
         clock.merge_s, clock.merge_cpu_s = time.perf_counter() - wall, time.process_time() - cpu
@@ -235,8 +238,6 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     finally:
         if tracker is not None:
             tracker.close()
-    if timings is not None and hasattr(pool, "workers_ready"):
-        timings.workers = pool.workers_ready()
     pool.shutdown()
     summary = summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))
     clock.finished = time.perf_counter()

@@ -9,7 +9,7 @@ import sys
 from ..bench import DEFAULT_SIZES, LARGE_SIZE, format_report, run_bench
 from ..bench_memory import measure_memory, measure_planning
 from ..bench_scaling import DEFAULT_REPLICATES as SCALING_REPLICATES
-from ..bench_scaling import format_scaling, run_scaling
+from ..bench_scaling import SCALING_ENGINES, format_scaling, run_scaling
 from ..errors import UserError
 from .run import positive
 
@@ -53,7 +53,7 @@ def cmd_bench_scaling(args) -> int:
         raise UserError("--replicates must be >= 1 with --scaling; got 0")
     say = None if args.json else (lambda m: print(f"  running {m} ...", file=sys.stderr, flush=True))
     report = run_scaling(replicates=SCALING_REPLICATES if args.replicates is None else args.replicates,
-                         workers=args.workers, progress=say)
+                         workers=args.workers, engines=args.engine or SCALING_ENGINES, progress=say)
     print(json.dumps(report.to_records(), indent=1) if args.json else format_scaling(report))
     return 0
 
@@ -109,6 +109,8 @@ def register(sub) -> None:
                         "engine: speed-up, efficiency, fixed cost, the writer's load")
     p.add_argument("--workers", type=_count(1), default=None, metavar="N",
                    help="with --scaling: the larger worker count (default: every core available)")
+    p.add_argument("--engine", action="append", choices=SCALING_ENGINES,
+                   help="with --scaling: only this engine (repeat for several; default: both)")
     p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
     p.set_defaults(func=cmd_bench)
 

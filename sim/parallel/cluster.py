@@ -169,7 +169,9 @@ class DaskPool:
                 if len(futures) == before:
                     break
 
-    def shutdown(self, *, cancel: bool = False) -> None:
+    def shutdown(self, *, cancel: bool = False, wait: bool = True) -> None:
+        if not (cancel or wait):  # the workers belong to the cluster: nothing to let go early
+            return
         try:
             if cancel and self._futures:
                 self.client.cancel([f for f, _ in self._futures.values()])

@@ -38,7 +38,7 @@ class SerialPool:
     def run(self, tasks):
         return _results(self, tasks)
 
-    def shutdown(self, *, cancel: bool = False) -> None:
+    def shutdown(self, *, cancel: bool = False, wait: bool = True) -> None:
         pass
 
 
@@ -130,12 +130,16 @@ class ProcessPool:
                 yield batch, results
                 submit_next()
 
-    def shutdown(self, *, cancel: bool = False) -> None:
-        if cancel:
-            terminate = getattr(self._executor, "terminate_workers", None)  # Python 3.14+
-            if terminate is not None:
-                terminate()
-            else:  # older Pythons have no public way to stop a running worker
-                for process in list((getattr(self._executor, "_processes", None) or {}).values()):
-                    process.terminate()
-        self._executor.shutdown(wait=not cancel, cancel_futures=cancel)
+    def shutdown(self, *, cancel: bool = False, wait: bool = True) -> None:
+        """Stop the workers: with ``cancel`` at once (running batches are abandoned); else once
+        they are idle, waiting for them to exit unless ``wait`` is False (call again to wait)."""
+        if not cancel:
+            self._executor.shutdown(wait=wait)
+            return
+        terminate = getattr(self._executor, "terminate_workers", None)  # Python 3.14+
+        if terminate is not None:
+            terminate()
+        else:  # older Pythons have no public way to stop a running worker
+            for process in list((getattr(self._executor, "_processes", None) or {}).values()):
+                process.terminate()
+        self._executor.shutdown(wait=False, cancel_futures=True)
