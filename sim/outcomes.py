@@ -88,8 +88,9 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
         if name not in counts:
             counts[name] = 0
     table = pd.DataFrame({"replicates": counts.sum(axis=1)})
+    always = ("mutant-fixed", "mutant-lost") if fixed == "mutant-fixed" else (fixed,)
     for name in OUTCOMES:
-        if counts[name].any() or name in ("mutant-fixed", "mutant-lost"):
+        if counts[name].any() or name in always:
             table[name] = counts[name]
     table["resolved"] = counts[list(DECIDED)].sum(axis=1)
     table["fixed_fraction"] = counts[fixed] / table["resolved"].where(table["resolved"] > 0)

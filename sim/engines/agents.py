@@ -13,6 +13,7 @@ import numpy as np
 from ..density import Factors
 from ..kernel import SeasonRates
 from ..lifecycle import LifeCycle
+from .season import DRAW_LIMIT
 
 __all__ = ["AgentsEngine", "Breeder"]
 
@@ -36,18 +37,20 @@ class Breeder(mesa.Agent):
 
     def breed(self, rates: SeasonRates) -> None:
         """Draw this season's offspring number, mean m(a) f_fec."""
-        mean = rates.breeding[self.kind]
+        mean = min(rates.breeding[self.kind], DRAW_LIMIT)  # past it the replicate ends capped anyway
         self.births = int(self.model.engine.life.offspring.draw(np.array([mean]), self.model.rng)[0])
 
     def survives(self, rates: SeasonRates) -> bool:
         """Survive to the next census with probability s(a) f_adult."""
         return bool(self.model.rng.random() < rates.survival[self.kind])
 
-    def recruit_alleles(self, factors: Factors, survived: bool) -> list[int]:
+    def recruit_alleles(self, factors: Factors, survived: bool, room: int) -> list[int]:
         """Alleles of this season's offspring that survive to age 1 (after mutation).
 
         Each young recruits with the kernel's probability for its parent's
-        fate (``survived``: c_care, else c_orphan) and its brood's size.
+        fate (``survived``: c_care, else c_orphan) and its brood's size. Once
+        ``room`` recruits are drawn the census has passed ``max_population``
+        (the replicate ends capped), so the rest of the brood is not drawn.
         """
         if self.births == 0:
             return []
@@ -58,6 +61,8 @@ class Breeder(mesa.Agent):
         for _ in range(self.births):
             if rng.random() < recruitment:
                 alleles.append(int(mutation.mutate(np.array([self.allele]), rng)[0]))
+                if len(alleles) >= room:
+                    break
         return alleles
 
     def die(self) -> None:
@@ -98,6 +103,9 @@ class AgentsEngine:
             f = kernel.multipliers(kernel.birth_factors(sum(a.births for a in adults)), year=year)
             rates = kernel.rates(f)
         # 3. survival (independent of the brood) and 4. recruitment, by the parent's fate and brood
+        # (a census past max_population ends the replicate capped: no more young are drawn
+        # then, so an exploding population never builds its agents)
+        limit = self.model.config.experiment.max_population
         survivors, newborn = [], []
         for agent in adults:
             survived = agent.survives(rates)
@@ -105,14 +113,16 @@ class AgentsEngine:
                 survivors.append(agent)
             else:
                 agent.die()
-            newborn.extend(agent.recruit_alleles(f, survived))
+            room = limit + 1 - len(survivors) - len(newborn)
+            if room > 0:
+                newborn.extend(agent.recruit_alleles(f, survived, room))
         # 5. next census: survivors one year older, recruits at age 1
         for agent in survivors:
             agent.age += 1
         recruits = [Breeder(self.model, allele, 1) for allele in newborn]
         # then the ceiling's removal: random individuals, from the recruits or from everyone
         excess, _ = kernel.ceiling_excess(len(survivors), len(recruits))
-        if excess > 0:
+        if excess > 0 and len(survivors) + len(recruits) <= limit:  # (past it: capped, as is)
             pool = recruits if kernel.ceiling_on_recruits else survivors + recruits
             for i in self.model.rng.choice(len(pool), size=int(excess), replace=False):
                 pool[i].die()
