@@ -44,26 +44,39 @@ class Breeder(mesa.Agent):
         """Survive to the next census with probability s(a) f_adult."""
         return bool(self.model.rng.random() < rates.survival[self.kind])
 
-    def recruit_alleles(self, factors: Factors, survived: bool, room: int) -> list[int]:
-        """Alleles of this season's offspring that survive to age 1 (after mutation).
+    def recruitment(self, factors: Factors, survived: bool) -> float:
+        """A young's chance to recruit: the kernel's, for its parent's fate (``survived``:
+        c_care, else c_orphan) and its brood's size."""
+        kernel = self.model.engine.kernel
+        return kernel.recruitment(factors, parent_survived=survived, brood=self.births)[self.kind]
 
-        Each young recruits with the kernel's probability for its parent's
-        fate (``survived``: c_care, else c_orphan) and its brood's size. Once
-        ``room`` recruits are drawn the census has passed ``max_population``
-        (the replicate ends capped), so the rest of the brood is not drawn.
+    def recruit_alleles(self, factors: Factors, survived: bool, room: int) -> tuple[list[int], int]:
+        """Alleles of this season's offspring that survive to age 1 (after mutation), young by
+        young, and how many young are left undrawn.
+
+        Young are drawn until ``room`` recruits are built: past that the census
+        has passed ``max_population`` and the replicate ends capped, so the rest
+        are only counted (``count_recruits``), never built.
         """
         if self.births == 0:
-            return []
+            return [], 0
         mutation, rng = self.model.engine.life.mutation, self.model.rng
-        kernel = self.model.engine.kernel
-        recruitment = kernel.recruitment(factors, parent_survived=survived, brood=self.births)[self.kind]
+        recruitment = self.recruitment(factors, survived)
         alleles = []
-        for _ in range(self.births):
+        for young in range(self.births):
             if rng.random() < recruitment:
                 alleles.append(int(mutation.mutate(np.array([self.allele]), rng)[0]))
                 if len(alleles) >= room:
-                    break
-        return alleles
+                    return alleles, self.births - young - 1
+        return alleles, 0
+
+    def count_recruits(self, factors: Factors, survived: bool, young: int) -> np.ndarray:
+        """Recruits by allele among ``young`` of this season's offspring, counted in one draw
+        (a capped season's census stays right without building its agents)."""
+        life, rng = self.model.engine.life, self.model.rng
+        counts = np.zeros(life.n_alleles, dtype=np.int64)
+        counts[self.allele] = rng.binomial(young, self.recruitment(factors, survived))
+        return life.mutation.mutate_counts(counts, rng)
 
     def die(self) -> None:
         self.alive = False
@@ -77,6 +90,7 @@ class AgentsEngine:
         self.model = model
         self.life = life
         self.kernel = life.kernel
+        self.unbuilt = np.zeros(life.n_alleles, dtype=np.int64)
         for allele in range(life.n_alleles):
             for age_class in range(life.n_ages):
                 for _ in range(int(census[allele, age_class])):
@@ -86,7 +100,9 @@ class AgentsEngine:
         counts = np.zeros(self.kernel.n_classes, dtype=np.int64)
         for agent in self.model.agents:
             counts[agent.kind] += 1
-        return counts.reshape(self.life.n_alleles, self.life.n_ages)
+        counts = counts.reshape(self.life.n_alleles, self.life.n_ages)
+        counts[:, 0] += self.unbuilt  # (only in a season that ended capped)
+        return counts
 
     def step(self) -> None:
         kernel = self.kernel
@@ -107,6 +123,7 @@ class AgentsEngine:
         # then, so an exploding population never builds its agents)
         limit = self.model.config.experiment.max_population
         survivors, newborn = [], []
+        self.unbuilt[:] = 0  # recruits past max_population: counted, not built
         for agent in adults:
             survived = agent.survives(rates)
             if survived:
@@ -114,8 +131,10 @@ class AgentsEngine:
             else:
                 agent.die()
             room = limit + 1 - len(survivors) - len(newborn)
-            if room > 0:
-                newborn.extend(agent.recruit_alleles(f, survived, room))
+            alleles, left = agent.recruit_alleles(f, survived, room) if room > 0 else ([], agent.births)
+            newborn.extend(alleles)
+            if left:
+                self.unbuilt += agent.count_recruits(f, survived, left)
         # 5. next census: survivors one year older, recruits at age 1
         for agent in survivors:
             agent.age += 1
