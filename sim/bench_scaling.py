@@ -26,8 +26,11 @@ From one run's ``RunTimings`` (``sim.experiment``) and the workers'
   batches (``writer_busy_fraction``), its cost per replicate, and the worker
   count at which one writer would be busy all the time
   (``writer_saturates_at_workers`` = a worker's wall time per replicate / the
-  writer's per replicate); ``saver_saturates_at_workers`` is the same if the
-  writer saved every batch itself (a dask cluster's workers send results back);
+  writer's per replicate); ``merge_saturates_at_workers`` the same for the
+  merge, done while the writer waits for workers (past it the merge lags
+  and finishes after the last batch); ``saver_saturates_at_workers`` is the
+  writer's limit were it to save every batch itself (a dask cluster's
+  workers send results back);
 - ``identical``: the results datasets hash the same as on 1 worker.
 """
 
@@ -100,8 +103,12 @@ SCALING_KEYS = {
     "one_replicate_s": "wall_s of the same run with a single replicate: the fixed cost of a run",
     "fixed_cost_s": "wall_s - batch seconds / workers: the time not spent in batches, per worker",
     "writer_busy_fraction": "share of wall_s during which the writing process records batches "
-                            "or merges",
+                            "or merges shards",
     "writer_per_replicate_s": "seconds the writing process spends recording one replicate's batch",
+    "merge_per_replicate_s": "seconds the writing process spends merging one replicate into the "
+                             "results file (while it waits for workers, and at the end)",
+    "merge_saturates_at_workers": "worker_per_replicate_s / merge_per_replicate_s: past this many "
+                                  "workers the merge falls behind and finishes after the last batch",
     "save_per_replicate_s": "CPU seconds a worker spends saving one replicate to its shard",
     "worker_per_replicate_s": "a worker's wall seconds per replicate (its batches' time / replicates / workers)",
     "writer_saturates_at_workers": "worker_per_replicate_s / writer_per_replicate_s: workers at "
@@ -141,6 +148,8 @@ class ScalingRecord:
     fixed_cost_s: float
     writer_busy_fraction: float
     writer_per_replicate_s: float
+    merge_per_replicate_s: float
+    merge_saturates_at_workers: float | None
     save_per_replicate_s: float
     worker_per_replicate_s: float
     writer_saturates_at_workers: float | None
@@ -255,7 +264,8 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
     writer = t.writer_s / max(t.replicates, 1)
     worker = batch_wall / max(t.replicates, 1)  # a worker's seconds per replicate
     save = sum(c.save_cpu for c in clocks) / max(t.replicates, 1)
-    busy = (t.writer_s + t.merge_s) / wall
+    busy = (t.writer_s + t.merge_run_s + t.merge_s) / wall
+    merge = (t.merge_run_s + t.merge_s) / max(t.replicates, 1)
     return ScalingRecord(
         kind="scaling", engine=engine, workers=workers, replicates=replicates,
         batch_size=t.batch_size, batches=len(clocks),
@@ -268,7 +278,8 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         tail_s=t.finished - t.finished_batches, merge_s=t.merge_s,
         one_replicate_s=one["timings"].finished - one["spawned"],
         fixed_cost_s=wall - batch_wall / workers,
-        writer_busy_fraction=busy, writer_per_replicate_s=writer, save_per_replicate_s=save,
+        writer_busy_fraction=busy, writer_per_replicate_s=writer, merge_per_replicate_s=merge,
+        merge_saturates_at_workers=worker / merge if merge > 0 else None, save_per_replicate_s=save,
         worker_per_replicate_s=worker,
         writer_saturates_at_workers=worker / writer if writer > 0 else None,
         saver_saturates_at_workers=worker / (writer + save) if writer + save > 0 else None,
@@ -344,21 +355,25 @@ def format_scaling(report: ScalingReport) -> str:
         lines.append(f"{r.engine:<11}{r.workers:>8}{r.startup_s:>9.2f}{r.startup_cpu_s:>7.2f}"
                      f"{r.to_first_batch_s:>13.2f}{worker_start:>19}{r.first_batch_extra_s:>16.3f}"
                      f"{r.tail_s:>7.2f}{r.merge_s:>7.2f}")
-    lines += ["", "The writer (per replicate, microseconds):",
-              f"{'engine':<11}{'workers':>8}{'writer':>8}{'worker':>8}{'saving':>8}"
-              f"{'saturates at':>14}{'if it saved':>13}"]
+    lines += ["", "The writer (per replicate, microseconds; saturation in workers):",
+              f"{'engine':<11}{'workers':>8}{'worker':>8}{'writer':>8}{'merge':>8}{'saving':>8}"
+              f"{'writer sat.':>12}{'merge sat.':>11}{'if it saved':>12}"]
+
+    def at(value):
+        return "never" if value is None else f"{value:,.0f}"
+
     for r in report.records:
-        at = "never" if r.writer_saturates_at_workers is None else f"{r.writer_saturates_at_workers:,.0f}"
-        saved = "never" if r.saver_saturates_at_workers is None else f"{r.saver_saturates_at_workers:,.0f}"
-        lines.append(f"{r.engine:<11}{r.workers:>8}{r.writer_per_replicate_s * 1e6:>8.1f}"
-                     f"{r.worker_per_replicate_s * 1e6:>8.1f}{r.save_per_replicate_s * 1e6:>8.1f}"
-                     f"{at:>14}{saved:>13}")
+        lines.append(f"{r.engine:<11}{r.workers:>8}{r.worker_per_replicate_s * 1e6:>8.1f}"
+                     f"{r.writer_per_replicate_s * 1e6:>8.1f}{r.merge_per_replicate_s * 1e6:>8.1f}"
+                     f"{r.save_per_replicate_s * 1e6:>8.1f}{at(r.writer_saturates_at_workers):>12}"
+                     f"{at(r.merge_saturates_at_workers):>11}{at(r.saver_saturates_at_workers):>12}")
     same = all(r.identical for r in report.records)
     lines += ["", "results datasets identical across worker counts: " + ("yes" if same else
               "NO: " + ", ".join(f"{r.engine} on {r.workers}" for r in report.records if not r.identical)),
               f"command-line start-up (`python -m sim run --help`): {report.cli_startup_s:.2f} s",
               "wall s: writer process start to merged file; effic. = speed-up / workers; CPU eff. = "
               "CPU s on 1 worker / CPU s here (load does not hide it); fixed s = wall - batch time / "
-              "workers; saturates at: workers at which the one writer would be busy all the time "
-              "(if it saved: were it to save every batch itself, as for a dask cluster)."]
+              "workers; writer sat.: workers at which recording batches would keep the writer busy; merge "
+              "sat.: past it the merge finishes after the last batch; if it saved: the writer's limit "
+              "were it to save every batch itself, as for a dask cluster."]
     return "\n".join(lines)

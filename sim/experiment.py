@@ -96,7 +96,9 @@ class RunTimings:
     held), ``finished_batches`` (the last batch recorded), ``finished`` (merged,
     returned). ``replicates`` were run now, in batches of ``batch_size``;
     ``writer_s`` / ``writer_cpu_s`` are the wall and CPU seconds this process spent
-    recording batches (saving them, where the workers do not); ``merge_s`` / ``merge_cpu_s`` the final merge's. ``batches`` holds every batch's
+    recording batches (saving them, where the workers do not); ``merge_run_s`` /
+    ``merge_run_cpu_s`` merging shards while waiting for workers during the run;
+    ``merge_s`` / ``merge_cpu_s`` the final merge's. ``batches`` holds every batch's
     ``BatchClock``; ``workers`` each started worker's (pid, ready at, start-up CPU).
     """
 
@@ -110,6 +112,8 @@ class RunTimings:
     writer_cpu_s: float = 0.0
     merge_s: float = 0.0
     merge_cpu_s: float = 0.0
+    merge_run_s: float = 0.0
+    merge_run_cpu_s: float = 0.0
     replicates: int = 0
     batch_size: int = 0
     batches: list[BatchClock] = field(default_factory=list)
@@ -205,7 +209,14 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         jobs = (Job(batch, points[batch.point], seed, starts[batch.point],
                     writer.shard_target(batch.point) if shards else None)
                 for batch in iter_batches(writer.missing(), size))
-        for batch, output in pool.run_jobs(jobs):
+        def merge_one() -> bool:  # while the writer waits for workers: merge a shard, if one is next
+            wall, cpu = time.perf_counter(), time.process_time()
+            merged = writer.merge_ready(limit=1)
+            clock.merge_run_s += time.perf_counter() - wall
+            clock.merge_run_cpu_s += time.process_time() - cpu
+            return merged
+
+        for batch, output in pool.run_jobs(jobs, idle=merge_one):
             wall, cpu = time.perf_counter(), time.process_time()
             if output.shard is not None:
                 writer.add_shard(output.shard)

@@ -123,7 +123,7 @@ class DaskPool:
         for batch, output in self.run_jobs(Job(batch, point, seed) for batch, point, seed in tasks):
             yield batch, output.results
 
-    def run_jobs(self, jobs):
+    def run_jobs(self, jobs, *, idle=None):
         from distributed import as_completed
 
         jobs = iter(jobs)
@@ -179,6 +179,8 @@ class DaskPool:
                     "same version) where the scheduler and the workers run, then resume") from None
             future.release()
             yield batch, results
+            if idle is not None:
+                idle()
             if n % 16 == 0:
                 slots = self.slots
             while len(futures) < 2 * slots:

@@ -31,9 +31,11 @@ class SerialPool:
     description = "1 process"
     shares_disk = True
 
-    def run_jobs(self, jobs):
+    def run_jobs(self, jobs, *, idle=None):
         for job in jobs:
             yield job.batch, run_job(job)
+            if idle is not None:
+                idle()
 
     def run(self, tasks):
         return _results(self, tasks)
@@ -97,6 +99,7 @@ class ProcessPool:
         self._executor = ProcessPoolExecutor(
             workers, mp_context=multiprocessing.get_context("spawn"),
             initializer=_worker_init, initargs=(os.getpid(),))
+        self._exiting = []
         # each submission finding no idle worker starts one more process, up to ``workers``
         self._starting = [self._executor.submit(_ready) for _ in range(workers)]
 
@@ -107,7 +110,10 @@ class ProcessPool:
         """(pid, ready at, start-up CPU seconds) of the workers started so far (see ``_ready``)."""
         return [f.result() for f in self._starting if f.done() and not f.exception()]
 
-    def run_jobs(self, jobs):
+    def run_jobs(self, jobs, *, idle=None):
+        """Run ``Job``s, yielding (batch, BatchOutput) as they finish. ``idle()``, if given, is
+        called whenever no batch is finished (work for the writer that must not delay a
+        finished batch, e.g. merging one shard); it returns False when it has nothing to do."""
         jobs = iter(jobs)
         pending = {}
 
@@ -119,7 +125,11 @@ class ProcessPool:
         for _ in range(2 * self.slots):
             submit_next()
         while pending:
-            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+            done, _ = wait(pending, timeout=0, return_when=FIRST_COMPLETED)
+            while not done and idle is not None and idle():
+                done, _ = wait(pending, timeout=0, return_when=FIRST_COMPLETED)
+            if not done:
+                done, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in sorted(done, key=pending.get):
                 batch = pending.pop(future)
                 try:
@@ -134,7 +144,12 @@ class ProcessPool:
         """Stop the workers: with ``cancel`` at once (running batches are abandoned); else once
         they are idle, waiting for them to exit unless ``wait`` is False (call again to wait)."""
         if not cancel:
+            # the processes, kept before shutdown(wait=False) forgets them, are joined when waiting
+            self._exiting = self._exiting or list((getattr(self._executor, "_processes", None) or {}).values())
             self._executor.shutdown(wait=wait)
+            if wait:
+                for process in self._exiting:
+                    process.join()
             return
         terminate = getattr(self._executor, "terminate_workers", None)  # Python 3.14+
         if terminate is not None:

@@ -270,7 +270,6 @@ class ResultsWriter:
         except OSError as err:
             raise ResultsError(self._write_failure(err)) from None
         self.shards[(shard.point, shard.first)] = shard
-        self._merge_ready()
 
     def _check_overlap(self, shard: Shard) -> None:
         for s in self.shards.values():
@@ -291,7 +290,6 @@ class ResultsWriter:
         """Record a shard a worker wrote itself (``write_shard`` with ``shard_target``)."""
         self._check_overlap(shard)
         self.shards[(shard.point, shard.first)] = shard
-        self._merge_ready()
 
     def _point_hash(self, point: int) -> str:
         """The hash of one sweep point's resolved config: what a shard of that point carries.
@@ -311,17 +309,22 @@ class ResultsWriter:
                 "(free disk space, permissions) and finish with resume=True")
 
     # -- finishing ------------------------------------------------------------------
-    def _merge_ready(self) -> None:
-        """Append to the merged file every shard whose predecessors in (point, replicate) order
-        are in (the merge goes on while the run does: at the end only the last shards are left)."""
+    def merge_ready(self, limit: int | None = None) -> bool:
+        """Append to the merged file up to ``limit`` shards (all, by default) whose predecessors
+        in (point, replicate) order are in; True if any was appended.
+
+        The run calls it while it waits for workers, so the merge goes on with the run and
+        only the last shards are left for ``finalize`` (which merges whatever is left)."""
         if self.complete:
-            return
+            return False
         merge = self.__dict__.get("_merging")
         if merge is None:
             merge = self._merging = _MergedFile(self)
         try:
-            merge.advance(self.shards)
-        except OSError as err:
+            return merge.advance(self.shards, limit)
+        except OSError as err:  # a full disk: drop the merged file; a later finalize starts it again
+            merge.abandon()
+            self._merging = None
             raise ResultsError(self._write_failure(err).replace("intact", "intact (as shards)")) from None
 
     def finalize(self) -> bool:
@@ -336,10 +339,11 @@ class ResultsWriter:
             return True
         if self.done < self.expected:
             return False
-        self._merge_ready()
+        self.merge_ready()
         try:
             self._merging.commit()
         except OSError as err:
+            self._merging = None  # abandoned: a later finalize merges again from the shards
             raise ResultsError(self._write_failure(err).replace(
                 "intact", "intact (as shards)")) from None
         self._merging = None
@@ -384,9 +388,10 @@ class ResultsWriter:
 class _MergedFile:
     """The finished results file under construction, as ``NAME.tmp`` beside the running one.
 
-    Shards are appended in canonical order (point, replicate) as soon as every
-    shard before them is in, so the merge goes on during the run instead of a
-    second pass over every shard at its end. Rows are buffered (at most
+    Shards are appended in canonical order (point, replicate) once every
+    shard before them is in, while the run waits for its workers
+    (``ResultsWriter.merge_ready``), so the merge goes on during the run
+    instead of a second pass over every shard at its end. Rows are buffered (at most
     ``_MERGE_ROWS`` replicates or ``_MERGE_RECORDS`` census records) to keep
     memory flat. Until ``commit`` renames it into place nothing reads it: a
     crash leaves a ``.tmp`` that a resume deletes, and the shards stay until
@@ -414,10 +419,13 @@ class _MergedFile:
             _empty_tables(out, w.mode, w.n_alleles, w.n_ages)
             _years_group(out, w.config.environment)
 
-    def advance(self, shards: dict) -> None:
-        """Append every shard that comes next in order (``shards``: (point, first) -> Shard)."""
+    def advance(self, shards: dict, limit: int | None = None) -> bool:
+        """Append up to ``limit`` (default: every) shard that comes next in order (``shards``:
+        (point, first) -> Shard); True if any was appended."""
         w = self.writer
-        while (shard := shards.get(self.next)) is not None:
+        appended = 0
+        while (limit is None or appended < limit) and (shard := shards.get(self.next)) is not None:
+            appended += 1
             if self.file is None:
                 self._open()
             self._read(w.parts / shard.name)
@@ -426,6 +434,7 @@ class _MergedFile:
             self.rows += shard.size
             if self.rows >= _MERGE_ROWS or self.records >= _MERGE_RECORDS:
                 self._flush()
+        return appended > 0
 
     def _read(self, path: Path) -> None:
         buffer = self.buffer
