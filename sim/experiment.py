@@ -86,6 +86,15 @@ class _Progress:
         self.bar.close()
 
 
+def _saving_errors(writer: ResultsWriter, outputs):
+    """The pool's outputs; an OSError from a worker saving its shard (a full disk) is raised
+    as the writer's ``ResultsError``, which says what is saved and how to go on."""
+    try:
+        yield from outputs
+    except OSError as err:
+        raise writer.save_error(err) from None
+
+
 @dataclass
 class RunTimings:
     """Where the time of one ``run_experiment`` went, for ``broodline bench --scaling``.
@@ -216,7 +225,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
             clock.merge_run_cpu_s += time.process_time() - cpu
             return merged
 
-        for batch, output in pool.run_jobs(jobs, idle=merge_one):
+        for batch, output in _saving_errors(writer, pool.run_jobs(jobs, idle=merge_one)):
             wall, cpu = time.perf_counter(), time.process_time()
             if output.shard is not None:
                 writer.add_shard(output.shard)

@@ -171,8 +171,7 @@ elif where == "between-shards":
 elif where == "mid-merge":  # every row in the merged .tmp file, not yet marked complete nor renamed
     import sim.store.writer as writer
     def patched(self):
-        self._flush()
-        self.file.flush()
+        self._write()
         stop_here()
     writer._MergedFile.commit = patched
 elif where == "merging-during-run":  # the merged .tmp file holds the first shards, the run goes on
@@ -181,8 +180,7 @@ elif where == "merging-during-run":  # the merged .tmp file holds the first shar
     def patched(self, path):
         original(self, path)
         if nth():
-            self._flush()
-            self.file.flush()
+            self._write()
             stop_here()
     writer._MergedFile._read = patched
 elif where == "slow-commits":  # every shard takes a while: time to press Ctrl-C mid-run

@@ -302,6 +302,11 @@ class ResultsWriter:
             cache[point] = config_hash(self.points[point].config)
         return cache[point]
 
+    def save_error(self, err: OSError) -> ResultsError:
+        """The error to raise when saving a batch failed (``err``, e.g. a full disk), wherever
+        it was saved: what is saved is intact, and how to go on."""
+        return ResultsError(self._write_failure(err))
+
     def _write_failure(self, err: OSError) -> str:
         reason = err.strerror or str(err)
         return (f"could not write results to {str(self.parts)!r}: {reason}. "
@@ -388,52 +393,48 @@ class ResultsWriter:
 class _MergedFile:
     """The finished results file under construction, as ``NAME.tmp`` beside the running one.
 
-    Shards are appended in canonical order (point, replicate) once every
-    shard before them is in, while the run waits for its workers
+    Shards are read in canonical order (point, replicate) once every shard
+    before them is in, while the run waits for its workers
     (``ResultsWriter.merge_ready``), so the merge goes on during the run
-    instead of a second pass over every shard at its end. Rows are buffered (at most
-    ``_MERGE_ROWS`` replicates or ``_MERGE_RECORDS`` census records) to keep
-    memory flat. Until ``commit`` renames it into place nothing reads it: a
-    crash leaves a ``.tmp`` that a resume deletes, and the shards stay until
-    the merged file is in place.
+    instead of a second pass over every shard at its end. Rows are buffered
+    (at most ``_MERGE_ROWS`` replicates or ``_MERGE_RECORDS`` census records,
+    so memory stays flat) and appended to the ``.tmp`` file, which is open
+    only while they are written. Until ``commit`` renames it into place
+    nothing reads it: a crash leaves a ``.tmp`` that a resume deletes, and
+    the shards stay until the merged file is in place.
     """
 
     def __init__(self, writer: ResultsWriter):
         self.writer = writer
         self.tmp = writer.path.with_name(writer.path.name + ".tmp")
-        self.file = None
+        self.started = False  # the .tmp file holds the header and the rows written so far
         self.next = (0, 0)  # the (point, first replicate) of the shard needed next
         self.buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
         self.rows = self.records = self.offset = 0
 
-    def _open(self) -> None:
+    def _header(self, out) -> None:
         w = self.writer
-        with durable.h5_write_errors():
-            out = h5py.File(self.tmp, "w")
-            self.file = out
-            with h5py.File(w.path, "r") as head:
-                for key, value in head.attrs.items():
-                    out.attrs[key] = value
-                head.copy("points", out)
-            out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
-            _empty_tables(out, w.mode, w.n_alleles, w.n_ages)
-            _years_group(out, w.config.environment)
+        with h5py.File(w.path, "r") as head:
+            for key, value in head.attrs.items():
+                out.attrs[key] = value
+            head.copy("points", out)
+        out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
+        _empty_tables(out, w.mode, w.n_alleles, w.n_ages)
+        _years_group(out, w.config.environment)
 
     def advance(self, shards: dict, limit: int | None = None) -> bool:
-        """Append up to ``limit`` (default: every) shard that comes next in order (``shards``:
-        (point, first) -> Shard); True if any was appended."""
+        """Read up to ``limit`` (default: every) shard that comes next in order (``shards``:
+        (point, first) -> Shard); True if any was read."""
         w = self.writer
         appended = 0
         while (limit is None or appended < limit) and (shard := shards.get(self.next)) is not None:
             appended += 1
-            if self.file is None:
-                self._open()
             self._read(w.parts / shard.name)
             after = shard.last + 1
             self.next = (shard.point, after) if after < w.replicates else (shard.point + 1, 0)
             self.rows += shard.size
             if self.rows >= _MERGE_ROWS or self.records >= _MERGE_RECORDS:
-                self._flush()
+                self._write()
         return appended > 0
 
     def _read(self, path: Path) -> None:
@@ -451,9 +452,14 @@ class _MergedFile:
         self.offset += steps.shape[0]
         self.records += steps.shape[0]
 
-    def _flush(self) -> None:
-        out, buffer = self.file, self.buffer
-        with durable.h5_write_errors():
+    def _write(self, *, complete: bool = False) -> None:
+        """Append the buffered rows to the ``.tmp`` file (created with the header the first
+        time); with ``complete``, mark it complete."""
+        buffer = self.buffer
+        with durable.h5_write_errors(), h5py.File(self.tmp, "a" if self.started else "w") as out:
+            if not self.started:
+                self._header(out)
+                self.started = True
             for name in REPLICATE_COLUMNS:
                 if buffer[name]:
                     _append(out["replicates"][name], np.concatenate(buffer[name]))
@@ -462,34 +468,25 @@ class _MergedFile:
                     _append(out["trajectories"][name], np.concatenate(buffer[name]))
             if buffer[YEARS]:
                 _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
-        for values in buffer.values():
-            values.clear()
-        self.rows = self.records = 0
+            for values in buffer.values():
+                values.clear()
+            self.rows = self.records = 0
+            if complete:
+                out.attrs["complete"] = True
+            out.flush()
 
     def commit(self) -> None:
         """Every shard is in: mark the file complete, make it durable, rename it into place."""
-        if self.file is None:
-            self._open()
         try:
-            self._flush()
-            with durable.h5_write_errors():
-                self.file.attrs["complete"] = True
-                self.file.flush()
-                self.file.close()
-            self.file = None
+            self._write(complete=True)
             durable.commit_file(self.tmp, self.writer.path)
         except BaseException:
             self.abandon()
             raise
 
     def abandon(self) -> None:
-        """Stop without a file: close and delete the ``.tmp`` (the shards hold every row)."""
-        try:
-            if self.file is not None:
-                self.file.close()
-        except Exception:  # a file already broken (full disk): it is deleted anyway
-            pass
-        self.file = None
+        """Stop without a file: delete the ``.tmp`` (the shards hold every row)."""
+        self.started = False
         self.tmp.unlink(missing_ok=True)
 
 
