@@ -144,11 +144,11 @@ class DaskPool:
             submit_next()
         watch = _WorkerWatch(self.client, self.address, lambda: bool(futures))
         try:
-            yield from self._collect(queue, futures, submit_next, slots)
+            yield from self._collect(queue, futures, submit_next, slots, idle)
         finally:
             watch.stop()
 
-    def _collect(self, queue, futures, submit_next, slots):
+    def _collect(self, queue, futures, submit_next, slots, idle):
         from distributed.client import FutureCancelledError
         from distributed.scheduler import KilledWorker
 
