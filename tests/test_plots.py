@@ -20,7 +20,7 @@ from analysis.plots import (
 )
 from sim.config import parse_config
 from sim.runner import run_experiment
-from tests.invasion_configs import invasion_config, write_small_results
+from tests.invasion_configs import invasion_config, wet_and_dry, write_small_results
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # the PNG file signature (PNG specification, sec. 5.2)
 
@@ -165,13 +165,9 @@ def _year_patches(ax):
 def test_trajectories_shade_the_bad_years_of_the_shown_replicate(tmp_path, shared):
     from sim.store import read_years
 
-    environment = {"shared_years": shared,
-                   "year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.5},
-                            {"name": "dry", "probability": 0.5, "juvenile_survival": 0.3}]}
-    raw = invasion_config(replicates=6, seed=5, capacity=30.0, record_every=1,
-                          sweep={"allele.one-shot.fecundity": [3.0, 6.0]}).model_dump(exclude_none=True)
     path = tmp_path / "years.h5"
-    run_experiment(parse_config({**raw, "environment": environment}), path, progress=False)
+    run_experiment(wet_and_dry(shared=shared, replicates=6, seed=5, capacity=30.0, record_every=1,
+                               sweep={"allele.one-shot.fecundity": [3.0, 6.0]}), path, progress=False)
     config, table = experiment_config(path), compare(path)
     years = read_years(path)
     # one replicate drawn per point: exactly its dry seasons are shaded (panels in point order)

@@ -4,10 +4,10 @@ import numpy as np
 import pytest
 
 from sim.cli import main
-from sim.config import load_config, parse_config
+from sim.config import load_config
 from sim.store import read_replicates, read_trajectories
 from sim.trace import trace_replicate
-from tests.invasion_configs import SMALL_SWEEP, invasion_config, write_small_results
+from tests.invasion_configs import SMALL_SWEEP, invasion_config, wet_and_dry, write_small_results
 
 
 def test_trace_reproduces_a_stored_replicate(tmp_path):
@@ -53,12 +53,8 @@ def test_trace_shows_each_seasons_year_as_stored(tmp_path, shared):
     from sim.experiment import run_experiment
     from sim.store import read_years
 
-    environment = {"shared_years": shared,
-                   "year": [{"name": "wet", "probability": 0.6, "juvenile_survival": 1.5},
-                            {"name": "dry", "probability": 0.4, "juvenile_survival": 0.3}]}
-    raw = invasion_config(capacity=30.0, replicates=5, seed=8, record_every=4,
-                          sweep={"allele.one-shot.fecundity": [3.0, 6.0]}).model_dump(exclude_none=True)
-    config = parse_config({**raw, "environment": environment})
+    config = wet_and_dry(shared=shared, capacity=30.0, replicates=5, seed=8, record_every=4,
+                         sweep={"allele.one-shot.fecundity": [3.0, 6.0]})
     path = tmp_path / "years.h5"
     run_experiment(config, path, workers=1, batch_size=2, progress=False)
     stored = read_years(path)
