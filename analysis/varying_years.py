@@ -19,39 +19,73 @@ import pandas as pd
 
 from sim.config import Config, SweepFactor, sweep_points
 from sim.describe import describe_environment
+from sim.lifecycle import initial_census
 from sim.meanfield import NoEquilibriumError
+from sim.year_draws import year_sequence
 
 from .environment import invasion_pair
-from .invasion import neutral_expectation
 from .random_branching import establishment_in_years
 from .stochastic import (
     InvasionSetting,
+    NeutralShare,
     YearSequences,
     draw_year_sequences,
+    neutral_share_in_years,
     regulated,
     stochastic_invasion,
     stochastic_threshold,
 )
 from .thresholds import ThresholdResult, _default_bracket, _setting, with_values
 
-__all__ = ["STOCHASTIC_COLUMNS", "YEAR_DRAWS", "THEORY_STREAM", "year_draws", "stochastic_prediction",
-           "stochastic_threshold_result", "year_spans"]
+__all__ = ["STOCHASTIC_COLUMNS", "YEAR_DRAWS", "THEORY_STREAM", "NEUTRAL_DRAWS", "NEUTRAL_STREAM", "year_draws",
+           "neutral_in_years", "stochastic_prediction", "stochastic_threshold_result", "year_spans"]
 
 # what a prediction adds to analysis.sweep.PREDICTION_COLUMNS in a variable environment
 STOCHASTIC_COLUMNS = (
     "invasion_fitness_se", "log_invasion_fitness_se", "stochastic_growth_rate",
     "stochastic_growth_rate_se", "small_noise_approximation", "resident_stochastic_growth_rate",
     "resident_stochastic_growth_rate_se", "resident_small_noise_approximation",
-    "establishment_probability_se", "prediction", "environment",
+    "establishment_probability_se", "neutral_expectation_se", "prediction", "environment",
 )
 YEAR_DRAWS = {"n_batches": 20, "batch_length": 1000, "burn_in": 200}
 THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apart from any run's
+# a neutral mutant's share of reproductive value depends on the first seasons' years: many short
+# futures (the backward product forgets its end within a few tens of seasons)
+NEUTRAL_DRAWS = {"n_batches": 1000, "batch_length": 100, "burn_in": 0}
+NEUTRAL_STREAM = 4  # SeedSequence(seed, spawn_key=(4,)): those futures
 
 
 def year_draws(config: Config) -> YearSequences:
     """The theory's year sequences for ``config`` (the same uniforms for every point)."""
     rng = np.random.default_rng(np.random.SeedSequence(config.experiment.seed, spawn_key=(THEORY_STREAM,)))
     return draw_year_sequences(config.year_types(), rng, **YEAR_DRAWS)
+
+
+def neutral_in_years(config: Config, *, point: int | None = None) -> NeutralShare:
+    """The introduced mutants' fixation probability were they neutral, in the config's random years.
+
+    The mean over ``NEUTRAL_DRAWS`` futures of the mutants' share of the
+    random environment's reproductive values at the start
+    (``analysis.stochastic.neutral_share_in_years``). With ``shared_years``
+    and a ``point`` index, the replicates of that point all live through one
+    known sequence (``sim.year_draws.year_sequence``), so the share is read
+    under that sequence alone (standard error 0): the conditional
+    probability that the point's fixation fraction estimates.
+    """
+    r, _ = invasion_pair(config)
+    years = config.year_types()
+    density = config.density_dependence()
+    census = initial_census(config)[r]
+    count = config.invasion.mutant_count
+    if config.environment.shared_years and point is not None:
+        seasons = NEUTRAL_DRAWS["batch_length"]
+        one = year_sequence(years, config.experiment.seed, point, 0, seasons, shared=True)
+        futures = YearSequences(np.vstack([one, one]), 0)
+    else:
+        rng = np.random.default_rng(np.random.SeedSequence(config.experiment.seed, spawn_key=(NEUTRAL_STREAM,)))
+        futures = draw_year_sequences(years, rng, **NEUTRAL_DRAWS)
+    return neutral_share_in_years(config.schedules()[r], years, density if regulated(density) else None,
+                                  futures, census, count)
 
 
 def _setting_of(config: Config) -> InvasionSetting:
@@ -62,8 +96,11 @@ def _setting_of(config: Config) -> InvasionSetting:
                            density if regulated(density) else None)
 
 
-def stochastic_prediction(config: Config) -> dict:
+def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
     """A sweep point's prediction in a variable environment, keyed like ``analysis.predict``.
+
+    ``point`` (the sweep point's index) lets a ``shared_years`` point's neutral
+    expectation be read under its own years (``neutral_in_years``).
 
     Returns
     -------
@@ -76,7 +113,9 @@ def stochastic_prediction(config: Config) -> dict:
         ``stochastic_growth_rate`` (the mutant's log lambda_s),
         ``stochastic_growth_rate_se``, ``small_noise_approximation`` (and the
         resident's), ``establishment_probability_se``, ``prediction``
-        ("stochastic") and ``environment`` (in words).
+        ("stochastic") and ``environment`` (in words); ``neutral_expectation``
+        is a neutral mutant's fixation probability in random years
+        (``neutral_in_years``), with ``neutral_expectation_se``.
     """
     s = _setting_of(config)
     draws = year_draws(config)
@@ -85,9 +124,10 @@ def stochastic_prediction(config: Config) -> dict:
                                  config.offspring_distribution(), draws,
                                  count=config.invasion.mutant_count)
     try:
-        neutral = neutral_expectation(config)
+        neutral = neutral_in_years(config, point=point)
+        neutral, neutral_se = neutral.value, neutral.standard_error
     except NoEquilibriumError:
-        neutral = float("nan")
+        neutral = neutral_se = float("nan")
     growth = inv.as_dict()
     fitness = inv.invasion_fitness
     return {
@@ -104,6 +144,7 @@ def stochastic_prediction(config: Config) -> dict:
         **{k: v for k, v in growth.items() if k not in ("resident", "mutant", "regulated",
                                                         "invasion_fitness", "mean_census_size")},
         "establishment_probability_se": est.standard_error,
+        "neutral_expectation_se": neutral_se,
         "prediction": "stochastic",
         "environment": describe_environment(config),
     }
