@@ -28,6 +28,7 @@ from .random_branching import establishment_in_years
 from .stochastic import (
     InvasionSetting,
     NeutralShare,
+    StochasticThreshold,
     YearSequences,
     draw_year_sequences,
     neutral_share_in_years,
@@ -174,10 +175,16 @@ def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,
 
     t = stochastic_threshold(at, draws, bracket=(lo, hi))
     g_lo, g_hi = t.log_fitness_at_bracket
+    back = _replacement(at, draws, t, lo, hi) if t.converged else None
     env = describe_environment(config)
     message = (f"{parameter}: stochastic invasion fitness is 1 at {t.value:.6g} (SE {t.standard_error:.2g}); "
                if t.converged else f"{parameter}: no stochastic threshold in [{lo:g}, {hi:g}] ({t.message}); ")
-    message += (f"mutant invades {'above' if g_hi > 0 else 'below'} it. " if t.converged else "") + \
+    message += (f"mutant invades {'above' if g_hi > 0 else 'below'} it. " if t.converged else "")
+    if back is not None and back.value != t.value:
+        message += (f"The resident invades back {'below' if g_hi > 0 else 'above'} {back.value:.6g} "
+                    f"(SE {back.standard_error:.2g}): in between each invades the other, and a large "
+                    "population fixes the mutant only past it. ")
+    message += \
         (f"Prediction: stochastic theory ({draws.n_batches} batches of {draws.batch_length} seasons, "
          f"the same years for every trial value); environment: {env}")
     linked = {p: v for p, v in group.along(t.value).items() if p != parameter} \
@@ -186,7 +193,36 @@ def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,
                            fitness_at_bracket=(math.exp(g_lo), math.exp(g_hi)),
                            invades_above=(g_hi > 0) if t.converged else None,
                            crossings=int(t.converged), message=message, linked=linked,
-                           standard_error=t.standard_error)
+                           standard_error=t.standard_error,
+                           replacement=back.value if back is not None else float("nan"),
+                           replacement_standard_error=back.standard_error if back is not None else float("nan"))
+
+
+def _replacement(at, draws: YearSequences, t, lo: float, hi: float):
+    """Where the resident stops invading the mutant-as-resident, on the mutant's side of ``t``.
+
+    The roles swapped at every trial value, the same years (common random
+    numbers). None without density dependence (there the reverse fitness is
+    the inverse, so the two thresholds coincide) or where the mutant cannot
+    be a resident; ``t`` itself where the resident does not invade back at
+    ``t`` (no region where each invades the other).
+    """
+    if not regulated(at(t.value).density):
+        return None
+    above = t.log_fitness_at_bracket[1] > 0
+
+    def swapped(value: float) -> InvasionSetting:
+        s = at(value)
+        return InvasionSetting(s.mutant, s.resident, s.years, s.density)
+
+    try:
+        back = stochastic_threshold(swapped, draws, bracket=(t.value, hi) if above else (lo, t.value))
+    except (NoEquilibriumError, ValueError, ArithmeticError):
+        return None
+    if not back.converged:  # the resident never invades back on the mutant's side: replacement at once
+        return StochasticThreshold(t.value, t.standard_error, True, back.bracket, back.log_fitness_at_bracket,
+                                   t.slope, "no region where each invades the other")
+    return back
 
 
 def year_spans(path, *, point: int = 0, replicate: int = 0) -> pd.DataFrame:

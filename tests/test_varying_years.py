@@ -223,3 +223,35 @@ def test_a_neutral_mutant_fixes_at_its_share_under_its_own_years():
     theory = neutral_in_years(config)
     assert abs(shares.mean() - theory.value) < 4 * np.hypot(theory.standard_error,
                                                             shares.std(ddof=1) / np.sqrt(replicates))
+
+
+def test_the_replacement_threshold_bounds_the_region_where_each_invades_the_other():
+    # Issue 13's case with Beverton-Holt on recruitment (K = 100): the semelparous mutant
+    # invades above B_s = 5.34, and with roles swapped on the same years the iteroparous
+    # allele invades a semelparous resident below 5.48 (analysis.stochastic: Lyapunov
+    # exponents in the resident's fluctuating path, Metz, Nisbet & Geritz 1992). Without
+    # density dependence the reverse fitness is the inverse, so there is no such region.
+    # Check of the swap: at the replacement threshold the reverse log fitness is 0 within
+    # its batch-means standard errors (4 of them), and it is positive at the invasion one.
+    from analysis.stochastic import InvasionSetting, stochastic_invasion
+    from analysis.varying_years import stochastic_threshold_result, year_draws
+    from sim.schedules import semelparous
+
+    raw = copy.deepcopy(RAW)
+    raw["density"] = {"form": "beverton-holt", "acts_on": "recruitment", "capacity": 100}
+    raw["invasion"] = {"resident": "it", "mutant": "se", "mutant_count": 2}
+    config = parse_config(raw)
+    r = stochastic_threshold_result(config, "allele.se.fecundity", bracket=(4.5, 7.0))
+    assert r.value == pytest.approx(5.34, abs=0.01) and r.replacement == pytest.approx(5.48, abs=0.01)
+    assert r.replacement - r.value > 4 * np.hypot(r.standard_error, r.replacement_standard_error)
+    assert f"invades back below {r.replacement:.6g}" in r.message and r.as_dict()["replacement"] == r.replacement
+    it, years, density = config.schedules()[0], config.year_types(), config.density_dependence()
+    for b, sign in [(r.replacement, 0), (r.value, 1)]:
+        back = stochastic_invasion(semelparous("se", b, 0.45), it, years, density, year_draws(config))
+        if sign:
+            assert back.log_invasion_fitness > 4 * back.log_invasion_fitness_se
+        else:
+            assert abs(back.log_invasion_fitness) < 4 * back.log_invasion_fitness_se
+    free = stochastic_threshold_result(parse_config({**copy.deepcopy(RAW), "sweep": {}}), "allele.se.fecundity",
+                                       bracket=(3.0, 6.0))
+    assert np.isnan(free.replacement) and "replacement" not in free.as_dict()
