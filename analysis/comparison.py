@@ -38,8 +38,8 @@ import numpy as np
 import pandas as pd
 
 from sim.config import Config, ConfigError
-from sim.outcomes import OUTCOMES
 from sim.store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
+from sim.vocabulary import outcome_name
 
 from .closedform import closed_form
 from .estimates import observed_threshold, wilson_interval
@@ -61,18 +61,6 @@ __all__ = [
     "compare_thresholds",
     "compare_text",
 ]
-
-
-def outcome_name(text: str) -> str:
-    """An outcome as this version spells it (``sim.runner.OUTCOMES``), whatever a file wrote.
-
-    Files from other versions may write ``mutant_fixed`` for ``mutant-fixed``
-    (or the reverse); both are read as the one name.
-    """
-    for name in OUTCOMES:
-        if text.replace("_", "-") == name.replace("_", "-"):
-            return name
-    return text
 
 
 FIXED, LOST, EXTINCT, UNDECIDED, CAPPED = (
@@ -324,7 +312,6 @@ def compare(path, *, level: float = 0.95, prediction=None) -> pd.DataFrame:
     warn_if_incomplete(path)
     points = read_points(path)
     reps = read_replicates(path)
-    reps["outcome"] = reps["outcome"].map(outcome_name)
     rising = capped_rising(path, reps, config.invasion.mutant)
     theory = predict_configs(read_point_configs(path))
     make = _default_prediction if prediction is None else prediction

@@ -41,7 +41,6 @@ from .comparison import (  # noqa: E402
     compare,
     compare_thresholds,
     experiment_config,
-    outcome_name,
 )
 from .finite_plots import draw_finite_curve  # noqa: E402
 from .sweep import factor_of, numeric_sweep_paths, other_swept_paths  # noqa: E402
@@ -272,7 +271,7 @@ _WINNER_COLOURS = ["#0072B2", "#D55E00", "#009E73", "#56B4E9", "#F0E442", "#E69F
 
 def _outcome_labels(reps: pd.DataFrame) -> pd.Series:
     """Each replicate's outcome as drawn: a plain ``fixed`` one by its winner ("one-shot fixed")."""
-    outcome = reps["outcome"].map(outcome_name)
+    outcome = reps["outcome"]
     winner = reps["winner"].astype(str)
     return outcome.where((outcome != "fixed") | (winner == ""), winner + " fixed")
 

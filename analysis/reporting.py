@@ -24,7 +24,6 @@ from .comparison import (
     compare_thresholds,
     experiment_config,
     incomplete_message,
-    outcome_name,
     warn_if_incomplete,
 )
 from .plots import plot
@@ -334,7 +333,6 @@ def _invasion_sections(path, config, figures_dir, incomplete, table, thresholds)
 def outcome_counts(path) -> pd.DataFrame:
     """Replicates per sweep point by outcome, for any results file (a fixed one by its winner)."""
     reps = read_replicates(path)
-    reps["outcome"] = reps["outcome"].map(outcome_name)
     label = np.where(reps["winner"].astype(str) != "", reps["winner"].astype(str) + " fixed", reps["outcome"])
     label = np.where(reps["outcome"].isin([FIXED, LOST]), reps["outcome"], label)
     points = read_points(path)
