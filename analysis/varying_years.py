@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from sim.config import Config, SweepFactor, sweep_points
+from sim.density import Ceiling
 from sim.describe import describe_environment
 from sim.lifecycle import initial_census
 from sim.meanfield import NoEquilibriumError
@@ -53,6 +54,8 @@ THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apa
 # a neutral mutant's share of reproductive value depends on the first seasons' years: many short
 # futures (the backward product forgets its end within a few tens of seasons)
 NEUTRAL_DRAWS = {"n_batches": 1000, "batch_length": 100, "burn_in": 0}
+# a ceiling's path is stepped one future at a time (analysis.stochastic._ceiling_path): fewer
+CEILING_NEUTRAL_DRAWS = {"n_batches": 100, "batch_length": 50, "burn_in": 0}
 NEUTRAL_STREAM = 4  # SeedSequence(seed, spawn_key=(4,)): those futures
 
 
@@ -84,7 +87,8 @@ def neutral_in_years(config: Config, *, point: int | None = None) -> NeutralShar
         futures = YearSequences(np.vstack([one, one]), 0)
     else:
         rng = np.random.default_rng(np.random.SeedSequence(config.experiment.seed, spawn_key=(NEUTRAL_STREAM,)))
-        futures = draw_year_sequences(years, rng, **NEUTRAL_DRAWS)
+        futures = draw_year_sequences(years, rng, **(CEILING_NEUTRAL_DRAWS if isinstance(density.form, Ceiling)
+                                                    else NEUTRAL_DRAWS))
     return neutral_share_in_years(config.schedules()[r], years, density if regulated(density) else None,
                                   futures, census, count)
 
