@@ -45,7 +45,6 @@ import numpy as np
 
 from .config import Config, parse_config, sweep_points
 from .meanfield import solve_equilibrium
-from .model import BroodModel
 from .replicates import replicate_rng, run_replicate, run_replicates
 
 __all__ = [
@@ -220,6 +219,7 @@ def _time_engine(config: Config, seasons: int, seed: int, min_time: float = 0.0)
     Returns wall seconds of the steps, census sizes and recruits season by
     season, and (state, peak) bytes per individual.
     """
+    from .model import BroodModel  # (mesa: loaded when an engine is timed, not by the command line)
 
     sizes, recruits, wall = [], [], 0.0
     block = 0
