@@ -158,9 +158,13 @@ class SeasonKernel:
 
     def factors(self, d) -> Factors:
         """Density factors at index ``d``: a number, or one per replicate (contiguous arrays)."""
-        if np.ndim(d) == 0:
+        if type(d) is not np.ndarray:
+            if np.ndim(d) == 0:
+                return self.density.factors(d)
+            d = np.asarray(d, dtype=float)
+        if d.ndim == 0:
             return self.density.factors(d)
-        n = np.shape(d)[0]
+        n = d.shape[0]
         fecundity, adult, recruitment = self.density.factors(d)
         return Factors(self._per_replicate(fecundity, n), self._per_replicate(adult, n),
                        self._per_replicate(recruitment, n))
@@ -276,20 +280,20 @@ class SeasonKernel:
         class by class (elementwise, so a replicate's value is the same in any
         batch); under Poisson offspring the recruits are Poisson with this mean.
         """
-        mean = np.zeros((counts.shape[0], self.n_alleles))
         if self.parental:
+            mean = np.zeros((counts.shape[0], self.n_alleles))
             per_parent = np.broadcast_to(self.recruits_per_parent(factors), counts.shape)
             for c, allele, _, _ in self.breeders:
                 mean[:, allele] += counts[:, c] * per_parent[:, c]
             return mean
         # n m f_fec c f_rec of every breeding class at once, (replicate, breeding class); each
         # entry is the product ((n (m f_fec)) (c f_rec)), the rounding of every version since 0.1
-        fecundity = np.asarray(factors.fecundity, dtype=float)[..., None]
-        recruitment = np.asarray(factors.recruitment, dtype=float)[..., None]
         breeders = counts if self._all_breed else counts[:, self._breeding]
-        terms = breeders * (self._breeding_m * fecundity) * (self._breeding_c * recruitment)
+        terms = (breeders * self._times(self._breeding_m, factors.fecundity)
+                 * self._times(self._breeding_c, factors.recruitment))
         if self._terms_are_means:  # allele a's one breeding class is column a
             return terms
+        mean = np.zeros((counts.shape[0], self.n_alleles))
         if self._one_breeding_class:  # each allele's sum has one term
             mean[:, self._breeding_allele] = terms
             return mean
@@ -301,6 +305,14 @@ class SeasonKernel:
     def removes(self) -> bool:
         """True where a ceiling may remove individuals after recruitment (``ceiling_excess``)."""
         return self.ceiling is not None
+
+    def _times(self, rate: np.ndarray, factor) -> np.ndarray:
+        """``rate`` (by class) times ``factor`` (a number or one per replicate), (..., classes);
+        a factor that does not act (the shared ones, ``factors``) multiplies nothing (x 1.0 is
+        exact)."""
+        if factor is self._ones:
+            return rate
+        return rate * np.asarray(factor, dtype=float)[..., None]
 
     # -- step 5: the ceiling ------------------------------------------------------------
     def ceiling_excess(self, survivors, recruits):

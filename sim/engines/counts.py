@@ -81,6 +81,9 @@ class CountsPopulations(ReplicateBatch):
         recruits alone (a ceiling acting on recruitment) or from everyone.
         """
         kernel = self.kernel
+        if not kernel.removes:
+            aged[:, kernel.first] += recruits
+            return
         excess, _ = kernel.ceiling_excess(aged.sum(axis=1), born)
         excess[aged.sum(axis=1) + born > self.limit] = 0  # capped: the run stops it as it is
         over = np.flatnonzero(excess).tolist()
