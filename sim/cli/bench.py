@@ -53,7 +53,8 @@ def cmd_bench(args) -> int:
     report = run_bench(sizes, seasons=args.seasons, min_time=args.min_time,
                        agents_max=args.agents_max,
                        replicates=args.replicates, capacity=args.capacity,
-                       sequential=args.sequential or None, progress=say)
+                       sequential=args.sequential or None,
+                       single_seasons=args.single_seasons, progress=say)
     if args.json:
         print(json.dumps(report.to_records(), indent=1))
     else:
@@ -87,6 +88,9 @@ def register(sub) -> None:
     p.add_argument("--capacity", type=_count(10), default=200, help="K of the invasion experiment")
     p.add_argument("--sequential", type=_count(0), default=1_000,
                    help="replicates also run one at a time, for comparison (0 skips)")
+    p.add_argument("--single-seasons", type=_count(0), default=20_000,
+                   help="seasons of one replicate run alone at K = 100 and 1000 (default 20000; "
+                        "0 skips)")
     p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
     p.set_defaults(func=cmd_bench)
 

@@ -297,16 +297,15 @@ def next_census(survived, survivors, recruits, first, limit, by_class, sizes, bo
     cell = np.empty(total, survived.dtype)
     i = 0
     n = 0
-    for r in range(n_reps):
-        for _ in range(survivors[r]):
-            cell[n] = survived[i]
-            n += 1
-            i += 1
+    for r in range(n_reps):  # block copies and fills (memcpy- and memset-like loops)
+        k = survivors[r]
+        cell[n:n + k] = survived[i:i + k]
+        n += k
+        i += k
         if over[r]:
             continue
         for allele in range(first.size):
-            c = first[allele]
-            for _ in range(recruits[r, allele]):
-                cell[n] = c
-                n += 1
+            k = recruits[r, allele]
+            cell[n:n + k] = first[allele]
+            n += k
     return cell
