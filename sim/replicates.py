@@ -23,7 +23,7 @@ import numpy as np
 from .config import MAX_COUNT, SweepPoint
 from .engines import ENGINES
 from .lifecycle import LifeCycle, initial_census
-from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, classify
+from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, census_states, mutant_index
 from .streams import keyed_generators
 from .year_draws import SeasonYears
 
@@ -214,7 +214,8 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
 
     active = np.arange(n)
     census = batch.census()
-    state, winner = classify(census.sum(axis=2), config)
+    mutant = mutant_index(config)
+    state, winner = census_states(census.sum(axis=2), mutant)
     since = np.zeros(n, dtype=np.int64)
     records.add(active, 0, census)
     season = 0
@@ -229,7 +230,7 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
         records.add(ids[late], season, census[done][late])
 
     while True:
-        decided = (state != _UNDECIDED) & (stop_decided | (state == _EXTINCT))
+        decided = (state != _UNDECIDED) if stop_decided else (state == _EXTINCT)
         if season >= exp.max_steps:
             decided[:] = True
         if decided.any():
@@ -246,13 +247,18 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
             year_records.add(active, batch.year_now if isinstance(batch, _Models)
                              else batch.years.current)
         census = batch.census()
-        new_state, winner = classify(census.sum(axis=2), config)
+        totals = census.sum(axis=2)
+        new_state, winner = census_states(totals, mutant)
         since = np.where(new_state != state, season, since)
         state = new_state
-        capped = census.sum(axis=(1, 2)) > exp.max_population
+        capped = totals.sum(axis=1) > exp.max_population
+        any_capped = capped.any()
         if season % exp.record_every == 0:
-            records.add(active[~capped], season, census[~capped])
-        if capped.any():
+            if any_capped:
+                records.add(active[~capped], season, census[~capped])
+            else:
+                records.add(active, season, census)
+        if any_capped:
             finish(capped, _CAPPED, np.zeros(int(capped.sum()), dtype=bool))
             keep = ~capped
             active, state, winner, since, census = (x[keep] for x in (active, state, winner, since, census))

@@ -69,7 +69,8 @@ def cmd_bench(args) -> int:
                        agents_max=args.agents_max,
                        replicates=10_000 if args.replicates is None else args.replicates,
                        capacity=args.capacity,
-                       sequential=args.sequential or None, progress=say)
+                       sequential=args.sequential or None,
+                       single_seasons=args.single_seasons, progress=say)
     if args.json:
         print(json.dumps(report.to_records(), indent=1))
     else:
@@ -104,6 +105,9 @@ def register(sub) -> None:
     p.add_argument("--capacity", type=_count(10), default=200, help="K of the invasion experiment")
     p.add_argument("--sequential", type=_count(0), default=1_000,
                    help="replicates also run one at a time, for comparison (0 skips)")
+    p.add_argument("--single-seasons", type=_count(0), default=20_000,
+                   help="seasons of one replicate run alone at K = 100 and 1000 (default 20000; "
+                        "0 skips)")
     p.add_argument("--scaling", action="store_true",
                    help="instead: one K = 500 invasion experiment on 1 worker and on every core, per "
                         "engine: speed-up, efficiency, fixed cost, the writer's load")
