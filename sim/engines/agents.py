@@ -17,6 +17,11 @@ from .season import DRAW_LIMIT
 
 __all__ = ["AgentsEngine", "Breeder"]
 
+# Young past max_population drawn one by one in a season (about ten seconds of Python) before
+# the rest are counted by binomial draws: a capped census is whole either way, and one that
+# overshoots modestly draws exactly the stream it drew before the cap existed.
+ONE_BY_ONE_PAST_CAP = 10**7
+
 
 class Breeder(mesa.Agent):
     """One individual: it carries an allele and has a census age (1, 2, ...)."""
@@ -70,13 +75,20 @@ class Breeder(mesa.Agent):
                     return alleles, self.births - young - 1
         return alleles, 0
 
-    def count_recruits(self, factors: Factors, survived: bool, young: int) -> np.ndarray:
-        """Recruits by allele among ``young`` of this season's offspring, counted in one draw
-        (a capped season's census stays right without building its agents)."""
+    def count_recruits(self, factors: Factors, survived: bool, young: int, *, one_by_one: bool) -> np.ndarray:
+        """Recruits by allele among ``young`` of this season's offspring, counted, not built (a
+        capped season's census stays whole). ``one_by_one``: drawn young by young as above
+        (the stream of a census that stays small); else in one binomial draw."""
         life, rng = self.model.engine.life, self.model.rng
         counts = np.zeros(life.n_alleles, dtype=np.int64)
-        counts[self.allele] = rng.binomial(young, self.recruitment(factors, survived))
-        return life.mutation.mutate_counts(counts, rng)
+        recruitment = self.recruitment(factors, survived)
+        if not one_by_one:
+            counts[self.allele] = rng.binomial(young, recruitment)
+            return life.mutation.mutate_counts(counts, rng)
+        for _ in range(young):
+            if rng.random() < recruitment:
+                counts[int(life.mutation.mutate(np.array([self.allele]), rng)[0])] += 1
+        return counts
 
     def die(self) -> None:
         self.alive = False
@@ -124,6 +136,7 @@ class AgentsEngine:
         limit = self.model.config.experiment.max_population
         survivors, newborn = [], []
         self.unbuilt[:] = 0  # recruits past max_population: counted, not built
+        budget = ONE_BY_ONE_PAST_CAP
         for agent in adults:
             survived = agent.survives(rates)
             if survived:
@@ -133,8 +146,9 @@ class AgentsEngine:
             room = limit + 1 - len(survivors) - len(newborn)
             alleles, left = agent.recruit_alleles(f, survived, room) if room > 0 else ([], agent.births)
             newborn.extend(alleles)
-            if left:
-                self.unbuilt += agent.count_recruits(f, survived, left)
+            if left:  # past max_population: counted, young by young within a season's budget
+                self.unbuilt += agent.count_recruits(f, survived, left, one_by_one=left <= budget)
+                budget -= min(left, budget)
         # 5. next census: survivors one year older, recruits at age 1
         for agent in survivors:
             agent.age += 1
