@@ -46,8 +46,8 @@ def closed_form(config: Config, parameter: str, at: dict | None = None) -> str:
     str
         For example ``"B_s = B_i / (1 - P) = 2 / (1 - 0.5) = 4"``.
     """
-    if config.invasion is None:
-        return ""
+    if config.invasion is None or config.environment is not None:
+        return ""  # the formulas are a constant environment's: with year types the threshold is stochastic
     base = with_values(config, at) if at else config
     alleles = {a.name: a for a in base.allele}
     res, mut = alleles[base.invasion.resident], alleles[base.invasion.mutant]

@@ -161,6 +161,9 @@ JSON_KEYS = {
             "observed_message": "the observed finding in words",
             "observed_add_points": "sweep values to add where the points are too far apart",
             "analytic_in_interval": "true when the analytic threshold lies within the observed interval",
+            "replacement": "variable environment with density dependence: where the resident stops invading "
+                           "back (between it and the analytic threshold the two coexist; null elsewhere)",
+            "replacement_in_interval": "true when the replacement threshold lies within the observed interval",
         },
     },
 }

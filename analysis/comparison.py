@@ -38,8 +38,8 @@ import numpy as np
 import pandas as pd
 
 from sim.config import Config, ConfigError
-from sim.outcomes import OUTCOMES
 from sim.store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
+from sim.vocabulary import outcome_name
 
 from .closedform import closed_form
 from .estimates import ObservedThreshold, observed_threshold, wilson_interval
@@ -62,18 +62,6 @@ __all__ = [
     "compare_thresholds",
     "compare_text",
 ]
-
-
-def outcome_name(text: str) -> str:
-    """An outcome as this version spells it (``sim.runner.OUTCOMES``), whatever a file wrote.
-
-    Files from other versions may write ``mutant_fixed`` for ``mutant-fixed``
-    (or the reverse); both are read as the one name.
-    """
-    for name in OUTCOMES:
-        if text.replace("_", "-") == name.replace("_", "-"):
-            return name
-    return text
 
 
 FIXED, LOST, EXTINCT, UNDECIDED, CAPPED = (
@@ -331,7 +319,6 @@ def compare(path, *, level: float = 0.95, prediction=None) -> pd.DataFrame:
     warn_if_incomplete(path)
     points = read_points(path)
     reps = read_replicates(path)
-    reps["outcome"] = reps["outcome"].map(outcome_name)
     rising = capped_rising(path, reps, config.invasion.mutant)
     theory = predict_configs(read_point_configs(path))
     make = _default_prediction if prediction is None else prediction
@@ -393,6 +380,11 @@ def _analytic_words(res, formula: str) -> str:
     if linked:
         along = (f" (along the linked group, axis {res.parameter}: there "
                  + ", ".join(f"{p} = {float(f'{v:.4g}'):g}" for p, v in linked.items()) + ")")
+    back = getattr(res, "replacement", float("nan"))
+    if np.isfinite(back) and back != res.value:
+        along += (f"; the resident invades back {'below' if res.invades_above else 'above'} "
+                  f"{float(f'{back:.4g}'):g}, so in between the two coexist and fixation is expected "
+                  "only past that replacement threshold")
     return f"{res.parameter} = {value}{where}: the mutant invades {side} it{along}"
 
 
@@ -407,6 +399,8 @@ THRESHOLD_COLUMNS = [
     "observed_message",
     "observed_add_points",
     "analytic_in_interval",
+    "replacement",
+    "replacement_in_interval",
 ]
 
 
@@ -455,7 +449,12 @@ def compare_thresholds(path, table: pd.DataFrame | None = None, *, level: float 
         where the points near the crossing are too far apart; a list), and
         ``analytic_in_interval`` (True when the analytic threshold lies
         within the observed interval, an open bound counting as the range's
-        end and beyond).
+        end and beyond); in a density-regulated variable environment also
+        ``replacement`` (where the resident stops invading back,
+        ``ThresholdResult.replacement``: past the invasion threshold and
+        before it each allele invades the other, so fixation crosses the
+        neutral expectation there, not at ``analytic``; nan elsewhere) and
+        ``replacement_in_interval``.
     """
     config = experiment_config(path)
     _require_invasion(config, path)
@@ -487,6 +486,9 @@ def compare_thresholds(path, table: pd.DataFrame | None = None, *, level: float 
                 "observed_message": obs.message,
                 "observed_add_points": list(obs.add_points),
                 "analytic_in_interval": bool(bounded and np.isfinite(res.value) and lo <= res.value <= hi),
+                "replacement": res.replacement,
+                "replacement_in_interval": bool(bounded and np.isfinite(res.replacement)
+                                                and lo <= res.replacement <= hi),
             }
         )
     return pd.DataFrame(rows, columns=THRESHOLD_COLUMNS)

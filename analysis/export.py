@@ -17,7 +17,7 @@ import pandas as pd
 
 from sim.store import read_attrs, read_points, read_replicates, read_trajectories
 
-from .comparison import IncompleteResultsWarning, compare, experiment_config, outcome_name
+from .comparison import IncompleteResultsWarning, compare, experiment_config
 
 __all__ = ["TABLES", "export"]
 
@@ -58,7 +58,6 @@ class _Sink:
 
 def _replicates(path) -> pd.DataFrame:
     reps = read_replicates(path)
-    reps["outcome"] = reps["outcome"].map(outcome_name)
     keys = reps.pop("spawn_key")
     reps.insert(4, "spawn_point", [k[0] for k in keys])
     reps.insert(5, "spawn_replicate", [k[1] for k in keys])

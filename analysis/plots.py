@@ -24,8 +24,11 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 from matplotlib.ticker import MaxNLocator  # noqa: E402
 
+from matplotlib.patches import Patch  # noqa: E402
+
 from sim.config import sweep_factors, swept_paths  # noqa: E402
-from sim.meanfield import NoEquilibriumError  # noqa: E402
+from sim.meanfield import NoEquilibriumError, growth_rate  # noqa: E402
+from sim.years import scaled_schedule  # noqa: E402
 from sim.store import read_points, read_replicates, read_trajectories  # noqa: E402
 
 from .comparison import (  # noqa: E402
@@ -38,11 +41,11 @@ from .comparison import (  # noqa: E402
     compare,
     compare_thresholds,
     experiment_config,
-    outcome_name,
 )
 from .finite_plots import draw_finite_curve  # noqa: E402
 from .sweep import factor_of, numeric_sweep_paths, other_swept_paths  # noqa: E402
 from .thresholds import fitness_along, with_values  # noqa: E402
+from .varying_years import year_spans  # noqa: E402
 
 __all__ = [
     "FIGURES",
@@ -51,6 +54,7 @@ __all__ = [
     "parameter_words",
     "fixation_figure",
     "trajectory_figure",
+    "year_shades",
     "outcome_figure",
     "fitness_figure",
     "invasion_map_figure",
@@ -267,7 +271,7 @@ _WINNER_COLOURS = ["#0072B2", "#D55E00", "#009E73", "#56B4E9", "#F0E442", "#E69F
 
 def _outcome_labels(reps: pd.DataFrame) -> pd.Series:
     """Each replicate's outcome as drawn: a plain ``fixed`` one by its winner ("one-shot fixed")."""
-    outcome = reps["outcome"].map(outcome_name)
+    outcome = reps["outcome"]
     winner = reps["winner"].astype(str)
     return outcome.where((outcome != "fixed") | (winner == ""), winner + " fixed")
 
@@ -307,9 +311,68 @@ def _tracked(config, alleles) -> str:
     return config.invasion.mutant if config.invasion is not None else alleles[0]
 
 
+def year_shades(config) -> dict:
+    """Year type -> grey level (0 light .. 1 dark) of its shading; the best year type is not shaded.
+
+    Year types are ranked by the resident's density-free growth rate in such a
+    year (the first allele's without ``[invasion]``): the best is left clear,
+    the others shaded, the worse the darker. Empty without ``[environment]``.
+    """
+    years = config.year_types()
+    if years is None:
+        return {}
+    names = [a.name for a in config.allele]
+    schedule = config.schedules()[names.index(config.invasion.resident if config.invasion else names[0])]
+    rates = [growth_rate(scaled_schedule(schedule, y)) for y in years.types]
+    ranked = [years.names[i] for i in np.argsort(rates, kind="stable")[::-1]]  # best first
+    return {name: rank / (len(ranked) - 1) for rank, name in enumerate(ranked) if rank > 0}
+
+
+def _years_shown(config, reps: pd.DataFrame, point: int, sample: list[int]):
+    """Whose years a panel shades: (replicate or None, words for the legend).
+
+    Shared years: the point's one sequence (read from its longest replicate).
+    Own years and one replicate drawn: its years. Own years and several drawn:
+    the years of the longest-running one, drawn bold (the years of the others
+    differ and are not shown).
+    """
+    if config.year_types() is None or not sample:
+        return None, ""
+    here = reps[reps["point"] == point]
+    if config.environment.shared_years:
+        return int(here.loc[here["steps"].idxmax(), "replicate"]), "the point's years (shared by its replicates)"
+    if len(sample) == 1:
+        return sample[0], "the drawn replicate's years"
+    shown = here[here["replicate"].isin(sample)]
+    return (int(shown.loc[shown["steps"].idxmax(), "replicate"]),
+            "the years of the bold replicate (each replicate draws its own; the others' differ)")
+
+
+def _shade_years(axes, spans: pd.DataFrame, shades: dict, last_step: float) -> None:
+    """Shade each run of non-best years behind the lines, up to ``last_step``."""
+    for span in spans.itertuples():
+        if span.year not in shades or span.start >= last_step:
+            continue
+        for ax in axes:
+            ax.axvspan(span.start, min(span.stop, last_step), color=_shade_colour(shades[span.year]),
+                       lw=0, zorder=0, gid=f"year:{span.year}")
+
+
+def _shade_colour(level: float) -> tuple:
+    """A light grey, darker for worse years (level 0..1)."""
+    g = 0.9 - 0.1 * level
+    return (g, g, g, 1.0)
+
+
 def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, panels: int = 4,
                       seed: int = 0):
-    """Share of the tracked allele (top) and census size (bottom), replicates coloured by outcome."""
+    """Share of the tracked allele (top) and census size (bottom), replicates coloured by outcome.
+
+    With stored years (``[environment]``), the seasons of every year type but
+    the best are shaded behind the lines (``year_shades``): the point's years
+    when they are shared, else the years of one drawn replicate, drawn bold
+    (each replicate lives through its own years; the legend says whose).
+    """
     xpath, _ = _axis(table, config)
     reps = read_replicates(path)
     reps["outcome"] = _outcome_labels(reps)
@@ -323,11 +386,18 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
     fig, axes = plt.subplots(2, len(chosen), figsize=(3.3 * len(chosen) + 1.2, 6.2), squeeze=False,
                              sharex="col", gridspec_kw={"height_ratios": [1.3, 1.0]})
     seen = set()
+    shades, whose = year_shades(config), set()
     for col, point in enumerate(chosen):
         top, bottom = axes[0, col], axes[1, col]
         sample = _sample(reps, int(point), per_point, rng)
         traj = read_trajectories(path, points=[int(point)], replicates=sample, by_age=False)
         outcome = reps[reps["point"] == point].set_index("replicate")["outcome"]
+        shown, words = _years_shown(config, reps, int(point), sample)
+        bold = shown if shown is not None and "bold" in words else None
+        if shown is not None and len(traj):
+            _shade_years((top, bottom), year_spans(path, point=int(point), replicate=shown), shades,
+                         float(traj["step"].max()))
+            whose.add(words)
         for rep, one in traj.groupby("replicate"):
             wide = one.pivot_table(index="step", columns="allele", values="count", aggfunc="sum")
             total = wide.sum(axis=1)
@@ -335,8 +405,9 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
             o = outcome.get(rep, "")
             colour = colours.get(o, "#009E73")
             seen.add(o)
-            top.plot(wide.index, share, lw=1.1, alpha=0.85, color=colour)
-            bottom.plot(wide.index, total, lw=1.0, alpha=0.8, color=colour)
+            width, z = (2.4, 3) if rep == bold else (1.0, 2)
+            top.plot(wide.index, share, lw=width + 0.1, alpha=0.85, color=colour, zorder=z)
+            bottom.plot(wide.index, total, lw=width, alpha=0.8, color=colour, zorder=z)
         row = table[table["point"] == point].iloc[0]
         where = f"{parameter_words(xpath)} {row[xpath]:g}" if xpath else f"point {point}"
         others = [p for p in other_swept_paths(config, xpath) if p in table.columns]
@@ -361,9 +432,14 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
     axes[0, 0].set_ylabel(f"share of {tracked}", fontsize=8)
     axes[1, 0].set_ylabel("census size (age 1 and older)", fontsize=8)
     handles = [plt.Line2D([], [], color=colours.get(o, "#009E73"), lw=1.5) for o in _outcome_order(seen)]
-    fig.legend(handles, [_OUTCOME_WORDS.get(o, o) for o in _outcome_order(seen)], fontsize=8,
-               loc="lower center", ncol=max(1, len(handles)), frameon=False,
-               title="replicates coloured by outcome", title_fontsize=8)
+    labels = [_OUTCOME_WORDS.get(o, o) for o in _outcome_order(seen)]
+    title = "replicates coloured by outcome"
+    if whose:
+        handles += [Patch(color=_shade_colour(level)) for level in shades.values()]
+        labels += [f"{name} years" for name in shades]
+        title += "; shaded: " + " / ".join(sorted(whose))
+    fig.legend(handles, labels, fontsize=8, loc="lower center", ncol=max(1, len(handles)), frameon=False,
+               title=title, title_fontsize=8)
     fig.suptitle(f"Sampled replicates (at most {per_point} per point, every outcome shown)",
                  fontsize=10, x=0.02, ha="left")
     fig.tight_layout(rect=(0, 0.07, 1, 0.97))

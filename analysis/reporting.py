@@ -24,7 +24,6 @@ from .comparison import (
     compare_thresholds,
     experiment_config,
     incomplete_message,
-    outcome_name,
     warn_if_incomplete,
 )
 from .plots import plot
@@ -219,10 +218,15 @@ def verdict_text(table: pd.DataFrame, thresholds: pd.DataFrame, config=None) -> 
         if np.isfinite(r.analytic) and (np.isfinite(r.observed_low) or np.isfinite(r.observed_high)
                                         or np.isfinite(r.observed)):
             inside = "lies inside" if r.analytic_in_interval else "lies outside"
+            back = ""
+            if np.isfinite(r.replacement) and r.replacement != r.analytic:
+                back = (f" The replacement threshold {float(f'{r.replacement:.4g}'):g} (where the resident "
+                        "stops invading back; the two coexist in between) "
+                        f"{'lies inside' if r.replacement_in_interval else 'lies outside'} it.")
             words.append(
                 f"Along <code>{html.escape(r.parameter)}</code>{where}: "
                 f"{html.escape(r.observed_message)}. The analytic threshold "
-                f"{float(f'{r.analytic:.4g}'):g} {inside} that interval."
+                f"{float(f'{r.analytic:.4g}'):g} {inside} that interval.{back}"
             )
         else:
             words.append(
@@ -329,7 +333,6 @@ def _invasion_sections(path, config, figures_dir, incomplete, table, thresholds)
 def outcome_counts(path) -> pd.DataFrame:
     """Replicates per sweep point by outcome, for any results file (a fixed one by its winner)."""
     reps = read_replicates(path)
-    reps["outcome"] = reps["outcome"].map(outcome_name)
     label = np.where(reps["winner"].astype(str) != "", reps["winner"].astype(str) + " fixed", reps["outcome"])
     label = np.where(reps["outcome"].isin([FIXED, LOST]), reps["outcome"], label)
     points = read_points(path)

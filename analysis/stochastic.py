@@ -22,7 +22,7 @@ makes comparisons and thresholds use common random numbers.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
 from typing import Callable
 
 import numpy as np
@@ -56,6 +56,8 @@ __all__ = [
     "InvasionSetting",
     "StochasticThreshold",
     "stochastic_threshold",
+    "NeutralShare",
+    "neutral_share_in_years",
 ]
 
 
@@ -355,7 +357,8 @@ def _starting_census(resident: Schedule, years: YearTypes, density: DensityDepen
 
 
 def resident_path(
-    resident: Schedule, years: YearTypes, density: DensityDependence, sequences: YearSequences
+    resident: Schedule, years: YearTypes, density: DensityDependence, sequences: YearSequences, *,
+    start: np.ndarray | None = None,
 ) -> ResidentPath:
     """Run the resident's deterministic season map through each batch's years.
 
@@ -363,7 +366,8 @@ def resident_path(
     with the year's scaled rates: D from the census (weights
     ``density.index_weights`` of the year's fecundities), factors f(D), then
     the projection ``A(year, f)``. Batches start from the resident's
-    equilibrium in the average year; the burn-in lets them forget it.
+    equilibrium in the average year (or from ``start``, a census by age);
+    the burn-in lets them forget it.
 
     A ceiling's removal is not a factor of D: there each season is
     ``mean_field_step`` itself (one batch at a time, so slower), and the
@@ -379,14 +383,15 @@ def resident_path(
     if isinstance(density.form, NoDensity):
         raise NoEquilibriumError(f"resident {resident.name!r}: no density dependence, so no regulated path")
     sequences = sequences.for_years(years)
+    start = _starting_census(resident, years, density) if start is None else np.asarray(start, float)
     if isinstance(density.form, Ceiling):
-        return _ceiling_path(resident, years, density, sequences)
+        return _ceiling_path(resident, years, density, sequences, start)
     fert, surv = _parts(resident, years)
     scaled_m = np.array([scaled_schedule(resident, y).fecundity for y in years.types])
     weights = density.index_weights(scaled_m)  # (n_types, n_ages)
     seq = sequences.indices
     n_b, n_t = seq.shape
-    x = np.tile(_starting_census(resident, years, density), (n_b, 1))
+    x = np.tile(start, (n_b, 1))
     f = np.empty((3, n_b, n_t))  # fecundity, adult, recruitment factors
     size = np.empty((n_b, n_t))
     for t in range(n_t):
@@ -401,13 +406,13 @@ def resident_path(
     return ResidentPath(Factors(*f), size)
 
 
-def _ceiling_path(resident, years, density, sequences) -> ResidentPath:
+def _ceiling_path(resident, years, density, sequences, start) -> ResidentPath:
     rates = [stack_schedules([scaled_schedule(resident, y)]) for y in years.types]
     free = DensityDependence(NoDensity(), density.acts_on, density.counted)
     recruits_only = density.acts_on == "recruitment"
     seq = sequences.indices
     n_b, n_t = seq.shape
-    start = _starting_census(resident, years, density)[None, :]
+    start = start[None, :]
     phi = np.ones((n_b, n_t))
     size = np.empty((n_b, n_t))
     for b in range(n_b):
@@ -666,3 +671,106 @@ def stochastic_threshold(
         f"invades {side} {root:.6g} (SE {err:.2g}; {sequences.n_batches} batches of "
         f"{sequences.batch_length} seasons)",
     )
+
+
+# --------------------------------------------------------------------------- neutral expectation
+
+
+@dataclass(frozen=True)
+class NeutralShare:
+    """A neutral mutant's fixation probability in random years.
+
+    Attributes
+    ----------
+    value : float
+        The mean over year sequences of the mutants' share of reproductive
+        value at the start.
+    standard_error : float
+        Its standard error over the sequences (sd / sqrt(n_sequences)).
+    constant_years : float
+        The same share with the reproductive values of the average year (the
+        constant-environment statement), for comparison.
+    n_sequences, seasons : int
+    shares : ndarray
+        The share under each sequence's years (the fixation probability given
+        those years).
+    """
+
+    value: float
+    standard_error: float
+    constant_years: float
+    n_sequences: int
+    seasons: int
+    shares: np.ndarray = field(repr=False, compare=False, default=None)
+
+
+def neutral_share_in_years(
+    resident: Schedule, years: YearTypes, density: DensityDependence | None, sequences: YearSequences,
+    census: np.ndarray, mutant_count: int,
+) -> NeutralShare:
+    """Fixation probability of ``mutant_count`` neutral mutants of age 1 among ``census`` residents.
+
+    Parameters
+    ----------
+    resident : Schedule
+        The resident's (and so the neutral mutant's) schedule.
+    years : YearTypes
+    density : DensityDependence or None
+    sequences : YearSequences
+        Each row is one possible future, season 1 onwards from the start
+        (its ``burn_in`` is ignored: the start is the census given).
+    census : ndarray
+        The residents' starting census by age (the mutants come on top).
+    mutant_count : int
+
+    Notes
+    -----
+    A neutral mutant has the resident's matrices, so given the years ahead
+    (and, in a large population, the density path they drive, which the
+    mutants share) the expected reproductive-value share of its lineage is
+    constant: with v_t' = v_{t+1}' A_t / (scale), the reproductive values
+    of a random environment, read backwards from the future (Tuljapurkar 1990,
+    Population Dynamics in Variable Environments, ch. 11, from memory),
+    v_{t+1}' E[M_{t+1}] = v_{t+1}' A_t M_t is proportional to v_t' M_t, and
+    the same for the whole population. The share ends at 0 or 1, so the
+    fixation probability given the years is the starting share v_0' M_0 /
+    v_0' N_0, and over the years its mean. v_0 depends on the first seasons'
+    years (a year good for breeding raises the breeders' value for those who
+    are about to breed), so the mean share is not the share under the
+    average year's reproductive values (Jensen's inequality); they agree
+    exactly where the life cycle has one class (v is then a number).
+    The density path is the mean-field one from the starting census (mutants
+    included); the backward product starts from equal values at the last
+    season of each sequence, long enough ahead for it to be forgotten.
+    """
+    sequences = sequences.for_years(years)
+    census = np.asarray(census, dtype=float)
+    n = census.size
+    schedule = resident.padded(n) if resident.n_ages < n else resident
+    start = census.copy()
+    start[0] += mutant_count
+    seq = sequences.indices
+    fert, surv = _parts(schedule, years)
+    if regulated(density):
+        path = resident_path(schedule, years, density, sequences, start=start)
+        f_fert, f_surv = path.fertility_factor, path.factors.adult
+    else:
+        f_fert = f_surv = np.ones(seq.shape)
+    v = np.ones((seq.shape[0], n))
+    for t in range(seq.shape[1] - 1, -1, -1):
+        y = seq[:, t]
+        a = fert[y] * f_fert[:, t, None, None] + surv[y] * f_surv[:, t, None, None]
+        v = np.einsum("bi,bij->bj", v, a)
+        v /= v.sum(axis=1, keepdims=True)
+    share = mutant_count * v[:, 0] / (v @ start)
+    mean = YearType("mean", *(years.start_law() @ years.multipliers()))
+    if regulated(density):
+        try:
+            factors = solve_equilibrium(scaled_schedule(schedule, mean), density).factors
+        except (NoEquilibriumError, ValueError):
+            factors = Factors()
+    else:
+        factors = Factors()
+    _, _, v_mean = dominant_eigen(projection_matrix(scaled_schedule(schedule, mean), factors))
+    return NeutralShare(float(share.mean()), float(share.std(ddof=1) / np.sqrt(share.size)),
+                        float(mutant_count * v_mean[0] / (v_mean @ start)), int(share.size), int(seq.shape[1]), share)

@@ -44,11 +44,11 @@ PREDICTION_COLUMNS = [
 ]
 
 
-def _row(config: Config) -> dict:
+def _row(config: Config, point: int | None = None) -> dict:
     if config.environment is not None:  # year types: the stochastic theory
         from .varying_years import stochastic_prediction
 
-        return {**stochastic_prediction(config), "problem": ""}
+        return {**stochastic_prediction(config, point=point), "problem": ""}
     try:
         p = predict(config).as_dict()
         p["problem"] = (
@@ -69,9 +69,11 @@ def predict_configs(configs) -> pd.DataFrame:
     columns (``analysis.fixation.COLUMNS``) and ``problem``.
 
     A point where the resident has no equilibrium gets nan values, verdict
-    "undefined" and the reason in ``problem``.
+    "undefined" and the reason in ``problem``. The configs are taken to be
+    the sweep points in order (a ``shared_years`` point's neutral expectation
+    is read under its own years, found by its index).
     """
-    rows = [_row(c) for c in configs]
+    rows = [_row(c, i) for i, c in enumerate(configs)]
     extra = list(dict.fromkeys(k for r in rows for k in r if k not in PREDICTION_COLUMNS and k != "problem"))
     return pd.DataFrame(rows, columns=[*PREDICTION_COLUMNS, *extra, "problem"])
 

@@ -68,6 +68,14 @@ class ThresholdResult:
     standard_error : float
         In a variable environment, the threshold's standard error from the
         year sampling (``analysis.varying_years``); nan otherwise.
+    replacement : float
+        In a density-regulated variable environment: where the resident stops
+        invading back (its stochastic invasion fitness against the mutant as
+        resident crosses 1), on the mutant's side of ``value``. Between the
+        two each allele invades the other (they coexist), so a large
+        population fixes the mutant only past ``replacement``; equal to
+        ``value`` where no such region was found; nan otherwise.
+    replacement_standard_error : float
     """
 
     parameter: str
@@ -81,14 +89,17 @@ class ThresholdResult:
     at: dict = field(default_factory=dict)
     linked: dict = field(default_factory=dict)
     standard_error: float = float("nan")
+    replacement: float = float("nan")
+    replacement_standard_error: float = float("nan")
 
     def as_dict(self) -> dict:
         d = asdict(self)
         d["bracket"], d["fitness_at_bracket"] = list(self.bracket), list(self.fitness_at_bracket)
         if not self.linked:  # the key appears only for a threshold along a linked group
             del d["linked"]
-        if math.isnan(self.standard_error):  # only in a variable environment
-            del d["standard_error"]
+        for key in ("standard_error", "replacement", "replacement_standard_error"):
+            if math.isnan(d[key]):  # only in a variable environment
+                del d[key]
         return d
 
 

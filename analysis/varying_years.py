@@ -18,40 +18,79 @@ import numpy as np
 import pandas as pd
 
 from sim.config import Config, SweepFactor, sweep_points
+from sim.density import Ceiling
 from sim.describe import describe_environment
+from sim.lifecycle import initial_census
 from sim.meanfield import NoEquilibriumError
+from sim.year_draws import year_sequence
 
 from .environment import invasion_pair
-from .invasion import neutral_expectation
 from .random_branching import establishment_in_years
 from .stochastic import (
     InvasionSetting,
+    NeutralShare,
+    StochasticThreshold,
     YearSequences,
     draw_year_sequences,
+    neutral_share_in_years,
     regulated,
     stochastic_invasion,
     stochastic_threshold,
 )
 from .thresholds import ThresholdResult, _default_bracket, _setting, with_values
 
-__all__ = ["STOCHASTIC_COLUMNS", "YEAR_DRAWS", "THEORY_STREAM", "year_draws", "stochastic_prediction",
-           "stochastic_threshold_result", "year_spans"]
+__all__ = ["STOCHASTIC_COLUMNS", "YEAR_DRAWS", "THEORY_STREAM", "NEUTRAL_DRAWS", "NEUTRAL_STREAM", "year_draws",
+           "neutral_in_years", "stochastic_prediction", "stochastic_threshold_result", "year_spans"]
 
 # what a prediction adds to analysis.sweep.PREDICTION_COLUMNS in a variable environment
 STOCHASTIC_COLUMNS = (
     "invasion_fitness_se", "log_invasion_fitness_se", "stochastic_growth_rate",
     "stochastic_growth_rate_se", "small_noise_approximation", "resident_stochastic_growth_rate",
     "resident_stochastic_growth_rate_se", "resident_small_noise_approximation",
-    "establishment_probability_se", "prediction", "environment",
+    "establishment_probability_se", "neutral_expectation_se", "prediction", "environment",
 )
 YEAR_DRAWS = {"n_batches": 20, "batch_length": 1000, "burn_in": 200}
 THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apart from any run's
+# a neutral mutant's share of reproductive value depends on the first seasons' years: many short
+# futures (the backward product forgets its end within a few tens of seasons)
+NEUTRAL_DRAWS = {"n_batches": 1000, "batch_length": 100, "burn_in": 0}
+# a ceiling's path is stepped one future at a time (analysis.stochastic._ceiling_path): fewer
+CEILING_NEUTRAL_DRAWS = {"n_batches": 100, "batch_length": 50, "burn_in": 0}
+NEUTRAL_STREAM = 4  # SeedSequence(seed, spawn_key=(4,)): those futures
 
 
 def year_draws(config: Config) -> YearSequences:
     """The theory's year sequences for ``config`` (the same uniforms for every point)."""
     rng = np.random.default_rng(np.random.SeedSequence(config.experiment.seed, spawn_key=(THEORY_STREAM,)))
     return draw_year_sequences(config.year_types(), rng, **YEAR_DRAWS)
+
+
+def neutral_in_years(config: Config, *, point: int | None = None) -> NeutralShare:
+    """The introduced mutants' fixation probability were they neutral, in the config's random years.
+
+    The mean over ``NEUTRAL_DRAWS`` futures of the mutants' share of the
+    random environment's reproductive values at the start
+    (``analysis.stochastic.neutral_share_in_years``). With ``shared_years``
+    and a ``point`` index, the replicates of that point all live through one
+    known sequence (``sim.year_draws.year_sequence``), so the share is read
+    under that sequence alone (standard error 0): the conditional
+    probability that the point's fixation fraction estimates.
+    """
+    r, _ = invasion_pair(config)
+    years = config.year_types()
+    density = config.density_dependence()
+    census = initial_census(config)[r]
+    count = config.invasion.mutant_count
+    if config.environment.shared_years and point is not None:
+        seasons = NEUTRAL_DRAWS["batch_length"]
+        one = year_sequence(years, config.experiment.seed, point, 0, seasons, shared=True)
+        futures = YearSequences(np.vstack([one, one]), 0)
+    else:
+        rng = np.random.default_rng(np.random.SeedSequence(config.experiment.seed, spawn_key=(NEUTRAL_STREAM,)))
+        futures = draw_year_sequences(years, rng, **(CEILING_NEUTRAL_DRAWS if isinstance(density.form, Ceiling)
+                                                    else NEUTRAL_DRAWS))
+    return neutral_share_in_years(config.schedules()[r], years, density if regulated(density) else None,
+                                  futures, census, count)
 
 
 def _setting_of(config: Config) -> InvasionSetting:
@@ -62,8 +101,11 @@ def _setting_of(config: Config) -> InvasionSetting:
                            density if regulated(density) else None)
 
 
-def stochastic_prediction(config: Config) -> dict:
+def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
     """A sweep point's prediction in a variable environment, keyed like ``analysis.predict``.
+
+    ``point`` (the sweep point's index) lets a ``shared_years`` point's neutral
+    expectation be read under its own years (``neutral_in_years``).
 
     Returns
     -------
@@ -76,7 +118,9 @@ def stochastic_prediction(config: Config) -> dict:
         ``stochastic_growth_rate`` (the mutant's log lambda_s),
         ``stochastic_growth_rate_se``, ``small_noise_approximation`` (and the
         resident's), ``establishment_probability_se``, ``prediction``
-        ("stochastic") and ``environment`` (in words).
+        ("stochastic") and ``environment`` (in words); ``neutral_expectation``
+        is a neutral mutant's fixation probability in random years
+        (``neutral_in_years``), with ``neutral_expectation_se``.
     """
     s = _setting_of(config)
     draws = year_draws(config)
@@ -85,9 +129,10 @@ def stochastic_prediction(config: Config) -> dict:
                                  config.offspring_distribution(), draws,
                                  count=config.invasion.mutant_count)
     try:
-        neutral = neutral_expectation(config)
+        neutral = neutral_in_years(config, point=point)
+        neutral, neutral_se = neutral.value, neutral.standard_error
     except NoEquilibriumError:
-        neutral = float("nan")
+        neutral = neutral_se = float("nan")
     growth = inv.as_dict()
     fitness = inv.invasion_fitness
     return {
@@ -104,6 +149,7 @@ def stochastic_prediction(config: Config) -> dict:
         **{k: v for k, v in growth.items() if k not in ("resident", "mutant", "regulated",
                                                         "invasion_fitness", "mean_census_size")},
         "establishment_probability_se": est.standard_error,
+        "neutral_expectation_se": neutral_se,
         "prediction": "stochastic",
         "environment": describe_environment(config),
     }
@@ -133,10 +179,16 @@ def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,
 
     t = stochastic_threshold(at, draws, bracket=(lo, hi))
     g_lo, g_hi = t.log_fitness_at_bracket
+    back = _replacement(at, draws, t, lo, hi) if t.converged else None
     env = describe_environment(config)
     message = (f"{parameter}: stochastic invasion fitness is 1 at {t.value:.6g} (SE {t.standard_error:.2g}); "
                if t.converged else f"{parameter}: no stochastic threshold in [{lo:g}, {hi:g}] ({t.message}); ")
-    message += (f"mutant invades {'above' if g_hi > 0 else 'below'} it. " if t.converged else "") + \
+    message += (f"mutant invades {'above' if g_hi > 0 else 'below'} it. " if t.converged else "")
+    if back is not None and back.value != t.value:
+        message += (f"The resident invades back {'below' if g_hi > 0 else 'above'} {back.value:.6g} "
+                    f"(SE {back.standard_error:.2g}): in between each invades the other, and a large "
+                    "population fixes the mutant only past it. ")
+    message += \
         (f"Prediction: stochastic theory ({draws.n_batches} batches of {draws.batch_length} seasons, "
          f"the same years for every trial value); environment: {env}")
     linked = {p: v for p, v in group.along(t.value).items() if p != parameter} \
@@ -145,7 +197,36 @@ def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,
                            fitness_at_bracket=(math.exp(g_lo), math.exp(g_hi)),
                            invades_above=(g_hi > 0) if t.converged else None,
                            crossings=int(t.converged), message=message, linked=linked,
-                           standard_error=t.standard_error)
+                           standard_error=t.standard_error,
+                           replacement=back.value if back is not None else float("nan"),
+                           replacement_standard_error=back.standard_error if back is not None else float("nan"))
+
+
+def _replacement(at, draws: YearSequences, t, lo: float, hi: float):
+    """Where the resident stops invading the mutant-as-resident, on the mutant's side of ``t``.
+
+    The roles swapped at every trial value, the same years (common random
+    numbers). None without density dependence (there the reverse fitness is
+    the inverse, so the two thresholds coincide) or where the mutant cannot
+    be a resident; ``t`` itself where the resident does not invade back at
+    ``t`` (no region where each invades the other).
+    """
+    if not regulated(at(t.value).density):
+        return None
+    above = t.log_fitness_at_bracket[1] > 0
+
+    def swapped(value: float) -> InvasionSetting:
+        s = at(value)
+        return InvasionSetting(s.mutant, s.resident, s.years, s.density)
+
+    try:
+        back = stochastic_threshold(swapped, draws, bracket=(t.value, hi) if above else (lo, t.value))
+    except (NoEquilibriumError, ValueError, ArithmeticError):
+        return None
+    if not back.converged:  # the resident never invades back on the mutant's side: replacement at once
+        return StochasticThreshold(t.value, t.standard_error, True, back.bracket, back.log_fitness_at_bracket,
+                                   t.slope, "no region where each invades the other")
+    return back
 
 
 def year_spans(path, *, point: int = 0, replicate: int = 0) -> pd.DataFrame:

@@ -88,8 +88,9 @@ class MemoryReport:
 
     def __str__(self) -> str:
         t = self.table
-        lines = [f"peak memory by experiment size ({self.workers} worker"
-                 f"{'s' if self.workers > 1 else ''}; one fresh process per size)"]
+        where = (f"{self.workers} worker processes" if self.workers > 1
+                 else "1 process: the replicates run in the writer's process")
+        lines = [f"peak memory by experiment size ({where}; one fresh process per size)"]
         with pd.option_context("display.width", 120, "display.float_format", "{:.2f}".format):
             lines.append(t.to_string(index=False))
         lines.append(f"writer peak RSS ratio, largest / smallest run: {t['writer_ratio'].iloc[-1]:.2f} "
@@ -112,11 +113,13 @@ def measure_memory(sizes=(1000, 10000), *, workers: int = 1) -> MemoryReport:
             m = json.loads(proc.stdout.strip().splitlines()[-1])
             if m["rows"] != n:
                 raise RuntimeError(f"bench run of {n} replicates wrote {m['rows']} rows")
-            rows.append({"replicates": n, "seconds": m["seconds"],
-                         "file_mib": out.stat().st_size / 2**20,
-                         "data_mib": m["records"] * 4 / 2**20,  # the census counts, uncompressed
-                         "writer_peak_mib": m["writer_kib"] / 1024,
-                         "worker_peak_mib": m["worker_kib"] / 1024 if workers > 1 else float("nan")})
+            row = {"replicates": n, "seconds": m["seconds"],
+                   "file_mib": out.stat().st_size / 2**20,
+                   "data_mib": m["records"] * 4 / 2**20,  # the census counts, uncompressed
+                   "writer_peak_mib": m["writer_kib"] / 1024}
+            if workers > 1:  # with one worker the replicates run in the writer's own process
+                row["worker_peak_mib"] = m["worker_kib"] / 1024
+            rows.append(row)
             time.sleep(0.1)
     table = pd.DataFrame(rows)
     table["writer_ratio"] = table["writer_peak_mib"] / table["writer_peak_mib"].iloc[0]

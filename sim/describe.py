@@ -11,7 +11,7 @@ from .density import Factors
 from .lifecycle import initial_census
 from .meanfield import growth_rate
 
-__all__ = ["BUDGET", "ConfigWarning", "config_warnings", "describe_experiment", "describe_environment",
+__all__ = ["BUDGET", "AGENTS_BROOD_BUDGET", "ConfigWarning", "config_warnings", "describe_experiment", "describe_environment",
            "preflight", "counts_engine_note"]
 
 
@@ -74,6 +74,10 @@ def _capacity(config: Config) -> str:
 # summed over sweep points) unless the budget is lifted (``budget=False``, ``--no-budget``):
 # about a day of one core at the individual engine's 1e8 individual-seasons a second.
 BUDGET = 10**13
+# The Mesa reference engine draws each young one by one in Python (about a million a
+# second): a breeder whose mean brood passes this would take minutes a season, so such a
+# config is refused for that engine unless the budget is lifted.
+AGENTS_BROOD_BUDGET = 10**6
 
 
 def preflight(config: Config, *, budget: bool = True) -> list:
@@ -107,6 +111,8 @@ def preflight(config: Config, *, budget: bool = True) -> list:
         problems += [where + m for m in _census_problems(point.config, census)]
         exp = point.config.experiment
         work += exp.replicates * exp.max_steps * int(census.sum())
+        if budget and exp.engine == "agents":
+            problems += [where + m for m in _agents_problems(point.config)]
     if problems:
         raise ConfigError(problems)
     if budget and work > BUDGET:
@@ -115,6 +121,24 @@ def preflight(config: Config, *, budget: bool = True) -> list:
             f"census, over {len(points)} points) passes the budget of {BUDGET:.0e}; lower "
             "replicates or max_steps, or lift the budget with budget=False")
     return points
+
+
+def _agents_problems(config: Config) -> list[str]:
+    """Why the ``agents`` engine cannot run a point in reasonable time: a brood too large."""
+    from .lifecycle import LifeCycle
+
+    kernel = LifeCycle.from_config(config).kernel
+    env = config.environment
+    boost = max(y.fecundity for y in env.year) if env is not None else 1.0
+    brood = kernel.fecundity * boost
+    c = int(np.argmax(brood))
+    if brood[c] <= AGENTS_BROOD_BUDGET:
+        return []
+    a = int(kernel.allele_of[c])
+    return [f"allele[{a}].fecundity: {config.allele[a].name!r} breeds {brood[c]:.3g} young a season "
+            f"on average, and the 'agents' engine draws each young one by one (past "
+            f"{AGENTS_BROOD_BUDGET:.0e} a breeder, minutes a season); use experiment.engine = "
+            "'individual' or 'counts', or lift the budget with budget=False"]
 
 
 def _census_problems(config: Config, census: np.ndarray) -> list[str]:

@@ -62,6 +62,10 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
               fixed: str = "mutant-fixed") -> pd.DataFrame:
     """Per sweep point: replicates, the count of each outcome, and the fraction ``fixed``.
 
+    ``fixed_fraction`` is taken over the resolved replicates (those whose outcome
+    is in ``DECIDED``): a capped or undecided replicate is not a loss, so it is
+    left out, as ``compare`` leaves it out (NaN where none resolved).
+
     Parameters
     ----------
     replicates : DataFrame
@@ -84,10 +88,12 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
         if name not in counts:
             counts[name] = 0
     table = pd.DataFrame({"replicates": counts.sum(axis=1)})
+    always = ("mutant-fixed", "mutant-lost") if fixed == "mutant-fixed" else (fixed,)
     for name in OUTCOMES:
-        if counts[name].any() or name in ("mutant-fixed", "mutant-lost"):
+        if counts[name].any() or name in always:
             table[name] = counts[name]
-    table["fixed_fraction"] = counts[fixed] / table["replicates"]
+    table["resolved"] = counts[list(DECIDED)].sum(axis=1)
+    table["fixed_fraction"] = counts[fixed] / table["resolved"].where(table["resolved"] > 0)
     table = table.reset_index()
     if points is not None and points.shape[1] > 1:
         table = points.merge(table, on="point", how="right")

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from .store import count_outcomes, parts_dir, read_attrs, read_points, writer_state
+from .vocabulary import DECIDED
 
 __all__ = ["ExperimentStatus", "experiment_status"]
 
@@ -31,7 +32,8 @@ class ExperimentStatus:
         ``mutant-fixed`` with ``[invasion]``, else ``fixed``.
     table : DataFrame
         Per point: ``point``, the swept values, ``done``, ``of``, ``fixed``,
-        ``fixed_fraction`` (of the replicates done), ``capped``.
+        ``fixed_fraction`` (of the resolved replicates done: capped and
+        undecided ones are left out, not counted as losses), ``capped``.
     writer : str
         Who holds the writer's lock (``pid N on HOST``) while running.
     """
@@ -75,13 +77,14 @@ def experiment_status(path) -> ExperimentStatus:
     done = np.bincount(point, weights=count, minlength=n).astype(np.int64)
     fixed = np.bincount(point, weights=count * (outcomes["outcome"] == fixed_name), minlength=n)
     capped = np.bincount(point, weights=count * (outcomes["outcome"] == "capped"), minlength=n)
+    resolved = np.bincount(point, weights=count * outcomes["outcome"].isin(DECIDED), minlength=n)
     per_point = attrs.get("replicates", attrs["config"]["experiment"]["replicates"])
     table = points.copy()
     table["done"] = done
     table["of"] = per_point
     table["fixed"] = fixed.astype(np.int64)
     with np.errstate(invalid="ignore", divide="ignore"):
-        table["fixed_fraction"] = np.where(done > 0, fixed / np.maximum(done, 1), np.nan)
+        table["fixed_fraction"] = np.where(resolved > 0, fixed / np.maximum(resolved, 1), np.nan)
     if capped.any():
         table["capped"] = capped.astype(np.int64)
     writer = ""

@@ -10,7 +10,7 @@ This module imports nothing, so any module may import it.
 
 __all__ = [
     "ENGINES", "STOP_RULES", "TRAJECTORY_MODES", "DENSITY_FORMS", "PLACEMENTS", "COUNTED",
-    "DISTRIBUTIONS", "BREEDING", "BROOD_EFFECTS", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED",
+    "DISTRIBUTIONS", "BREEDING", "BROOD_EFFECTS", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED", "outcome_name",
     "SWITCHING", "STATIONARY", "YEAR_MULTIPLIERS",
 ]
 
@@ -35,3 +35,17 @@ YEAR_MULTIPLIERS = ("fecundity", "adult_survival", "juvenile_survival")
 OUTCOMES = ("mutant-fixed", "mutant-lost", "fixed", "extinct", "undecided", "capped")
 DECIDED_WITH_WINNER = ("mutant-fixed", "mutant-lost", "fixed")  # one allele is left: it has a winner
 DECIDED = DECIDED_WITH_WINNER + ("extinct",)  # outcomes that hold from a season on (fixation_step)
+_OUTCOME_ALIASES = {"unresolved": "undecided"}  # the one idea's other name in earlier tables
+
+
+def outcome_name(text: str) -> str:
+    """An outcome as this version spells it (one of ``OUTCOMES``), whatever a file wrote.
+
+    Files from other versions may write ``mutant_fixed`` for ``mutant-fixed``,
+    or ``unresolved`` for ``undecided``; each is read as the one name.
+    """
+    text = _OUTCOME_ALIASES.get(text, text)
+    for name in OUTCOMES:
+        if text.replace("_", "-") == name:
+            return name
+    return text

@@ -97,3 +97,13 @@ def write_small_results(path, *, replicates=60, seed=3):
     )
     run_experiment(config, path, progress=False)
     return path
+
+
+def wet_and_dry(*, shared=False, **kw):
+    """``invasion_config(**kw)`` in wet and dry years (juvenile survival x1.5 or x0.3, each
+    with probability 0.5), each replicate with its own years unless ``shared``."""
+    raw = invasion_config(**kw).model_dump(exclude_none=True)
+    raw["environment"] = {"shared_years": shared,
+                          "year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.5},
+                                   {"name": "dry", "probability": 0.5, "juvenile_survival": 0.3}]}
+    return parse_config(raw)

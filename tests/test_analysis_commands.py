@@ -69,6 +69,8 @@ COMPARE_THRESHOLD_KEYS = {
     "observed_message",
     "observed_add_points",
     "analytic_in_interval",
+    "replacement",
+    "replacement_in_interval",
 }
 
 CONFIG = """

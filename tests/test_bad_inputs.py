@@ -148,6 +148,35 @@ def test_an_exploding_population_ends_capped_without_sizing_its_arrays(changes):
     assert all(r.trajectory.max() <= 2**32 - 1 for r in results)
 
 
+@pytest.mark.parametrize("changes", [
+    dict(allele1__fecundity=1e5, density__form="none", invasion__resident_count=10),
+    dict(allele1__fecundity=1e300, density__form="none", invasion__resident_count=10),
+    dict(allele1__fecundity=1e5, density__form="ceiling", density__acts_on="recruitment"),
+])
+def test_the_agents_engine_stops_building_an_exploding_population(changes):
+    # Issue 11: the Mesa engine looped over every young of a 1e12 brood (a hang) and failed on
+    # a 1e300 mean. It now draws means up to the array engines' DRAW_LIMIT and stops drawing
+    # young once the census passes max_population (the replicate ends capped, as in the
+    # array engines; a replicate that stays below draws exactly as before).
+    raw = _raw(experiment__engine="agents", experiment__max_population=3000, **changes)
+    point = preflight(parse_config(raw), budget=False)[0]
+    results = run_replicates(point, range(3), 3)
+    assert all(r.outcome == "capped" for r in results)
+    assert all(r.final_census > 3000 for r in results)
+    # the young past the cap are counted, not built: the census holds them all (a 1e5 brood
+    # of recruitment 0.5 gives some 5e4 recruits a breeder; 1e300 is drawn as DRAW_LIMIT)
+    assert all(r.final_census > 40_000 for r in results)
+
+
+def test_the_agents_engine_refuses_a_brood_it_cannot_draw_young_by_young(tmp_path, capsys):
+    # A brood of 1e12 under density dependence would be drawn young by young every season.
+    raw = _raw(experiment__engine="agents", allele1__fecundity=1e12)
+    with pytest.raises(ConfigError, match=r"allele\[1\]\.fecundity: 'one-shot' breeds 1e\+12 young a season"):
+        preflight(parse_config(raw))
+    assert preflight(parse_config(raw), budget=False)  # lifted by the budget's flag
+    assert preflight(parse_config(_raw(experiment__engine="individual", allele1__fecundity=1e12)))
+
+
 def test_births_past_the_draw_limit_still_regulate_recruits_when_offspring_are_counted():
     # counted = "offspring": D is the births, so recruits stay near K however large the fecundity
     point = preflight(parse_config(_raw(allele1__fecundity=1e300, density__counted="offspring")))[0]

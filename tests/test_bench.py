@@ -89,9 +89,25 @@ def test_individual_engine_memory_per_individual():
     config = bench_config(n)
     life = LifeCycle.from_config(config)
     start = initial_census(config, life)
+    # one season first on a copy, so one-time set-up (lazily built constants, a first
+    # compile) is not counted as a season's temporaries; alone, this test saw 66 bytes
+    IndividualPopulations(life, start[None], [np.random.default_rng(0)]).step()
     batch = IndividualPopulations(life, start[None], [np.random.default_rng(1)])
     assert batch.cell.dtype == np.uint8
     held = batch.state_bytes() / batch.sizes[0]
     peak = traced_peak(batch.step)
     assert held < 1.1
     assert held + peak / start.sum() <= 24
+
+
+def test_memory_report_has_no_empty_worker_column():
+    # `bench-memory` used to print a NaN worker column for one worker (issue 10): with one
+    # worker the replicates run in the writer's process, and the report says so instead.
+    from sim.bench_memory import measure_memory
+
+    one = measure_memory((20, 40), workers=1)
+    assert "worker_peak_mib" not in one.table and "nan" not in str(one).lower()
+    assert "run in the writer's process" in str(one)
+    assert list(one.table["replicates"]) == [20, 40] and (one.table["writer_peak_mib"] > 0).all()
+    two = measure_memory((20,), workers=2)
+    assert (two.table["worker_peak_mib"] > 0).all() and "nan" not in str(two).lower()

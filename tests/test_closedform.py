@@ -30,3 +30,14 @@ def test_no_closed_form_where_none_applies():
     assert closed_form(invasion_config(acts_on="adult-survival"), PATH) == ""
     assert closed_form(invasion_config(), "allele.perennial.fecundity") == ""
     assert closed_form(invasion_config(mutant_juvenile_survival=0.4), PATH) == ""
+
+
+def test_no_constant_environment_formula_when_years_vary():
+    # the formulas hold for a constant environment; with year types the threshold is the
+    # stochastic one (5.34 for issue 13's case, not B_i / (1 - P) = 4), so none is printed
+    from sim.config import parse_config
+
+    raw = invasion_config(acts_on="recruitment").model_dump(exclude_none=True)
+    raw["environment"] = {"year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.6},
+                                   {"name": "dry", "probability": 0.5, "juvenile_survival": 0.4}]}
+    assert closed_form(parse_config(raw), PATH) == ""

@@ -113,3 +113,121 @@ def test_scheduler_file_gives_the_address(tmp_path):
     f.write_text("{}")
     with pytest.raises(ClusterError, match="cannot read a scheduler address from"):
         _scheduler_address(str(f))
+
+
+def test_all_workers_gone_is_said_and_the_run_goes_on_when_they_return(tmp_path, monkeypatch, caplog):
+    # Issue 11: with every worker gone the run used to wait without a word. It now says so
+    # after NO_WORKERS_WARNING_AFTER seconds (shortened here), how to stop and resume, and
+    # finishes with the same datasets once a worker joins again.
+    import logging
+    import threading
+
+    import sim.parallel.cluster as cluster_module
+    from sim.store import parts_dir
+
+    monkeypatch.setattr(cluster_module, "NO_WORKERS_WARNING_AFTER", 0.5)
+    monkeypatch.setattr(cluster_module, "NO_WORKERS_CHECK_EVERY", 0.1)
+    config = small_config(replicates=40)
+    reference = tmp_path / "one.h5"
+    run_experiment(config, reference, workers=1, progress=False)
+    out = tmp_path / "dask.h5"
+    caplog.set_level(logging.WARNING, logger="sim.parallel.cluster")
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
+                                  dashboard_address=None) as cluster:
+        done = threading.Event()
+
+        def drop_then_return_the_workers():
+            while not done.is_set() and (not parts_dir(out).exists()
+                                         or len(list(parts_dir(out).glob("p*.h5"))) < 2):
+                done.wait(0.01)
+            cluster.scale(0)
+            while not done.is_set() and "no dask worker" not in caplog.text:
+                done.wait(0.05)
+            cluster.scale(1)
+
+        helper = threading.Thread(target=drop_then_return_the_workers, daemon=True)
+        helper.start()
+        try:
+            run_experiment(config, out, cluster=cluster.scheduler_address, batch_size=2, progress=False)
+        finally:
+            done.set()
+            helper.join(10)
+    text = caplog.text
+    assert f"no dask worker has been connected to {cluster.scheduler_address}" in text
+    assert "--resume" in text and "workers are back" in text
+    assert_same_datasets(reference, out)
+
+
+def test_scheduler_killed_mid_run_ends_in_one_line_and_resumes(tmp_path):
+    # Issue 11: a scheduler killed mid-run printed two of distributed's tracebacks before our
+    # last line. In separate processes (scheduler, one worker, `broodline run`): kill -9 the
+    # scheduler once shards exist; the run ends with exit status 2 and our line only, and
+    # `--resume` on a new scheduler gives the datasets of an uninterrupted run.
+    import signal
+    import subprocess
+    import sys
+
+    from sim.store import parts_dir
+    from tests.runs_support import ROOT, env, wait_for, write_config
+
+    config = write_config(tmp_path, replicates=150)
+    reference = tmp_path / "one.h5"
+    run_experiment(small_config(replicates=150), reference, workers=1, progress=False)
+    out = tmp_path / "dask.h5"
+
+    def start_cluster():
+        port = _free_port()
+        address = f"tcp://127.0.0.1:{port}"
+        scheduler = subprocess.Popen(
+            [sys.executable, "-m", "distributed.cli.dask_scheduler", "--host", "127.0.0.1",
+             "--port", str(port), "--dashboard-address", ":0"], cwd=ROOT, env=env(),
+            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        worker = subprocess.Popen(
+            [sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1",
+             "--nworkers", "1", "--no-nanny", "--dashboard-address", ":0"], cwd=ROOT, env=env(),
+            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        return address, scheduler, worker
+
+    address, scheduler, worker = start_cluster()
+    try:
+        wait_for(lambda: _accepts(address), timeout=60, what="scheduler")
+        run = subprocess.Popen([sys.executable, "-m", "sim", "run", str(config), "-o", str(out),
+                                "--cluster", address, "--batch-size", "2", "--quiet"],
+                               cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                               text=True)
+        wait_for(lambda: parts_dir(out).exists() and len(list(parts_dir(out).glob("p*.h5"))) >= 3
+                 or run.poll() is not None, timeout=120, what="shards")
+        assert run.poll() is None, "the run ended before the scheduler was killed"
+        scheduler.send_signal(signal.SIGKILL)
+        _, err = run.communicate(timeout=120)
+    finally:
+        for proc in (scheduler, worker):
+            proc.kill()
+            proc.wait(timeout=30)
+    assert run.returncode == 2, err
+    assert "Traceback" not in err, err
+    last = err.strip().splitlines()[-1]
+    assert "lost the dask scheduler" in last or "cancelled" in last, err
+    assert "--resume" in err or "resume" in last, err
+
+    address, scheduler, worker = start_cluster()
+    try:
+        wait_for(lambda: _accepts(address), timeout=60, what="new scheduler")
+        again = subprocess.run([sys.executable, "-m", "sim", "run", str(config), "-o", str(out),
+                                "--cluster", address, "--resume", "--quiet"], cwd=ROOT, env=env(),
+                               capture_output=True, text=True, timeout=300)
+    finally:
+        for proc in (scheduler, worker):
+            proc.kill()
+            proc.wait(timeout=30)
+    assert again.returncode == 0, again.stderr
+    assert_same_datasets(reference, out)
+
+
+def _accepts(address: str) -> bool:
+    host, port = address.removeprefix("tcp://").rsplit(":", 1)
+    try:
+        socket.create_connection((host, int(port)), timeout=1).close()
+        return True
+    except OSError:
+        return False

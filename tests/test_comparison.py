@@ -218,3 +218,24 @@ def test_compare_of_a_config_says_so_once(capsys):
     assert main(["compare", "configs/demo.toml"]) == 2
     err = capsys.readouterr().err.strip()
     assert err.count("is not a broodline results file") == 1 and "cannot be read" not in err
+
+
+def test_run_and_status_tables_leave_capped_replicates_out(tmp_path):
+    # The run's summary and `status` used to divide the fixed count by every replicate, so
+    # capped ones read as losses (issue 10). Both now divide by the resolved replicates, as
+    # compare does with the capped ones it cannot class as rising.
+    from sim.status import experiment_status
+    from sim.store import read_replicates
+
+    path = _density_free(tmp_path, 2.5, 60, seed=8)
+    reps = read_replicates(path)
+    resolved = reps["outcome"].isin(["mutant-fixed", "mutant-lost", "extinct"])
+    assert (reps["outcome"] == "capped").sum() > 0
+    expected = (reps["outcome"] == "mutant-fixed").sum() / resolved.sum()
+    status = experiment_status(path)
+    assert status.table["fixed_fraction"].iloc[0] == pytest.approx(expected)
+    from sim.outcomes import summarize
+
+    summary = summarize(reps)
+    assert summary["resolved"].iloc[0] == resolved.sum()
+    assert summary["fixed_fraction"].iloc[0] == pytest.approx(expected)

@@ -20,7 +20,7 @@ from analysis.plots import (
 )
 from sim.config import parse_config
 from sim.runner import run_experiment
-from tests.invasion_configs import invasion_config, write_small_results
+from tests.invasion_configs import invasion_config, wet_and_dry, write_small_results
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # the PNG file signature (PNG specification, sec. 5.2)
 
@@ -155,3 +155,47 @@ def test_plot_and_report_without_invasion(plain, tmp_path):
     }
     assert page.count("data:image/png;base64,") == 2
     assert "one-shot fixed" in page  # the outcome counts, by winner
+
+
+def _year_patches(ax):
+    return [p for p in ax.patches if (p.get_gid() or "").startswith("year:")]
+
+
+@pytest.mark.parametrize("shared", [False, True])
+def test_trajectories_shade_the_bad_years_of_the_shown_replicate(tmp_path, shared):
+    from sim.store import read_years
+
+    path = tmp_path / "years.h5"
+    run_experiment(wet_and_dry(shared=shared, replicates=6, seed=5, capacity=30.0, record_every=1,
+                               sweep={"allele.one-shot.fecundity": [3.0, 6.0]}), path, progress=False)
+    config, table = experiment_config(path), compare(path)
+    years = read_years(path)
+    # one replicate drawn per point: exactly its dry seasons are shaded (panels in point order)
+    fig = trajectory_figure(path, table, config, per_point=1)
+    for point, ax in enumerate(fig.axes[:2]):
+        patches = _year_patches(ax)
+        assert patches and {p.get_gid() for p in patches} == {"year:dry"}  # the wet (best) years stay clear
+        shaded = {int(round(p.get_bbox().x0)) + 1 + k for p in patches for k in range(int(round(p.get_bbox().width)))}
+        last = int(ax.get_lines()[0].get_xdata()[-1])  # the drawn replicate's last season
+        here = years[(years["point"] == point) & (years["step"] <= last)]
+        dry = {r: set(rows.loc[rows["year"] == "dry", "step"]) for r, rows in here.groupby("replicate")
+               if rows["step"].max() == last}
+        assert shaded in dry.values(), (point, sorted(shaded), dry)
+    legend = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert "dry years" in legend and "wet years" not in legend
+    title = fig.legends[0].get_title().get_text()
+    assert ("shared by its replicates" in title) if shared else ("drawn replicate" in title)
+    plt.close(fig)
+    if not shared:  # several replicates with their own years: one is drawn bold, the legend says so
+        fig = trajectory_figure(path, table, config, per_point=4)
+        assert _year_patches(fig.axes[0])
+        assert "bold replicate" in fig.legends[0].get_title().get_text()
+        assert max(line.get_linewidth() for line in fig.axes[0].get_lines()) > 2
+        plt.close(fig)
+
+
+def test_trajectories_without_years_shade_nothing(results):
+    fig = trajectory_figure(results, compare(results), experiment_config(results))
+    assert not any(_year_patches(ax) for ax in fig.axes)
+    assert "shaded" not in fig.legends[0].get_title().get_text()
+    plt.close(fig)

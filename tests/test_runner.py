@@ -124,5 +124,5 @@ def test_summary_counts_fixed_without_invasion(tmp_path):
     summary = run_experiment(parse_config(raw), out, workers=1, progress=False)
     status = experiment_status(out)
     assert summary["fixed"].sum() > 0
-    assert np.allclose(summary["fixed_fraction"], summary["fixed"] / summary["replicates"])
+    assert np.allclose(summary["fixed_fraction"], summary["fixed"] / summary["resolved"])
     assert np.allclose(summary["fixed_fraction"], status.table["fixed_fraction"])

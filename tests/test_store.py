@@ -105,3 +105,27 @@ def test_capped_replicates_stop_and_are_marked(tmp_path):
     # lambda = 1.5 without density dependence: every replicate passes 500 and is capped.
     assert (reps.outcome == "capped").all()
     assert (reps.final_census > 500).all() and (reps.steps < 20).all()
+
+
+def test_outcome_names_of_other_versions_are_read_as_this_versions(config, tmp_path):
+    # One name per idea (issue 10): a file that spells an outcome "mutant_fixed" or
+    # "unresolved" is read with the names the README lists, by every reader.
+    from sim.status import experiment_status
+    from sim.store import count_outcomes, read_outcomes
+
+    path = tmp_path / "old.h5"
+    run_experiment(config, path, progress=False)
+    now = read_replicates(path)["outcome"].to_numpy()
+    old = np.array([{"mutant-fixed": "mutant_fixed", "mutant-lost": "mutant_lost"}.get(o, o) for o in now],
+                   dtype=object)
+    old[0] = "unresolved"
+    with h5py.File(path, "r+") as f:
+        f["replicates/outcome"][...] = old
+    expected = now.copy()
+    expected[0] = "undecided"
+    assert list(read_replicates(path)["outcome"]) == list(expected)
+    assert list(read_outcomes(path)["outcome"]) == list(expected)
+    counted = count_outcomes(path).groupby("outcome")["count"].sum()
+    assert set(counted.index) <= {"mutant-fixed", "mutant-lost", "undecided", "capped", "extinct"}
+    assert counted.sum() == len(now)
+    assert experiment_status(path).fixed == int((expected == "mutant-fixed").sum())

@@ -4,9 +4,10 @@ import numpy as np
 import pytest
 
 from sim.cli import main
+from sim.config import load_config
 from sim.store import read_replicates, read_trajectories
 from sim.trace import trace_replicate
-from tests.invasion_configs import SMALL_SWEEP, invasion_config, write_small_results
+from tests.invasion_configs import SMALL_SWEEP, invasion_config, wet_and_dry, write_small_results
 
 
 def test_trace_reproduces_a_stored_replicate(tmp_path):
@@ -39,7 +40,40 @@ def test_trace_command(tmp_path, capsys):
 
 @pytest.mark.parametrize("point", [-1, 8])
 def test_trace_refuses_a_point_that_is_not_there(point):
-    from sim.config import ConfigError, load_config
+    from sim.config import ConfigError
 
     with pytest.raises(ConfigError, match="point must be in"):
         trace_replicate(load_config("configs/demo.toml"), point=point)
+
+
+@pytest.mark.parametrize("shared", [False, True])
+def test_trace_shows_each_seasons_year_as_stored(tmp_path, shared):
+    # the trace draws its years from the experiment's year stream (the replicate's own, or the
+    # point's shared one), so they are the stored years, season by season
+    from sim.experiment import run_experiment
+    from sim.store import read_years
+
+    config = wet_and_dry(shared=shared, capacity=30.0, replicates=5, seed=8, record_every=4,
+                         sweep={"allele.one-shot.fecundity": [3.0, 6.0]})
+    path = tmp_path / "years.h5"
+    run_experiment(config, path, workers=1, batch_size=2, progress=False)
+    stored = read_years(path)
+    for point, replicate in ((0, 3), (1, 1)):
+        t = trace_replicate(config, point=point, replicate=replicate)
+        mine = stored[(stored["point"] == point) & (stored["replicate"] == replicate)]
+        assert list(t.years) == mine["year"].tolist() and len(t.years) == t.steps
+        by_season = t.census.drop_duplicates("season").set_index("season")["year"]
+        assert by_season.loc[0] == "" and by_season.loc[1:].tolist() == mine["year"].tolist()
+        assert set(t.years) <= {"wet", "dry"}
+
+
+def test_trace_without_environment_has_no_year_column():
+    t = trace_replicate(load_config("configs/demo.toml"), point=0, replicate=0)
+    assert t.years is None and "year" not in t.census.columns
+
+
+def test_trace_command_names_the_year_stream(tmp_path, capsys):
+    assert main(["trace", "configs/fenmarrow-hopper.toml", "--point", "2", "--replicate", "7"]) == 0
+    out = capsys.readouterr().out
+    assert "spawn_key=(2, 7, 1)" in out and " year " in out.splitlines()[2]
+    assert {"wet", "dry"} & set(out.split())

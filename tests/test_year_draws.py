@@ -302,3 +302,31 @@ def test_observed_fixation_crosses_neutral_on_either_side_of_the_stochastic_thre
         low, high = _wilson(fixed, 800)
         neutral = neutral_expectation(config)
         assert (low > neutral) if invades else (high < neutral), (fecundity, fixed, neutral)
+
+
+@pytest.mark.slow
+def test_the_observed_threshold_is_where_the_resident_can_no_longer_return(tmp_path):
+    # Issue 13's end-to-end case at K = 1600 (census ~1300): 2000 replicates at each of 8
+    # values of the semelparous fecundity, counts engine. Theory (analysis.stochastic, the
+    # same years for every trial value): the mutant invades above B_s = 5.34 (its Lyapunov
+    # exponent in the resident's fluctuating path); the iteroparous allele invades a
+    # semelparous resident below B_s = 5.48. Between them each invades the other: a protected
+    # polymorphism (mutual invasibility, Geritz et al. 1998), in which a large population
+    # does not fix the mutant, so observed fixation crosses the neutral expectation at the
+    # replacement threshold 5.48, not at 5.34. Observed: compare_thresholds' 95%
+    # profile-likelihood interval (its width is the sampling error of 2000 replicates per
+    # point). Seen while building it: K = 100, 400, 1600, 6400 gave 5.84 (5.79-5.89),
+    # 5.57 (5.51-5.62), 5.47 (5.41-5.51), 5.44 (5.36-5.49): the finite-N excess shrinks
+    # with N, and the invasion threshold stays outside every interval.
+    from analysis.comparison import compare_thresholds
+    from sim.experiment import run_experiment
+
+    raw = _invasion(5.0, True, capacity=1600, replicates=2000, seed=31).model_dump(mode="json", exclude_none=True)
+    raw["sweep"] = {"allele.se.fecundity": [5.0, 5.25, 5.375, 5.5, 5.625, 5.75, 6.0, 6.5]}
+    config = parse_config(raw)
+    out = tmp_path / "e2e.h5"
+    run_experiment(config, out, workers=1, progress=False)
+    row = compare_thresholds(out).iloc[0]
+    assert row["analytic"] == pytest.approx(5.34, abs=0.01) and row["replacement"] == pytest.approx(5.48, abs=0.01)
+    assert row["replacement_in_interval"] and not row["analytic_in_interval"], row["observed_message"]
+    assert row["observed_low"] > row["analytic"]  # the invasion threshold is not where fixation turns

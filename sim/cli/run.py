@@ -113,6 +113,19 @@ def _stop_on_signals() -> None:
     sys.unraisablehook = quiet_stop
 
 
+def _quiet_distributed() -> None:
+    """Silence dask.distributed's own log lines (tracebacks of a lost scheduler, reconnect
+    attempts): our one last line says what happened. Importing distributed configures its
+    loggers, so it is imported first, then every one of them is set."""
+    try:
+        import distributed  # noqa: F401  (sets its loggers' levels and handlers)
+    except ImportError:
+        return  # the run refuses with the install line
+    names = [n for n in logging.root.manager.loggerDict if n.split(".")[0] == "distributed"]
+    for name in ["distributed", *names]:
+        logging.getLogger(name).setLevel(logging.CRITICAL)
+
+
 def _resume_command(config_path, out) -> str:
     config = shlex.quote(str(config_path)) if config_path else "CONFIG"
     return f"broodline run {config} -o {shlex.quote(str(out))} --resume"
@@ -124,8 +137,7 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
     _log_to_stderr()
     _stop_on_signals()
     if cluster:  # a lost scheduler is said in our last line, not in distributed's tracebacks
-        for name in ("distributed", "distributed.client", "distributed.core", "distributed.comm"):
-            logging.getLogger(name).setLevel(logging.CRITICAL)
+        _quiet_distributed()
     cores = default_workers()
     if not cluster and workers > cores:
         logging.getLogger("sim.experiment").warning(

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from ..config import load_config
+from ..describe import describe_environment
 from ..trace import trace_replicate
 
 __all__ = ["register"]
@@ -14,6 +15,12 @@ def cmd_trace(args) -> int:
     where = ", ".join(f"{k} = {v}" for k, v in t.values.items())
     print(f"point {t.point}{f' ({where})' if where else ''}, replicate {t.replicate}, stream "
           f"SeedSequence({config.experiment.seed}, spawn_key=({t.point}, {t.replicate}))")
+    if t.years is not None:
+        shared = config.environment.shared_years
+        key = f"({t.point}, 0, 2)" if shared else f"({t.point}, {t.replicate}, 1)"
+        print(f"years: {describe_environment(config)}; year stream "
+              f"SeedSequence({config.experiment.seed}, spawn_key={key}); "
+              "'year' is the type of the season that ended in the census")
     print(t.census.to_string(index=False))
     print(f"outcome: {t.outcome} after {t.steps} seasons")
     return 0

@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import json
+import logging
 import socket
+import threading
+import time
 import uuid
 from pathlib import Path
 
@@ -12,6 +15,13 @@ from .work import ClusterError, run_batch
 __all__ = ["DaskPool", "CLUSTER_INSTALL"]
 
 CLUSTER_INSTALL = "pip install 'broodline[cluster]'"
+# Seconds without a single connected worker, while batches wait, before the run says so (and
+# how often that is checked). The scheduler keeps the batches and hands them to workers that
+# join later, so the run waits rather than fails.
+NO_WORKERS_WARNING_AFTER = 60.0
+NO_WORKERS_CHECK_EVERY = 5.0
+
+log = logging.getLogger(__name__)
 
 
 def _scheduler_address(address: str) -> str:
@@ -108,8 +118,6 @@ class DaskPool:
 
     def run(self, tasks):
         from distributed import as_completed
-        from distributed.client import FutureCancelledError
-        from distributed.scheduler import KilledWorker
 
         tasks = iter(tasks)
         queue = as_completed(loop=self.client.loop)
@@ -127,6 +135,16 @@ class DaskPool:
         slots = self.slots
         for _ in range(2 * slots):
             submit_next()
+        watch = _WorkerWatch(self.client, self.address, lambda: bool(futures))
+        try:
+            yield from self._collect(queue, futures, submit_next, slots)
+        finally:
+            watch.stop()
+
+    def _collect(self, queue, futures, submit_next, slots):
+        from distributed.client import FutureCancelledError
+        from distributed.scheduler import KilledWorker
+
         for n, future in enumerate(queue, 1):
             _, batch = futures.pop(future.key)
             where = f"point {batch.point}, replicates {batch.first}-{batch.last}"
@@ -169,3 +187,40 @@ class DaskPool:
         finally:
             self._futures.clear()
             self.client.close()
+
+
+class _WorkerWatch:
+    """A background check that says, once per spell, when no worker has been connected for
+    ``NO_WORKERS_WARNING_AFTER`` seconds while batches wait (and again when workers return)."""
+
+    def __init__(self, client, address: str, waiting):
+        self._client, self._address, self._waiting = client, address, waiting
+        self._stopped = threading.Event()
+        self._thread = threading.Thread(target=self._watch, name="broodline-worker-watch", daemon=True)
+        self._thread.start()
+
+    def _watch(self) -> None:
+        idle_since, warned = None, False
+        while not self._stopped.wait(NO_WORKERS_CHECK_EVERY):
+            try:
+                connected = len(self._client.nthreads())
+            except Exception:  # the scheduler is gone: the main thread reports that
+                return
+            now = time.monotonic()
+            if connected or not self._waiting():
+                if warned and connected:
+                    log.warning("dask workers are back (%d connected): the run goes on", connected)
+                idle_since, warned = None, False
+                continue
+            idle_since = now if idle_since is None else idle_since
+            if not warned and now - idle_since >= NO_WORKERS_WARNING_AFTER:
+                warned = True
+                log.warning(
+                    "warning: no dask worker has been connected to %s for %.0f s; the run waits "
+                    "for workers. Start workers for this scheduler, or stop with Ctrl-C: finished "
+                    "batches are saved and `--resume` finishes the run", self._address,
+                    now - idle_since)
+
+    def stop(self) -> None:
+        self._stopped.set()
+        self._thread.join(timeout=2 * NO_WORKERS_CHECK_EVERY)

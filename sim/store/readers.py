@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from ..config import Config
+from ..vocabulary import outcome_name
 from .layout import _STR, REPLICATE_COLUMNS, YEARS, DamagedResultsError, list_shards, open_results, parts_dir
 
 __all__ = [
@@ -130,12 +131,18 @@ def read_point_configs(path) -> list:
     return [Config.model_validate(json.loads(t)) for t in texts]
 
 
+def _outcome_names(stored: np.ndarray) -> np.ndarray:
+    """Outcomes as this version names them (files from other versions are read alike)."""
+    names, codes = np.unique(stored, return_inverse=True)
+    return np.array([outcome_name(n) for n in names], dtype=object)[codes.reshape(-1)]
+
+
 def _replicate_columns(f, offset, names) -> dict:
     g = f["replicates"]
     out = {}
     for name in names:
         col = g[name]
-        out[name] = col.asstr()[:] if name == "outcome" else col[:]
+        out[name] = _outcome_names(col.asstr()[:]) if name == "outcome" else col[:]
     if "trajectory_start" in out:
         out["trajectory_start"] = out["trajectory_start"] + offset
     return out
@@ -160,7 +167,7 @@ def count_outcomes(path) -> pd.DataFrame:
         g, counts = f["replicates"], {}
         for start in range(0, g["point"].shape[0], _CHUNK_ROWS):
             chunk = pd.DataFrame({"point": g["point"][start:start + _CHUNK_ROWS],
-                                  "outcome": g["outcome"].asstr()[start:start + _CHUNK_ROWS]})
+                                  "outcome": _outcome_names(g["outcome"].asstr()[start:start + _CHUNK_ROWS])})
             for key, n in chunk.value_counts(sort=False).items():
                 counts[key] = counts.get(key, 0) + n
         return counts
