@@ -17,8 +17,8 @@ interval's half-width is at most the target:
   replicates per point (90 in all), once per grid seed. The grid's reading
   of a whole run is checked against ``compare_thresholds`` of its file.
 
-The grid is also read with locate's own curve (``fit_dose_response``, every
-50 replicates per point): that ratio is what the design alone saves, the
+The grid is also read with locate's own curve (``fit_dose_response``, also
+every 10 replicates per point): that ratio is what the design alone saves, the
 rest is what the curve's shape saves.
 """
 
@@ -199,7 +199,7 @@ def locate_benchmark(
 
     Both search the analytic threshold +- ``half_range``. Each grid runs
     ``grid_max_per_point`` replicates per point (default 20000 x half_range)
-    and is read after every 10 of them (every 50 with locate's curve) until
+    and is read after every 10 of them, both ways, until
     its half-width reaches the target.
     """
     from .comparison import compare_thresholds, observed_along
@@ -241,7 +241,7 @@ def locate_benchmark(
             if not np.allclose(mine, whole.to_numpy(float), equal_nan=True):
                 raise RuntimeError(f"locate-bench: the grid read {mine}, compare read {whole.to_dict()}")
             by_compare.append(grid_first_passage(values, fixed, read_compare, tolerance=tolerance, step=10))
-            by_curve.append(grid_first_passage(values, fixed, read_curve, tolerance=tolerance, step=50))
+            by_curve.append(grid_first_passage(values, fixed, read_curve, tolerance=tolerance, step=10))
             if progress:
                 progress(f"grid seed {seed}: {by_compare[-1].replicates:g} replicates read as compare reads "
                          f"a sweep, {by_curve[-1].replicates:g} with locate's curve")

@@ -129,3 +129,21 @@ def test_locate_refuses_bad_requests(tmp_path):
         locate(config, "allele.nobody.fecundity", tmp_path / "x.h5")
     with pytest.raises(ResultsError, match="nothing to resume"):
         locate(config, PARAMETER, tmp_path / "missing.h5", resume=True)
+
+
+def test_grid_first_passage_stops_at_the_first_look_within_the_tolerance():
+    from analysis.locate_bench import grid_first_passage
+
+    fixed = np.zeros((9, 100), bool)
+    fixed[:, ::4] = True  # every 4th replicate fixed
+    looks = []
+
+    def read(values, counted_fixed, counted):
+        looks.append(int(counted[0]))
+        assert np.all(counted_fixed == -(-counted // 4))  # cumulative counts, in replicate order
+        half = 1.0 / math.sqrt(counted[0])  # a half-width narrowing as 1 / sqrt(n)
+        return 3.0, 3.0 - half, 3.0 + half
+
+    got = grid_first_passage(np.linspace(2.7, 3.3, 9), fixed, read, tolerance=0.2, step=10)
+    assert got.replicates == 9 * 30 and looks == [10, 20, 30]  # 1/sqrt(30) = 0.18 <= 0.2 < 1/sqrt(20)
+    assert math.isinf(grid_first_passage(np.linspace(2.7, 3.3, 9), fixed, read, tolerance=0.01, step=10).replicates)
