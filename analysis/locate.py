@@ -35,10 +35,11 @@ theta0 - 1.5 / beta0 (theta0, beta0 the diffusion's threshold and slope;
 the analytic threshold if the diffusion has none), then theta + 3 / beta
 and theta - 1.5 / beta in turn, theta and beta the current fit. Simulated
 with the diffusion's curve (semelparous against iteroparous, K = 200, one
-mutant, half-width 1% of the threshold = 4 units of S), pairs from
-(-1.5, 3) to (-2, 4) need about half the replicates of the earlier cycle
-(S = 1.5, -0.5, 0.5, 2.5, three of four points above the crossing); see
-``broodline locate-bench`` and the README for the measured ratios.
+mutant, half-width 1% of the threshold = 4 units of S, stages of 50), this
+design used a mean of 650 replicates, the earlier cycle (S = 1.5, -0.5,
+0.5, 2.5, three of four points above the crossing) 800, and pairs from
+(-1.5, 3) to (-2, 4) about equally few (docs/finite-population.md,
+section 6); ``broodline locate-bench`` measures it with the engines.
 
 The results file is an ordinary experiment file. Its config is the base
 config with ``[sweep] PARAMETER = [x1, x2, ...]`` (the stages' values, in
@@ -564,6 +565,8 @@ def register(sub) -> None:
     p = sub.add_parser(
         "locate",
         help="find by simulation the parameter value where fixation equals the neutral expectation",
+        description="Each stage runs the config's experiment.replicates replicates at one value; the stop "
+        "rule is checked after every stage, so smaller stages (e.g. 50) stop nearer the tolerance.",
     )
     p.add_argument("config", help="experiment config (TOML) with an [invasion] table")
     p.add_argument("--parameter", required=True, metavar="PATH", help="sweep path of the parameter")
