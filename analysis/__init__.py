@@ -11,17 +11,52 @@ Theory (pure functions of sim's schedules, density objects and configs):
 package stays light.
 """
 
-from .branching import Extinction, establishment_probability, extinction_probabilities
-from .comparison import PredictedFixation, SideOfNeutral, agreement, compare, compare_thresholds, judge
-from .demography import Demography, dominant_eigen, schedule_demography
-from .environment import ResidentEnvironment, resident_environment
-from .estimates import FixationEstimate, ObservedThreshold, observed_threshold, wilson_interval
-from .invasion import Prediction, invasion_fitness, neutral_expectation, predict
-from .sweep import predict_sweep, sweep_thresholds
-from .adaptive import AdaptiveAnalysis, EffortModel, SingularStrategy, analyse_effort, pairwise_invasibility
-from .adaptive import selection_gradient, singular_strategies
-from .trait import compare_trait, effort_model, trait_analysis
-from .thresholds import ThresholdResult, threshold, with_values
+from importlib import import_module
+
+# Each name is imported from its module when first used (PEP 562), so that importing the
+# package (e.g. for its command line's parser) does not load scipy.stats and the rest.
+_WHERE = {
+    "Extinction": "branching",
+    "establishment_probability": "branching",
+    "extinction_probabilities": "branching",
+    "PredictedFixation": "comparison",
+    "SideOfNeutral": "comparison",
+    "agreement": "comparison",
+    "compare": "comparison",
+    "compare_thresholds": "comparison",
+    "judge": "comparison",
+    "Demography": "demography",
+    "dominant_eigen": "demography",
+    "schedule_demography": "demography",
+    "ResidentEnvironment": "environment",
+    "resident_environment": "environment",
+    "FixationEstimate": "estimates",
+    "ObservedThreshold": "estimates",
+    "observed_threshold": "estimates",
+    "wilson_interval": "estimates",
+    "Prediction": "invasion",
+    "invasion_fitness": "invasion",
+    "neutral_expectation": "invasion",
+    "predict": "invasion",
+    "predict_sweep": "sweep",
+    "sweep_thresholds": "sweep",
+    "AdaptiveAnalysis": "adaptive",
+    "EffortModel": "adaptive",
+    "SingularStrategy": "adaptive",
+    "analyse_effort": "adaptive",
+    "pairwise_invasibility": "adaptive",
+    "selection_gradient": "adaptive",
+    "singular_strategies": "adaptive",
+    "compare_trait": "trait",
+    "effort_model": "trait",
+    "trait_analysis": "trait",
+    "ThresholdResult": "thresholds",
+    "threshold": "thresholds",
+    "with_values": "thresholds",
+    "plot": "plots",
+    "invasibility": "invasibility",
+    "report": "reporting",
+}
 
 __all__ = [
     "AdaptiveAnalysis",
@@ -67,17 +102,13 @@ __all__ = [
 ]
 
 
-def __getattr__(name):
-    if name == "plot":
-        from .plots import plot
+def __getattr__(name: str):
+    if name not in _WHERE:
+        raise AttributeError(f"module 'analysis' has no attribute {name!r}")
+    value = getattr(import_module(f".{_WHERE[name]}", __name__), name)
+    globals()[name] = value
+    return value
 
-        return plot
-    if name == "invasibility":
-        from .invasibility import invasibility
 
-        return invasibility
-    if name == "report":
-        from .reporting import report
-
-        return report
-    raise AttributeError(f"module 'analysis' has no attribute {name!r}")
+def __dir__():
+    return sorted(set(globals()) | set(_WHERE))

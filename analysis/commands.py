@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+from sim.bench_scaling import SCALING_KEYS
 from sim.errors import UserError
 
 from .jsonable import jsonable
@@ -167,6 +168,8 @@ JSON_KEYS = {
         },
     },
 }
+# `broodline bench --scaling --json` prints a list of these objects (sim.bench_scaling states them)
+JSON_KEYS["bench-scaling"] = {"[]": SCALING_KEYS}
 
 
 def _show_table(table) -> None:

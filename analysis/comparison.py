@@ -279,6 +279,9 @@ def _default_prediction(row: dict):
     if bool(row.get("fixation_probability_valid", False)) and np.isfinite(u):
         return PredictedFixation(float(u), name=FINITE_PREDICTION)
     if row.get("prediction") == "stochastic":  # year types: the verdict of the stochastic theory
+        if bool(row.get("resident_invades_back", False)):  # each invades the other: no fixation side
+            return SideOfNeutral("each invades the other", row["neutral_expectation"],
+                                 name="side of the neutral expectation (stochastic invasion fitness)")
         return SideOfNeutral(row["verdict"], row["neutral_expectation"],
                              name="side of the neutral expectation (stochastic invasion fitness)")
     if np.isfinite(u):  # computed but not valid here (e.g. Beverton-Holt on recruitment): say so

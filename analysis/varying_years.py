@@ -47,7 +47,8 @@ STOCHASTIC_COLUMNS = (
     "invasion_fitness_se", "log_invasion_fitness_se", "stochastic_growth_rate",
     "stochastic_growth_rate_se", "small_noise_approximation", "resident_stochastic_growth_rate",
     "resident_stochastic_growth_rate_se", "resident_small_noise_approximation",
-    "establishment_probability_se", "neutral_expectation_se", "prediction", "environment",
+    "establishment_probability_se", "neutral_expectation_se", "resident_invades_back", "prediction",
+    "environment",
 )
 YEAR_DRAWS = {"n_batches": 20, "batch_length": 1000, "burn_in": 200}
 THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apart from any run's
@@ -120,7 +121,10 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
         resident's), ``establishment_probability_se``, ``prediction``
         ("stochastic") and ``environment`` (in words); ``neutral_expectation``
         is a neutral mutant's fixation probability in random years
-        (``neutral_in_years``), with ``neutral_expectation_se``.
+        (``neutral_in_years``), with ``neutral_expectation_se``;
+        ``resident_invades_back`` is true where the mutant invades and the
+        resident, rare, would invade the mutant back (each invades the other:
+        between the invasion and the replacement thresholds).
     """
     s = _setting_of(config)
     draws = year_draws(config)
@@ -135,6 +139,7 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
         neutral = neutral_se = float("nan")
     growth = inv.as_dict()
     fitness = inv.invasion_fitness
+    back = _invades_back(s, draws) if fitness > 1 else False
     return {
         "density_index": float("nan"),
         "census_size": inv.mean_census_size,
@@ -150,9 +155,22 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
                                                         "invasion_fitness", "mean_census_size")},
         "establishment_probability_se": est.standard_error,
         "neutral_expectation_se": neutral_se,
+        "resident_invades_back": back,
         "prediction": "stochastic",
         "environment": describe_environment(config),
     }
+
+
+def _invades_back(s: InvasionSetting, draws: YearSequences) -> bool:
+    """True when the resident, rare, invades the mutant as resident (the same years): then each
+    invades the other and fixation of the mutant is not what the invasion fitness predicts."""
+    if s.density is None:  # density-free: the reverse fitness is the inverse
+        return False
+    try:
+        back = stochastic_invasion(s.mutant, s.resident, s.years, s.density, draws)
+    except (NoEquilibriumError, ValueError, ArithmeticError):
+        return False
+    return bool(back.invasion_fitness > 1)
 
 
 def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,

@@ -1,21 +1,40 @@
-"""broodline's simulator: configs, schedules, density dependence, engines, runs and results."""
+"""broodline's simulator: configs, schedules, density dependence, engines, runs and results.
 
-from .config import Config, ConfigError, load_config, parse_config, sweep_points
-from .density import DensityDependence, Factors
-from .experiment import run_experiment
-from .lifecycle import LifeCycle, initial_census
-from .meanfield import (
-    Equilibrium,
-    NoEquilibriumError,
-    growth_rate,
-    projection_matrix,
-    solve_equilibrium,
-    stable_age_distribution,
-)
-from .model import BroodModel
-from .replicates import ReplicateResult, replicate_rng, run_replicate, run_replicates
-from .schedules import Schedule, iteroparous, semelparous, table
-from .store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
+The names below are imported when first used (PEP 562), so that a worker
+process, which imports ``sim.parallel.work`` and hence this package, pays
+only for the modules a batch needs (not pandas, h5py readers, tqdm or mesa).
+"""
+
+from importlib import import_module
+
+_WHERE = {
+    "Config": "config", "ConfigError": "config", "load_config": "config", "parse_config": "config",
+    "sweep_points": "config",
+    "DensityDependence": "density", "Factors": "density",
+    "run_experiment": "experiment",
+    "LifeCycle": "lifecycle", "initial_census": "lifecycle",
+    "Equilibrium": "meanfield", "NoEquilibriumError": "meanfield", "growth_rate": "meanfield",
+    "projection_matrix": "meanfield", "solve_equilibrium": "meanfield",
+    "stable_age_distribution": "meanfield",
+    "BroodModel": "model",
+    "ReplicateResult": "replicates", "replicate_rng": "replicates", "run_replicate": "replicates",
+    "run_replicates": "replicates",
+    "Schedule": "schedules", "iteroparous": "schedules", "semelparous": "schedules", "table": "schedules",
+    "read_attrs": "store", "read_point_configs": "store", "read_points": "store",
+    "read_replicates": "store", "read_trajectories": "store",
+}
+
+
+def __getattr__(name: str):
+    if name not in _WHERE:
+        raise AttributeError(f"module 'sim' has no attribute {name!r}")
+    value = getattr(import_module(f".{_WHERE[name]}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_WHERE))
 
 __all__ = [
     "Config", "ConfigError", "load_config", "parse_config", "sweep_points",

@@ -28,6 +28,12 @@ the largest N run) with two equally likely year types (juvenile survival x1.2
 and x0.8, drawn independently each season), against the floor and against
 the constant environment measured at the same N in the same run.
 
+The single runs time one replicate of a small population (K = 100 and
+K = 1000) for many seasons (``stop = "max-steps"``, every season recorded)
+through ``replicates.run_replicate``, as ``broodline trace`` and the lab page
+run one, against the floor for the censuses and recruits it met: what a long
+run of one small population costs beyond its random numbers.
+
 The small-population experiment times a whole invasion experiment at K = 200
 (one mutant, to fixation, every season recorded) through
 ``replicates.run_replicates`` on one worker, batched, against the rate of the
@@ -45,7 +51,6 @@ import numpy as np
 
 from .config import Config, parse_config, sweep_points
 from .meanfield import solve_equilibrium
-from .model import BroodModel
 from .replicates import replicate_rng, run_replicate, run_replicates
 
 __all__ = [
@@ -55,6 +60,8 @@ __all__ = [
     "BenchReport",
     "ExperimentRecord",
     "EnvironmentRecord",
+    "SingleRunRecord",
+    "SINGLE_RUN_CAPACITIES",
     "BENCH_YEARS",
     "bench_config",
     "format_report",
@@ -66,6 +73,7 @@ DEFAULT_SIZES = (1_000, 10_000, 100_000, 1_000_000)
 LARGE_SIZE = 10_000_000
 _FLOOR_CHUNK = 1 << 16
 REFERENCE_SIZE = 1_000_000  # the small-population experiment is set against this N
+SINGLE_RUN_CAPACITIES = (100, 1_000)  # K of the single long runs
 MEMORY_METHOD = ("state B/ind: engine arrays held between seasons (nbytes; Mesa: tracemalloc "
                  "of the built model) per census individual; peak B/ind: that state plus the "
                  "tracemalloc peak of one more season")
@@ -112,6 +120,18 @@ class EnvironmentRecord:
 
 
 @dataclass
+class SingleRunRecord:
+    """One replicate of a small population run for many seasons by the individual engine."""
+
+    capacity: int
+    seasons: int
+    mean_census: float
+    individual_steps_per_s: float
+    ratio_to_floor: float
+    wall_s: float
+
+
+@dataclass
 class BenchReport:
     """Everything one ``run_bench`` measured."""
 
@@ -121,6 +141,7 @@ class BenchReport:
     min_time: float = 0.0
     reference_size: int | None = None  # N of the individual rate the experiment is set against
     environment: EnvironmentRecord | None = None
+    single: list[SingleRunRecord] = field(default_factory=list)
     memory_method: str = MEMORY_METHOD
 
     def to_records(self) -> list[dict]:
@@ -140,6 +161,11 @@ class BenchReport:
             out.append({"engine": "individual, iid years", "kind": "environment",
                         "ratio_to_agents": None, "bytes_per_individual": None,
                         "peak_bytes_per_individual": None, **asdict(e)})
+        for e in self.single:
+            out.append({"engine": "individual, one replicate", "kind": "single",
+                        "census_size": e.capacity, "ratio_to_agents": None,
+                        "bytes_per_individual": None, "peak_bytes_per_individual": None,
+                        **asdict(e)})
         return out
 
 
@@ -220,6 +246,7 @@ def _time_engine(config: Config, seasons: int, seed: int, min_time: float = 0.0)
     Returns wall seconds of the steps, census sizes and recruits season by
     season, and (state, peak) bytes per individual.
     """
+    from .model import BroodModel  # (mesa: loaded when an engine is timed, not by the command line)
 
     sizes, recruits, wall = [], [], 0.0
     block = 0
@@ -284,6 +311,28 @@ def _record(engine, n, sizes, wall, memory):
                        peak_bytes_per_individual=memory[1], seasons=len(sizes), wall_s=wall)
 
 
+# -- one replicate of a small population, many seasons -----------------------------------
+def _time_single_run(capacity: int, seasons: int, seed: int) -> SingleRunRecord:
+    """One replicate at K = ``capacity`` for ``seasons`` seasons through ``run_replicate`` (the
+    stop rule, outcomes and records included), against the floor for its censuses and recruits."""
+    config = bench_config(capacity, seed=seed)
+    config = config.model_copy(update={"experiment": config.experiment.model_copy(
+        update={"stop": "max-steps", "max_steps": seasons})})
+    point = sweep_points(config)[0]
+    run_replicate(point, 0, seed + 1)  # untimed: first calls pay one-off costs
+    start = time.perf_counter()
+    result = run_replicate(point, 0, seed)
+    wall = time.perf_counter() - start
+    census = result.trajectory.astype(np.int64)
+    sizes = census[:-1].sum(axis=(1, 2)).tolist()  # the census stepped in each season
+    recruits = census[1:, :, 0].sum(axis=1).tolist()  # who entered at age 1 (no ceiling here)
+    floor_wall, _, _ = _time_floor(sizes, recruits, seed)
+    return SingleRunRecord(capacity=capacity, seasons=result.steps,
+                           mean_census=float(np.mean(sizes)),
+                           individual_steps_per_s=sum(sizes) / wall,
+                           ratio_to_floor=floor_wall / wall, wall_s=wall)
+
+
 # -- the small-population experiment -------------------------------------------------------
 def _time_experiment(engine: str, replicates: int, capacity: int, seed: int, *,
                      one_at_a_time: bool = False) -> ExperimentRecord:
@@ -308,8 +357,10 @@ def _time_experiment(engine: str, replicates: int, capacity: int, seed: int, *,
 
 def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, min_time: float = 1.0,
               agents_max: int = 10_000, replicates: int = 10_000, capacity: int = 200,
-              sequential: int | None = 1_000, seed: int = 20261202, progress=None) -> BenchReport:
-    """Time every engine at every census size, the floor, and the small-population experiment.
+              sequential: int | None = 1_000, single_seasons: int = 20_000,
+              seed: int = 20261202, progress=None) -> BenchReport:
+    """Time every engine at every census size, the floor, single long runs of small
+    populations, and the small-population experiment.
 
     Parameters
     ----------
@@ -327,6 +378,9 @@ def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, min_time: float = 1.0,
         K of the small-population experiment.
     sequential : int or None
         Replicates also run one at a time, to show what batching buys (None skips).
+    single_seasons : int
+        Seasons of each single run of one replicate at K = 100 and 1000
+        (``SINGLE_RUN_CAPACITIES``; 0 skips them).
     progress : callable, optional
         Called with a short message before each measurement.
 
@@ -362,6 +416,10 @@ def run_bench(sizes=DEFAULT_SIZES, *, seasons: int = 20, min_time: float = 1.0,
     report = BenchReport(records=records, seasons=seasons, min_time=min_time)
     if records:
         report.environment = _time_environment(records, seasons, seed, min_time, say)
+    if single_seasons > 0:
+        for k in SINGLE_RUN_CAPACITIES:
+            say(f"individual, one replicate of {single_seasons} seasons at K = {k}")
+            report.single.append(_time_single_run(k, single_seasons, seed))
     if replicates > 0:
         for engine in ("individual", "counts"):
             say(f"{engine}, {replicates} replicates at K = {capacity}, batched")
@@ -438,6 +496,13 @@ def format_report(report: BenchReport) -> str:
                          f"{e.individual_steps_per_s:>14.3g}{_num(e.ratio_to_individual, '.3g'):>14}")
         if report.reference_size:
             lines.append(f"x individual: against the individual engine at N = {report.reference_size:,}.")
+    if report.single:
+        lines += ["", ("One replicate of a small population, many seasons (stop rule and a record "
+                       "every season included), individual engine:"),
+                  f"{'K':>8}{'seasons':>10}{'mean N':>10}{'ind-steps/s':>14}{'x floor':>10}"]
+        for e in report.single:
+            lines.append(f"{e.capacity:>8,}{e.seasons:>10,}{e.mean_census:>10.0f}"
+                         f"{e.individual_steps_per_s:>14.3g}{e.ratio_to_floor:>10.3g}")
     if report.environment is not None:
         e = report.environment
         lines += ["", (f"Variable environment (two year types, juvenile survival x1.2 or x0.8, iid), "

@@ -89,6 +89,10 @@ class Ceiling:
 
 FORMS = {"none": NoDensity, "beverton-holt": BevertonHolt, "ricker": Ricker, "ceiling": Ceiling}
 
+# which of (f_fec, f_adult, f_rec) each placement's factor multiplies (the table above)
+_PLACED = {"recruitment": (False, False, True), "fecundity": (True, False, False),
+           "adult-survival": (False, True, False), "all-survival": (False, True, True)}
+
 
 @dataclass(frozen=True)
 class DensityDependence:
@@ -142,12 +146,8 @@ class DensityDependence:
 
     def placed(self, f: float) -> Factors:
         """Place a factor f on the vital rates this density dependence acts on."""
-        return {
-            "recruitment": Factors(1.0, 1.0, f),
-            "fecundity": Factors(f, 1.0, 1.0),
-            "adult-survival": Factors(1.0, f, 1.0),
-            "all-survival": Factors(1.0, f, f),
-        }[self.acts_on]
+        fecundity, adult, recruitment = _PLACED[self.acts_on]
+        return Factors(f if fecundity else 1.0, f if adult else 1.0, f if recruitment else 1.0)
 
     def factors(self, d) -> Factors:
         """The season's factors at density index ``d``, a number or an array (all 1 for a ceiling).

@@ -2,7 +2,9 @@
 
 ``run_experiment`` is one loop in one process, the only writer: it asks the
 ``ResultsWriter`` which replicates are missing, cuts them into batches, hands
-them to a pool (``sim.parallel``) and writes each batch as it comes back
+them to a pool (``sim.parallel``) and records each batch as it comes back:
+local workers save their batch as a durable shard themselves and the writer
+only indexes it; a dask worker's results are saved by the writer
 (DEVELOPERS.md, "Long runs: batches, workers, the results file").
 """
 
@@ -10,22 +12,23 @@ from __future__ import annotations
 
 import logging
 import threading
+import time
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 from tqdm import tqdm
 
 from .config import Config
 from .describe import preflight
 from .lifecycle import initial_census
 from .outcomes import fixed_outcome, summarize
-from .parallel import default_batch_size, iter_batches, make_pool
+from .parallel import BatchClock, Job, default_batch_size, iter_batches, make_pool
 from .store import ResultsWriter, count_outcomes, read_points, software_version
 
 log = logging.getLogger(__name__)
 
-__all__ = ["ExperimentInterrupted", "request_stop", "run_experiment"]
+__all__ = ["ExperimentInterrupted", "RunTimings", "request_stop", "run_experiment"]
 
 
 _STOP = threading.Event()
@@ -67,11 +70,11 @@ class _Progress:
                         unit="rep", desc=writer.config.experiment.name, dynamic_ncols=True)
         self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
 
-    def update(self, batch, results) -> None:
+    def update(self, batch, outcomes) -> None:
         p = batch.point
-        self.done[p] += len(results)
-        self.fixed[p] += sum(r.outcome == self.fixed_name for r in results)
-        self.bar.update(len(results))
+        self.done[p] += len(batch)
+        self.fixed[p] += outcomes.get(self.fixed_name, 0)
+        self.bar.update(len(batch))
         self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
         if self.done[p] == self.n_reps:
             values = self.points[p].values
@@ -83,9 +86,53 @@ class _Progress:
         self.bar.close()
 
 
+def _saving_errors(writer: ResultsWriter, outputs):
+    """The pool's outputs; an OSError from a worker saving its shard (a full disk) is raised
+    as the writer's ``ResultsError``, which says what is saved and how to go on."""
+    try:
+        yield from outputs
+    except OSError as err:
+        raise writer.save_error(err) from None
+
+
+@dataclass
+class RunTimings:
+    """Where the time of one ``run_experiment`` went, for ``broodline bench --scaling``.
+
+    Moments are ``time.perf_counter()`` readings in the writing process (the same
+    clock as the workers' ``BatchClock``): ``started`` (the call), ``pool_started``,
+    ``checked`` (config and sweep checked), ``file_ready`` (header written, lock
+    held), ``finished_batches`` (the last batch recorded), ``finished`` (merged,
+    returned). ``replicates`` were run now, in batches of ``batch_size``;
+    ``writer_s`` / ``writer_cpu_s`` are the wall and CPU seconds this process spent
+    recording batches (saving them, where the workers do not); ``merge_run_s`` /
+    ``merge_run_cpu_s`` merging shards while waiting for workers during the run;
+    ``merge_s`` / ``merge_cpu_s`` the final merge's. ``batches`` holds every batch's
+    ``BatchClock``; ``workers`` each started worker's (pid, ready at, start-up CPU).
+    """
+
+    started: float = 0.0
+    pool_started: float = 0.0
+    checked: float = 0.0
+    file_ready: float = 0.0
+    finished_batches: float = 0.0
+    finished: float = 0.0
+    writer_s: float = 0.0
+    writer_cpu_s: float = 0.0
+    merge_s: float = 0.0
+    merge_cpu_s: float = 0.0
+    merge_run_s: float = 0.0
+    merge_run_cpu_s: float = 0.0
+    replicates: int = 0
+    batch_size: int = 0
+    batches: list[BatchClock] = field(default_factory=list)
+    workers: list[tuple[int, float, float]] = field(default_factory=list)
+
+
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
                    workers: int = 1, cluster: str | None = None, progress: bool = True,
-                   batch_size: int | None = None, budget: bool = True) -> pd.DataFrame:
+                   batch_size: int | None = None, budget: bool = True,
+                   timings: RunTimings | None = None):
     """Run every replicate of every sweep point, streaming results to an HDF5 file.
 
     Batches of replicates run in this process (``workers=1``), in local
@@ -115,10 +162,12 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     budget : bool
         Refuse an experiment past ``sim.describe.BUDGET`` individual-seasons
         (``False`` lifts it).
+    timings : RunTimings, optional
+        Filled with where the time went (``broodline bench --scaling``).
 
     Returns
     -------
-    DataFrame
+    pandas.DataFrame
         The per-point summary (see ``summarize``).
 
     Raises
@@ -126,15 +175,22 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     ExperimentInterrupted
         On Ctrl-C: finished batches are saved; resume to finish.
     """
-    points = preflight(config, budget=budget)
-    seed = config.experiment.seed
+    clock = timings if timings is not None else RunTimings()
+    clock.started = time.perf_counter()
     _STOP.clear()
-    pool = make_pool(workers=workers, cluster=cluster)  # a bad cluster address fails before any file
+    # first, so that worker processes start (and import) while the config is checked and the
+    # header written; a bad cluster address still fails before any file
+    pool = make_pool(workers=workers, cluster=cluster)
+    clock.pool_started = time.perf_counter()
     try:
+        points = preflight(config, budget=budget)
+        clock.checked = time.perf_counter()
         writer = ResultsWriter(out, config, points, overwrite=overwrite, resume=resume)
+        clock.file_ready = time.perf_counter()
     except BaseException:
         pool.shutdown(cancel=True)
         raise
+    seed = config.experiment.seed
     tracker = None
     try:
         # said once the file is accepted (after any refusal), not before
@@ -154,15 +210,42 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
                             "is split)", out, writer.resumed_from_version, software_version(),
                             writer.resumed_from_version)
         tracker = _Progress(writer, points, show=progress)
-        census = max(int(initial_census(p.config).sum()) for p in points)
+        starts = {p.index: initial_census(p.config) for p in points}  # workers solve no equilibrium
+        census = max(int(start.sum()) for start in starts.values())
         size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
-        tasks = ((batch, points[batch.point], seed) for batch in iter_batches(writer.missing(), size))
-        for batch, results in pool.run(tasks):
-            writer.write(results)
-            tracker.update(batch, results)
+        clock.batch_size = size
+        shards = pool.shares_disk  # the workers save their own shards; the writer indexes them
+        jobs = (Job(batch, points[batch.point], seed, starts[batch.point],
+                    writer.shard_target(batch.point) if shards else None)
+                for batch in iter_batches(writer.missing(), size))
+        def merge_one() -> bool:  # while the writer waits for workers: merge a shard, if one is next
+            wall, cpu = time.perf_counter(), time.process_time()
+            merged = writer.merge_ready(limit=1)
+            clock.merge_run_s += time.perf_counter() - wall
+            clock.merge_run_cpu_s += time.process_time() - cpu
+            return merged
+
+        for batch, output in _saving_errors(writer, pool.run_jobs(jobs, idle=merge_one)):
+            wall, cpu = time.perf_counter(), time.process_time()
+            if output.shard is not None:
+                writer.add_shard(output.shard)
+            else:
+                writer.write(output.results)
+            tracker.update(batch, output.outcomes)
+            clock.writer_s += time.perf_counter() - wall
+            clock.writer_cpu_s += time.process_time() - cpu
+            clock.replicates += len(batch)
+            if timings is not None:
+                clock.batches.append(output.clock)
             if _STOP.is_set():
                 raise KeyboardInterrupt
+        clock.finished_batches = wall = time.perf_counter()
+        if timings is not None and hasattr(pool, "workers_ready"):
+            timings.workers = pool.workers_ready()
+        pool.shutdown(wait=False)  # idle workers exit while the last shards are merged
+        cpu = time.process_time()
         writer.finalize()
+        clock.merge_s, clock.merge_cpu_s = time.perf_counter() - wall, time.process_time() - cpu
     except BaseException as err:
         try:
             pool.shutdown(cancel=True)
@@ -176,4 +259,6 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if tracker is not None:
             tracker.close()
     pool.shutdown()
-    return summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))
+    summary = summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))
+    clock.finished = time.perf_counter()
+    return summary

@@ -122,6 +122,14 @@ class SeasonKernel:
         # per-class loops)
         self.breeders = [(int(c), int(self.allele_of[c]), float(self.fecundity[c]),
                           float(self.juvenile[c])) for c in np.flatnonzero(self.fecundity > 0)]
+        # the same as arrays, for the season's hot path (``expected_recruits``)
+        breeding = np.flatnonzero(self.fecundity > 0)
+        self._breeding, self._breeding_allele = breeding, self.allele_of[breeding]
+        self._breeding_m, self._breeding_c = self.fecundity[breeding], self.juvenile[breeding]
+        self._one_breeding_class = len(set(self._breeding_allele.tolist())) == breeding.size
+        self._all_breed = breeding.size == self.n_classes
+        self._terms_are_means = self._breeding_allele.tolist() == list(range(n_alleles))
+        self._ones = np.ones(0)  # factors that do not act, one per replicate (``factors``)
         self.care = care
         self.parental = care is not None
         self.orphan = self.juvenile if care is None else np.repeat(care.orphan, n_ages)
@@ -150,12 +158,29 @@ class SeasonKernel:
 
     def factors(self, d) -> Factors:
         """Density factors at index ``d``: a number, or one per replicate (contiguous arrays)."""
-        if np.ndim(d) == 0:
+        if type(d) is not np.ndarray:
+            if np.ndim(d) == 0:
+                return self.density.factors(d)
+            d = np.asarray(d, dtype=float)
+        if d.ndim == 0:
             return self.density.factors(d)
-        n = np.shape(d)[0]
-        # contiguous float arrays: what the compiled passes take
-        return Factors(*(np.ascontiguousarray(np.broadcast_to(np.asarray(x, dtype=float), (n,)))
-                         for x in self.density.factors(d)))
+        n = d.shape[0]
+        fecundity, adult, recruitment = self.density.factors(d)
+        return Factors(self._per_replicate(fecundity, n), self._per_replicate(adult, n),
+                       self._per_replicate(recruitment, n))
+
+    def _per_replicate(self, x, n: int) -> np.ndarray:
+        """``x`` (a number, or one value per replicate) as a contiguous float array of ``n``
+        values: what the compiled passes take. A factor that does not act (1) is one read-only
+        array of ones, kept while the batch has ``n`` replicates."""
+        if type(x) is np.ndarray and x.dtype == np.float64 and x.shape == (n,) and x.flags.c_contiguous:
+            return x
+        if type(x) is float and x == 1.0:
+            if self._ones.size != n:
+                self._ones = np.ones(n)
+                self._ones.flags.writeable = False
+            return self._ones
+        return np.ascontiguousarray(np.broadcast_to(np.asarray(x, dtype=float), (n,)))
 
     def census_factors(self, census, n: int | None = None) -> Factors:
         """The factors known at the census: from D where D counts the census, else all 1.
@@ -198,9 +223,11 @@ class SeasonKernel:
         year = np.asarray(year, dtype=float)
         if year.ndim == 1:
             return Factors(*(float(f) * float(y) for f, y in zip(factors, year)))
-        # contiguous float arrays: what the compiled passes take
-        return Factors(*(np.ascontiguousarray(np.asarray(f, dtype=float) * year[:, k])
-                         for k, f in enumerate(factors)))
+        # contiguous float arrays (fresh products): what the compiled passes take
+        fecundity, adult, recruitment = factors
+        return Factors(np.asarray(fecundity, dtype=float) * year[:, 0],
+                       np.asarray(adult, dtype=float) * year[:, 1],
+                       np.asarray(recruitment, dtype=float) * year[:, 2])
 
     def recruitment(self, factors: Factors, *, parent_survived=None, brood=None):
         """Probability that each offspring of each class recruits at age 1.
@@ -253,15 +280,39 @@ class SeasonKernel:
         class by class (elementwise, so a replicate's value is the same in any
         batch); under Poisson offspring the recruits are Poisson with this mean.
         """
-        mean = np.zeros((counts.shape[0], self.n_alleles))
         if self.parental:
+            mean = np.zeros((counts.shape[0], self.n_alleles))
             per_parent = np.broadcast_to(self.recruits_per_parent(factors), counts.shape)
             for c, allele, _, _ in self.breeders:
                 mean[:, allele] += counts[:, c] * per_parent[:, c]
             return mean
-        for c, allele, fecundity, juvenile in self.breeders:
-            mean[:, allele] += counts[:, c] * (fecundity * factors.fecundity) * (juvenile * factors.recruitment)
+        # n m f_fec c f_rec of every breeding class at once, (replicate, breeding class); each
+        # entry is the product ((n (m f_fec)) (c f_rec)), the rounding of every version since 0.1
+        breeders = counts if self._all_breed else counts[:, self._breeding]
+        terms = (breeders * self._times(self._breeding_m, factors.fecundity)
+                 * self._times(self._breeding_c, factors.recruitment))
+        if self._terms_are_means:  # allele a's one breeding class is column a
+            return terms
+        mean = np.zeros((counts.shape[0], self.n_alleles))
+        if self._one_breeding_class:  # each allele's sum has one term
+            mean[:, self._breeding_allele] = terms
+            return mean
+        for j, allele in enumerate(self._breeding_allele.tolist()):  # summed in class order
+            mean[:, allele] += terms[:, j]
         return mean
+
+    @property
+    def removes(self) -> bool:
+        """True where a ceiling may remove individuals after recruitment (``ceiling_excess``)."""
+        return self.ceiling is not None
+
+    def _times(self, rate: np.ndarray, factor) -> np.ndarray:
+        """``rate`` (by class) times ``factor`` (a number or one per replicate), (..., classes);
+        a factor that does not act (the shared ones, ``factors``) multiplies nothing (x 1.0 is
+        exact)."""
+        if factor is self._ones:
+            return rate
+        return rate * np.asarray(factor, dtype=float)[..., None]
 
     # -- step 5: the ceiling ------------------------------------------------------------
     def ceiling_excess(self, survivors, recruits):
@@ -384,3 +435,4 @@ class SeasonKernel:
             b, pmf = self.offspring.pmf_table(m_i)
             out[i] = pmf @ (1.0 - q_i * x_i ** (b - 1.0) * (1.0 - s1)) ** b
         return out
+

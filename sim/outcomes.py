@@ -7,14 +7,18 @@ on arrays of codes (``classify``) and names appear only when results are made.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 import numpy as np
-import pandas as pd
 
 from .config import Config
 from .vocabulary import DECIDED, DECIDED_WITH_WINNER, OUTCOMES
 
-__all__ = ["OUTCOMES", "DECIDED", "DECIDED_WITH_WINNER", "CODES", "classify", "fixed_outcome",
-           "summarize"]
+if TYPE_CHECKING:  # pandas is imported where a table is made: a worker process never needs it
+    import pandas as pd
+
+__all__ = ["OUTCOMES", "DECIDED", "DECIDED_WITH_WINNER", "CODES", "classify", "mutant_index",
+           "census_states", "fixed_outcome", "summarize"]
 
 CODES = {name: code for code, name in enumerate(OUTCOMES)}  # outcome name -> code
 _MUTANT_FIXED, _MUTANT_LOST, _FIXED, _EXTINCT, _UNDECIDED = (
@@ -40,16 +44,26 @@ def classify(totals: np.ndarray, config: Config) -> tuple[np.ndarray, np.ndarray
     winners : ndarray of int
         The only allele present, or -1.
     """
+    return census_states(totals, mutant_index(config))
+
+
+def mutant_index(config: Config) -> int | None:
+    """The invasion's mutant allele index, or None for an experiment without ``[invasion]``."""
+    return None if config.invasion is None else config.allele_index(config.invasion.mutant)
+
+
+def census_states(totals: np.ndarray, mutant: int | None) -> tuple[np.ndarray, np.ndarray]:
+    """``classify`` with the mutant's index (``mutant_index``) known: what the stop rule calls
+    every season."""
     totals = np.asarray(totals)
     present = totals > 0
     n_present = present.sum(axis=1)
-    winners = np.where(n_present == 1, present.argmax(axis=1), -1)
-    one = np.where(n_present == 1, _FIXED, _UNDECIDED)
-    if config.invasion is not None:
-        mutant = config.allele_index(config.invasion.mutant)
-        one = np.where(n_present == 1, _MUTANT_FIXED, _UNDECIDED)
-        one = np.where(totals[:, mutant] == 0, _MUTANT_LOST, one)
-    states = np.where(n_present == 0, _EXTINCT, one)
+    one = n_present == 1
+    winners = np.where(one, present.argmax(axis=1), -1)
+    states = np.where(one, _FIXED if mutant is None else _MUTANT_FIXED, _UNDECIDED)
+    if mutant is not None:
+        states[totals[:, mutant] == 0] = _MUTANT_LOST
+    states[n_present == 0] = _EXTINCT
     return states, winners
 
 
@@ -78,6 +92,8 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
         The outcome ``fixed_fraction`` counts: ``fixed_outcome(config)``
         ("fixed" for an experiment without ``[invasion]``).
     """
+    import pandas as pd
+
     if "count" in replicates:
         counts = replicates.pivot_table(index="point", columns="outcome", values="count",
                                         aggfunc="sum", fill_value=0)

@@ -23,8 +23,7 @@ import numpy as np
 from .config import MAX_COUNT, SweepPoint
 from .engines import ENGINES
 from .lifecycle import LifeCycle, initial_census
-from .model import BroodModel
-from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, classify
+from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, census_states, mutant_index
 from .streams import keyed_generators
 from .year_draws import SeasonYears
 
@@ -64,6 +63,8 @@ class _Models:
     """Replicates of an engine without a batch form, one ``BroodModel`` each, as a batch."""
 
     def __init__(self, config, rngs, years=None):
+        from .model import BroodModel  # mesa: imported only where an engine without a batch form runs
+
         years = [None] * len(rngs) if years is None else years
         self.models = [BroodModel(config, rng=rng, years=y) for rng, y in zip(rngs, years, strict=True)]
 
@@ -144,7 +145,8 @@ def _cycle_collection_paused():
             gc.enable()
 
 
-def run_replicates(point: SweepPoint, replicates, seed: int) -> list[ReplicateResult]:
+def run_replicates(point: SweepPoint, replicates, seed: int, *,
+                   start: np.ndarray | None = None) -> list[ReplicateResult]:
     """Run replicates of one sweep point to the stop rule (the unit of work a worker takes).
 
     Engines that hold replicates as an array dimension (``individual``,
@@ -159,6 +161,9 @@ def run_replicates(point: SweepPoint, replicates, seed: int) -> list[ReplicateRe
         Replicate indices (each keys its own stream).
     seed : int
         The experiment's root seed.
+    start : ndarray, optional
+        The point's starting census, ``initial_census(point.config)``, where the caller
+        has it already (a worker process then needs no equilibrium solver).
 
     Returns
     -------
@@ -167,8 +172,8 @@ def run_replicates(point: SweepPoint, replicates, seed: int) -> list[ReplicateRe
     reps = [int(r) for r in replicates]
     with _cycle_collection_paused():
         if hasattr(ENGINES[point.config.experiment.engine], "populations"):
-            return _run_batch(point, reps, seed)
-        return [result for rep in reps for result in _run_batch(point, [rep], seed)]
+            return _run_batch(point, reps, seed, start)
+        return [result for rep in reps for result in _run_batch(point, [rep], seed, start)]
 
 
 def run_replicate(point: SweepPoint, replicate: int, seed: int) -> ReplicateResult:
@@ -176,7 +181,8 @@ def run_replicate(point: SweepPoint, replicate: int, seed: int) -> ReplicateResu
     return run_replicates(point, [replicate], seed)[0]
 
 
-def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateResult]:
+def _run_batch(point: SweepPoint, reps: list[int], seed: int,
+               start: np.ndarray | None = None) -> list[ReplicateResult]:
     """The stop rule, applied to a batch: stop a replicate when its outcome is decided
     (``stop = "fixation"``; extinction always stops), at ``max_steps``, or when its
     census passes ``max_population`` (capped); record every ``record_every`` seasons
@@ -192,7 +198,7 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
     shared = years is not None and config.environment.shared_years
     if hasattr(engine, "populations"):
         life = LifeCycle.from_config(config)
-        start = initial_census(config, life)
+        start = initial_census(config, life) if start is None else start
         batch = engine.populations(life, np.broadcast_to(start, (n, *start.shape)), rngs,
                                    limit=exp.max_population)
         if years is not None:
@@ -208,7 +214,8 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
 
     active = np.arange(n)
     census = batch.census()
-    state, winner = classify(census.sum(axis=2), config)
+    mutant = mutant_index(config)
+    state, winner = census_states(census.sum(axis=2), mutant)
     since = np.zeros(n, dtype=np.int64)
     records.add(active, 0, census)
     season = 0
@@ -223,7 +230,7 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
         records.add(ids[late], season, census[done][late])
 
     while True:
-        decided = (state != _UNDECIDED) & (stop_decided | (state == _EXTINCT))
+        decided = (state != _UNDECIDED) if stop_decided else (state == _EXTINCT)
         if season >= exp.max_steps:
             decided[:] = True
         if decided.any():
@@ -240,13 +247,18 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int) -> list[ReplicateR
             year_records.add(active, batch.year_now if isinstance(batch, _Models)
                              else batch.years.current)
         census = batch.census()
-        new_state, winner = classify(census.sum(axis=2), config)
+        totals = census.sum(axis=2)
+        new_state, winner = census_states(totals, mutant)
         since = np.where(new_state != state, season, since)
         state = new_state
-        capped = census.sum(axis=(1, 2)) > exp.max_population
+        capped = totals.sum(axis=1) > exp.max_population
+        any_capped = capped.any()
         if season % exp.record_every == 0:
-            records.add(active[~capped], season, census[~capped])
-        if capped.any():
+            if any_capped:
+                records.add(active[~capped], season, census[~capped])
+            else:
+                records.add(active, season, census)
+        if any_capped:
             finish(capped, _CAPPED, np.zeros(int(capped.sum()), dtype=bool))
             keep = ~capped
             active, state, winner, since, census = (x[keep] for x in (active, state, winner, since, census))

@@ -123,8 +123,12 @@ from pathlib import Path
 import sim.store as store
 import sim.store.durable as durable
 
-where, n, marker = (sys.argv[1], int(sys.argv[2]), Path(sys.argv[3])) if __name__ == "__main__" \
-    else ("", 0, None)
+# the stop applies in the writer and in its spawned workers (which save their own shards): they
+# import this file as __mp_main__ and read it from the environment they inherit
+if __name__ == "__main__":
+    os.environ["BROODLINE_TEST_STOP"] = "\n".join(sys.argv[1:4])
+spec = os.environ.get("BROODLINE_TEST_STOP", "").split("\n")
+where, n, marker = (spec[0], int(spec[1]), Path(spec[2])) if len(spec) == 3 else ("", 0, None)
 calls = {"n": 0}
 
 def stop_here():
@@ -137,10 +141,10 @@ def nth():
 
 W = store.ResultsWriter
 if where == "before-any-shard":
-    original = W._write_shard
-    def patched(self, results):
+    import sim.store.writer as writer
+    def patched(target, results):
         stop_here()
-    W._write_shard = patched
+    writer.write_shard = patched
 elif where == "mid-shard-write":  # the .tmp shard half written to disk
     original = durable._write_file
     def patched(path, data):
@@ -164,13 +168,21 @@ elif where == "between-shards":
         if path.parent.name.endswith(".parts") and nth():
             stop_here()
     durable._commit = patched
-elif where == "mid-merge":  # the merged .tmp file half written
-    original = W._merge
-    def patched(self, out, shards):
-        original(self, out, shards[: len(shards) // 2])
-        out.flush()
+elif where == "mid-merge":  # every row in the merged .tmp file, not yet marked complete nor renamed
+    import sim.store.writer as writer
+    def patched(self):
+        self._write()
         stop_here()
-    W._merge = patched
+    writer._MergedFile.commit = patched
+elif where == "merging-during-run":  # the merged .tmp file holds the first shards, the run goes on
+    import sim.store.writer as writer
+    original = writer._MergedFile._read
+    def patched(self, path):
+        original(self, path)
+        if nth():
+            self._write()
+            stop_here()
+    writer._MergedFile._read = patched
 elif where == "slow-commits":  # every shard takes a while: time to press Ctrl-C mid-run
     original = durable._commit
     def patched(tmp, path):

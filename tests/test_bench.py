@@ -19,7 +19,7 @@ from sim.lifecycle import LifeCycle, initial_census
 KEYS = {"engine", "census_size", "individual_steps_per_s", "ratio_to_floor", "ratio_to_agents",
         "bytes_per_individual"}
 REDUCED = ["bench", "--sizes", "1000", "--seasons", "3", "--min-time", "0", "--replicates", "30",
-           "--sequential", "5"]
+           "--sequential", "5", "--single-seasons", "40"]
 
 
 def test_bench_json_records(capsys):
@@ -45,6 +45,10 @@ def test_bench_json_records(capsys):
     years = [r for r in records if r["kind"] == "environment"]
     assert len(years) == 1 and years[0]["census_size"] == 1000
     assert years[0]["ratio_to_floor"] > 0 and years[0]["ratio_to_constant"] > 0
+    single = [r for r in records if r["kind"] == "single"]
+    assert [r["capacity"] for r in single] == [100, 1000]
+    assert all(r["seasons"] == 40 and r["ratio_to_floor"] > 0 and r["mean_census"] > 0
+               for r in single)
 
 
 def test_bench_table(capsys):
@@ -58,6 +62,7 @@ def test_bench_table(capsys):
     assert all(len(r) == 7 for r in rows[1:]) and rows[0][-2] == "-"
     assert "individual (batched)" in experiment
     assert "Variable environment (two year types" in experiment and "x constant" in experiment
+    assert "One replicate of a small population, many seasons" in experiment
 
 
 @pytest.mark.parametrize("argv, message", [
@@ -76,7 +81,7 @@ def test_bench_refuses_bad_options(argv, message, capsys):
 
 
 def test_report_object_is_usable_from_python():
-    report = run_bench([500], seasons=2, min_time=0, agents_max=0, replicates=0)
+    report = run_bench([500], seasons=2, min_time=0, agents_max=0, replicates=0, single_seasons=0)
     assert [r.engine for r in report.records] == ["floor", "individual", "care", "counts"]
     assert report.experiment == []
     assert "individual" in format_report(report)

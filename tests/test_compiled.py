@@ -107,14 +107,19 @@ def test_poisson_draws_follow_the_poisson_law():
         assert stats.chisquare(obs, exp, ddof=0).pvalue > 1e-4
 
 
-def test_assemble_puts_recruits_after_each_replicates_survivors():
-    survived = np.array([3, 3, 4, 1], dtype=np.uint8)
-    survivors = np.array([2, 0, 2])
-    recruits = np.array([[1, 0], [0, 2], [1, 1]])
+def test_next_census_puts_recruits_after_each_replicates_survivors():
+    survived = np.array([3, 3, 4, 1, 2, 9], dtype=np.uint8)
+    survivors = np.array([2, 0, 2, 1])
+    recruits = np.array([[1, 0], [0, 2], [1, 1], [4, 0]])
     first = np.array([0, 5], dtype=np.uint8)
-    out = np.empty(survivors.sum() + recruits.sum(), dtype=np.uint8)
-    assert compiled.assemble(survived, survivors, recruits, first, out) == out.size
-    assert list(out) == [3, 3, 0, 5, 5, 4, 1, 0, 5]
+    by_class = np.zeros((4, 6), dtype=np.int64)
+    sizes, born, over = np.empty(4, np.int64), np.empty(4, np.int64), np.empty(4, bool)
+    # the last replicate passes the limit (1 + 4 > 4): its recruits are counted, not built
+    cell = compiled.next_census(survived, survivors, recruits, first, 4, by_class, sizes, born, over)
+    assert list(cell) == [3, 3, 0, 5, 5, 4, 1, 0, 5, 2]
+    assert list(sizes) == [3, 2, 4, 1] and list(born) == [1, 2, 2, 4]
+    assert list(over) == [False, False, False, True]
+    assert list(by_class[:, 0]) == [1, 0, 1, 4] and list(by_class[:, 5]) == [0, 2, 1, 0]
 
 
 def test_engine_works_where_numba_finds_no_cache_directory():

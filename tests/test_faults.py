@@ -67,16 +67,16 @@ def test_read_only_output_folder(tmp_path, capsys):
 def test_a_write_error_mid_run_keeps_what_was_saved(tmp_path, monkeypatch, capsys):
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "out.h5"
-    real = store.ResultsWriter._fill_shard
+    real = store.writer._fill_shard  # what saves a shard, in the writer or in a worker
     calls = []
 
-    def fill_then_fail(self, f, results):
+    def fill_then_fail(f, target, results):
         calls.append(1)
         if len(calls) == 4:
             raise OSError(errno.ENOSPC, "No space left on device")
-        real(self, f, results)
+        real(f, target, results)
 
-    monkeypatch.setattr(store.ResultsWriter, "_fill_shard", fill_then_fail)
+    monkeypatch.setattr(store.writer, "_fill_shard", fill_then_fail)
     argv = ["run", str(config), "-o", str(out), "--workers", "1", "--batch-size", str(BATCH), "--quiet"]
     assert main(argv) == 2
     err = capsys.readouterr().err
@@ -111,10 +111,10 @@ def test_a_failing_merge_keeps_the_shards(tmp_path, monkeypatch, capsys):
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "out.h5"
 
-    def no_room(self, f, shards):
+    def no_room(self, *, complete=False):  # writing the merged file's rows
         raise OSError(errno.ENOSPC, "No space left on device")
 
-    monkeypatch.setattr(store.ResultsWriter, "_merge", no_room)
+    monkeypatch.setattr(store.writer._MergedFile, "_write", no_room)
     argv = ["run", str(config), "-o", str(out), "--workers", "1", "--quiet"]
     assert main(argv) == 2
     assert "intact (as shards)" in capsys.readouterr().err

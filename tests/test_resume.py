@@ -55,6 +55,7 @@ def rows_so_far(out, reference):
     ("mid-shard-write", 4, 2 * BATCH),  # call 1 writes the header
     ("shard-not-renamed", 5, 4 * BATCH),
     ("between-shards", 9, 9 * BATCH),
+    ("merging-during-run", 6, 6 * BATCH),  # shards are merged as they come, in order
     ("mid-merge", 1, 4 * REPLICATES),
     ("merged-before-cleanup", 1, 4 * REPLICATES),
 ])

@@ -37,6 +37,7 @@ def test_the_domain_maps_name_the_same_words():
     assert tuple(ENGINES) == vocabulary.ENGINES
     assert tuple(density.FORMS) == vocabulary.DENSITY_FORMS
     assert tuple(density.PLACEMENTS) == vocabulary.PLACEMENTS
+    assert tuple(density._PLACED) == vocabulary.PLACEMENTS  # where each placement's factor acts
     assert tuple(density.COUNTED) == vocabulary.COUNTED
     for word in vocabulary.DISTRIBUTIONS:
         assert make_offspring(word, 1.0 if word == "negative-binomial" else None) is not None

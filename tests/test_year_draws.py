@@ -330,3 +330,21 @@ def test_the_observed_threshold_is_where_the_resident_can_no_longer_return(tmp_p
     assert row["analytic"] == pytest.approx(5.34, abs=0.01) and row["replacement"] == pytest.approx(5.48, abs=0.01)
     assert row["replacement_in_interval"] and not row["analytic_in_interval"], row["observed_message"]
     assert row["observed_low"] > row["analytic"]  # the invasion threshold is not where fixation turns
+
+
+def test_between_the_invasion_and_replacement_thresholds_compare_makes_no_fixation_claim():
+    # Where each allele invades the other (B_s between 5.34 and 5.48 in issue 13's two-year
+    # case; mutual invasibility, Geritz et al. 1998) the invasion fitness does not say on which
+    # side of the neutral expectation fixation lies, so compare's default prediction is
+    # "no prediction" there, and the side of the neutral expectation outside it.
+    from analysis.comparison import _default_prediction
+    from analysis.varying_years import stochastic_prediction
+
+    verdicts = {}
+    for fecundity in (5.2, 5.41, 5.7):
+        row = stochastic_prediction(_invasion(fecundity, True, capacity=100, replicates=10))
+        verdicts[fecundity] = (row["verdict"], row["resident_invades_back"],
+                               _default_prediction(row).assess(0.0, 0.001)[0])
+    assert verdicts[5.2] == ("does not invade", False, "agrees")
+    assert verdicts[5.41] == ("invades", True, "no prediction")
+    assert verdicts[5.7] == ("invades", False, "disagrees")

@@ -204,7 +204,7 @@ def json_keys_lines(command: str) -> list[str]:
         raise DocsGenerationError(f"json-keys: no command {command!r} in analysis.commands.JSON_KEYS")
     lines = []
     for part, keys in JSON_KEYS[command].items():
-        caption = "The object" if part == "" else f"Each object of ``{part}``"
+        caption = {"": "The object", "[]": "Each object of the list"}.get(part, f"Each object of ``{part}``")
         rows = [[rst_text(k) if k == SWEPT else literal(k), rst_text(meaning)] for k, meaning in keys.items()]
         lines += [f"{caption}:", ""] + list_table(["key", "meaning"], rows, [25, 75])
     return lines

@@ -8,6 +8,9 @@ import sys
 
 from ..bench import DEFAULT_SIZES, LARGE_SIZE, format_report, run_bench
 from ..bench_memory import measure_memory, measure_planning
+from ..bench_scaling import DEFAULT_REPLICATES as SCALING_REPLICATES
+from ..bench_scaling import SCALING_ENGINES, format_scaling, run_scaling
+from ..errors import UserError
 from .run import positive
 
 __all__ = ["register"]
@@ -45,15 +48,29 @@ def _count(low: int):
     return parse
 
 
+def cmd_bench_scaling(args) -> int:
+    if args.replicates == 0:
+        raise UserError("--replicates must be >= 1 with --scaling; got 0")
+    say = None if args.json else (lambda m: print(f"  running {m} ...", file=sys.stderr, flush=True))
+    report = run_scaling(replicates=SCALING_REPLICATES if args.replicates is None else args.replicates,
+                         workers=args.workers, engines=args.engine or SCALING_ENGINES, progress=say)
+    print(json.dumps(report.to_records(), indent=1) if args.json else format_scaling(report))
+    return 0
+
+
 def cmd_bench(args) -> int:
+    if args.scaling:
+        return cmd_bench_scaling(args)
     sizes = list(args.sizes or DEFAULT_SIZES)
     if args.large and LARGE_SIZE not in sizes:
         sizes.append(LARGE_SIZE)
     say = None if args.json else (lambda m: print(f"  timing {m} ...", file=sys.stderr, flush=True))
     report = run_bench(sizes, seasons=args.seasons, min_time=args.min_time,
                        agents_max=args.agents_max,
-                       replicates=args.replicates, capacity=args.capacity,
-                       sequential=args.sequential or None, progress=say)
+                       replicates=10_000 if args.replicates is None else args.replicates,
+                       capacity=args.capacity,
+                       sequential=args.sequential or None,
+                       single_seasons=args.single_seasons, progress=say)
     if args.json:
         print(json.dumps(report.to_records(), indent=1))
     else:
@@ -82,11 +99,22 @@ def register(sub) -> None:
                    help="least seconds of stepping timed per engine and size (default 1)")
     p.add_argument("--agents-max", type=_count(0), default=10_000,
                    help="largest N the slow Mesa engine runs at (default 1e4)")
-    p.add_argument("--replicates", type=_count(0), default=10_000,
-                   help="replicates of the K = 200 invasion experiment (0 skips it)")
+    p.add_argument("--replicates", type=_count(0), default=None,
+                   help="replicates of the K = 200 invasion experiment (default 1e4; 0 skips it); "
+                        f"with --scaling, of its experiment (default {SCALING_REPLICATES:,})")
     p.add_argument("--capacity", type=_count(10), default=200, help="K of the invasion experiment")
     p.add_argument("--sequential", type=_count(0), default=1_000,
                    help="replicates also run one at a time, for comparison (0 skips)")
+    p.add_argument("--single-seasons", type=_count(0), default=20_000,
+                   help="seasons of one replicate run alone at K = 100 and 1000 (default 20000; "
+                        "0 skips)")
+    p.add_argument("--scaling", action="store_true",
+                   help="instead: one K = 500 invasion experiment on 1 worker and on every core, per "
+                        "engine: speed-up, efficiency, fixed cost, the writer's load")
+    p.add_argument("--workers", type=_count(1), default=None, metavar="N",
+                   help="with --scaling: the larger worker count (default: every core available)")
+    p.add_argument("--engine", action="append", choices=SCALING_ENGINES,
+                   help="with --scaling: only this engine (repeat for several; default: both)")
     p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
     p.set_defaults(func=cmd_bench)
 

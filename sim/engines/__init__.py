@@ -21,11 +21,45 @@ in distribution with the ``agents`` reference): adding an engine is one
 ``ENGINES`` entry here plus its word in the schema (``ExperimentSection.engine``).
 """
 
-from .agents import AgentsEngine
+from collections.abc import Mapping
+from importlib import import_module
+
 from .counts import CountsEngine, CountsPopulations
 from .individual import IndividualEngine, IndividualPopulations
 
-ENGINES = {"individual": IndividualEngine, "agents": AgentsEngine, "counts": CountsEngine}
+# The agents engine imports mesa (half a second): loaded when first asked for, so a worker
+# process running the array engines never imports it.
+_LAZY = {"AgentsEngine": ".agents"}
+
+
+class _Registry(Mapping):
+    """Engine word -> engine class; a class named by its module is imported when first asked for."""
+
+    def __init__(self, entries: dict):
+        self._entries = entries
+
+    def __getitem__(self, name: str):
+        entry = self._entries[name]
+        if isinstance(entry, str):
+            entry = self._entries[name] = __getattr__(entry)
+        return entry
+
+    def __iter__(self):
+        return iter(self._entries)
+
+    def __len__(self) -> int:
+        return len(self._entries)
+
+
+def __getattr__(name: str):
+    if name not in _LAZY:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(import_module(_LAZY[name], __name__), name)
+    globals()[name] = value
+    return value
+
+
+ENGINES = _Registry({"individual": IndividualEngine, "agents": "AgentsEngine", "counts": CountsEngine})
 REFERENCE_ENGINE = "agents"  # the plain statement of the season the others are tested against
 
 

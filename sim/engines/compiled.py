@@ -25,7 +25,8 @@ from llvmlite import ir
 from numba import njit, types
 from numba.extending import intrinsic
 
-__all__ = ["bitgen_addresses", "poisson", "binomial", "survive", "survive_counts", "assemble"]
+__all__ = ["bitgen_addresses", "poisson", "binomial", "survive", "survive_counts",
+           "next_census"]
 
 _capsule_pointer = ctypes.pythonapi.PyCapsule_GetPointer
 _capsule_pointer.restype = ctypes.c_void_p
@@ -267,19 +268,44 @@ def survive(cell, slice_sizes, drawn, bitgens, survival, factor, aged, out, surv
 
 
 @_compiled
-def assemble(survived, survivors, recruits, first, out):
-    """The next census: per replicate, its survivors (from ``survived``, consecutive by
-    replicate) then ``recruits[r, allele]`` recruits of class ``first[allele]``."""
+def next_census(survived, survivors, recruits, first, limit, by_class, sizes, born, over):
+    """The next census of a batch (the ``individual`` engine's cells), and what it holds.
+
+    Per replicate: its survivors (consecutive by replicate in ``survived``),
+    then ``recruits[r, allele]`` recruits of class ``first[allele]``, who are
+    also added to ``by_class``. A replicate whose survivors and recruits pass
+    ``limit`` keeps its recruits in ``by_class`` but gets no cells for them
+    (the run stops it as capped: an exploding population never sizes the array).
+    Each replicate's number of cells, its recruits, and whether it passed
+    ``limit`` are written into ``sizes``, ``born`` and ``over``.
+
+    Returns
+    -------
+    ndarray
+        The next census's cells (``survived``'s dtype).
+    """
+    n_reps = survivors.size
+    total = 0
+    for r in range(n_reps):
+        born[r] = 0
+        for allele in range(first.size):
+            born[r] += recruits[r, allele]
+            by_class[r, first[allele]] += recruits[r, allele]
+        over[r] = survivors[r] + born[r] > limit
+        sizes[r] = survivors[r] + (0 if over[r] else born[r])
+        total += sizes[r]
+    cell = np.empty(total, survived.dtype)
     i = 0
     n = 0
-    for r in range(survivors.size):
-        for _ in range(survivors[r]):
-            out[n] = survived[i]
-            n += 1
-            i += 1
+    for r in range(n_reps):  # block copies and fills (memcpy- and memset-like loops)
+        k = survivors[r]
+        cell[n:n + k] = survived[i:i + k]
+        n += k
+        i += k
+        if over[r]:
+            continue
         for allele in range(first.size):
-            c = first[allele]
-            for _ in range(recruits[r, allele]):
-                out[n] = c
-                n += 1
-    return n
+            k = recruits[r, allele]
+            cell[n:n + k] = first[allele]
+            n += k
+    return cell

@@ -59,7 +59,8 @@ class CountsPopulations(ReplicateBatch):
         # survivors (binomial, one compiled pass for the batch), moved to their next class;
         # then, where the law allows, the recruits in the same pass
         aged = np.zeros_like(self.counts)
-        means, recruits = self.pass_recruits(f)
+        means = self.recruit_means(f)
+        recruits = np.empty(means.shape, dtype=np.int64)
         if kernel.parental:  # survivors by parent class first: their young depend on it
             compiled.survive_counts(self.counts, self.bitgens, kernel.survival, f.adult,
                                     np.arange(kernel.n_classes), aged, means, recruits)
@@ -80,6 +81,9 @@ class CountsPopulations(ReplicateBatch):
         recruits alone (a ceiling acting on recruitment) or from everyone.
         """
         kernel = self.kernel
+        if not kernel.removes:
+            aged[:, kernel.first] += recruits
+            return
         excess, _ = kernel.ceiling_excess(aged.sum(axis=1), born)
         excess[aged.sum(axis=1) + born > self.limit] = 0  # capped: the run stops it as it is
         over = np.flatnonzero(excess).tolist()

@@ -45,6 +45,9 @@ class IndividualPopulations(ReplicateBatch):
         classes = np.tile(np.arange(kernel.n_classes, dtype=self._dtype), len(self.rngs))
         self.cell = np.repeat(classes, counts.ravel())
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
+        self._drawn = np.ones(0, dtype=bool)
+        # max_population as an int64 the compiled pass compares with (none: never passed)
+        self._limit = np.iinfo(np.int64).max if np.isinf(self.limit) else int(self.limit)
 
     def state_bytes(self) -> int:
         """Bytes held between seasons: the individuals, and counts by replicate and class."""
@@ -70,47 +73,52 @@ class IndividualPopulations(ReplicateBatch):
 
     def step(self) -> None:
         """Advance every replicate one season."""
-        kernel, rngs = self.kernel, self.rngs
-        n_reps = len(rngs)
+        kernel = self.kernel
+        n_reps = len(self.rngs)
         if n_reps == 0:
             return
-        cell = self.cell
         # 1. density index from the census (or, counting offspring, 2. births first)
         births, f = self.open_season()
         # 3. survival (one uniform per individual), survivors one year older (the
         # plus-group stays); 4. then, where the law allows, each replicate's recruits
-        slice_sizes, drawn = self._segments or (self.sizes, np.ones(n_reps, dtype=bool))
-        self._segments = None
-        survived = np.empty(cell.size, dtype=self._dtype)
-        survivors = np.empty(n_reps, dtype=np.int64)
-        by_class = np.zeros((n_reps, kernel.n_classes), dtype=np.int64)
-        means, recruits = self.pass_recruits(f)
+        if self._segments is None:
+            slice_sizes, drawn = self.sizes, self._all_drawn(n_reps)
+        else:
+            (slice_sizes, drawn), self._segments = self._segments, None
         # with parental effects the pass keeps each survivor's parent class (young depend on it)
         aged = self._stay if kernel.parental else self._aged
-        total = compiled.survive(cell, slice_sizes, drawn, self.bitgens, kernel.survival, f.adult,
-                                 aged, survived, survivors, by_class, means, recruits)
+        survived = np.empty(self.cell.size, dtype=self._dtype)
+        survivors = np.empty(n_reps, dtype=np.int64)
+        by_class = np.zeros((n_reps, kernel.n_classes), dtype=np.int64)
+        means = self.recruit_means(f)
+        recruits = np.empty(means.shape, dtype=np.int64)
+        total = compiled.survive(self.cell, slice_sizes, drawn, self.bitgens, kernel.survival,
+                                 f.adult, aged, survived, survivors, by_class, means, recruits)
         if kernel.parental:
             recruits = self.parental_recruits(by_class, f)
             survived, by_class = self._aged[survived[:total]], self.aged_counts(by_class)
         else:
             recruits = self.recruits_after_pass(recruits, births, f)
-        # 5. next census: survivors, then recruits at age 1; the kernel's removals. A
-        # replicate past the limit keeps its counts (the run stops it as capped) but not its
-        # recruits' cells: an exploding population never sizes the array.
-        born = recruits.sum(axis=1)
-        over = survivors + born > self.limit
-        built = np.where(over[:, None], 0, recruits) if over.any() else recruits
-        cell = np.empty(total + int(built.sum()), dtype=self._dtype)
-        compiled.assemble(survived, survivors, built, self._first, cell)
-        by_class[:, kernel.first] += recruits
-        sizes = survivors + built.sum(axis=1)
-        excess, pool = kernel.ceiling_excess(survivors, born)
-        excess = np.where(over, 0, excess)
-        if excess.any():
-            cell, removed = self._remove(cell, sizes, excess, pool)
-            by_class -= removed
-            sizes = sizes - removed.sum(axis=1)
+        # 5. next census: survivors, then recruits at age 1 (a replicate past the limit keeps
+        # its counts, the run stops it as capped, but not its recruits' cells); the kernel's removals
+        sizes, born = np.empty(n_reps, dtype=np.int64), np.empty(n_reps, dtype=np.int64)
+        over = np.empty(n_reps, dtype=bool)
+        cell = compiled.next_census(survived, survivors, recruits, self._first, self._limit,
+                                    by_class, sizes, born, over)
+        if kernel.removes:
+            excess, pool = kernel.ceiling_excess(survivors, born)
+            excess = np.where(over, 0, excess)
+            if excess.any():
+                cell, removed = self._remove(cell, sizes, excess, pool)
+                by_class -= removed
+                sizes = sizes - removed.sum(axis=1)
         self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
+
+    def _all_drawn(self, n_reps: int) -> np.ndarray:
+        """Every slice drawn (no replicate has left since the last season); kept, not rebuilt."""
+        if self._drawn.size != n_reps:
+            self._drawn = np.ones(n_reps, dtype=bool)
+        return self._drawn
 
     def _remove(self, cell, sizes, excess, pool):
         """Remove ``excess`` random individuals of each replicate from the last ``pool`` of its

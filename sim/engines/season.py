@@ -135,14 +135,13 @@ class ReplicateBatch:
         return out
 
     # -- step 4: recruits ----------------------------------------------------------------
-    def pass_recruits(self, f: Factors) -> tuple[np.ndarray, np.ndarray]:
-        """What a compiled pass takes for recruits: their means by (replicate, allele) and the
-        array it draws them into; both (n_replicates, 0) where the pass draws none
-        (``recruits_in_pass`` false: ``recruits_after_pass`` draws them)."""
-        n = self.counts.shape[0]
-        means = (np.minimum(self.kernel.expected_recruits(self.counts, f), DRAW_LIMIT)
-                 if self.recruits_in_pass else np.empty((n, 0)))
-        return means, np.empty(means.shape, dtype=np.int64)
+    def recruit_means(self, f: Factors) -> np.ndarray:
+        """What a compiled pass takes for recruits: their means by (replicate, allele);
+        (n_replicates, 0) where the pass draws none (``recruits_in_pass`` false:
+        ``recruits_after_pass`` draws them)."""
+        if self.recruits_in_pass:
+            return np.minimum(self.kernel.expected_recruits(self.counts, f), DRAW_LIMIT)
+        return np.empty((self.counts.shape[0], 0))
 
     def recruits_after_pass(self, drawn: np.ndarray, births, f: Factors) -> np.ndarray:
         """Recruits by (replicate, allele) after mutation: the pass's draws ``drawn``, or,

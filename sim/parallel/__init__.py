@@ -1,9 +1,12 @@
 """Where batches of replicates run: in this process, in local worker processes, or on a dask cluster.
 
-``work`` holds the unit of work (``Batch``, ``run_batch``); ``local`` the
-pools of this machine; ``cluster`` the dask pool. Every pool yields
-``(batch, results)`` as batches finish, in whatever order they finish; the
-single writer in the calling process stores them.
+``work`` holds the unit of work (``Batch``, ``Job``, ``run_job``); ``local``
+the pools of this machine; ``cluster`` the dask pool. Every pool yields
+``(batch, BatchOutput)`` as batches finish, in whatever order they finish.
+Workers that share the writer's disk (local pools) save their batch as a
+shard themselves and send back only its name and outcome counts; a dask
+worker sends its results, which the single writer in the calling process
+saves.
 """
 
 from __future__ import annotations
@@ -13,6 +16,9 @@ from .local import ProcessPool, SerialPool
 from .work import (
     BATCH_INDIVIDUALS,
     Batch,
+    BatchClock,
+    BatchOutput,
+    Job,
     ClusterError,
     PoolError,
     default_batch_size,
@@ -21,6 +27,7 @@ from .work import (
     iter_batches,
     reduce_trajectory,
     run_batch,
+    run_job,
 )
 
 __all__ = [
@@ -34,6 +41,10 @@ __all__ = [
     "default_batch_size",
     "default_workers",
     "run_batch",
+    "run_job",
+    "Job",
+    "BatchOutput",
+    "BatchClock",
     "reduce_trajectory",
     "make_pool",
     "SerialPool",

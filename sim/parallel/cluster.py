@@ -10,7 +10,7 @@ import time
 import uuid
 from pathlib import Path
 
-from .work import ClusterError, run_batch
+from .work import ClusterError, Job, run_job
 
 __all__ = ["DaskPool", "CLUSTER_INSTALL"]
 
@@ -91,8 +91,11 @@ class DaskPool:
     Each batch is one task with its own key, so no two batches are merged. A
     worker lost mid-batch has its task rerun elsewhere by the scheduler (up
     to its ``allowed-failures``); the result still comes back once, so no
-    row is written twice.
+    row is written twice. The workers may not see this machine's disk
+    (``shares_disk`` is False): their results come back to the writer.
     """
+
+    shares_disk = False
 
     def __init__(self, address: str, *, timeout: float = 10.0):
         try:
@@ -117,17 +120,21 @@ class DaskPool:
         return max(1, sum(self.client.nthreads().values()))
 
     def run(self, tasks):
+        for batch, output in self.run_jobs(Job(batch, point, seed) for batch, point, seed in tasks):
+            yield batch, output.results
+
+    def run_jobs(self, jobs, *, idle=None):
         from distributed import as_completed
 
-        tasks = iter(tasks)
+        jobs = iter(jobs)
         queue = as_completed(loop=self.client.loop)
         futures = self._futures
 
         def submit_next() -> None:
-            for batch, point, seed in tasks:
+            for job in jobs:
+                batch = job.batch
                 key = f"broodline-{self._run_id}-p{batch.point}-r{batch.first}-{batch.last}"
-                future = self.client.submit(run_batch, point, batch.first, batch.last, seed,
-                                            key=key, pure=False)
+                future = self.client.submit(run_job, job, key=key, pure=False)
                 futures[future.key] = (future, batch)
                 queue.add(future)
                 return
@@ -137,11 +144,11 @@ class DaskPool:
             submit_next()
         watch = _WorkerWatch(self.client, self.address, lambda: bool(futures))
         try:
-            yield from self._collect(queue, futures, submit_next, slots)
+            yield from self._collect(queue, futures, submit_next, slots, idle)
         finally:
             watch.stop()
 
-    def _collect(self, queue, futures, submit_next, slots):
+    def _collect(self, queue, futures, submit_next, slots, idle):
         from distributed.client import FutureCancelledError
         from distributed.scheduler import KilledWorker
 
@@ -172,6 +179,8 @@ class DaskPool:
                     "same version) where the scheduler and the workers run, then resume") from None
             future.release()
             yield batch, results
+            if idle is not None:
+                idle()
             if n % 16 == 0:
                 slots = self.slots
             while len(futures) < 2 * slots:
@@ -180,7 +189,9 @@ class DaskPool:
                 if len(futures) == before:
                     break
 
-    def shutdown(self, *, cancel: bool = False) -> None:
+    def shutdown(self, *, cancel: bool = False, wait: bool = True) -> None:
+        if not (cancel or wait):  # the workers belong to the cluster: nothing to let go early
+            return
         try:
             if cancel and self._futures:
                 self.client.cancel([f for f, _ in self._futures.values()])

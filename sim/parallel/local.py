@@ -1,9 +1,12 @@
 """Local pools: batches run in this process, or in spawned worker processes.
 
-A pool's ``run(tasks)`` takes an iterator of (batch, point, seed) and yields
-(batch, results) as batches finish, keeping at most ``2 * slots`` batches in
-flight so that memory does not grow with the experiment. ``shutdown(cancel=)``
+A pool's ``run_jobs(jobs)`` takes an iterator of ``Job`` and yields
+(batch, BatchOutput) as batches finish, keeping at most ``2 * slots`` batches
+in flight so that memory does not grow with the experiment; ``run(tasks)``
+takes (batch, point, seed) and yields (batch, results). ``shutdown(cancel=)``
 ends it; with ``cancel`` running batches are abandoned (they re-run on resume).
+Local pools share this machine's disk (``shares_disk``): their workers can save
+their own shards.
 """
 
 from __future__ import annotations
@@ -16,7 +19,7 @@ import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 
-from .work import PoolError, run_batch
+from .work import Job, PoolError, run_job
 
 __all__ = ["SerialPool", "ProcessPool"]
 
@@ -26,13 +29,25 @@ class SerialPool:
 
     slots = 1
     description = "1 process"
+    shares_disk = True
+
+    def run_jobs(self, jobs, *, idle=None):
+        for job in jobs:
+            yield job.batch, run_job(job)
+            if idle is not None:
+                idle()
 
     def run(self, tasks):
-        for batch, point, seed in tasks:
-            yield batch, run_batch(point, batch.first, batch.last, seed)
+        return _results(self, tasks)
 
-    def shutdown(self, *, cancel: bool = False) -> None:
+    def shutdown(self, *, cancel: bool = False, wait: bool = True) -> None:
         pass
+
+
+def _results(pool, tasks):
+    """``pool.run``: (batch, point, seed) in, (batch, results) out."""
+    for batch, output in pool.run_jobs(Job(batch, point, seed) for batch, point, seed in tasks):
+        yield batch, output.results
 
 
 def _watch_parent(parent: int) -> None:
@@ -42,14 +57,39 @@ def _watch_parent(parent: int) -> None:
             os._exit(1)
 
 
+def _warm_compiler() -> None:
+    """Set up numba's code generator now (about 0.2 s), while the writer checks the config,
+    rather than in the worker's first batch, where loading the engines' cached machine code
+    would do it."""
+    try:
+        from numba.core.registry import cpu_target
+
+        cpu_target.target_context.refresh()
+    except Exception:  # an internal of numba: if it moves, the first batch does this itself
+        pass
+
+
 def _worker_init(parent: int) -> None:
     # Ctrl-C in a terminal reaches the whole process group; the writer alone handles it.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     threading.Thread(target=_watch_parent, args=(parent,), daemon=True).start()
+    _warm_compiler()
+
+
+def _ready() -> tuple[int, float, float]:
+    """A started worker: its pid, when it was ready (perf_counter) and its CPU time so far
+    (interpreter start-up and imports)."""
+    return os.getpid(), time.perf_counter(), time.process_time()
 
 
 class ProcessPool:
-    """Batches run in ``workers`` local processes (spawned: safe with mesa's start method)."""
+    """Batches run in ``workers`` local processes (spawned: safe with mesa's start method).
+
+    The processes are started at once, not at the first batch: they import what a batch
+    needs while the calling process checks the config and writes the file's header.
+    """
+
+    shares_disk = True
 
     def __init__(self, workers: int):
         if workers < 1:
@@ -59,20 +99,37 @@ class ProcessPool:
         self._executor = ProcessPoolExecutor(
             workers, mp_context=multiprocessing.get_context("spawn"),
             initializer=_worker_init, initargs=(os.getpid(),))
+        self._exiting = []
+        # each submission finding no idle worker starts one more process, up to ``workers``
+        self._starting = [self._executor.submit(_ready) for _ in range(workers)]
 
     def run(self, tasks):
-        tasks = iter(tasks)
+        return _results(self, tasks)
+
+    def workers_ready(self) -> list[tuple[int, float, float]]:
+        """(pid, ready at, start-up CPU seconds) of the workers started so far (see ``_ready``)."""
+        return [f.result() for f in self._starting if f.done() and not f.exception()]
+
+    def run_jobs(self, jobs, *, idle=None):
+        """Run ``Job``s, yielding (batch, BatchOutput) as they finish. ``idle()``, if given, is
+        called whenever no batch is finished (work for the writer that must not delay a
+        finished batch, e.g. merging one shard); it returns False when it has nothing to do."""
+        jobs = iter(jobs)
         pending = {}
 
         def submit_next() -> None:
-            for batch, point, seed in tasks:
-                pending[self._executor.submit(run_batch, point, batch.first, batch.last, seed)] = batch
+            for job in jobs:
+                pending[self._executor.submit(run_job, job)] = job.batch
                 return
 
         for _ in range(2 * self.slots):
             submit_next()
         while pending:
-            done, _ = wait(pending, return_when=FIRST_COMPLETED)
+            done, _ = wait(pending, timeout=0, return_when=FIRST_COMPLETED)
+            while not done and idle is not None and idle():
+                done, _ = wait(pending, timeout=0, return_when=FIRST_COMPLETED)
+            if not done:
+                done, _ = wait(pending, return_when=FIRST_COMPLETED)
             for future in sorted(done, key=pending.get):
                 batch = pending.pop(future)
                 try:
@@ -83,12 +140,21 @@ class ProcessPool:
                 yield batch, results
                 submit_next()
 
-    def shutdown(self, *, cancel: bool = False) -> None:
-        if cancel:
-            terminate = getattr(self._executor, "terminate_workers", None)  # Python 3.14+
-            if terminate is not None:
-                terminate()
-            else:  # older Pythons have no public way to stop a running worker
-                for process in list((getattr(self._executor, "_processes", None) or {}).values()):
-                    process.terminate()
-        self._executor.shutdown(wait=not cancel, cancel_futures=cancel)
+    def shutdown(self, *, cancel: bool = False, wait: bool = True) -> None:
+        """Stop the workers: with ``cancel`` at once (running batches are abandoned); else once
+        they are idle, waiting for them to exit unless ``wait`` is False (call again to wait)."""
+        if not cancel:
+            # the processes, kept before shutdown(wait=False) forgets them, are joined when waiting
+            self._exiting = self._exiting or list((getattr(self._executor, "_processes", None) or {}).values())
+            self._executor.shutdown(wait=wait)
+            if wait:
+                for process in self._exiting:
+                    process.join()
+            return
+        terminate = getattr(self._executor, "terminate_workers", None)  # Python 3.14+
+        if terminate is not None:
+            terminate()
+        else:  # older Pythons have no public way to stop a running worker
+            for process in list((getattr(self._executor, "_processes", None) or {}).values()):
+                process.terminate()
+        self._executor.shutdown(wait=False, cancel_futures=True)

@@ -10,7 +10,9 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, replace
+import time
+from collections import Counter
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -27,6 +29,10 @@ __all__ = [
     "default_workers",
     "run_batch",
     "reduce_trajectory",
+    "Job",
+    "BatchClock",
+    "BatchOutput",
+    "run_job",
 ]
 
 
@@ -110,3 +116,71 @@ def run_batch(point: SweepPoint, first: int, last: int, seed: int) -> list[Repli
     """
     mode = point.config.experiment.trajectory
     return [reduce_trajectory(r, mode) for r in run_replicates(point, range(first, last + 1), seed)]
+
+
+@dataclass(frozen=True)
+class Job:
+    """One batch as a pool runs it: the batch, its sweep point and the root seed; optionally
+    the point's starting census (then the worker solves no equilibrium) and a ``ShardTarget``
+    (then the worker saves its batch as a shard and sends back only a ``BatchOutput``
+    without results)."""
+
+    batch: Batch
+    point: SweepPoint
+    seed: int
+    start: np.ndarray | None = None
+    target: object = None  # sim.store.ShardTarget
+
+
+@dataclass(frozen=True)
+class BatchClock:
+    """When and how long a batch ran, as its worker saw it.
+
+    ``started``/``finished`` are ``time.perf_counter()`` readings (CLOCK_MONOTONIC on
+    Linux: one clock for every process of the machine); ``cpu`` is the process CPU time
+    the batch took (``time.process_time``: not stretched by other programs' load), of
+    which ``save_cpu`` writing its shard; ``process_cpu`` the worker process's CPU time
+    before its first batch (interpreter start-up and imports)."""
+
+    pid: int
+    started: float
+    finished: float
+    cpu: float
+    save_cpu: float
+    process_cpu: float
+
+
+@dataclass
+class BatchOutput:
+    """What a pool yields for a finished ``Job``: the results (None when the worker saved
+    them itself, as ``shard``), each outcome's count, and the batch's ``BatchClock``."""
+
+    results: list[ReplicateResult] | None
+    shard: object  # sim.store.Shard, or None
+    outcomes: Counter = field(default_factory=Counter)
+    clock: BatchClock | None = None
+
+
+_FIRST_BATCH_CPU: list[float] = []  # this process's CPU time when its first job started
+
+
+def run_job(job: Job) -> BatchOutput:
+    """Run one ``Job`` (what a worker process runs): the batch, and its shard if asked."""
+    cpu0, wall0 = time.process_time(), time.perf_counter()
+    if not _FIRST_BATCH_CPU:
+        _FIRST_BATCH_CPU.append(cpu0)
+    batch = job.batch
+    mode = job.point.config.experiment.trajectory
+    results = [reduce_trajectory(r, mode) for r in
+               run_replicates(job.point, batch.replicates, job.seed, start=job.start)]
+    outcomes = Counter(r.outcome for r in results)
+    shard, cpu1 = None, time.process_time()
+    if job.target is not None:
+        from ..store.writer import write_shard  # h5py: only in processes that save shards
+
+        shard = write_shard(job.target, results)
+        results = None
+    cpu2 = time.process_time()
+    clock = BatchClock(os.getpid(), wall0, time.perf_counter(), cpu2 - cpu0, cpu2 - cpu1,
+                       _FIRST_BATCH_CPU[0])
+    return BatchOutput(results, shard, outcomes, clock)

@@ -4,12 +4,31 @@
 format); ``durable`` writes files that exist whole or not at all;
 ``writer`` is the one writer (header, shards, lock, merge); ``readers``
 read a finished file or the shards of one still being written.
+
+The readers (which need pandas) are imported when first used (PEP 562): a
+worker process that saves its own shards imports the writer only.
 """
 
-from . import layout, readers, writer
+from importlib import import_module
+
+from . import layout, writer
 from .layout import FORMAT_VERSION, ConfigMismatchError, ResultsError, Shard, parts_dir, software_version
-from .readers import *  # noqa: F403 (the readers' __all__ is the package's)
-from .writer import ResultsWriter, rewrite_header, writer_state
+from .writer import ResultsWriter, ShardTarget, rewrite_header, write_shard, writer_state
+
+_READERS = ("read_attrs", "read_points", "read_replicates", "read_trajectories", "read_point_configs",
+            "read_outcomes", "count_outcomes", "read_years", "read_trait")
+
+
+def __getattr__(name: str):
+    if name == "readers":
+        return import_module(".readers", __name__)
+    if name not in _READERS:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(import_module(".readers", __name__), name)
+    globals()[name] = value
+    return value
+
 
 __all__ = ["FORMAT_VERSION", "ResultsError", "ConfigMismatchError", "Shard", "ResultsWriter",
-           "parts_dir", "software_version", "writer_state", "rewrite_header", *readers.__all__]
+           "ShardTarget", "write_shard", "parts_dir", "software_version", "writer_state",
+           "rewrite_header", *_READERS]

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import h5py
 
-__all__ = ["write_atomic", "h5_write_errors"]
+__all__ = ["write_atomic", "commit_file", "h5_write_errors"]
 
 
 def _fsync_path(path: Path, *, directory: bool = False) -> None:
@@ -54,6 +54,13 @@ def write_atomic(path: Path, fill, *, in_memory: bool = True) -> None:
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise
+
+
+def commit_file(tmp: Path, path: Path) -> None:
+    """Make a finished, closed ``tmp`` file durable and rename it to ``path`` (a file written
+    over a while, not in one ``write_atomic`` call)."""
+    _fsync_path(tmp)
+    _commit(tmp, path)
 
 
 def _write_file(path: Path, data: bytes) -> None:

@@ -190,13 +190,13 @@ def _append(ds, values) -> None:
 YEARS = "years"  # the group of year types (variable environments)
 
 
-def _years_group(f, config, data=None) -> None:
-    """Create ``/years`` (where the config has an [environment]), holding ``data`` if given."""
-    if config.environment is None:
+def _years_group(f, environment, data=None) -> None:
+    """Create ``/years`` (where there is an [environment] section), holding ``data`` if given."""
+    if environment is None:
         return
     g = f.create_group(YEARS)
-    g.attrs["names"] = json.dumps([y.name for y in config.environment.year])
-    g.attrs["shared"] = bool(config.environment.shared_years)
+    g.attrs["names"] = json.dumps([y.name for y in environment.year])
+    g.attrs["shared"] = bool(environment.shared_years)
     _column(g, "type", np.uint8, (), 4096, data)
 
 

@@ -7,6 +7,7 @@ import logging
 import os
 import shutil
 import socket
+from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -34,14 +35,13 @@ from .layout import (
     parts_dir,
     software_version,
 )
-from .readers import read_attrs
 
 try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
     import fcntl
 except ImportError:  # pragma: no cover
     fcntl = None
 
-__all__ = ["ResultsWriter", "writer_state", "fill_header", "rewrite_header"]
+__all__ = ["ResultsWriter", "ShardTarget", "write_shard", "writer_state", "fill_header", "rewrite_header"]
 
 log = logging.getLogger(__name__)
 
@@ -166,6 +166,7 @@ class ResultsWriter:
             if leftover.name != "lock":
                 leftover.unlink() if leftover.is_file() else shutil.rmtree(leftover)
         self.path.unlink(missing_ok=True)
+        self.path.with_name(self.path.name + ".tmp").unlink(missing_ok=True)
         try:
             durable.write_atomic(self.path, self._write_header)
         except OSError as err:
@@ -176,6 +177,8 @@ class ResultsWriter:
         fill_header(f, self.config, self.points)
 
     def _open_existing(self) -> None:
+        from .readers import read_attrs  # pandas: only where a file is resumed
+
         where = str(self.path)
         try:
             attrs = read_attrs(self.path)
@@ -261,14 +264,31 @@ class ResultsWriter:
 
     def _write_shard(self, results) -> None:
         shard = Shard(results[0].point, results[0].replicate, results[-1].replicate)
+        self._check_overlap(shard)
+        try:
+            write_shard(self.shard_target(shard.point), results)
+        except OSError as err:
+            raise ResultsError(self._write_failure(err)) from None
+        self.shards[(shard.point, shard.first)] = shard
+
+    def _check_overlap(self, shard: Shard) -> None:
         for s in self.shards.values():
             if s.point == shard.point and s.first <= shard.last and shard.first <= s.last:
                 raise ResultsError(f"replicates {shard.first}-{shard.last} of point {shard.point} "
                                    f"overlap shard {s.name}, already written")
-        try:
-            durable.write_atomic(self.parts / shard.name, lambda f: self._fill_shard(f, results))
-        except OSError as err:
-            raise ResultsError(self._write_failure(err)) from None
+
+    def shard_target(self, point: int) -> ShardTarget:
+        """Where and how a batch of sweep point ``point`` is saved: what a worker process needs
+        to write its own shard (``write_shard``), so that this writer only records it."""
+        cache = self.__dict__.setdefault("_targets", {})
+        if point not in cache:
+            cache[point] = ShardTarget(self.parts, self.mode, self.n_alleles, self.n_ages,
+                                       self._point_hash(point), self.config.environment)
+        return cache[point]
+
+    def add_shard(self, shard: Shard) -> None:
+        """Record a shard a worker wrote itself (``write_shard`` with ``shard_target``)."""
+        self._check_overlap(shard)
         self.shards[(shard.point, shard.first)] = shard
 
     def _point_hash(self, point: int) -> str:
@@ -282,37 +302,10 @@ class ResultsWriter:
             cache[point] = config_hash(self.points[point].config)
         return cache[point]
 
-    def _fill_shard(self, f, results) -> None:
-        # a shard from another run (or another point's config) is refused, never merged
-        f.attrs["config_hash"] = self._point_hash(results[0].point)
-        lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
-        starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
-        columns = {
-            "point": [r.point for r in results],
-            "replicate": [r.replicate for r in results],
-            "seed": [r.seed for r in results],
-            "spawn_key": [(r.point, r.replicate) for r in results],
-            "outcome": [r.outcome for r in results],
-            "winner": [r.winner for r in results],
-            "steps": [r.steps for r in results],
-            "fixation_step": [r.fixation_step for r in results],
-            "final_census": [r.final_census for r in results],
-            "trajectory_start": starts,
-            "trajectory_length": lengths,
-        }
-        reps = f.create_group("replicates")
-        for name, (dtype, shape) in REPLICATE_COLUMNS.items():
-            _column(reps, name, dtype, shape, 1024, columns[name])
-        traj = f.create_group("trajectories")
-        counts_shape = _counts_shape(self.mode, self.n_alleles, self.n_ages)
-        steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
-        counts = [r.trajectory if self.mode == "by-allele" else _pad_ages(r.trajectory, self.n_ages)
-                  for r in results]
-        counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
-        _column(traj, "step", np.int32, (), 4096, steps)
-        _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
-        if self.config.environment is not None:
-            _years_group(f, self.config, np.concatenate([r.years for r in results]))
+    def save_error(self, err: OSError) -> ResultsError:
+        """The error to raise when saving a batch failed (``err``, e.g. a full disk), wherever
+        it was saved: what is saved is intact, and how to go on."""
+        return ResultsError(self._write_failure(err))
 
     def _write_failure(self, err: OSError) -> str:
         reason = err.strerror or str(err)
@@ -321,68 +314,47 @@ class ResultsWriter:
                 "(free disk space, permissions) and finish with resume=True")
 
     # -- finishing ------------------------------------------------------------------
+    def merge_ready(self, limit: int | None = None) -> bool:
+        """Append to the merged file up to ``limit`` shards (all, by default) whose predecessors
+        in (point, replicate) order are in; True if any was appended.
+
+        The run calls it while it waits for workers, so the merge goes on with the run and
+        only the last shards are left for ``finalize`` (which merges whatever is left)."""
+        if self.complete:
+            return False
+        merge = self.__dict__.get("_merging")
+        if merge is None:
+            merge = self._merging = _MergedFile(self)
+        try:
+            return merge.advance(self.shards, limit)
+        except OSError as err:  # a full disk: drop the merged file; a later finalize starts it again
+            merge.abandon()
+            self._merging = None
+            raise ResultsError(self._write_failure(err).replace("intact", "intact (as shards)")) from None
+
     def finalize(self) -> bool:
         """Merge every shard into the one results file, if all replicates are in.
 
-        The merged file is built beside the running one and renamed over it,
-        then the shards are removed. Returns True when the file is complete.
+        The merged file is built beside the running one (``NAME.tmp``, filled
+        while the run goes on), made durable and renamed over it, then the
+        shards are removed. Returns True when the file is complete.
         """
         if self.complete:
             self._remove_parts()
             return True
         if self.done < self.expected:
             return False
-        shards = sorted(self.shards.values())
+        self.merge_ready()
         try:
-            durable.write_atomic(self.path, lambda f: self._merge(f, shards), in_memory=False)
+            self._merging.commit()
         except OSError as err:
+            self._merging = None  # abandoned: a later finalize merges again from the shards
             raise ResultsError(self._write_failure(err).replace(
                 "intact", "intact (as shards)")) from None
+        self._merging = None
         self.complete = True
         self._remove_parts()
         return True
-
-    def _merge(self, out, shards) -> None:
-        with h5py.File(self.path, "r") as head:
-            for key, value in head.attrs.items():
-                out.attrs[key] = value
-            head.copy("points", out)
-        out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
-        _empty_tables(out, self.mode, self.n_alleles, self.n_ages)
-        _years_group(out, self.config)
-        reps, traj = out["replicates"], out["trajectories"]
-        buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
-        rows = offset = 0
-
-        def flush():
-            for name in REPLICATE_COLUMNS:
-                if buffer[name]:
-                    _append(reps[name], np.concatenate(buffer[name]))
-            for name in ("step", "counts"):
-                if buffer[name]:
-                    _append(traj[name], np.concatenate(buffer[name]))
-            if buffer[YEARS]:
-                _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
-            for values in buffer.values():
-                values.clear()
-
-        for shard in shards:
-            with h5py.File(self.parts / shard.name, "r") as f:
-                table = {name: f["replicates"][name][:] for name in REPLICATE_COLUMNS}
-                table["trajectory_start"] = table["trajectory_start"] + offset
-                for name, values in table.items():
-                    buffer[name].append(values)
-                buffer["step"].append(f["trajectories"]["step"][:])
-                buffer["counts"].append(f["trajectories"]["counts"][:])
-                if YEARS in f:
-                    buffer[YEARS].append(f[YEARS]["type"][:])
-                offset += f["trajectories"]["step"].shape[0]
-            rows += shard.size
-            if rows >= _MERGE_ROWS or sum(len(c) for c in buffer["step"]) >= _MERGE_RECORDS:
-                flush()
-                rows = 0
-        flush()
-        out.attrs["complete"] = True
 
     def _remove_parts(self) -> None:
         for shard in list_shards(self.parts):
@@ -400,6 +372,9 @@ class ResultsWriter:
 
     def release(self) -> None:
         """Release the lock without merging (after an interruption or a failure)."""
+        merge = self.__dict__.pop("_merging", None)
+        if merge is not None:
+            merge.abandon()
         if self._lock_fd is not None:
             for leftover in self.parts.glob("*.tmp"):
                 leftover.unlink(missing_ok=True)
@@ -413,6 +388,165 @@ class ResultsWriter:
             self.close()
         else:
             self.release()
+
+
+class _MergedFile:
+    """The finished results file under construction, as ``NAME.tmp`` beside the running one.
+
+    Shards are read in canonical order (point, replicate) once every shard
+    before them is in, while the run waits for its workers
+    (``ResultsWriter.merge_ready``), so the merge goes on during the run
+    instead of a second pass over every shard at its end. Rows are buffered
+    (at most ``_MERGE_ROWS`` replicates or ``_MERGE_RECORDS`` census records,
+    so memory stays flat) and appended to the ``.tmp`` file, which is open
+    only while they are written. Until ``commit`` renames it into place
+    nothing reads it: a crash leaves a ``.tmp`` that a resume deletes, and
+    the shards stay until the merged file is in place.
+    """
+
+    def __init__(self, writer: ResultsWriter):
+        self.writer = writer
+        self.tmp = writer.path.with_name(writer.path.name + ".tmp")
+        self.started = False  # the .tmp file holds the header and the rows written so far
+        self.next = (0, 0)  # the (point, first replicate) of the shard needed next
+        self.buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
+        self.rows = self.records = self.offset = 0
+
+    def _header(self, out) -> None:
+        w = self.writer
+        with h5py.File(w.path, "r") as head:
+            for key, value in head.attrs.items():
+                out.attrs[key] = value
+            head.copy("points", out)
+        out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
+        _empty_tables(out, w.mode, w.n_alleles, w.n_ages)
+        _years_group(out, w.config.environment)
+
+    def advance(self, shards: dict, limit: int | None = None) -> bool:
+        """Read up to ``limit`` (default: every) shard that comes next in order (``shards``:
+        (point, first) -> Shard); True if any was read."""
+        w = self.writer
+        appended = 0
+        while (limit is None or appended < limit) and (shard := shards.get(self.next)) is not None:
+            appended += 1
+            self._read(w.parts / shard.name)
+            after = shard.last + 1
+            self.next = (shard.point, after) if after < w.replicates else (shard.point + 1, 0)
+            self.rows += shard.size
+            if self.rows >= _MERGE_ROWS or self.records >= _MERGE_RECORDS:
+                self._write()
+        return appended > 0
+
+    def _read(self, path: Path) -> None:
+        buffer = self.buffer
+        with h5py.File(path, "r") as f:
+            reps, traj = f["replicates"], f["trajectories"]
+            for name in REPLICATE_COLUMNS:
+                buffer[name].append(reps[name][()])
+            buffer["trajectory_start"][-1] = buffer["trajectory_start"][-1] + self.offset
+            steps = traj["step"][()]
+            buffer["step"].append(steps)
+            buffer["counts"].append(traj["counts"][()])
+            if YEARS in f:
+                buffer[YEARS].append(f[YEARS]["type"][()])
+        self.offset += steps.shape[0]
+        self.records += steps.shape[0]
+
+    def _write(self, *, complete: bool = False) -> None:
+        """Append the buffered rows to the ``.tmp`` file (created with the header the first
+        time); with ``complete``, mark it complete."""
+        buffer = self.buffer
+        with durable.h5_write_errors(), h5py.File(self.tmp, "a" if self.started else "w") as out:
+            if not self.started:
+                self._header(out)
+                self.started = True
+            for name in REPLICATE_COLUMNS:
+                if buffer[name]:
+                    _append(out["replicates"][name], np.concatenate(buffer[name]))
+            for name in ("step", "counts"):
+                if buffer[name]:
+                    _append(out["trajectories"][name], np.concatenate(buffer[name]))
+            if buffer[YEARS]:
+                _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
+            for values in buffer.values():
+                values.clear()
+            self.rows = self.records = 0
+            if complete:
+                out.attrs["complete"] = True
+            out.flush()
+
+    def commit(self) -> None:
+        """Every shard is in: mark the file complete, make it durable, rename it into place."""
+        try:
+            self._write(complete=True)
+            durable.commit_file(self.tmp, self.writer.path)
+        except BaseException:
+            self.abandon()
+            raise
+
+    def abandon(self) -> None:
+        """Stop without a file: delete the ``.tmp`` (the shards hold every row)."""
+        self.started = False
+        self.tmp.unlink(missing_ok=True)
+
+
+@dataclass(frozen=True)
+class ShardTarget:
+    """Everything needed to save a batch of one sweep point as a shard, in any process:
+    the shards' folder, the trajectory mode and counts shape of the file, the point's config
+    hash (a shard carries it) and the ``[environment]`` section (None: no years)."""
+
+    parts: Path
+    mode: str
+    n_alleles: int
+    n_ages: int
+    point_hash: str
+    environment: object = None
+
+
+def write_shard(target: ShardTarget, results) -> Shard:
+    """Save finished replicates (one point, consecutive replicates, in order) as a durable shard.
+
+    The shard is written as ``.tmp``, fsynced and renamed into place
+    (``durable.write_atomic``), so it exists whole or not at all; a worker
+    process calls this for its own batch, and the writer only records it.
+    """
+    shard = Shard(results[0].point, results[0].replicate, results[-1].replicate)
+    durable.write_atomic(target.parts / shard.name, lambda f: _fill_shard(f, target, results))
+    return shard
+
+
+def _fill_shard(f, target: ShardTarget, results) -> None:
+    # a shard from another run (or another point's config) is refused, never merged
+    f.attrs["config_hash"] = target.point_hash
+    lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
+    starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
+    columns = {
+        "point": [r.point for r in results],
+        "replicate": [r.replicate for r in results],
+        "seed": [r.seed for r in results],
+        "spawn_key": [(r.point, r.replicate) for r in results],
+        "outcome": [r.outcome for r in results],
+        "winner": [r.winner for r in results],
+        "steps": [r.steps for r in results],
+        "fixation_step": [r.fixation_step for r in results],
+        "final_census": [r.final_census for r in results],
+        "trajectory_start": starts,
+        "trajectory_length": lengths,
+    }
+    reps = f.create_group("replicates")
+    for name, (dtype, shape) in REPLICATE_COLUMNS.items():
+        _column(reps, name, dtype, shape, 1024, columns[name])
+    traj = f.create_group("trajectories")
+    counts_shape = _counts_shape(target.mode, target.n_alleles, target.n_ages)
+    steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
+    counts = [r.trajectory if target.mode == "by-allele" else _pad_ages(r.trajectory, target.n_ages)
+              for r in results]
+    counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
+    _column(traj, "step", np.int32, (), 4096, steps)
+    _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
+    if target.environment is not None:
+        _years_group(f, target.environment, np.concatenate([r.years for r in results]))
 
 
 def _empty_tables(f, mode, n_alleles, n_ages) -> None:
@@ -459,7 +593,7 @@ def fill_header(f, config, points, *, created: str | None = None, extra: dict | 
     if config.trait is not None:  # each allele's effort: turns counts by allele into the trait
         f.attrs["trait_efforts"] = json.dumps(config.efforts())
     _empty_tables(f, mode, len(config.allele_names), n_ages)
-    _years_group(f, config)
+    _years_group(f, config.environment)
     if created is not None:
         f.attrs["created"] = created
     f.attrs.update(extra or {})

@@ -1,0 +1,56 @@
+"""``broodline bench --scaling`` runs a tiny experiment and reports every key; results agree.
+
+No timing is asserted (timings depend on the machine and its load): the test
+checks the report's shape, its arithmetic, and that the results datasets of
+the 1-worker and 2-worker runs hash the same.
+"""
+
+import json
+
+import h5py
+import numpy as np
+import pytest
+
+from analysis.commands import JSON_KEYS
+from sim.bench_scaling import SCALING_KEYS, results_hash
+from sim.cli import main
+
+
+def test_scaling_json_has_every_documented_key_and_identical_results(capsys):
+    # one engine keeps it short: four fresh processes, each with its workers
+    assert main(["bench", "--scaling", "--json", "--replicates", "24", "--workers", "2",
+                 "--engine", "counts"]) == 0
+    records = json.loads(capsys.readouterr().out)
+    assert [(r["engine"], r["workers"]) for r in records] == [("counts", 1), ("counts", 2)]
+    documented = set(JSON_KEYS["bench-scaling"]["[]"])
+    assert documented == set(SCALING_KEYS)
+    for r in records:
+        assert set(r) == documented
+        assert r["kind"] == "scaling" and r["replicates"] == 24
+        assert r["batches"] * r["batch_size"] >= 24 and r["batches"] >= 1
+        assert r["wall_s"] > 0 and r["one_replicate_s"] > 0 and r["total_cpu_s"] > 0
+        assert r["efficiency"] == pytest.approx(r["speedup"] / r["workers"])
+        assert 0 <= r["writer_busy_fraction"] <= 1
+        assert r["identical"] is True
+    one, two = records
+    assert one["speedup"] == 1.0 and one["worker_startup_cpu_s"] is None
+    assert two["worker_startup_cpu_s"] > 0
+    assert one["results_hash"] == two["results_hash"]
+
+
+def test_scaling_refuses_zero_replicates(capsys):
+    assert main(["bench", "--scaling", "--replicates", "0"]) == 2
+    assert "--replicates must be >= 1" in capsys.readouterr().err
+
+
+def test_results_hash_sees_any_changed_value(tmp_path):
+    def write(path, steps):
+        with h5py.File(path, "w") as f:
+            f.attrs["created"] = str(path)  # attributes are not hashed
+            f.create_dataset("replicates/steps", data=np.array(steps, dtype=np.int32))
+            f.create_dataset("replicates/outcome", data=["mutant-lost", "mutant-fixed"],
+                             dtype=h5py.string_dtype())
+        return results_hash(path)
+
+    assert write(tmp_path / "a.h5", [3, 7]) == write(tmp_path / "b.h5", [3, 7])
+    assert write(tmp_path / "c.h5", [3, 8]) != write(tmp_path / "a2.h5", [3, 7])
