@@ -42,7 +42,7 @@ from sim.store import read_attrs, read_point_configs, read_points, read_replicat
 from sim.vocabulary import outcome_name
 
 from .closedform import closed_form
-from .estimates import observed_threshold, wilson_interval
+from .estimates import ObservedThreshold, observed_threshold, wilson_interval
 from .sweep import predict_configs, sweep_thresholds
 
 __all__ = [
@@ -58,6 +58,7 @@ __all__ = [
     "capped_rising",
     "experiment_config",
     "compare",
+    "observed_along",
     "compare_thresholds",
     "compare_text",
 ]
@@ -264,6 +265,10 @@ def capped_rising(path, replicates: pd.DataFrame, mutant: str) -> pd.Series:
 
 
 FINITE_PREDICTION = "finite-N fixation probability (diffusion)"
+FINITE_NOT_VALID = (
+    "side of the neutral expectation (invasion fitness); the finite-N diffusion is not valid "
+    "here, fixation_probability_note says why"
+)
 
 
 def _default_prediction(row: dict):
@@ -279,6 +284,8 @@ def _default_prediction(row: dict):
                                  name="side of the neutral expectation (stochastic invasion fitness)")
         return SideOfNeutral(row["verdict"], row["neutral_expectation"],
                              name="side of the neutral expectation (stochastic invasion fitness)")
+    if np.isfinite(u):  # computed but not valid here (e.g. Beverton-Holt on recruitment): say so
+        return SideOfNeutral(row["verdict"], row["neutral_expectation"], name=FINITE_NOT_VALID)
     return SideOfNeutral(row["verdict"], row["neutral_expectation"])
 
 
@@ -400,6 +407,25 @@ THRESHOLD_COLUMNS = [
 ]
 
 
+def observed_along(res, values, established, counted, neutral, *, level: float = 0.95,
+                   link: str = "logit") -> ObservedThreshold:
+    """The observed threshold of one sweep line as ``compare`` reads it.
+
+    Parameters
+    ----------
+    res : ThresholdResult
+        The analytic threshold along the line (``sweep_thresholds``): its
+        parameter, and the direction fixation rises in, which the fitted slope keeps.
+    values, established, counted, neutral : array-like
+        Per point: the swept value, replicates counted as established and
+        counted (see ``compare``), the neutral expectation.
+    level, link
+        As for ``compare_thresholds``.
+    """
+    return observed_threshold(res.parameter, values, established, counted, neutral,
+                              increasing=res.invades_above, level=level, link=link)
+
+
 def compare_thresholds(path, table: pd.DataFrame | None = None, *, level: float = 0.95,
                        link: str = "logit") -> pd.DataFrame:
     """The observed threshold along each numeric swept parameter beside the analytic one.
@@ -446,16 +472,8 @@ def compare_thresholds(path, table: pd.DataFrame | None = None, *, level: float 
         for k, v in res.at.items():
             sel &= table[k].to_numpy() == v
         sub = table[sel & (table["counted"].to_numpy() > 0)]
-        obs = observed_threshold(
-            res.parameter,
-            sub[res.parameter],
-            sub["established"],
-            sub["counted"],
-            sub["neutral_expectation"],
-            increasing=res.invades_above,
-            level=level,
-            link=link,
-        )
+        obs = observed_along(res, sub[res.parameter], sub["established"], sub["counted"],
+                             sub["neutral_expectation"], level=level, link=link)
         lo = obs.low if np.isfinite(obs.low) else -np.inf
         hi = obs.high if np.isfinite(obs.high) else np.inf
         bounded = np.isfinite(obs.value) or np.isfinite(obs.low) or np.isfinite(obs.high)
@@ -503,6 +521,25 @@ def _at_words(at: dict) -> str:
     return ", ".join(f"{k} = {v:g}" if isinstance(v, float) else f"{k} = {v}" for k, v in at.items())
 
 
+def _point_list(points) -> str:
+    return ("point " if len(points) == 1 else "points ") + ", ".join(str(p) for p in points)
+
+
+def _judged_against(table: pd.DataFrame, *, width: int) -> list[str]:
+    """Which prediction judged which points; why the finite-N one was not used where it was not."""
+    if "prediction" not in table:
+        return []
+    lines = [""]
+    for name, rows in table.groupby("prediction", sort=False):
+        lines += textwrap.wrap(f"judged against the {name}: {_point_list(rows['point'].tolist())}", width=width)
+    if "fixation_probability_note" in table:
+        invalid = table[table["prediction"] == FINITE_NOT_VALID]
+        for note, rows in invalid.groupby("fixation_probability_note", sort=False):
+            lines += textwrap.wrap(f"{_point_list(rows['point'].tolist())}: {note}", width=width,
+                                   initial_indent="  ", subsequent_indent="    ")
+    return lines
+
+
 def compare_text(table: pd.DataFrame, thresholds: pd.DataFrame, *, width: int = 160) -> str:
     """The comparison as printed by ``broodline compare``: table, legend, reasons, thresholds."""
     swept = [c for c in table.columns[1 : table.columns.get_loc("replicates")]]
@@ -516,6 +553,7 @@ def compare_text(table: pd.DataFrame, thresholds: pd.DataFrame, *, width: int = 
         shown[c] = shown[c].map(lambda v: f"{v:g}" if isinstance(v, float) else str(v))
     lines = [shown.to_string(index=False)]
     lines += textwrap.wrap(LEGEND, width=min(width, 100))
+    lines += _judged_against(table, width=min(width, 100))
     notes = table[table["agreement"] != "agrees"]
     if len(notes):
         lines.append("")

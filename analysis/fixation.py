@@ -38,6 +38,13 @@ __all__ = [
 
 WEAK_SELECTION = 0.05  # |s| per season above this: the diffusion is not used (errors of order s)
 _NEGLECTED = 0.1  # 2 V |neglected selection| / sigma^2 above this could move u by ~10%: not valid
+_DOC = "docs/finite-population.md"
+# measured (docs/finite-population.md, section 5): Beverton-Holt on recruitment, K = 100, 400, 1600
+_RECRUITMENT_FINDING = (
+    "simulated at K = 100, 400 and 1600, the fixation curve is flatter than the diffusion "
+    "(from s = -0.5 / K to +1 / K it rises 0.72-0.76 of the diffusion's rise: above it below the "
+    "threshold, below it above), so it is not used as a prediction here"
+)
 _MIN_SIZE = 10.0  # a regulated census below this is too small for a diffusion
 
 
@@ -374,15 +381,18 @@ def _placement_note(config: Config, fluct: DensityFluctuation | None) -> str:
     if fluct is None:
         return (
             f"density factor on {density.acts_on} counted as {density.counted}: its fluctuations "
-            "act unequally on the two schedules, a term not derived here (see the README)"
+            f"act unequally on the two schedules, a term not derived here (see {_DOC})"
         )
     if fluct.selection == 0.0:
         return f"density factor on {density.acts_on} acts on both schedules alike"
-    return (
+    note = (
         f"density factor on {density.acts_on}: its finite-N mean exceeds the mean-field value "
         f"by {fluct.factor_shift:.3g}, a selection term of about {fluct.selection:.3g} per season "
-        "that acts unequally on the schedules and is not in the diffusion (see the README)"
+        f"that acts unequally on the schedules and is not in the diffusion (see {_DOC})"
     )
+    if density.acts_on == "recruitment":
+        note += f"; {_RECRUITMENT_FINDING}"
+    return note
 
 
 def finite_population_prediction(

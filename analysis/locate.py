@@ -12,13 +12,34 @@ The curve is Kimura's (1962) form in a scaled selection S = beta (x - theta)::
 
 with p(x) the neutral expectation of the point, fitted by maximum likelihood
 (binomial counts; a weak prior on ln beta, centred on the diffusion's slope,
-steadies the first stages); theta is the finite-N threshold and its 95%
-interval is the likelihood's profile interval (deviance 3.84, chi-squared with one degree
-of freedom; Venzon & Moolgavkar 1988). The next value is placed at
-theta + z / beta, z cycling over (1.5, -0.5, 0.5, 2.5): where a Kimura curve
-carries most information on theta (about z = 1.5 for small p), with spread
-enough to keep estimating beta. The first value is the diffusion's threshold
-(or the analytic one), and the diffusion's slope seeds beta.
+steadies the first stages' estimates); theta is the finite-N threshold and
+its 95% interval is the likelihood's own profile interval (deviance 3.84,
+chi-squared with one degree of freedom; Venzon & Moolgavkar 1988), beta
+profiled out. The stop rule is checked after every stage: the run stops at
+the first stage whose interval's half-width is at most the tolerance (or
+when the next stage would pass the budget), so smaller stages stop nearer
+the tolerance.
+
+Where the replicates go. A replicate at scaled selection S carries Fisher
+information h(S) = u'(S)^2 / (u (1 - u)) on theta (in units of 1 / beta);
+for small p, h / p is 0.25 at the crossing, largest (0.28) at S = 1.3, and
+0.17 at S = -1.5, 0.25 at S = 3, 0.22 at S = 4, 0.08 at S = -3. With
+beta unknown, the efficient information on theta of points at S_i with
+information a_i is sum a - (sum a S)^2 / sum a S^2: it is lost when the
+points lie on one side of the crossing. And the profile interval stays
+open until the points show the curve's slope (a flat curve through the
+mean fixation fraction fits points at one value, or close together, as well
+as a steep one crossing anywhere), which needs points some units of S
+apart. So the design alternates between the two sides: the first stage at
+theta0 - 1.5 / beta0 (theta0, beta0 the diffusion's threshold and slope;
+the analytic threshold if the diffusion has none), then theta + 3 / beta
+and theta - 1.5 / beta in turn, theta and beta the current fit. Simulated
+with the diffusion's curve (semelparous against iteroparous, K = 200, one
+mutant, half-width 1% of the threshold = 4 units of S, stages of 50), this
+design used a mean of 650 replicates, the earlier cycle (S = 1.5, -0.5,
+0.5, 2.5, three of four points above the crossing) 800, and pairs from
+(-1.5, 3) to (-2, 4) about equally few (docs/finite-population.md,
+section 6); ``broodline locate-bench`` measures it with the engines.
 
 The results file is an ordinary experiment file. Its config is the base
 config with ``[sweep] PARAMETER = [x1, x2, ...]`` (the stages' values, in
@@ -62,7 +83,8 @@ __all__ = [
     "register",
 ]
 
-_Z_CYCLE = (1.5, -0.5, 0.5, 2.5)
+_Z_FIRST = -1.5  # the first stage: below the predicted crossing
+_Z_CYCLE = (3.0, -1.5)  # then above and below the current estimate in turn (module notes)
 _CHI2_95 = 3.841458820694124  # chi-squared(1) 0.95 quantile (scipy.stats.chi2.ppf(0.95, 1))
 
 
@@ -180,7 +202,11 @@ def fit_dose_response(
 
 
 def next_value(fit: DoseResponseFit, stage: int, *, bracket) -> float:
-    """The design's next value: theta + z / beta, z cycling over (1.5, -0.5, 0.5, 2.5), in the bracket."""
+    """The design's next value: theta + z / beta, z = 3 after an even stage, -1.5 after an odd one.
+
+    ``stage`` counts the stages run so far minus one (0 after the first);
+    the value is kept in the bracket.
+    """
     z = _Z_CYCLE[stage % len(_Z_CYCLE)]
     lo, hi = bracket
     return float(np.clip(fit.theta + z / fit.beta, lo, hi))
@@ -395,7 +421,8 @@ def locate(
             if values and fit is None:
                 new_stage = False  # resuming: finish the stored stages first
             else:
-                values.append(theta0 if fit is None else next_value(fit, len(values) - 1, bracket=(lo, hi)))
+                values.append(float(np.clip(theta0 + _Z_FIRST / beta0, lo, hi)) if fit is None
+                              else next_value(fit, len(values) - 1, bracket=(lo, hi)))
                 new_stage = True
             stage_config = _stage_config(base, parameter, values)
             points = sweep_points(stage_config)
@@ -538,6 +565,8 @@ def register(sub) -> None:
     p = sub.add_parser(
         "locate",
         help="find by simulation the parameter value where fixation equals the neutral expectation",
+        description="Each stage runs the config's experiment.replicates replicates at one value; the stop "
+        "rule is checked after every stage, so smaller stages (e.g. 50) stop nearer the tolerance.",
     )
     p.add_argument("config", help="experiment config (TOML) with an [invasion] table")
     p.add_argument("--parameter", required=True, metavar="PATH", help="sweep path of the parameter")

@@ -10,10 +10,16 @@ matplotlib.use("Agg")
 
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
 import pytest  # noqa: E402
 
+from analysis.comparison import (  # noqa: E402
+    FINITE_NOT_VALID,
+    FINITE_PREDICTION,
+    _default_prediction,
+    _judged_against,
+)
 from analysis.finite_plots import draw_finite_curve  # noqa: E402
-from analysis.comparison import FINITE_PREDICTION, _default_prediction  # noqa: E402
 from analysis.fixation import finite_population_prediction  # noqa: E402
 from analysis.thresholds import with_values  # noqa: E402
 from sim.cli import main  # noqa: E402
@@ -48,6 +54,23 @@ def test_agreement_uses_the_finite_prediction_where_valid():
     invalid = row | {"fixation_probability_valid": False}
     side = _default_prediction(invalid)
     assert side.name != FINITE_PREDICTION and side.assess(0.0085, 0.0095)[0] == "disagrees"
+    assert side.name == FINITE_NOT_VALID  # the choice says the finite-N value was set aside
+
+
+def test_recruitment_placement_is_not_valid_and_says_what_simulations_show():
+    # Beverton-Holt on recruitment (DESIGN example, threshold B_s = 4, Mylius & Diekmann 1995):
+    # the density factor's fluctuations act unequally on the schedules; the slow simulations
+    # (docs/finite-population.md, section 5) found the curve flatter than the diffusion
+    f = finite_population_prediction(invasion_config(mutant_fecundity=4.0, capacity=400, mutant_count=60))
+    assert not f.valid
+    assert "flatter than the diffusion" in f.fixation_probability_note
+    assert "docs/finite-population.md" in f.fixation_probability_note
+    table = pd.DataFrame({
+        "point": [0, 1], "prediction": [FINITE_NOT_VALID, FINITE_NOT_VALID],
+        "fixation_probability_note": [f.fixation_probability_note] * 2,
+    })
+    text = "\n".join(_judged_against(table, width=100))
+    assert "points 0, 1" in text and "flatter than the diffusion" in text.replace("\n    ", " ")
 
 
 def test_threshold_json_has_finite_keys_and_sensitivities(tmp_path, capsys):

@@ -47,13 +47,35 @@ def test_profile_interval_covers_the_true_crossing_about_95_percent():
     assert np.median(widths) < 0.05
 
 
-def test_next_value_cycles_around_the_estimate_within_the_bracket():
+def test_next_value_alternates_sides_of_the_estimate_within_the_bracket():
     from analysis.locate import DoseResponseFit
 
     fit = DoseResponseFit(3.0, 20.0, 2.9, 3.1)
-    assert next_value(fit, 0, bracket=(2.7, 3.3)) == pytest.approx(3.0 + 1.5 / 20)
-    assert next_value(fit, 1, bracket=(2.7, 3.3)) == pytest.approx(3.0 - 0.5 / 20)
+    # S = beta (x - theta) = 3 after the first stage (which was below), then -1.5, and so on
+    assert next_value(fit, 0, bracket=(2.7, 3.3)) == pytest.approx(3.0 + 3 / 20)
+    assert next_value(fit, 1, bracket=(2.7, 3.3)) == pytest.approx(3.0 - 1.5 / 20)
+    assert next_value(fit, 2, bracket=(2.7, 3.3)) == pytest.approx(3.0 + 3 / 20)
+    # a mutant that invades below the threshold (beta < 0): the sides swap
+    assert next_value(DoseResponseFit(3.0, -20.0, 2.9, 3.1), 0, bracket=(2.7, 3.3)) == pytest.approx(2.85)
     assert next_value(DoseResponseFit(3.0, 1.0, 2.9, 3.1), 0, bracket=(2.7, 3.3)) == 3.3
+
+
+def test_design_points_carry_the_information_the_notes_give():
+    # Fisher information on theta of one replicate at scaled selection S, per unit of p:
+    # h(S) = u'(S)^2 / (p u (1 - u)) for Kimura's (1962) curve, u'(S) by central differences
+    p, e = 1 / 201, 1e-5
+
+    def h(s):
+        u = kimura_curve(s, p, 0.0, 1.0)
+        du = (kimura_curve(s + e, p, 0.0, 1.0) - kimura_curve(s - e, p, 0.0, 1.0)) / (2 * e)
+        return float(du**2 / (p * u * (1 - u)))
+
+    grid = np.linspace(-4, 8, 1201)
+    values = [h(s) for s in grid]
+    assert grid[int(np.argmax(values))] == pytest.approx(1.3, abs=0.05)
+    assert max(values) == pytest.approx(0.28, abs=0.005)
+    for s, want in ((0, 0.25), (-1.5, 0.17), (3, 0.25), (4, 0.22), (-3, 0.08)):
+        assert h(s) == pytest.approx(want, abs=0.005)
 
 
 def _config(replicates=60):
@@ -83,7 +105,8 @@ def test_locate_stages_are_sweep_points_and_resume_continues_the_same_design(tmp
     assert state.done == 240
     points = read_points(tmp_path / "whole.h5")
     assert points[PARAMETER].tolist() == pytest.approx(whole.stages["value"].tolist())
-    assert whole.stages["value"].iloc[0] == pytest.approx(whole.diffusion)  # starts at the diffusion's value
+    # the first stage lies below the diffusion's threshold (S = -1.5 on its curve), the next above it
+    assert whole.stages["value"].iloc[0] < whole.diffusion < whole.stages["value"].iloc[1]
     assert "locate" in read_attrs(tmp_path / "whole.h5")
     # the same design in two goes: 2 stages, then resumed to 4
     part = tmp_path / "part.h5"
@@ -106,3 +129,21 @@ def test_locate_refuses_bad_requests(tmp_path):
         locate(config, "allele.nobody.fecundity", tmp_path / "x.h5")
     with pytest.raises(ResultsError, match="nothing to resume"):
         locate(config, PARAMETER, tmp_path / "missing.h5", resume=True)
+
+
+def test_grid_first_passage_stops_at_the_first_look_within_the_tolerance():
+    from analysis.locate_bench import grid_first_passage
+
+    fixed = np.zeros((9, 100), bool)
+    fixed[:, ::4] = True  # every 4th replicate fixed
+    looks = []
+
+    def read(values, counted_fixed, counted):
+        looks.append(int(counted[0]))
+        assert np.all(counted_fixed == -(-counted // 4))  # cumulative counts, in replicate order
+        half = 1.0 / math.sqrt(counted[0])  # a half-width narrowing as 1 / sqrt(n)
+        return 3.0, 3.0 - half, 3.0 + half
+
+    got = grid_first_passage(np.linspace(2.7, 3.3, 9), fixed, read, tolerance=0.2, step=10)
+    assert got.replicates == 9 * 30 and looks == [10, 20, 30]  # 1/sqrt(30) = 0.18 <= 0.2 < 1/sqrt(20)
+    assert math.isinf(grid_first_passage(np.linspace(2.7, 3.3, 9), fixed, read, tolerance=0.01, step=10).replicates)
