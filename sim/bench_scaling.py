@@ -203,7 +203,8 @@ def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
     imported, import_cpu = time.perf_counter(), time.process_time()
     timings = RunTimings()
     try:
-        run_experiment(parse_config(raw), out, workers=workers, progress=False, timings=timings)
+        run_experiment(parse_config(raw), out, workers=workers, progress=False, timings=timings,
+                       budget=False)  # (to fixation: max_steps is a bound, not the work)
     except Exception as err:
         conn.send({"error": f"{type(err).__name__}: {err}"})
         conn.close()
