@@ -100,9 +100,9 @@ def test_run_batch_reduces_trajectories_in_the_worker():
 def test_default_batch_size_scales_with_the_census():
     from sim.parallel import default_batch_size
 
-    # About 1e5 individuals a batch, at most 1024 replicates, about four batches per slot.
-    assert default_batch_size(100_000, 1, census_size=200) == 500
-    assert default_batch_size(100_000, 1, census_size=20) == 1024
+    # About 5e5 individuals a batch, at most 1024 replicates, about four batches per slot.
+    assert default_batch_size(100_000, 1, census_size=2000) == 250
+    assert default_batch_size(100_000, 1, census_size=200) == 1024
     assert default_batch_size(100_000, 1, census_size=10**6) == 1
     assert default_batch_size(400, 2, census_size=200) == 50
 
