@@ -534,9 +534,13 @@ def _judged_against(table: pd.DataFrame, *, width: int) -> list[str]:
         lines += textwrap.wrap(f"judged against the {name}: {_point_list(rows['point'].tolist())}", width=width)
     if "fixation_probability_note" in table:
         invalid = table[table["prediction"] == FINITE_NOT_VALID]
-        for note, rows in invalid.groupby("fixation_probability_note", sort=False):
-            lines += textwrap.wrap(f"{_point_list(rows['point'].tolist())}: {note}", width=width,
-                                   initial_indent="  ", subsequent_indent="    ")
+        # notes that differ only in their numbers are said once, with the first point's numbers
+        kinds = invalid["fixation_probability_note"].str.replace(r"\d[\d.e+-]*", "#", regex=True)
+        for _, rows in invalid.groupby(kinds, sort=False):
+            points = rows["point"].tolist()
+            numbers = f" (numbers of point {points[0]}; every point's in --json)" if len(points) > 1 else ""
+            lines += textwrap.wrap(f"{_point_list(points)}{numbers}: {rows['fixation_probability_note'].iloc[0]}",
+                                   width=width, initial_indent="  ", subsequent_indent="    ")
     return lines
 
 
