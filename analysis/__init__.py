@@ -11,7 +11,7 @@ Theory (pure functions of sim's schedules, density objects and configs):
 package stays light.
 """
 
-from importlib import import_module
+from sim.lazy import lazy_exports
 
 # Each name is imported from its module when first used (PEP 562), so that importing the
 # package (e.g. for its command line's parser) does not load scipy.stats and the rest.
@@ -102,13 +102,4 @@ __all__ = [
 ]
 
 
-def __getattr__(name: str):
-    if name not in _WHERE:
-        raise AttributeError(f"module 'analysis' has no attribute {name!r}")
-    value = getattr(import_module(f".{_WHERE[name]}", __name__), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_WHERE))
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE, globals())

@@ -5,7 +5,7 @@ process, which imports ``sim.parallel.work`` and hence this package, pays
 only for the modules a batch needs (not pandas, h5py readers, tqdm or mesa).
 """
 
-from importlib import import_module
+from .lazy import lazy_exports
 
 _WHERE = {
     "Config": "config", "ConfigError": "config", "load_config": "config", "parse_config": "config",
@@ -25,16 +25,7 @@ _WHERE = {
 }
 
 
-def __getattr__(name: str):
-    if name not in _WHERE:
-        raise AttributeError(f"module 'sim' has no attribute {name!r}")
-    value = getattr(import_module(f".{_WHERE[name]}", __name__), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_WHERE))
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE, globals())
 
 __all__ = [
     "Config", "ConfigError", "load_config", "parse_config", "sweep_points",
