@@ -92,14 +92,15 @@ class _Records:
     def add(self, replicates: np.ndarray, season: int, census: np.ndarray) -> None:
         if replicates.size:
             self.replicate.append(replicates)
-            self.step.append(np.full(replicates.size, season, dtype=np.int32))
+            self.step.append(season)  # made into one step per record at the end
             self.census.append(census)
 
     def by_replicate(self, n: int):
         """(steps, censuses) of each replicate 0..n-1, in the order recorded."""
         replicate = np.concatenate(self.replicate)
         order = np.argsort(replicate, kind="stable")
-        steps = np.concatenate(self.step)[order]
+        steps = np.repeat(np.array(self.step, dtype=np.int32),
+                          [block.size for block in self.replicate])[order]
         # a capped replicate's last census may pass what uint32 holds: stored as its ceiling
         census = np.minimum(np.concatenate(self.census)[order], MAX_COUNT).astype(np.uint32)
         bounds = np.searchsorted(replicate[order], np.arange(n + 1))
@@ -215,11 +216,17 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
     active = np.arange(n)
     census = batch.census()
     mutant = mutant_index(config)
-    state, winner = census_states(census.sum(axis=2), mutant)
+    totals = census.sum(axis=2)
+    # a census's state and winner depend only on which alleles are present (``census_states``):
+    # they are worked out again only in a season where that changes
+    present = totals > 0
+    state, winner = census_states(totals, mutant)
     since = np.zeros(n, dtype=np.int64)
     records.add(active, 0, census)
     season = 0
     stop_decided = exp.stop == "fixation"
+    max_population = exp.max_population
+    changed = True  # the states changed since the stop rule last looked at them
 
     def finish(done: np.ndarray, codes, recorded: np.ndarray) -> None:
         ids = active[done]
@@ -230,15 +237,18 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
         records.add(ids[late], season, census[done][late])
 
     while True:
-        decided = (state != _UNDECIDED) if stop_decided else (state == _EXTINCT)
-        if season >= exp.max_steps:
-            decided[:] = True
-        if decided.any():
-            recorded = np.full(int(decided.sum()), season == 0 or season % exp.record_every == 0)
-            finish(decided, state[decided], recorded)
-            keep = ~decided
-            active, state, winner, since, census = (x[keep] for x in (active, state, winner, since, census))
-            batch.keep(keep)
+        if changed or season >= exp.max_steps:
+            changed = False
+            decided = (state != _UNDECIDED) if stop_decided else (state == _EXTINCT)
+            if season >= exp.max_steps:
+                decided[:] = True
+            if decided.any():
+                recorded = np.full(int(decided.sum()), season == 0 or season % exp.record_every == 0)
+                finish(decided, state[decided], recorded)
+                keep = ~decided
+                active, state, winner, since, census, present = (
+                    x[keep] for x in (active, state, winner, since, census, present))
+                batch.keep(keep)
         if active.size == 0:
             break
         batch.step()
@@ -248,11 +258,14 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
                              else batch.years.current)
         census = batch.census()
         totals = census.sum(axis=2)
-        new_state, winner = census_states(totals, mutant)
-        since = np.where(new_state != state, season, since)
-        state = new_state
-        capped = totals.sum(axis=1) > exp.max_population
-        any_capped = capped.any()
+        now_present = totals > 0
+        if now_present.tobytes() != present.tobytes():  # (cheaper than numpy's comparison)
+            new_state, winner = census_states(totals, mutant)
+            since = np.where(new_state != state, season, since)
+            state, present, changed = new_state, now_present, True
+        # no census passes max_population while their sum does not
+        capped = totals.sum(axis=1) > max_population if totals.sum() > max_population else None
+        any_capped = capped is not None and capped.any()
         if season % exp.record_every == 0:
             if any_capped:
                 records.add(active[~capped], season, census[~capped])
@@ -261,7 +274,8 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
         if any_capped:
             finish(capped, _CAPPED, np.zeros(int(capped.sum()), dtype=bool))
             keep = ~capped
-            active, state, winner, since, census = (x[keep] for x in (active, state, winner, since, census))
+            active, state, winner, since, census, present = (
+                x[keep] for x in (active, state, winner, since, census, present))
             batch.keep(keep)
 
     out = []
