@@ -64,7 +64,7 @@ class BevertonHolt:
     capacity: float
 
     def factor(self, d):
-        return 1.0 / (1.0 + np.asarray(d, dtype=float) / self.capacity)
+        return 1.0 / (1.0 + d / self.capacity)
 
 
 @dataclass(frozen=True)
@@ -74,7 +74,7 @@ class Ricker:
     capacity: float
 
     def factor(self, d):
-        return np.exp(-np.asarray(d, dtype=float) / self.capacity)
+        return np.exp(-d / self.capacity)
 
 
 @dataclass(frozen=True)
@@ -155,5 +155,7 @@ class DensityDependence:
         The one place a density factor is computed; engines and theory reach
         it through ``sim.kernel.SeasonKernel.factors``.
         """
+        if not isinstance(d, float | np.ndarray):  # (numpy's float64 is a float)
+            d = np.asarray(d, dtype=float)
         f = self.form.factor(d)
-        return self.placed(float(f) if np.ndim(f) == 0 else f)
+        return self.placed(f if type(f) is np.ndarray and f.ndim else float(f))

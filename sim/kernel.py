@@ -115,6 +115,7 @@ class SeasonKernel:
         self.aged = self.allele_of * n_ages + np.minimum(ages + 1, n_ages - 1)
         self.first = np.arange(n_alleles) * n_ages
         self.weights = density.index_weights(M).ravel().astype(float)
+        self._whole_weights = bool(np.all(self.weights == np.round(self.weights)))
         self.counted_after_breeding = density.counted_after_breeding
         self.ceiling = None if density.ceiling is None else int(density.ceiling)
         self.ceiling_on_recruits = density.acts_on == "recruitment"
@@ -154,6 +155,10 @@ class SeasonKernel:
         census = np.asarray(census)
         if census.shape[-1] != self.n_classes:
             census = census.reshape(*census.shape[:-2], self.n_classes)
+        if census.dtype.kind in "iu" and self._whole_weights:
+            # counts and whole weights: every partial sum is a whole number, exact in any order,
+            # and ``dot`` skips ``@``'s conversion machinery (the engines' every season)
+            return census.dot(self.weights)
         return census @ self.weights
 
     def factors(self, d) -> Factors:
@@ -165,7 +170,9 @@ class SeasonKernel:
         if d.ndim == 0:
             return self.density.factors(d)
         n = d.shape[0]
-        fecundity, adult, recruitment = self.density.factors(d)
+        # a batch of one: worked out on its number (numpy's scalar arithmetic rounds as its
+        # arrays do, without an array operation's overhead)
+        fecundity, adult, recruitment = self.density.factors(d[0] if n == 1 else d)
         return Factors(self._per_replicate(fecundity, n), self._per_replicate(adult, n),
                        self._per_replicate(recruitment, n))
 
@@ -175,7 +182,9 @@ class SeasonKernel:
         array of ones, kept while the batch has ``n`` replicates."""
         if type(x) is np.ndarray and x.dtype == np.float64 and x.shape == (n,) and x.flags.c_contiguous:
             return x
-        if type(x) is float and x == 1.0:
+        if type(x) is float:
+            if x != 1.0:
+                return np.array((x,)) if n == 1 else np.full(n, x)
             if self._ones.size != n:
                 self._ones = np.ones(n)
                 self._ones.flags.writeable = False
