@@ -25,8 +25,14 @@ from llvmlite import ir
 from numba import njit, types
 from numba.extending import intrinsic
 
-__all__ = ["bitgen_addresses", "poisson", "binomial", "survive", "survive_counts",
+__all__ = ["DRAW_LIMIT", "bitgen_addresses", "poisson", "binomial", "survive", "survive_counts",
            "next_census"]
+
+# The largest expected number a class's births or recruits are drawn with. A season can
+# overshoot a population by a factor of the fecundity (1e12, 1e300...); such a replicate ends
+# capped (its census passes max_population <= 2**32 - 1) whatever it drew beyond this, and
+# numpy's draws fail, or overflow int64, far above it.
+DRAW_LIMIT = 1e12
 
 _capsule_pointer = ctypes.pythonapi.PyCapsule_GetPointer
 _capsule_pointer.restype = ctypes.c_void_p
@@ -193,7 +199,8 @@ def binomial(bitgen, n, p):
 def survive_counts(counts, bitgens, survival, factor, aged, out, recruit_means, recruits):
     """Survivors of every replicate's classes, binomial, moved to their next class in ``out``
     (zeros, the shape of ``counts``); then, where ``recruit_means`` has columns, each
-    replicate's recruits of each allele, Poisson with that mean, into ``recruits``."""
+    replicate's recruits of each allele, Poisson with that mean (at most ``DRAW_LIMIT``), into
+    ``recruits``."""
     for r in range(counts.shape[0]):
         g = bitgens[r]
         f = factor[r]
@@ -202,7 +209,7 @@ def survive_counts(counts, bitgens, survival, factor, aged, out, recruit_means, 
             if n > 0 and survival[c] > 0.0:
                 out[r, aged[c]] += binomial(g, n, survival[c] * f)
         for allele in range(recruit_means.shape[1]):
-            recruits[r, allele] = poisson(g, recruit_means[r, allele])
+            recruits[r, allele] = poisson(g, min(recruit_means[r, allele], DRAW_LIMIT))
 
 
 @_compiled
@@ -235,7 +242,7 @@ def survive(cell, slice_sizes, drawn, bitgens, survival, factor, aged, out, surv
         Receives each replicate's survivors by their new class.
     recruit_means, recruits : ndarray, (drawn slices, alleles) float64 and int64
         Where ``recruit_means`` has columns, each replicate then draws its
-        recruits of each allele, Poisson with that mean, into ``recruits``
+        recruits of each allele, Poisson with that mean (at most ``DRAW_LIMIT``), into ``recruits``
         (shape (drawn slices, 0): no recruits drawn here).
 
     Individual i of a replicate survives when its uniform u_i < survival[c] *
@@ -262,7 +269,7 @@ def survive(cell, slice_sizes, drawn, bitgens, survival, factor, aged, out, surv
             i += 1
         survivors[r] = n - start
         for allele in range(recruit_means.shape[1]):
-            recruits[r, allele] = poisson(g, recruit_means[r, allele])
+            recruits[r, allele] = poisson(g, min(recruit_means[r, allele], DRAW_LIMIT))
         r += 1
     return n
 

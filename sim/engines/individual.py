@@ -46,6 +46,7 @@ class IndividualPopulations(ReplicateBatch):
         self.cell = np.repeat(classes, counts.ravel())
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
         self._drawn = np.ones(0, dtype=bool)
+        self._work = None  # ``_season_work``
         # max_population as an int64 the compiled pass compares with (none: never passed)
         self._limit = np.iinfo(np.int64).max if np.isinf(self.limit) else int(self.limit)
 
@@ -88,10 +89,9 @@ class IndividualPopulations(ReplicateBatch):
         # with parental effects the pass keeps each survivor's parent class (young depend on it)
         aged = self._stay if kernel.parental else self._aged
         survived = np.empty(self.cell.size, dtype=self._dtype)
-        survivors = np.empty(n_reps, dtype=np.int64)
         by_class = np.zeros((n_reps, kernel.n_classes), dtype=np.int64)
         means = self.recruit_means(f)
-        recruits = np.empty(means.shape, dtype=np.int64)
+        survivors, recruits, over = self._season_work(n_reps, means.shape[1])
         total = compiled.survive(self.cell, slice_sizes, drawn, self.bitgens, kernel.survival,
                                  f.adult, aged, survived, survivors, by_class, means, recruits)
         if kernel.parental:
@@ -102,7 +102,6 @@ class IndividualPopulations(ReplicateBatch):
         # 5. next census: survivors, then recruits at age 1 (a replicate past the limit keeps
         # its counts, the run stops it as capped, but not its recruits' cells); the kernel's removals
         sizes, born = np.empty(n_reps, dtype=np.int64), np.empty(n_reps, dtype=np.int64)
-        over = np.empty(n_reps, dtype=bool)
         cell = compiled.next_census(survived, survivors, recruits, self._first, self._limit,
                                     by_class, sizes, born, over)
         if kernel.removes:
@@ -119,6 +118,16 @@ class IndividualPopulations(ReplicateBatch):
         if self._drawn.size != n_reps:
             self._drawn = np.ones(n_reps, dtype=bool)
         return self._drawn
+
+    def _season_work(self, n_reps: int, n_drawn: int):
+        """Arrays a season fills and reads within itself (survivors and recruits by replicate,
+        whether it passed the limit): kept from season to season while the batch's size holds."""
+        work = self._work
+        if work is None or work[0].size != n_reps or work[1].shape[1] != n_drawn:
+            work = self._work = (np.empty(n_reps, dtype=np.int64),
+                                 np.empty((n_reps, n_drawn), dtype=np.int64),
+                                 np.empty(n_reps, dtype=bool))
+        return work
 
     def _remove(self, cell, sizes, excess, pool):
         """Remove ``excess`` random individuals of each replicate from the last ``pool`` of its

@@ -30,14 +30,10 @@ from ..density import Factors
 from ..lifecycle import LifeCycle
 from ..offspring import Poisson
 from . import compiled
+from .compiled import DRAW_LIMIT
 
 __all__ = ["ReplicateBatch", "OneReplicate", "DRAW_LIMIT"]
 
-# The largest expected number a class's births or recruits are drawn with. A season can
-# overshoot a population by a factor of the fecundity (1e12, 1e300...); such a replicate ends
-# capped (its census passes max_population <= 2**32 - 1) whatever it drew beyond this, and
-# numpy's draws fail, or overflow int64, far above it.
-DRAW_LIMIT = 1e12
 
 
 class ReplicateBatch:
@@ -136,11 +132,11 @@ class ReplicateBatch:
 
     # -- step 4: recruits ----------------------------------------------------------------
     def recruit_means(self, f: Factors) -> np.ndarray:
-        """What a compiled pass takes for recruits: their means by (replicate, allele);
-        (n_replicates, 0) where the pass draws none (``recruits_in_pass`` false:
-        ``recruits_after_pass`` draws them)."""
+        """What a compiled pass takes for recruits: their means by (replicate, allele) (the
+        pass draws at most ``DRAW_LIMIT``); (n_replicates, 0) where the pass draws none
+        (``recruits_in_pass`` false: ``recruits_after_pass`` draws them)."""
         if self.recruits_in_pass:
-            return np.minimum(self.kernel.expected_recruits(self.counts, f), DRAW_LIMIT)
+            return self.kernel.expected_recruits(self.counts, f)
         return np.empty((self.counts.shape[0], 0))
 
     def recruits_after_pass(self, drawn: np.ndarray, births, f: Factors) -> np.ndarray:
