@@ -42,6 +42,8 @@ from .offspring import Poisson
 
 __all__ = ["SeasonKernel", "SeasonRates"]
 
+_KNOWN_FACTORS = 4096  # values of D whose factors a kernel remembers for a batch of one
+
 
 @dataclass(frozen=True)
 class SeasonRates:
@@ -131,6 +133,7 @@ class SeasonKernel:
         self._all_breed = breeding.size == self.n_classes
         self._terms_are_means = self._breeding_allele.tolist() == list(range(n_alleles))
         self._ones = np.ones(0)  # factors that do not act, one per replicate (``factors``)
+        self._known_factors = {}  # D -> a batch of one's factors (``_one_replicate_factors``)
         self.care = care
         self.parental = care is not None
         self.orphan = self.juvenile if care is None else np.repeat(care.orphan, n_ages)
@@ -170,11 +173,29 @@ class SeasonKernel:
         if d.ndim == 0:
             return self.density.factors(d)
         n = d.shape[0]
-        # a batch of one: worked out on its number (numpy's scalar arithmetic rounds as its
-        # arrays do, without an array operation's overhead)
-        fecundity, adult, recruitment = self.density.factors(d[0] if n == 1 else d)
+        if n == 1:
+            return self._one_replicate_factors(d[0])
+        fecundity, adult, recruitment = self.density.factors(d)
         return Factors(self._per_replicate(fecundity, n), self._per_replicate(adult, n),
                        self._per_replicate(recruitment, n))
+
+    def _one_replicate_factors(self, d) -> Factors:
+        """``factors`` of a batch of one at index ``d`` (a number), remembered by ``d``.
+
+        A long run of a small population meets the same few hundred values of
+        D season after season; worked out once each (on the number: numpy's
+        scalar arithmetic rounds as its arrays do), they cost a look-up after.
+        The arrays are read-only, as they are shared by the seasons that meet ``d``.
+        """
+        known = self._known_factors.get(d)
+        if known is None:
+            if len(self._known_factors) >= _KNOWN_FACTORS:
+                self._known_factors.clear()
+            known = Factors(*(self._per_replicate(x, 1) for x in self.density.factors(d)))
+            for x in known:
+                x.flags.writeable = False
+            self._known_factors[d] = known
+        return known
 
     def _per_replicate(self, x, n: int) -> np.ndarray:
         """``x`` (a number, or one value per replicate) as a contiguous float array of ``n``

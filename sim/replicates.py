@@ -218,14 +218,15 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
     mutant = mutant_index(config)
     totals = census.sum(axis=2)
     # a census's state and winner depend only on which alleles are present (``census_states``):
-    # they are worked out again only in a season where that changes
-    present = totals > 0
+    # worked out again only in a season where that changes, looked for only in a season where
+    # the classes with anyone in them (``occupied``) change
+    occupied, present = census.astype(bool), totals > 0
     state, winner = census_states(totals, mutant)
     since = np.zeros(n, dtype=np.int64)
     records.add(active, 0, census)
     season = 0
     stop_decided = exp.stop == "fixation"
-    max_population = exp.max_population
+    max_steps, max_population, record_every = exp.max_steps, exp.max_population, exp.record_every
     changed = True  # the states changed since the stop rule last looked at them
 
     def finish(done: np.ndarray, codes, recorded: np.ndarray) -> None:
@@ -237,17 +238,17 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
         records.add(ids[late], season, census[done][late])
 
     while True:
-        if changed or season >= exp.max_steps:
+        if changed or season >= max_steps:
             changed = False
             decided = (state != _UNDECIDED) if stop_decided else (state == _EXTINCT)
-            if season >= exp.max_steps:
+            if season >= max_steps:
                 decided[:] = True
             if decided.any():
-                recorded = np.full(int(decided.sum()), season == 0 or season % exp.record_every == 0)
+                recorded = np.full(int(decided.sum()), season == 0 or season % record_every == 0)
                 finish(decided, state[decided], recorded)
                 keep = ~decided
-                active, state, winner, since, census, present = (
-                    x[keep] for x in (active, state, winner, since, census, present))
+                active, state, winner, since, census, occupied, present = (
+                    x[keep] for x in (active, state, winner, since, census, occupied, present))
                 batch.keep(keep)
         if active.size == 0:
             break
@@ -257,25 +258,31 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
             year_records.add(active, batch.year_now if isinstance(batch, _Models)
                              else batch.years.current)
         census = batch.census()
-        totals = census.sum(axis=2)
-        now_present = totals > 0
-        if now_present.tobytes() != present.tobytes():  # (cheaper than numpy's comparison)
-            new_state, winner = census_states(totals, mutant)
-            since = np.where(new_state != state, season, since)
-            state, present, changed = new_state, now_present, True
+        now_occupied = census.astype(bool)
+        if now_occupied.tobytes() != occupied.tobytes():  # (cheaper than numpy's comparison)
+            occupied = now_occupied
+            totals = census.sum(axis=2)
+            now_present = totals > 0
+            if now_present.tobytes() != present.tobytes():
+                new_state, winner = census_states(totals, mutant)
+                since = np.where(new_state != state, season, since)
+                state, present, changed = new_state, now_present, True
         # no census passes max_population while their sum does not
-        capped = totals.sum(axis=1) > max_population if totals.sum() > max_population else None
-        any_capped = capped is not None and capped.any()
-        if season % exp.record_every == 0:
-            if any_capped:
+        capped = None
+        if census.sum() > max_population:
+            capped = census.sum(axis=(1, 2)) > max_population
+            if not capped.any():
+                capped = None
+        if season % record_every == 0:
+            if capped is not None:
                 records.add(active[~capped], season, census[~capped])
             else:
                 records.add(active, season, census)
-        if any_capped:
+        if capped is not None:
             finish(capped, _CAPPED, np.zeros(int(capped.sum()), dtype=bool))
             keep = ~capped
-            active, state, winner, since, census, present = (
-                x[keep] for x in (active, state, winner, since, census, present))
+            active, state, winner, since, census, occupied, present = (
+                x[keep] for x in (active, state, winner, since, census, occupied, present))
             batch.keep(keep)
 
     out = []

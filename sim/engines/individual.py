@@ -47,6 +47,10 @@ class IndividualPopulations(ReplicateBatch):
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
         self._drawn = np.ones(0, dtype=bool)
         self._work = None  # ``_season_work``
+        # the pass's recruits go into the census as drawn (``recruits_after_pass`` would return
+        # them unchanged): survival and the next census are one compiled call
+        self._recruits_as_drawn = (self.recruits_in_pass and self._mutation is None
+                                   and not kernel.parental)
         # max_population as an int64 the compiled pass compares with (none: never passed)
         self._limit = np.iinfo(np.int64).max if np.isinf(self.limit) else int(self.limit)
 
@@ -88,22 +92,28 @@ class IndividualPopulations(ReplicateBatch):
             (slice_sizes, drawn), self._segments = self._segments, None
         # with parental effects the pass keeps each survivor's parent class (young depend on it)
         aged = self._stay if kernel.parental else self._aged
-        survived = np.empty(self.cell.size, dtype=self._dtype)
         by_class = np.zeros((n_reps, kernel.n_classes), dtype=np.int64)
         means = self.recruit_means(f)
         survivors, recruits, over = self._season_work(n_reps, means.shape[1])
-        total = compiled.survive(self.cell, slice_sizes, drawn, self.bitgens, kernel.survival,
-                                 f.adult, aged, survived, survivors, by_class, means, recruits)
-        if kernel.parental:
-            recruits = self.parental_recruits(by_class, f)
-            survived, by_class = self._aged[survived[:total]], self.aged_counts(by_class)
-        else:
-            recruits = self.recruits_after_pass(recruits, births, f)
         # 5. next census: survivors, then recruits at age 1 (a replicate past the limit keeps
         # its counts, the run stops it as capped, but not its recruits' cells); the kernel's removals
         sizes, born = np.empty(n_reps, dtype=np.int64), np.empty(n_reps, dtype=np.int64)
-        cell = compiled.next_census(survived, survivors, recruits, self._first, self._limit,
-                                    by_class, sizes, born, over)
+        if self._recruits_as_drawn:  # the two passes in one call
+            cell = compiled.survive_to_census(self.cell, slice_sizes, drawn, self.bitgens,
+                                              kernel.survival, f.adult, aged, survivors, by_class,
+                                              means, recruits, self._first, self._limit, sizes,
+                                              born, over)
+        else:
+            survived = np.empty(self.cell.size, dtype=self._dtype)
+            total = compiled.survive(self.cell, slice_sizes, drawn, self.bitgens, kernel.survival,
+                                     f.adult, aged, survived, survivors, by_class, means, recruits)
+            if kernel.parental:
+                recruits = self.parental_recruits(by_class, f)
+                survived, by_class = self._aged[survived[:total]], self.aged_counts(by_class)
+            else:
+                recruits = self.recruits_after_pass(recruits, births, f)
+            cell = compiled.next_census(survived, survivors, recruits, self._first, self._limit,
+                                        by_class, sizes, born, over)
         if kernel.removes:
             excess, pool = kernel.ceiling_excess(survivors, born)
             excess = np.where(over, 0, excess)
