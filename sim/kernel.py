@@ -134,6 +134,7 @@ class SeasonKernel:
         self._terms_are_means = self._breeding_allele.tolist() == list(range(n_alleles))
         self._ones = np.ones(0)  # factors that do not act, one per replicate (``factors``)
         self._known_factors = {}  # D -> a batch of one's factors (``_one_replicate_factors``)
+        self._known_rates = {}  # id of known factors -> (them, their ``_breeding_rates``)
         self.care = care
         self.parental = care is not None
         self.orphan = self.juvenile if care is None else np.repeat(care.orphan, n_ages)
@@ -191,11 +192,19 @@ class SeasonKernel:
         if known is None:
             if len(self._known_factors) >= _KNOWN_FACTORS:
                 self._known_factors.clear()
+                self._known_rates.clear()
             known = Factors(*(self._per_replicate(x, 1) for x in self.density.factors(d)))
             for x in known:
                 x.flags.writeable = False
             self._known_factors[d] = known
+            # and what ``expected_recruits`` makes of them (held with them: their id is theirs)
+            self._known_rates[id(known)] = (known, self._breeding_rates(known))
         return known
+
+    def _breeding_rates(self, factors: Factors) -> tuple[np.ndarray, np.ndarray]:
+        """m f_fec and c f_rec of the breeding classes, (..., breeding classes)."""
+        return (self._times(self._breeding_m, factors.fecundity),
+                self._times(self._breeding_c, factors.recruitment))
 
     def _per_replicate(self, x, n: int) -> np.ndarray:
         """``x`` (a number, or one value per replicate) as a contiguous float array of ``n``
@@ -319,8 +328,10 @@ class SeasonKernel:
         # n m f_fec c f_rec of every breeding class at once, (replicate, breeding class); each
         # entry is the product ((n (m f_fec)) (c f_rec)), the rounding of every version since 0.1
         breeders = counts if self._all_breed else counts[:, self._breeding]
-        terms = (breeders * self._times(self._breeding_m, factors.fecundity)
-                 * self._times(self._breeding_c, factors.recruitment))
+        known = self._known_rates.get(id(factors))
+        fecundity, recruitment = (known[1] if known is not None and known[0] is factors
+                                  else self._breeding_rates(factors))
+        terms = breeders * fecundity * recruitment
         if self._terms_are_means:  # allele a's one breeding class is column a
             return terms
         mean = np.zeros((counts.shape[0], self.n_alleles))
