@@ -114,12 +114,15 @@ def test_next_census_puts_recruits_after_each_replicates_survivors():
     first = np.array([0, 5], dtype=np.uint8)
     by_class = np.zeros((4, 6), dtype=np.int64)
     sizes, born, over = np.empty(4, np.int64), np.empty(4, np.int64), np.empty(4, bool)
+    weights, index = np.array([1.0, 0.0, 0.0, 0.0, 0.0, 1.0]), np.empty(4)
     # the last replicate passes the limit (1 + 4 > 4): its recruits are counted, not built
-    cell = compiled.next_census(survived, survivors, recruits, first, 4, by_class, sizes, born, over)
+    cell = compiled.next_census(survived, survivors, recruits, first, 4, by_class, sizes, born, over,
+                                weights, index)
     assert list(cell) == [3, 3, 0, 5, 5, 4, 1, 0, 5, 2]
     assert list(sizes) == [3, 2, 4, 1] and list(born) == [1, 2, 2, 4]
     assert list(over) == [False, False, False, True]
     assert list(by_class[:, 0]) == [1, 0, 1, 4] and list(by_class[:, 5]) == [0, 2, 1, 0]
+    assert list(index) == [1.0, 2.0, 2.0, 4.0]  # the census's D with these weights: classes 0 and 5
 
 
 def test_engine_works_where_numba_finds_no_cache_directory():

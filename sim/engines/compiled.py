@@ -275,7 +275,8 @@ def survive(cell, slice_sizes, drawn, bitgens, survival, factor, aged, out, surv
 
 
 @_compiled
-def next_census(survived, survivors, recruits, first, limit, by_class, sizes, born, over):
+def next_census(survived, survivors, recruits, first, limit, by_class, sizes, born, over, weights,
+                index):
     """The next census of a batch (the ``individual`` engine's cells), and what it holds.
 
     Per replicate: its survivors (consecutive by replicate in ``survived``),
@@ -284,7 +285,9 @@ def next_census(survived, survivors, recruits, first, limit, by_class, sizes, bo
     ``limit`` keeps its recruits in ``by_class`` but gets no cells for them
     (the run stops it as capped: an exploding population never sizes the array).
     Each replicate's number of cells, its recruits, and whether it passed
-    ``limit`` are written into ``sizes``, ``born`` and ``over``.
+    ``limit`` are written into ``sizes``, ``born`` and ``over``; its census's
+    density index, sum over classes of ``by_class`` x ``weights`` (the kernel's
+    ``density_index``: exact for whole weights, as the census's are), into ``index``.
 
     Returns
     -------
@@ -301,6 +304,10 @@ def next_census(survived, survivors, recruits, first, limit, by_class, sizes, bo
         over[r] = survivors[r] + born[r] > limit
         sizes[r] = survivors[r] + (0 if over[r] else born[r])
         total += sizes[r]
+        d = 0.0
+        for c in range(weights.size):
+            d += by_class[r, c] * weights[c]
+        index[r] = d
     cell = np.empty(total, survived.dtype)
     i = 0
     n = 0
@@ -320,7 +327,8 @@ def next_census(survived, survivors, recruits, first, limit, by_class, sizes, bo
 
 @_compiled
 def survive_to_census(cell, slice_sizes, drawn, bitgens, survival, factor, aged, survivors,
-                      by_class, recruit_means, recruits, first, limit, sizes, born, over):
+                      by_class, recruit_means, recruits, first, limit, sizes, born, over, weights,
+                      index):
     """``survive`` then ``next_census`` in one call, where the recruits the pass draws go into
     the census as drawn; the arguments are theirs (the survivors' cells are the pass's own).
 
@@ -330,4 +338,5 @@ def survive_to_census(cell, slice_sizes, drawn, bitgens, survival, factor, aged,
     survived = np.empty(cell.size, cell.dtype)
     survive(cell, slice_sizes, drawn, bitgens, survival, factor, aged, survived, survivors,
             by_class, recruit_means, recruits)
-    return next_census(survived, survivors, recruits, first, limit, by_class, sizes, born, over)
+    return next_census(survived, survivors, recruits, first, limit, by_class, sizes, born, over,
+                       weights, index)

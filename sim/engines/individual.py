@@ -47,6 +47,7 @@ class IndividualPopulations(ReplicateBatch):
         self._segments = None  # (slice sizes, kept) while left replicates' individuals remain
         self._drawn = np.ones(0, dtype=bool)
         self._work = None  # ``_season_work``
+        self._index = kernel.density_index(counts)  # D at the census (``census_index``)
         # the pass's recruits go into the census as drawn (``recruits_after_pass`` would return
         # them unchanged): survival and the next census are one compiled call
         self._recruits_as_drawn = (self.recruits_in_pass and self._mutation is None
@@ -73,7 +74,7 @@ class IndividualPopulations(ReplicateBatch):
             kept = self._segments[1].copy()
             kept[kept] = which
             self._segments = (self._segments[0], kept)
-        self.sizes = self.sizes[which]
+        self.sizes, self._index = self.sizes[which], self._index[which]
         super().keep(which)
 
     def step(self) -> None:
@@ -98,11 +99,12 @@ class IndividualPopulations(ReplicateBatch):
         # 5. next census: survivors, then recruits at age 1 (a replicate past the limit keeps
         # its counts, the run stops it as capped, but not its recruits' cells); the kernel's removals
         sizes, born = np.empty(n_reps, dtype=np.int64), np.empty(n_reps, dtype=np.int64)
+        index = np.empty(n_reps)
         if self._recruits_as_drawn:  # the two passes in one call
             cell = compiled.survive_to_census(self.cell, slice_sizes, drawn, self.bitgens,
                                               kernel.survival, f.adult, aged, survivors, by_class,
                                               means, recruits, self._first, self._limit, sizes,
-                                              born, over)
+                                              born, over, kernel.weights, index)
         else:
             survived = np.empty(self.cell.size, dtype=self._dtype)
             total = compiled.survive(self.cell, slice_sizes, drawn, self.bitgens, kernel.survival,
@@ -113,7 +115,7 @@ class IndividualPopulations(ReplicateBatch):
             else:
                 recruits = self.recruits_after_pass(recruits, births, f)
             cell = compiled.next_census(survived, survivors, recruits, self._first, self._limit,
-                                        by_class, sizes, born, over)
+                                        by_class, sizes, born, over, kernel.weights, index)
         if kernel.removes:
             excess, pool = kernel.ceiling_excess(survivors, born)
             excess = np.where(over, 0, excess)
@@ -121,7 +123,14 @@ class IndividualPopulations(ReplicateBatch):
                 cell, removed = self._remove(cell, sizes, excess, pool)
                 by_class -= removed
                 sizes = sizes - removed.sum(axis=1)
+                index = kernel.density_index(by_class)
         self.cell, self.counts, self.sizes, self.recruits = cell, by_class, sizes, born
+        self._index = index
+
+    def census_index(self) -> np.ndarray:
+        """Each replicate's density index D at its census: the pass's, taken as it built the
+        census (the same sum as ``SeasonKernel.density_index``)."""
+        return self._index
 
     def _all_drawn(self, n_reps: int) -> np.ndarray:
         """Every slice drawn (no replicate has left since the last season); kept, not rebuilt."""

@@ -85,6 +85,10 @@ class ReplicateBatch:
         """Counts by (replicate, allele, age index)."""
         return self.counts.reshape(-1, self.kernel.n_alleles, self.kernel.n_ages).copy()
 
+    def census_index(self) -> np.ndarray:
+        """Each replicate's density index D at its census (``SeasonKernel.density_index``)."""
+        return self.kernel.density_index(self.counts)
+
     def keep(self, which) -> None:
         """Keep only the replicates where ``which`` (bool, one per replicate) is true."""
         which = np.asarray(which, dtype=bool)
@@ -103,7 +107,7 @@ class ReplicateBatch:
         kernel, counts = self.kernel, self.counts
         year = None if self.years is None else self.years.advance()
         if not kernel.counted_after_breeding:
-            return None, kernel.multipliers(kernel.census_factors(counts, len(counts)), year=year)
+            return None, kernel.multipliers(kernel.factors(self.census_index()), year=year)
         births = self.births(None if year is None else year[:, 0])
         return births, kernel.multipliers(kernel.birth_factors(births.sum(axis=1).astype(float)),
                                           year=year)
