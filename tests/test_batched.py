@@ -117,6 +117,14 @@ CONFIGS = {
     "many-ages-two-byte-classes": {  # 3 alleles x 100 ages: more classes than one byte holds
         "allele": [RESIDENT, MUTANT, dict(LATE, maturity_age=100, adult_survival=0.97)],
         "invasion": None, "experiment": {"stop": "max-steps", "max_steps": 15, "record_every": 7}},
+    "care-poisson": {  # parental effects: recruits drawn after the pass, by brood and fate
+        "allele": [dict(RESIDENT, fecundity=3.0, orphan_survival=0.2, brood_effect="exponential",
+                        brood_scale=8.0),
+                   dict(MUTANT, orphan_survival=0.3)]},
+    "two-year-types": {
+        "environment": {"switching": "iid", "year": [
+            {"name": "good", "probability": 0.5, "juvenile_survival": 1.5},
+            {"name": "bad", "probability": 0.5, "juvenile_survival": 0.5, "fecundity": 0.8}]}},
     "no-density-capped": {
         "density": {"form": "none"}, "invasion": {"resident": "perennial", "mutant": "one-shot",
                                                   "mutant_count": 2, "resident_count": 20},

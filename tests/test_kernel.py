@@ -56,6 +56,28 @@ def test_rates_are_the_schedules_times_the_placed_factor():
     np.testing.assert_array_equal(batch.survival, [0.5 * S.ravel(), S.ravel()])
 
 
+@pytest.mark.parametrize("form, acts_on, counted", [
+    ("beverton-holt", "recruitment", "census"), ("ricker", "fecundity", "breeders"),
+    ("beverton-holt", "all-survival", "census"), ("ricker", "adult-survival", "census"),
+    ("none", "recruitment", "census"), ("ceiling", "all-survival", "census")])
+def test_a_batch_of_ones_factors_are_the_batchs(form, acts_on, counted):
+    # a batch of one takes its factors on its number, remembered by D: bit for bit what the
+    # same replicate gets in a batch of several (numpy's scalar and array arithmetic round alike)
+    kernel = _kernel(DensityDependence.from_names(form, 37.0, acts_on, counted))
+    other = _kernel(DensityDependence.from_names(form, 37.0, acts_on, counted))
+    counts = np.random.default_rng(3).integers(0, 60, size=(40, kernel.n_classes))
+    d = kernel.density_index(counts)
+    together = other.factors(d)
+    means = other.expected_recruits(counts, together)
+    for r in range(len(counts)):
+        for _ in range(2):  # worked out, then remembered
+            alone = kernel.factors(d[r:r + 1])
+            for a, b in zip(alone, together):
+                assert a.shape == (1,) and a.tobytes() == b[r:r + 1].tobytes()
+                assert not a.flags.writeable  # shared by the seasons that meet this D
+            assert kernel.expected_recruits(counts[r:r + 1], alone).tobytes() == means[r:r + 1].tobytes()
+
+
 def test_breeders_and_offspring_counting():
     breeders = _kernel(DensityDependence.from_names("ricker", 10.0, "fecundity", "breeders"))
     census = np.ones((3, 3), dtype=int)
