@@ -197,6 +197,10 @@ def results_hash(path) -> str:
 def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
     """The writing process of one measured run (spawned: a fresh interpreter, as ``broodline run``)."""
     entered, entry_cpu = time.perf_counter(), time.process_time()
+    if workers > 1:  # as `broodline run` does: the workers' fork server loads while we import
+        from .parallel.start import start_soon
+
+        start_soon()
     from .config import parse_config
     from .experiment import RunTimings, run_experiment
 
@@ -209,6 +213,9 @@ def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
         conn.send({"error": f"{type(err).__name__}: {err}"})
         conn.close()
         return
+    from .parallel.start import stop_fork_server
+
+    stop_fork_server()  # its CPU time, and that of the workers it forked, is then in ours
     children = resource.getrusage(resource.RUSAGE_CHILDREN)
     conn.send({
         "entered": entered, "imported": imported, "startup_cpu": import_cpu,

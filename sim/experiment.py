@@ -10,6 +10,7 @@ only indexes it; a dask worker's results are saved by the writer
 
 from __future__ import annotations
 
+import importlib
 import logging
 import threading
 import time
@@ -24,7 +25,7 @@ from .describe import preflight
 from .lifecycle import initial_census
 from .outcomes import fixed_outcome, summarize
 from .parallel import BatchClock, Job, default_batch_size, iter_batches, make_pool
-from .store import ResultsWriter, count_outcomes, read_points, software_version
+from .store import ResultsWriter, software_version
 
 log = logging.getLogger(__name__)
 
@@ -62,6 +63,8 @@ class _Progress:
         self.done = np.zeros(len(points), np.int64)
         self.fixed = np.zeros(len(points), np.int64)
         if writer.done:  # resuming: count what the shards already hold
+            from .store.readers import count_outcomes
+
             so_far = count_outcomes(writer.path)
             np.add.at(self.done, so_far["point"].to_numpy(), so_far["count"].to_numpy())
             won = so_far[so_far["outcome"] == self.fixed_name]
@@ -129,6 +132,12 @@ class RunTimings:
     workers: list[tuple[int, float, float]] = field(default_factory=list)
 
 
+def _import_soon(module: str) -> None:
+    """Import ``module`` in a background thread, so that it is loaded when first used."""
+    threading.Thread(target=importlib.import_module, args=(module,), daemon=True,
+                     name=f"import {module}").start()
+
+
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
                    workers: int = 1, cluster: str | None = None, progress: bool = True,
                    batch_size: int | None = None, budget: bool = True,
@@ -182,6 +191,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     # header written; a bad cluster address still fails before any file
     pool = make_pool(workers=workers, cluster=cluster)
     clock.pool_started = time.perf_counter()
+    # the summary's readers (pandas) load in the background: while this process waits for its
+    # workers, or while the compiled passes of its own batches leave the interpreter free
+    _import_soon("sim.store.readers")
     try:
         points = preflight(config, budget=budget)
         clock.checked = time.perf_counter()
@@ -259,6 +271,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if tracker is not None:
             tracker.close()
     pool.shutdown()
+    from .store.readers import count_outcomes, read_points  # pandas: loaded by now with workers
+
     summary = summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))
     clock.finished = time.perf_counter()
     return summary

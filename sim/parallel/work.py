@@ -13,11 +13,14 @@ import os
 import time
 from collections import Counter
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..config import SweepPoint
-from ..replicates import ReplicateResult, run_replicates
+
+if TYPE_CHECKING:  # the engines (numba) are imported where a batch runs, not by the writer
+    from ..replicates import ReplicateResult
 
 __all__ = [
     "Batch",
@@ -26,7 +29,6 @@ __all__ = [
     "plan_batches",
     "iter_batches",
     "default_batch_size",
-    "default_workers",
     "run_batch",
     "reduce_trajectory",
     "Job",
@@ -58,14 +60,6 @@ class Batch:
 
     def __len__(self) -> int:
         return self.last - self.first + 1
-
-
-def default_workers() -> int:
-    """The cores this process may use (a batch scheduler's CPU set, where it sets one)."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not Linux
-        return os.cpu_count() or 1
 
 
 # Individuals a batch holds at once by default: enough that a batch's fixed cost per season
@@ -117,6 +111,8 @@ def run_batch(point: SweepPoint, first: int, last: int, seed: int) -> list[Repli
     This is what a worker runs: a top-level function (spawned processes and
     dask workers import it by name) around ``replicates.run_replicates``.
     """
+    from ..replicates import run_replicates
+
     mode = point.config.experiment.trajectory
     return [reduce_trajectory(r, mode) for r in run_replicates(point, range(first, last + 1), seed)]
 
@@ -172,6 +168,8 @@ def run_job(job: Job) -> BatchOutput:
     cpu0, wall0 = time.process_time(), time.perf_counter()
     if not _FIRST_BATCH_CPU:
         _FIRST_BATCH_CPU.append(cpu0)
+    from ..replicates import run_replicates
+
     batch = job.batch
     mode = job.point.config.experiment.trajectory
     results = [reduce_trajectory(r, mode) for r in
