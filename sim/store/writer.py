@@ -15,12 +15,14 @@ import h5py
 import numpy as np
 
 from ..config import config_differences, config_hash
+from ..vocabulary import OUTCOMES
 from . import durable
 from .layout import (
     _FORMAT,
     _STR,
     FORMAT_VERSION,
     REPLICATE_COLUMNS,
+    SHARD_ROW,
     YEARS,
     ConfigMismatchError,
     ResultsError,
@@ -33,8 +35,12 @@ from .layout import (
     is_complete,
     list_shards,
     parts_dir,
+    replicate_column,
+    replicate_rows,
     software_version,
 )
+
+_OUTCOME_CODES = {name: code for code, name in enumerate(OUTCOMES)}
 
 try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
     import fcntl
@@ -440,9 +446,15 @@ class _MergedFile:
     def _read(self, path: Path) -> None:
         buffer = self.buffer
         with h5py.File(path, "r") as f:
-            reps, traj = f["replicates"], f["trajectories"]
-            for name in REPLICATE_COLUMNS:
-                buffer[name].append(reps[name][()])
+            traj = f["trajectories"]
+            if isinstance(f["replicates"], h5py.Dataset):  # one table: read at once
+                table = f["replicates"][()]
+                names = np.array(json.loads(f["replicates"].attrs["outcomes"]), dtype=object)
+                for name in REPLICATE_COLUMNS:
+                    buffer[name].append(names[table[name]] if name == "outcome" else table[name])
+            else:  # a shard of an earlier version: column datasets
+                for name in REPLICATE_COLUMNS:
+                    buffer[name].append(replicate_column(f, name))
             buffer["trajectory_start"][-1] = buffer["trajectory_start"][-1] + self.offset
             steps = traj["step"][()]
             buffer["step"].append(steps)
@@ -534,9 +546,11 @@ def _fill_shard(f, target: ShardTarget, results) -> None:
         "trajectory_start": starts,
         "trajectory_length": lengths,
     }
-    reps = f.create_group("replicates")
-    for name, (dtype, shape) in REPLICATE_COLUMNS.items():
-        _column(reps, name, dtype, shape, 1024, columns[name])
+    columns["outcome"] = [_OUTCOME_CODES[o] for o in columns["outcome"]]
+    table = np.empty(len(results), SHARD_ROW)
+    for name in REPLICATE_COLUMNS:
+        table[name] = columns[name]
+    f.create_dataset("replicates", data=table).attrs["outcomes"] = json.dumps(OUTCOMES)
     traj = f.create_group("trajectories")
     counts_shape = _counts_shape(target.mode, target.n_alleles, target.n_ages)
     steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
@@ -619,7 +633,7 @@ def _shard_rows(path: Path, config_hash: str) -> int:
     try:
         with h5py.File(path, "r") as f:
             written_by = f.attrs.get("config_hash", config_hash)
-            rows = int(f["replicates"]["replicate"].shape[0])
+            rows = replicate_rows(f)
     except (OSError, KeyError):
         return -1
     if written_by != config_hash:
