@@ -226,9 +226,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         census = max(int(start.sum()) for start in starts.values())
         size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
         clock.batch_size = size
-        shards = pool.shares_disk  # the workers save their own shards; the writer indexes them
-        jobs = (Job(batch, points[batch.point], seed, starts[batch.point],
-                    writer.shard_target(batch.point) if shards else None)
+        # workers that see the writer's disk save their own shards (the writer indexes them);
+        # the others (a dask worker elsewhere) send their results, which the writer saves
+        jobs = (Job(batch, points[batch.point], seed, starts[batch.point], writer.shard_target(batch.point))
                 for batch in iter_batches(writer.missing(), size))
         def merge_one() -> bool:  # while the writer waits for workers: merge a shard, if one is next
             wall, cpu = time.perf_counter(), time.process_time()

@@ -5,8 +5,7 @@ A pool's ``run_jobs(jobs)`` takes an iterator of ``Job`` and yields
 in flight so that memory does not grow with the experiment; ``run(tasks)``
 takes (batch, point, seed) and yields (batch, results). ``shutdown(cancel=)``
 ends it; with ``cancel`` running batches are abandoned (they re-run on resume).
-Local pools share this machine's disk (``shares_disk``): their workers can save
-their own shards.
+Their workers share the writer's disk, so they save their own shards.
 
 Workers start as ``sim.parallel.start`` says (a fork server, or spawned).
 """
@@ -30,8 +29,6 @@ class SerialPool:
 
     slots = 1
     description = "1 process"
-    shares_disk = True
-
     def run_jobs(self, jobs, *, idle=None):
         for job in jobs:
             yield job.batch, run_job(job)
@@ -63,8 +60,6 @@ class ProcessPool:
     The processes are started at once, not at the first batch: they import what a batch
     needs while the calling process checks the config and writes the file's header.
     """
-
-    shares_disk = True
 
     def __init__(self, workers: int):
         if workers < 1:

@@ -121,8 +121,8 @@ def run_batch(point: SweepPoint, first: int, last: int, seed: int) -> list[Repli
 class Job:
     """One batch as a pool runs it: the batch, its sweep point and the root seed; optionally
     the point's starting census (then the worker solves no equilibrium) and a ``ShardTarget``
-    (then the worker saves its batch as a shard and sends back only a ``BatchOutput``
-    without results)."""
+    (then a worker that reaches it saves its batch as a shard and sends back only a
+    ``BatchOutput`` without results)."""
 
     batch: Batch
     point: SweepPoint
@@ -164,7 +164,8 @@ _FIRST_BATCH_CPU: list[float] = []  # this process's CPU time when its first job
 
 
 def run_job(job: Job) -> BatchOutput:
-    """Run one ``Job`` (what a worker process runs): the batch, and its shard if asked."""
+    """Run one ``Job`` (what a worker process runs): the batch, saved as a shard if the job
+    has a target this process can reach (the writer's disk), else sent back as results."""
     cpu0, wall0 = time.process_time(), time.perf_counter()
     if not _FIRST_BATCH_CPU:
         _FIRST_BATCH_CPU.append(cpu0)
@@ -176,7 +177,7 @@ def run_job(job: Job) -> BatchOutput:
                run_replicates(job.point, batch.replicates, job.seed, start=job.start)]
     outcomes = Counter(r.outcome for r in results)
     shard, cpu1 = None, time.process_time()
-    if job.target is not None:
+    if job.target is not None and job.target.reachable():
         from ..store.writer import write_shard  # h5py: only in processes that save shards
 
         shard = write_shard(job.target, results)

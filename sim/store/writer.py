@@ -289,8 +289,19 @@ class ResultsWriter:
         cache = self.__dict__.setdefault("_targets", {})
         if point not in cache:
             cache[point] = ShardTarget(self.parts, self.mode, self.n_alleles, self.n_ages,
-                                       self._point_hash(point), self.config.environment)
+                                       self._point_hash(point), self.config.environment, self._probe())
         return cache[point]
+
+    def _probe(self) -> str:
+        """The name of this writer's probe file in the shards' folder, made on first use."""
+        if "_probe_name" not in self.__dict__:
+            name = f"writer-{os.getpid()}-{os.urandom(6).hex()}.probe"
+            try:
+                (self.parts / name).touch()
+            except OSError as err:
+                raise ResultsError(self._write_failure(err)) from None
+            self._probe_name = name
+        return self._probe_name
 
     def add_shard(self, shard: Shard) -> None:
         """Record a shard a worker wrote itself (``write_shard`` with ``shard_target``)."""
@@ -382,7 +393,7 @@ class ResultsWriter:
         if merge is not None:
             merge.abandon()
         if self._lock_fd is not None:
-            for leftover in self.parts.glob("*.tmp"):
+            for leftover in [*self.parts.glob("*.tmp"), *self.parts.glob("*.probe")]:
                 leftover.unlink(missing_ok=True)
         self._unlock()
 
@@ -506,7 +517,8 @@ class _MergedFile:
 class ShardTarget:
     """Everything needed to save a batch of one sweep point as a shard, in any process:
     the shards' folder, the trajectory mode and counts shape of the file, the point's config
-    hash (a shard carries it) and the ``[environment]`` section (None: no years)."""
+    hash (a shard carries it), the ``[environment]`` section (None: no years) and ``probe``,
+    a file the writer made in the folder (a process that sees it sees the writer's disk)."""
 
     parts: Path
     mode: str
@@ -514,6 +526,12 @@ class ShardTarget:
     n_ages: int
     point_hash: str
     environment: object = None
+    probe: str = ""
+
+    def reachable(self) -> bool:
+        """True if this process sees the writer's folder of shards (the probe is there): a
+        worker on another machine of a dask cluster may not, and then sends its results."""
+        return not self.probe or (self.parts / self.probe).is_file()
 
 
 def write_shard(target: ShardTarget, results) -> Shard:
