@@ -457,7 +457,6 @@ class _MergedFile:
     def _read(self, path: Path) -> None:
         buffer = self.buffer
         with h5py.File(path, "r") as f:
-            traj = f["trajectories"]
             if isinstance(f["replicates"], h5py.Dataset):  # one table: read at once
                 table = f["replicates"][()]
                 names = np.array(json.loads(f["replicates"].attrs["outcomes"]), dtype=object)
@@ -467,13 +466,14 @@ class _MergedFile:
                 for name in REPLICATE_COLUMNS:
                     buffer[name].append(replicate_column(f, name))
             buffer["trajectory_start"][-1] = buffer["trajectory_start"][-1] + self.offset
-            steps = traj["step"][()]
-            buffer["step"].append(steps)
-            buffer["counts"].append(traj["counts"][()])
+            records = int(buffer["trajectory_length"][-1].sum())
+            if records:  # (none with trajectory = "none": two datasets not opened)
+                buffer["step"].append(f["trajectories"]["step"][()])
+                buffer["counts"].append(f["trajectories"]["counts"][()])
             if YEARS in f:
                 buffer[YEARS].append(f[YEARS]["type"][()])
-        self.offset += steps.shape[0]
-        self.records += steps.shape[0]
+        self.offset += records
+        self.records += records
 
     def _write(self, *, complete: bool = False) -> None:
         """Append the buffered rows to the ``.tmp`` file (created with the header the first
