@@ -551,30 +551,22 @@ def _fill_shard(f, target: ShardTarget, results) -> None:
     f.attrs["config_hash"] = target.point_hash
     lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
     starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
-    columns = {
-        "point": [r.point for r in results],
-        "replicate": [r.replicate for r in results],
-        "seed": [r.seed for r in results],
-        "spawn_key": [(r.point, r.replicate) for r in results],
-        "outcome": [r.outcome for r in results],
-        "winner": [r.winner for r in results],
-        "steps": [r.steps for r in results],
-        "fixation_step": [r.fixation_step for r in results],
-        "final_census": [r.final_census for r in results],
-        "trajectory_start": starts,
-        "trajectory_length": lengths,
-    }
-    columns["outcome"] = [_OUTCOME_CODES[o] for o in columns["outcome"]]
     table = np.empty(len(results), SHARD_ROW)
-    for name in REPLICATE_COLUMNS:
-        table[name] = columns[name]
+    table["point"] = table["spawn_key"][:, 0] = [r.point for r in results]
+    table["replicate"] = table["spawn_key"][:, 1] = [r.replicate for r in results]
+    table["outcome"] = [_OUTCOME_CODES[r.outcome] for r in results]
+    for name in ("seed", "winner", "steps", "fixation_step", "final_census"):
+        table[name] = [getattr(r, name) for r in results]
+    table["trajectory_start"], table["trajectory_length"] = starts, lengths
     f.create_dataset("replicates", data=table).attrs["outcomes"] = json.dumps(OUTCOMES)
     traj = f.create_group("trajectories")
     counts_shape = _counts_shape(target.mode, target.n_alleles, target.n_ages)
-    steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
-    counts = [r.trajectory if target.mode == "by-allele" else _pad_ages(r.trajectory, target.n_ages)
-              for r in results]
-    counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
+    if lengths.sum():
+        steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
+        counts = np.concatenate([r.trajectory if target.mode == "by-allele"
+                                 else _pad_ages(r.trajectory, target.n_ages) for r in results])
+    else:  # no records (trajectory = "none"): no pass over the replicates for them
+        steps, counts = np.zeros(0, np.int32), np.zeros((0, *counts_shape), np.uint32)
     _column(traj, "step", np.int32, (), 4096, steps)
     _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
     if target.environment is not None:
