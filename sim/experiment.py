@@ -166,8 +166,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     progress : bool
         Show a progress bar.
     batch_size : int, optional
-        Replicates per batch (default: about 10^5 individuals at the starting census,
-        at most 1024, and about four batches per worker).
+        Replicates per batch (default: ``parallel.default_batch_size``: about 5 x 10^5
+        individuals at the starting census, at most 1024 replicates, both four times
+        larger without trajectories, and about four batches per worker).
     budget : bool
         Refuse an experiment past ``sim.describe.BUDGET`` individual-seasons
         (``False`` lifts it).
@@ -224,7 +225,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         tracker = _Progress(writer, points, show=progress)
         starts = {p.index: initial_census(p.config) for p in points}  # workers solve no equilibrium
         census = max(int(start.sum()) for start in starts.values())
-        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
+        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census,
+                                                records=config.experiment.trajectory != "none")
         clock.batch_size = size
         # workers that see the writer's disk save their own shards (the writer indexes them);
         # the others (a dask worker elsewhere) send their results, which the writer saves

@@ -40,8 +40,8 @@ def add_run_options(parser) -> None:
     parser.add_argument("--resume", action="store_true",
                         help="finish an unfinished results file (same config), skipping what is done")
     parser.add_argument("--batch-size", type=positive, default=None, metavar="N",
-                        help="replicates per batch of work (default: about 1e5 individuals, at most 1024 "
-                             "replicates; results do not depend on it)")
+                        help="replicates per batch of work (default: about 5e5 individuals, at most 1024 "
+                             "replicates, both x4 without trajectories; results do not depend on it)")
     add_budget_option(parser)
 
 

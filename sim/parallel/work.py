@@ -67,14 +67,24 @@ class Batch:
 # over many individuals, few enough that a batch finishes (and is saved) quickly. In an
 # invasion most replicates leave early and a few run long: the larger the batch, the more
 # replicates share the long tail's seasons (K = 500, one worker: 1000 replicates a batch ran
-# 20,000 replicates in 4.2 s, 200 a batch in 7.2 s, measured in one run).
+# 20,000 replicates in 4.2 s, 200 a batch in 7.2 s, measured in one run). A batch's results
+# stay in memory until saved, trajectories included; without trajectories (``trajectory =
+# "none"``) they are a few numbers a replicate, so such batches may be four times larger
+# (K = 500, 16,384 replicates on one core: 4096 a batch took 64 microseconds of CPU a
+# replicate against 84 at 1024 with `counts`, 200 against 243 with `individual`).
 BATCH_INDIVIDUALS = 500_000
+BATCH_REPLICATES = 1024
+UNRECORDED_FACTOR = 4
 
 
-def default_batch_size(n_replicates: int, slots: int, census_size: int = 1) -> int:
+def default_batch_size(n_replicates: int, slots: int, census_size: int = 1, *,
+                       records: bool = True) -> int:
     """Replicates per batch: about ``BATCH_INDIVIDUALS`` individuals at the starting census
-    (at most 1024 replicates), and small enough that every slot gets about four batches."""
-    cap = max(1, min(1024, BATCH_INDIVIDUALS // max(census_size, 1)))
+    (at most ``BATCH_REPLICATES`` replicates; both ``UNRECORDED_FACTOR`` times larger when
+    no trajectories are kept, ``records=False``), and small enough that every slot gets
+    about four batches."""
+    factor = 1 if records else UNRECORDED_FACTOR
+    cap = max(1, min(factor * BATCH_REPLICATES, factor * BATCH_INDIVIDUALS // max(census_size, 1)))
     return max(1, min(cap, math.ceil(n_replicates / (4 * max(slots, 1)))))
 
 
