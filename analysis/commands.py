@@ -419,8 +419,7 @@ def register(sub) -> None:
         "invasion fitness to each vital rate",
     )
     p.set_defaults(func=cmd_threshold)
-    from .locate import register as register_locate
-    from .locate_bench import register as register_locate_bench
+    from .locate_commands import register_locate, register_locate_bench
 
     register_locate(sub)
     register_locate_bench(sub)

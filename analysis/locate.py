@@ -59,7 +59,6 @@ from __future__ import annotations
 
 import json
 import math
-import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -80,7 +79,7 @@ __all__ = [
     "diffusion_threshold",
     "next_value",
     "locate",
-    "register",
+    "locate_report",
 ]
 
 _Z_FIRST = -1.5  # the first stage: below the predicted crossing
@@ -522,63 +521,3 @@ def locate_report(result: LocateResult) -> str:
         f"  diffusion prediction (fixation = neutral expectation): {_fmt(result.diffusion)}",
     ]
     return "\n".join(lines)
-
-
-def cmd_locate(args) -> int:
-    from sim.config import load_config
-    from sim.parallel import default_workers
-
-    from .jsonable import jsonable
-
-    if args.resume and args.overwrite:
-        from sim.errors import UserError
-
-        raise UserError("--resume goes on with the file and --overwrite starts it again: give one of the two")
-    config = load_config(args.config)
-    try:
-        result = locate(
-            config,
-            args.parameter,
-            args.output,
-            bracket=tuple(args.bracket) if args.bracket else None,
-            tolerance=args.tolerance,
-            budget=args.budget,
-            resume=args.resume,
-            overwrite=args.overwrite,
-            workers=args.workers or default_workers(),
-            progress=None if args.json else print,
-        )
-    except KeyboardInterrupt:
-        print(f"finished batches are saved in {args.output}; go on with\n  broodline locate {args.config} "
-              f"--parameter {args.parameter} -o {args.output} --resume", file=sys.stderr)
-        raise
-    if args.json:
-        print(json.dumps(jsonable(result.as_dict()), indent=2))
-    else:
-        print(locate_report(result))
-        print(f"results: {args.output} (broodline status / compare / report read it)")
-    return 0
-
-
-def register(sub) -> None:
-    """Add ``locate`` to the ``broodline`` subparsers."""
-    p = sub.add_parser(
-        "locate",
-        help="find by simulation the parameter value where fixation equals the neutral expectation",
-        description="Each stage runs the config's experiment.replicates replicates at one value; the stop "
-        "rule is checked after every stage, so smaller stages (e.g. 50) stop nearer the tolerance.",
-    )
-    p.add_argument("config", help="experiment config (TOML) with an [invasion] table")
-    p.add_argument("--parameter", required=True, metavar="PATH", help="sweep path of the parameter")
-    p.add_argument("--bracket", nargs=2, type=float, metavar=("LO", "HI"),
-                   help="range searched (default: the analytic threshold +- 10%%)")
-    p.add_argument("--tolerance", type=float, default=None, metavar="T",
-                   help="stop at a 95%% interval half-width <= T (default: 1%% of the analytic threshold)")
-    p.add_argument("--budget", type=int, default=200_000, metavar="REPLICATES",
-                   help="stop before using more replicates than this (default 200000)")
-    p.add_argument("-o", "--output", required=True, help="results file to write (.h5)")
-    p.add_argument("--resume", action="store_true", help="go on with an unfinished locate file")
-    p.add_argument("--overwrite", action="store_true", help="replace an existing results file")
-    p.add_argument("--workers", type=int, default=None, metavar="N", help="local worker processes")
-    p.add_argument("--json", action="store_true", help="print the result as JSON")
-    p.set_defaults(func=cmd_locate)

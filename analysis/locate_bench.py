@@ -24,7 +24,6 @@ rest is what the curve's shape saves.
 
 from __future__ import annotations
 
-import json
 import math
 import tempfile
 from dataclasses import asdict, dataclass
@@ -263,36 +262,3 @@ def locate_benchmark(
         float(np.mean([g.replicates for g in by_compare])) / mean,
         float(np.mean([g.replicates for g in by_curve])) / mean,
     )
-
-
-def cmd_locate_bench(args) -> int:
-    from .jsonable import jsonable
-
-    benches = [
-        locate_benchmark(half_range=h, seeds=tuple(range(2026, 2026 + args.seeds)),
-                         grid_seeds=tuple(range(3026, 3026 + args.grid_seeds)), workers=args.workers or 1,
-                         progress=None if args.json else print)
-        for h in args.half_range
-    ]
-    if args.json:
-        print(json.dumps(jsonable([b.as_dict() for b in benches]), indent=2))
-    else:
-        print("\n".join(b.summary() for b in benches))
-        print("The grids are centred on the analytic threshold, within 0.1% of the finite-N one: the best "
-              "case for a grid. A user who does not know where the threshold lies needs a wider grid.")
-    return 0
-
-
-def register(sub) -> None:
-    """Add ``locate-bench`` to the ``broodline`` subparsers."""
-    p = sub.add_parser(
-        "locate-bench",
-        help="replicates locate needs against a uniform 9-point grid (semelparous vs iteroparous, K = 200)",
-    )
-    p.add_argument("--half-range", type=float, nargs="+", default=[0.1, 0.25], metavar="F",
-                   help="brackets: the analytic threshold +- F x itself (default 0.1 0.25)")
-    p.add_argument("--seeds", type=int, default=10, metavar="N", help="locate runs (default 10)")
-    p.add_argument("--grid-seeds", type=int, default=5, metavar="N", help="grid runs per bracket (default 5)")
-    p.add_argument("--workers", type=int, default=None, metavar="N", help="local worker processes")
-    p.add_argument("--json", action="store_true", help="print JSON")
-    p.set_defaults(func=cmd_locate_bench)

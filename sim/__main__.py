@@ -1,8 +1,10 @@
 """``python -m sim``: the broodline command line."""
 
-import sys
-
-from .cli import main
-
 if __name__ == "__main__":
+    # imported here, not above: a spawned worker process imports this module as
+    # ``__mp_main__`` and needs none of the command line
+    import sys
+
+    from sim.cli import main
+
     sys.exit(main())

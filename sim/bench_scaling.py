@@ -16,8 +16,10 @@ From one run's ``RunTimings`` (``sim.experiment``) and the workers'
 - ``wall_s``: from starting the writer process to the merged file;
   ``speedup`` = wall on 1 worker / wall here, ``efficiency`` = speedup / workers;
 - the fixed cost in phases: the writer's start-up (process and imports),
-  until the first batch starts in a worker, the workers' start-up, and the
-  tail after the last batch (merge);
+  until the first batch starts in a worker (with workers: until the fork
+  server, started first as ``broodline run`` starts it, has loaded the
+  engines and forked them), the workers' own start-up, and the tail after
+  the last batch (merge);
 - CPU time, which other programs' load does not stretch as it stretches wall
   time: every process's CPU seconds (``total_cpu_s``), the batches' own
   (``batch_cpu_s``), and ``cpu_efficiency`` = total CPU on 1 worker / total
@@ -94,8 +96,9 @@ SCALING_KEYS = {
     "startup_s": "the writing process's start-up: a fresh interpreter importing what a run needs",
     "startup_cpu_s": "CPU seconds of that start-up",
     "to_first_batch_s": "from the start of run_experiment until a worker starts the first batch",
-    "worker_startup_cpu_s": "CPU seconds a worker process takes before its first batch "
-                            "(start-up and imports; mean over workers; null on 1 worker: the writer runs the batches)",
+    "worker_startup_cpu_s": "CPU seconds a worker process takes before its first batch (mean over "
+                            "workers; a fork of the fork server, whose imports count in total_cpu_s; "
+                            "null on 1 worker: the writer runs the batches)",
     "first_batch_extra_s": "how much longer a worker's first batch takes than its median batch "
                            "(loading compiled code; mean over workers)",
     "tail_s": "from the end of the last batch to the end of the run (the merge and the summary)",
@@ -197,6 +200,10 @@ def results_hash(path) -> str:
 def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
     """The writing process of one measured run (spawned: a fresh interpreter, as ``broodline run``)."""
     entered, entry_cpu = time.perf_counter(), time.process_time()
+    if workers > 1:  # as `broodline run` does: the workers' fork server loads while we import
+        from .parallel.start import start_soon
+
+        start_soon()
     from .config import parse_config
     from .experiment import RunTimings, run_experiment
 
@@ -209,6 +216,9 @@ def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
         conn.send({"error": f"{type(err).__name__}: {err}"})
         conn.close()
         return
+    from .parallel.start import stop_fork_server
+
+    stop_fork_server()  # its CPU time, and that of the workers it forked, is then in ours
     children = resource.getrusage(resource.RUSAGE_CHILDREN)
     conn.send({
         "entered": entered, "imported": imported, "startup_cpu": import_cpu,

@@ -10,6 +10,7 @@ only indexes it; a dask worker's results are saved by the writer
 
 from __future__ import annotations
 
+import importlib
 import logging
 import threading
 import time
@@ -24,7 +25,7 @@ from .describe import preflight
 from .lifecycle import initial_census
 from .outcomes import fixed_outcome, summarize
 from .parallel import BatchClock, Job, default_batch_size, iter_batches, make_pool
-from .store import ResultsWriter, count_outcomes, read_points, software_version
+from .store import ResultsWriter, software_version
 
 log = logging.getLogger(__name__)
 
@@ -62,6 +63,8 @@ class _Progress:
         self.done = np.zeros(len(points), np.int64)
         self.fixed = np.zeros(len(points), np.int64)
         if writer.done:  # resuming: count what the shards already hold
+            from .store.readers import count_outcomes
+
             so_far = count_outcomes(writer.path)
             np.add.at(self.done, so_far["point"].to_numpy(), so_far["count"].to_numpy())
             won = so_far[so_far["outcome"] == self.fixed_name]
@@ -129,6 +132,12 @@ class RunTimings:
     workers: list[tuple[int, float, float]] = field(default_factory=list)
 
 
+def _import_soon(module: str) -> None:
+    """Import ``module`` in a background thread, so that it is loaded when first used."""
+    threading.Thread(target=importlib.import_module, args=(module,), daemon=True,
+                     name=f"import {module}").start()
+
+
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
                    workers: int = 1, cluster: str | None = None, progress: bool = True,
                    batch_size: int | None = None, budget: bool = True,
@@ -157,8 +166,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     progress : bool
         Show a progress bar.
     batch_size : int, optional
-        Replicates per batch (default: about 10^5 individuals at the starting census,
-        at most 1024, and about four batches per worker).
+        Replicates per batch (default: ``parallel.default_batch_size``: about 5 x 10^5
+        individuals at the starting census, at most 1024 replicates, both four times
+        larger without trajectories, and about four batches per worker).
     budget : bool
         Refuse an experiment past ``sim.describe.BUDGET`` individual-seasons
         (``False`` lifts it).
@@ -182,6 +192,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     # header written; a bad cluster address still fails before any file
     pool = make_pool(workers=workers, cluster=cluster)
     clock.pool_started = time.perf_counter()
+    # the summary's readers (pandas) load in the background: while this process waits for its
+    # workers, or while the compiled passes of its own batches leave the interpreter free
+    _import_soon("sim.store.readers")
     try:
         points = preflight(config, budget=budget)
         clock.checked = time.perf_counter()
@@ -212,11 +225,12 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         tracker = _Progress(writer, points, show=progress)
         starts = {p.index: initial_census(p.config) for p in points}  # workers solve no equilibrium
         census = max(int(start.sum()) for start in starts.values())
-        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census)
+        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census,
+                                                records=config.experiment.trajectory != "none")
         clock.batch_size = size
-        shards = pool.shares_disk  # the workers save their own shards; the writer indexes them
-        jobs = (Job(batch, points[batch.point], seed, starts[batch.point],
-                    writer.shard_target(batch.point) if shards else None)
+        # workers that see the writer's disk save their own shards (the writer indexes them);
+        # the others (a dask worker elsewhere) send their results, which the writer saves
+        jobs = (Job(batch, points[batch.point], seed, starts[batch.point], writer.shard_target(batch.point))
                 for batch in iter_batches(writer.missing(), size))
         def merge_one() -> bool:  # while the writer waits for workers: merge a shard, if one is next
             wall, cpu = time.perf_counter(), time.process_time()
@@ -259,6 +273,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if tracker is not None:
             tracker.close()
     pool.shutdown()
+    from .store.readers import count_outcomes, read_points  # pandas: loaded by now with workers
+
     summary = summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))
     clock.finished = time.perf_counter()
     return summary

@@ -23,6 +23,7 @@ import numpy as np
 
 from .density import DensityDependence, Factors, NoDensity
 from .kernel import SeasonKernel
+from .roots import brentq
 from .schedules import Schedule
 
 __all__ = [
@@ -99,8 +100,6 @@ def _root(fn, lo, hi, what):
     f_lo = fn(lo)
     if f_lo <= 0:
         raise NoEquilibriumError(f"{what}: growth rate at low density is {f_lo + 1:.6g} <= 1")
-    from scipy.optimize import brentq  # here, not above: a worker handed its start census skips scipy
-
     for _ in range(200):
         if fn(hi) < 0:
             return brentq(fn, lo, hi, xtol=1e-12, rtol=1e-12, maxiter=500)
@@ -134,8 +133,6 @@ def solve_equilibrium(schedule: Schedule, density: DensityDependence, *,
             raise NoEquilibriumError(f"{what}: growth rate without removal is {excess_phi(1.0) + 1:.6g} <= 1")
         if excess_phi(0.0) >= 0:
             raise NoEquilibriumError(f"{what}: growth rate stays >= 1 however many are removed")
-        from scipy.optimize import brentq
-
         phi = brentq(excess_phi, 0.0, 1.0, xtol=1e-14, rtol=1e-12, maxiter=500)
         factors = density.placed(phi)
         u = stable_age_distribution(schedule, factors, offspring=offspring)

@@ -8,16 +8,23 @@ import pytest
 from sim.cli import main
 from sim.parallel import ClusterError
 from sim.experiment import run_experiment
+from sim.store import ResultsWriter
 from tests.runs_support import assert_same_datasets, small_config
 
 distributed = pytest.importorskip("distributed")
 
 
-def test_local_cluster_gives_the_datasets_of_one_process(tmp_path):
+def test_local_cluster_gives_the_datasets_of_one_process(tmp_path, monkeypatch):
     config = small_config(replicates=10)
     reference = tmp_path / "one.h5"
     run_experiment(config, reference, workers=1, progress=False)
     out = tmp_path / "dask.h5"
+
+    def saved_by_the_writer(self, results):
+        raise AssertionError("a worker that sees the writer's disk saves its own shard")
+
+    # these workers share this machine's disk: they save every batch themselves
+    monkeypatch.setattr(ResultsWriter, "write", saved_by_the_writer)
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
                                   dashboard_address=None) as cluster:
         run_experiment(config, out, cluster=cluster.scheduler_address, batch_size=3, progress=False)

@@ -22,7 +22,7 @@ from pydantic.functional_validators import AfterValidator
 from analysis.commands import JSON_KEYS, SWEPT
 from analysis.lab.toml_text import toml_text
 from sim.cli import main
-from sim.config.schema import Config
+from sim.config.schema import Config, field_descriptions
 from tests.invasion_configs import SMALL_SWEEP, invasion_config, write_small_results
 
 DOCS = Path(__file__).resolve().parent.parent / "docs"
@@ -56,7 +56,7 @@ def _validators(annotation) -> list:
 
 def test_every_schema_field_has_a_description():
     missing = [f"{m.__name__}.{name}" for m in _models(Config)
-               for name, field in m.model_fields.items() if not (field.description or "").strip()]
+               for name, about in field_descriptions(m).items() if not about.strip()]
     assert not missing, (
         "schema fields without a description (add a docstring under each field in "
         f"sim/config/schema.py; the config reference is generated from them): {missing}"

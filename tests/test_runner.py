@@ -105,6 +105,10 @@ def test_default_batch_size_scales_with_the_census():
     assert default_batch_size(100_000, 1, census_size=200) == 1024
     assert default_batch_size(100_000, 1, census_size=10**6) == 1
     assert default_batch_size(400, 2, census_size=200) == 50
+    # without trajectories (results of a few numbers each), four times larger
+    assert default_batch_size(100_000, 1, census_size=200, records=False) == 4096
+    assert default_batch_size(100_000, 1, census_size=2000, records=False) == 1000
+    assert default_batch_size(400, 2, census_size=200, records=False) == 50
 
 
 def test_summary_counts_fixed_without_invasion(tmp_path):

@@ -1,5 +1,7 @@
 """Shards: an unfinished file reads like the finished one; the merge streams in bounded pieces."""
 
+import dataclasses
+
 import h5py
 import pandas as pd
 import pytest
@@ -76,3 +78,32 @@ def test_a_corrupt_shard_is_redone_on_resume(tmp_path):
     run_experiment(small_config(replicates=REPLICATES), reference, progress=False)
     run_experiment(small_config(replicates=REPLICATES), out, resume=True, batch_size=BATCH, progress=False)
     assert_same_datasets(reference, out)
+
+
+def test_a_worker_saves_its_shard_only_where_it_sees_the_writers_folder(tmp_path):
+    # a dask worker on another machine may not see the writer's disk: it finds no probe file
+    # there and sends its results back instead (the writer saves them); one that sees the
+    # folder saves the shard itself, as a local worker does
+    from sim.parallel import Batch, Job, run_job
+
+    config = small_config(replicates=6)
+    point = sweep_points(config)[0]
+    writer = ResultsWriter(tmp_path / "probe.h5", config, sweep_points(config))
+    target = writer.shard_target(0)
+    assert (target.parts / target.probe).is_file()
+    seen = run_job(Job(Batch(0, 0, 2), point, config.experiment.seed, target=target))
+    assert seen.results is None and (target.parts / seen.shard.name).is_file()
+    elsewhere = dataclasses.replace(target, parts=tmp_path / "another-machine")
+    (tmp_path / "another-machine").mkdir()
+    unseen = run_job(Job(Batch(0, 3, 5), point, config.experiment.seed, target=elsewhere))
+    assert unseen.shard is None and len(unseen.results) == 3
+    assert not list((tmp_path / "another-machine").iterdir())  # nothing written where unseen
+    writer.add_shard(seen.shard)
+    writer.write(unseen.results)
+    writer.release()
+    assert not list(target.parts.glob("*.probe"))  # the probe goes with the writer
+    reference = tmp_path / "one.h5"
+    run_experiment(config, reference, workers=1, progress=False)
+    both = [read_replicates(f).query("point == 0").reset_index(drop=True)
+            for f in (reference, tmp_path / "probe.h5")]
+    pd.testing.assert_frame_equal(*both)

@@ -154,12 +154,16 @@ def _section_model(ann):
     return None
 
 
-def _description(owner: str, name: str, field) -> str:
-    if not field.description:
+def _description(model, name: str) -> str:
+    from sim.config.schema import field_descriptions
+
+    about = field_descriptions(model)[name]
+    if not about:
         raise DocsGenerationError(
-            f"{owner}.{name} has no description: add a docstring under the field in sim/config/schema.py"
+            f"{model.__name__}.{name} has no description: add a docstring under the field in "
+            "sim/config/schema.py"
         )
-    return field.description
+    return about
 
 
 def config_reference_lines(config_model=None) -> list[str]:
@@ -168,7 +172,7 @@ def config_reference_lines(config_model=None) -> list[str]:
         from sim.config.schema import Config as config_model
     lines = []
     for name, field in config_model.model_fields.items():
-        about = rst_text(_description("Config", name, field))
+        about = rst_text(_description(config_model, name))
         model = _section_model(field.annotation)
         title = "[[allele]]" if typing.get_origin(field.annotation) is list else f"[{name}]"
         lines += [f".. _config-{name}:", "", title, "-" * len(title), "", about, ""]
@@ -189,7 +193,7 @@ def config_reference_lines(config_model=None) -> list[str]:
                 rst_text(kind),
                 describe_default(sub),
                 "; ".join(rst_text(a) if not a.startswith("one of") else a for a in allowed) or "",
-                rst_text(_description(model.__name__, key, sub)),
+                rst_text(_description(model, key)),
             ])
         lines += list_table(["key", "type", "default", "allowed", "meaning"], rows, [14, 10, 10, 18, 48])
     return lines

@@ -8,6 +8,11 @@ Each subcommand module has a ``register(subparsers)``; ``COMMANDS`` names
 them as ``"module:function"`` and ``build_parser`` imports them by name, so
 the analysis layer's commands join the command line without sim importing
 analysis anywhere but here, and without analysis importing this package.
+
+Registering a command imports nothing heavy (no pandas, scipy, numba, h5py or
+pydantic): each command imports what it uses when it runs, so ``--help``
+answers at once and a worker process that imports this package pays nothing
+for it (``tests/test_cli_imports.py``).
 """
 
 from __future__ import annotations
@@ -17,11 +22,7 @@ import importlib
 import os
 import sys
 
-from ..config import ConfigError
 from ..errors import UserError
-from ..meanfield import NoEquilibriumError
-from ..parallel import PoolError
-from ..store import ResultsError, software_version
 
 __all__ = ["main", "build_parser", "COMMANDS"]
 
@@ -42,12 +43,25 @@ _OPTIONS = {"resume=True": "--resume", "overwrite=True": "--overwrite", "budget=
             "point must": "--point must", "replicate must": "--replicate must"}
 
 
+class _ShowVersion(argparse.Action):
+    """``--version``: the installed version, looked up only when asked (importlib.metadata is slow
+    to import)."""
+
+    def __init__(self, option_strings, dest=argparse.SUPPRESS, **kwargs):
+        super().__init__(option_strings, dest, nargs=0, help="show the version and exit", **kwargs)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        from ..version import software_version
+
+        parser.exit(message=f"broodline {software_version()}\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="broodline",
         description="Simulate the evolution of breeding schedules in finite populations.",
     )
-    parser.add_argument("--version", action="version", version=f"broodline {software_version()}")
+    parser.add_argument("--version", action=_ShowVersion)
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
     for entry in COMMANDS:
         module, _, function = entry.partition(":")
@@ -72,16 +86,25 @@ def _plain_warnings(command: str) -> None:
     warnings.showwarning = show
 
 
+def _user_errors() -> tuple[type[Exception], ...]:
+    """The errors said in one line (a user's mistake or the machine's state), not as a traceback.
+
+    Imported when one is raised: the modules that raise them are loaded by then."""
+    from ..config import ConfigError
+    from ..meanfield import NoEquilibriumError
+    from ..parallel import PoolError
+    from ..store import ResultsError
+
+    return (ConfigError, NoEquilibriumError, UserError, FileExistsError, FileNotFoundError,
+            PermissionError, IsADirectoryError, ResultsError, PoolError)
+
+
 def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     _plain_warnings(args.command)
     try:
         return args.func(args)
-    except (ConfigError, NoEquilibriumError, UserError, FileExistsError, FileNotFoundError,
-            PermissionError, IsADirectoryError, ResultsError, PoolError) as err:
-        print(f"broodline {args.command}: error: {as_options(str(err))}", file=sys.stderr)
-        return 2
     except KeyboardInterrupt:
         print(f"broodline {args.command}: interrupted", file=sys.stderr)
         return 130
@@ -90,3 +113,8 @@ def main(argv=None) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 0
+    except Exception as err:
+        if not isinstance(err, _user_errors()):
+            raise
+        print(f"broodline {args.command}: error: {as_options(str(err))}", file=sys.stderr)
+        return 2

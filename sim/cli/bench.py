@@ -6,8 +6,6 @@ import argparse
 import json
 import sys
 
-from ..bench import DEFAULT_SIZES, LARGE_SIZE, format_report, run_bench
-from ..bench_memory import measure_memory, measure_planning
 from ..bench_scaling import DEFAULT_REPLICATES as SCALING_REPLICATES
 from ..bench_scaling import SCALING_ENGINES, format_scaling, run_scaling
 from ..errors import UserError
@@ -61,6 +59,8 @@ def cmd_bench_scaling(args) -> int:
 def cmd_bench(args) -> int:
     if args.scaling:
         return cmd_bench_scaling(args)
+    from ..bench import DEFAULT_SIZES, LARGE_SIZE, format_report, run_bench
+
     sizes = list(args.sizes or DEFAULT_SIZES)
     if args.large and LARGE_SIZE not in sizes:
         sizes.append(LARGE_SIZE)
@@ -79,6 +79,8 @@ def cmd_bench(args) -> int:
 
 
 def cmd_bench_memory(args) -> int:
+    from ..bench_memory import measure_memory, measure_planning
+
     report = measure_memory(args.replicates, workers=args.workers)
     print(report)
     planning = measure_planning()

@@ -2,14 +2,15 @@
 
 from __future__ import annotations
 
-from ..config import load_config
-from ..describe import describe_experiment
 from .run import add_budget_option
 
 __all__ = ["register"]
 
 
 def cmd_check(args) -> int:
+    from ..config import load_config
+    from ..describe import describe_experiment
+
     print(describe_experiment(load_config(args.config), budget=args.budget))
     return 0
 

@@ -4,14 +4,15 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..config import demo_config_path, load_config
-from ..describe import describe_experiment
 from .run import run_from_command_line
 
-__all__ = ["register", "demo_config_path"]
+__all__ = ["register"]
 
 
 def cmd_demo(args) -> int:
+    from ..config import demo_config_path, load_config
+    from ..describe import describe_experiment
+
     out = Path(args.output)
     out.mkdir(parents=True, exist_ok=True)
     config_path = out / "demo.toml"  # a copy the user can edit and run again

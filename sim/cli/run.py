@@ -12,16 +12,10 @@ import shlex
 import signal
 import sys
 
-import pandas as pd
-from tqdm import tqdm
-
-from ..config import load_config, parse_config
 from ..errors import UserError
-from ..experiment import ExperimentInterrupted, request_stop, run_experiment
-from ..parallel import default_workers
 
 __all__ = ["register", "add_run_options", "run_options", "run_from_command_line", "positive",
-           "add_budget_option"]
+           "add_budget_option", "start_workers_soon"]
 
 
 def positive(text: str) -> int:
@@ -46,8 +40,8 @@ def add_run_options(parser) -> None:
     parser.add_argument("--resume", action="store_true",
                         help="finish an unfinished results file (same config), skipping what is done")
     parser.add_argument("--batch-size", type=positive, default=None, metavar="N",
-                        help="replicates per batch of work (default: about 1e5 individuals, at most 1024 "
-                             "replicates; results do not depend on it)")
+                        help="replicates per batch of work (default: about 5e5 individuals, at most 1024 "
+                             "replicates, both x4 without trajectories; results do not depend on it)")
     add_budget_option(parser)
 
 
@@ -56,6 +50,15 @@ def add_budget_option(parser) -> None:
     parser.add_argument("--no-budget", dest="budget", action="store_false",
                         help="run an experiment past the budget of 1e13 individual-seasons "
                              "(replicates x max_steps x starting census)")
+
+
+def start_workers_soon(args) -> None:
+    """With worker processes to come, start their fork server now: it loads the engines while
+    this process reads and checks the config."""
+    from ..parallel.start import default_workers, start_soon
+
+    if args.cluster is None and (args.workers or default_workers()) > 1:
+        start_soon()
 
 
 def run_options(args) -> dict:
@@ -68,6 +71,8 @@ def run_options(args) -> dict:
                         "process; broodline reaches a dask scheduler over tcp:// (or tls://)")
     if args.resume and args.overwrite:
         raise UserError("--resume finishes the file and --overwrite starts it again: give one of the two")
+    from ..parallel.start import default_workers
+
     return dict(workers=args.workers or default_workers(), cluster=args.cluster, resume=args.resume,
                 batch_size=args.batch_size, budget=args.budget, config_path=args.config)
 
@@ -76,6 +81,8 @@ class _TqdmHandler(logging.Handler):
     """Log lines printed above the progress bar, not through it."""
 
     def emit(self, record) -> None:
+        from tqdm import tqdm
+
         tqdm.write(self.format(record), file=sys.stderr)
 
 
@@ -90,6 +97,8 @@ def _log_to_stderr() -> None:
 
 def _stop_on_signals() -> None:
     """Ctrl-C, and the SIGTERM batch schedulers send at a time limit: stop, keeping finished work."""
+    from ..experiment import request_stop
+
     def handler(signum, frame):
         request_stop()  # checked after every batch, in case this exception is swallowed
         raise KeyboardInterrupt
@@ -132,8 +141,12 @@ def _resume_command(config_path, out) -> str:
 
 
 def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=1, cluster=None,
-                          resume=False, batch_size=None, budget=True, config_path=None) -> pd.DataFrame:
-    """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint."""
+                          resume=False, batch_size=None, budget=True, config_path=None):
+    """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint;
+    returns the summary (a pandas DataFrame)."""
+    from ..experiment import ExperimentInterrupted, run_experiment
+    from ..parallel.start import default_workers
+
     _log_to_stderr()
     _stop_on_signals()
     if cluster:  # a lost scheduler is said in our last line, not in distributed's tracebacks
@@ -152,6 +165,8 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
               f"  {_resume_command(config_path, out)}", file=sys.stderr)
         raise
     print(f"\nResults: {out}")
+    import pandas as pd
+
     with pd.option_context("display.width", 120, "display.max_columns", 20,
                            "display.float_format", "{:.3f}".format):
         print(summary.to_string(index=False))
@@ -175,12 +190,17 @@ def with_overrides(config, args):
     given = {k: getattr(args, k) for k in _OVERRIDES if getattr(args, k, None) is not None}
     if not given:
         return config
+    from ..config import parse_config
+
     raw = config.model_dump(mode="json", exclude_none=True)
     raw["experiment"].update(given)
     return parse_config(raw)
 
 
 def cmd_run(args) -> int:
+    start_workers_soon(args)
+    from ..config import load_config
+
     config = with_overrides(load_config(args.config), args)
     run_from_command_line(config, args.output, overwrite=args.overwrite, quiet=args.quiet,
                           **run_options(args))

@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 from ..errors import UserError
-from ..status import experiment_status
 
 __all__ = ["register"]
 
 
 def cmd_status(args) -> int:
+    from ..status import experiment_status
+
     try:
         print(experiment_status(args.results))
     except ValueError as err:  # not a results file

@@ -2,14 +2,14 @@
 
 from __future__ import annotations
 
-from ..config import load_config
-from ..describe import describe_environment
-from ..trace import trace_replicate
-
 __all__ = ["register"]
 
 
 def cmd_trace(args) -> int:
+    from ..config import load_config
+    from ..describe import describe_environment
+    from ..trace import trace_replicate
+
     config = load_config(args.config)
     t = trace_replicate(config, point=args.point, replicate=args.replicate)
     where = ", ".join(f"{k} = {v}" for k, v in t.values.items())

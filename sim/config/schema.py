@@ -8,8 +8,13 @@ the value received, e.g. ``allele[1].adult_survival must be in [0, 1]; got
 
 from __future__ import annotations
 
+import ast
 import difflib
+import functools
+import inspect
+import sys
 from dataclasses import replace
+from pathlib import Path
 from typing import Annotated, Any, ClassVar, Literal
 
 import numpy as np
@@ -44,6 +49,7 @@ __all__ = [
     "TraitSection",
     "SECTIONS",
     "check_sweep_path",
+    "field_descriptions",
 ]
 
 MAX_COUNT = 2**32 - 1  # census counts are stored as uint32
@@ -95,8 +101,10 @@ class _Section(BaseModel):
     Every section inherits both, so a new key needs no rule of its own.
     """
 
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False,
-                              use_attribute_docstrings=True)
+    # Each field's meaning is the docstring under it (``field_descriptions`` reads them for the
+    # config reference); pydantic is not asked to read them (use_attribute_docstrings), which
+    # would parse this file's source at every import, in every worker process.
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False)
 
     # Keys added after 0.2.0 are left out of a dump while they hold their default (given
     # here), so an older config's resolved form (its config_hash, the results file's
@@ -763,3 +771,29 @@ def _check_sweep(config: Config) -> list[str]:
 def suggest(key: str, model) -> str:
     close = difflib.get_close_matches(key, list(model.model_fields), n=1)
     return f"; did you mean {close[0]!r}?" if close else ""
+
+
+@functools.cache
+def _attribute_docstrings(module: str) -> dict[str, dict[str, str]]:
+    """Per class of ``module``: each annotated attribute's docstring (the string just under it)."""
+    tree = ast.parse(Path(sys.modules[module].__file__).read_text(encoding="utf-8"))
+    found = {}
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ClassDef):
+            docs = found.setdefault(node.name, {})
+            for field, doc in zip(node.body, node.body[1:]):
+                if (isinstance(field, ast.AnnAssign) and isinstance(field.target, ast.Name)
+                        and isinstance(doc, ast.Expr) and isinstance(doc.value, ast.Constant)
+                        and isinstance(doc.value.value, str)):
+                    docs[field.target.id] = inspect.cleandoc(doc.value.value)
+    return found
+
+
+def field_descriptions(model: type[BaseModel]) -> dict[str, str]:
+    """What each field of a config section means: the docstring under it in the class that
+    declares it ("" where there is none); the config reference is generated from these."""
+    docs: dict[str, str] = {}
+    for cls in reversed(model.__mro__):
+        if issubclass(cls, BaseModel) and cls.__module__.startswith("sim."):
+            docs.update(_attribute_docstrings(cls.__module__).get(cls.__name__, {}))
+    return {name: docs.get(name) or field.description or "" for name, field in model.model_fields.items()}

@@ -7,50 +7,25 @@ Workers that share the writer's disk (local pools) save their batch as a
 shard themselves and send back only its name and outcome counts; a dask
 worker sends its results, which the single writer in the calling process
 saves.
+
+``start`` says how local workers start (a fork server). Names are imported from their
+modules when first used (PEP 562), so importing ``sim.parallel.start`` loads nothing else.
 """
 
 from __future__ import annotations
 
-from .cluster import CLUSTER_INSTALL, DaskPool
-from .local import ProcessPool, SerialPool
-from .work import (
-    BATCH_INDIVIDUALS,
-    Batch,
-    BatchClock,
-    BatchOutput,
-    Job,
-    ClusterError,
-    PoolError,
-    default_batch_size,
-    default_workers,
-    plan_batches,
-    iter_batches,
-    reduce_trajectory,
-    run_batch,
-    run_job,
-)
+from ..lazy import lazy_exports
 
-__all__ = [
-    "Batch",
-    "PoolError",
-    "ClusterError",
-    "BATCH_INDIVIDUALS",
-    "CLUSTER_INSTALL",
-    "plan_batches",
-    "iter_batches",
-    "default_batch_size",
-    "default_workers",
-    "run_batch",
-    "run_job",
-    "Job",
-    "BatchOutput",
-    "BatchClock",
-    "reduce_trajectory",
-    "make_pool",
-    "SerialPool",
-    "ProcessPool",
-    "DaskPool",
-]
+_WHERE = {
+    **dict.fromkeys(["CLUSTER_INSTALL", "DaskPool"], "cluster"),
+    **dict.fromkeys(["ProcessPool", "SerialPool"], "local"),
+    **dict.fromkeys(["default_workers", "start_soon"], "start"),
+    **dict.fromkeys(["BATCH_INDIVIDUALS", "BATCH_REPLICATES", "Batch", "BatchClock", "BatchOutput", "Job", "ClusterError",
+                     "PoolError", "default_batch_size", "plan_batches", "iter_batches",
+                     "reduce_trajectory", "run_batch", "run_job"], "work"),
+}
+__all__ = [*_WHERE, "make_pool"]
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE, globals())
 
 
 def make_pool(*, workers: int = 1, cluster: str | None = None):
@@ -60,7 +35,11 @@ def make_pool(*, workers: int = 1, cluster: str | None = None):
     that ``dask scheduler --scheduler-file FILE`` writes.
     """
     if cluster is not None:
+        from .cluster import DaskPool
+
         return DaskPool(cluster)
     if workers < 1:
         raise ValueError(f"workers must be >= 1; got {workers}")
+    from .local import ProcessPool, SerialPool
+
     return SerialPool() if workers == 1 else ProcessPool(workers)

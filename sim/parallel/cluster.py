@@ -91,11 +91,10 @@ class DaskPool:
     Each batch is one task with its own key, so no two batches are merged. A
     worker lost mid-batch has its task rerun elsewhere by the scheduler (up
     to its ``allowed-failures``); the result still comes back once, so no
-    row is written twice. The workers may not see this machine's disk
-    (``shares_disk`` is False): their results come back to the writer.
+    row is written twice. A worker that sees the writer's disk (a shared file
+    system: ``ShardTarget.reachable``) saves its batch as a shard itself, as a
+    local worker does; any other sends its results back to the writer.
     """
-
-    shares_disk = False
 
     def __init__(self, address: str, *, timeout: float = 10.0):
         try:

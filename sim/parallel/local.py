@@ -1,24 +1,24 @@
-"""Local pools: batches run in this process, or in spawned worker processes.
+"""Local pools: batches run in this process, or in worker processes of this machine.
 
 A pool's ``run_jobs(jobs)`` takes an iterator of ``Job`` and yields
 (batch, BatchOutput) as batches finish, keeping at most ``2 * slots`` batches
 in flight so that memory does not grow with the experiment; ``run(tasks)``
 takes (batch, point, seed) and yields (batch, results). ``shutdown(cancel=)``
 ends it; with ``cancel`` running batches are abandoned (they re-run on resume).
-Local pools share this machine's disk (``shares_disk``): their workers can save
-their own shards.
+Their workers share the writer's disk, so they save their own shards.
+
+Workers start as ``sim.parallel.start`` says (a fork server, or spawned).
 """
 
 from __future__ import annotations
 
-import multiprocessing
 import os
-import signal
 import threading
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 
+from .start import worker_context, worker_init
 from .work import Job, PoolError, run_job
 
 __all__ = ["SerialPool", "ProcessPool"]
@@ -29,8 +29,6 @@ class SerialPool:
 
     slots = 1
     description = "1 process"
-    shares_disk = True
-
     def run_jobs(self, jobs, *, idle=None):
         for job in jobs:
             yield job.batch, run_job(job)
@@ -50,32 +48,6 @@ def _results(pool, tasks):
         yield batch, output.results
 
 
-def _watch_parent(parent: int) -> None:
-    while True:
-        time.sleep(0.5)
-        if os.getppid() != parent:  # the writer died (kill -9): do not run on as an orphan
-            os._exit(1)
-
-
-def _warm_compiler() -> None:
-    """Set up numba's code generator now (about 0.2 s), while the writer checks the config,
-    rather than in the worker's first batch, where loading the engines' cached machine code
-    would do it."""
-    try:
-        from numba.core.registry import cpu_target
-
-        cpu_target.target_context.refresh()
-    except Exception:  # an internal of numba: if it moves, the first batch does this itself
-        pass
-
-
-def _worker_init(parent: int) -> None:
-    # Ctrl-C in a terminal reaches the whole process group; the writer alone handles it.
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-    threading.Thread(target=_watch_parent, args=(parent,), daemon=True).start()
-    _warm_compiler()
-
-
 def _ready() -> tuple[int, float, float]:
     """A started worker: its pid, when it was ready (perf_counter) and its CPU time so far
     (interpreter start-up and imports)."""
@@ -83,25 +55,32 @@ def _ready() -> tuple[int, float, float]:
 
 
 class ProcessPool:
-    """Batches run in ``workers`` local processes (spawned: safe with mesa's start method).
+    """Batches run in ``workers`` local processes (forked from a fork server, or spawned).
 
     The processes are started at once, not at the first batch: they import what a batch
     needs while the calling process checks the config and writes the file's header.
     """
-
-    shares_disk = True
 
     def __init__(self, workers: int):
         if workers < 1:
             raise ValueError(f"workers must be >= 1; got {workers}")
         self.slots = workers
         self.description = f"{workers} worker processes"
-        self._executor = ProcessPoolExecutor(
-            workers, mp_context=multiprocessing.get_context("spawn"),
-            initializer=_worker_init, initargs=(os.getpid(),))
+        self._executor = ProcessPoolExecutor(workers, mp_context=worker_context(),
+                                             initializer=worker_init)
         self._exiting = []
-        # each submission finding no idle worker starts one more process, up to ``workers``
-        self._starting = [self._executor.submit(_ready) for _ in range(workers)]
+        # each submission finding no idle worker starts one more process, up to ``workers``;
+        # from a thread, as starting one may wait for the fork server to load the engines
+        self._starting = []
+        threading.Thread(target=self._start_workers, args=(workers,), daemon=True,
+                         name="start workers").start()
+
+    def _start_workers(self, workers: int) -> None:
+        try:
+            for _ in range(workers):
+                self._starting.append(self._executor.submit(_ready))
+        except RuntimeError:  # shut down before every worker started
+            pass
 
     def run(self, tasks):
         return _results(self, tasks)

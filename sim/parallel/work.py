@@ -13,11 +13,14 @@ import os
 import time
 from collections import Counter
 from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from ..config import SweepPoint
-from ..replicates import ReplicateResult, run_replicates
+
+if TYPE_CHECKING:  # the engines (numba) are imported where a batch runs, not by the writer
+    from ..replicates import ReplicateResult
 
 __all__ = [
     "Batch",
@@ -26,7 +29,6 @@ __all__ = [
     "plan_batches",
     "iter_batches",
     "default_batch_size",
-    "default_workers",
     "run_batch",
     "reduce_trajectory",
     "Job",
@@ -60,27 +62,29 @@ class Batch:
         return self.last - self.first + 1
 
 
-def default_workers() -> int:
-    """The cores this process may use (a batch scheduler's CPU set, where it sets one)."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not Linux
-        return os.cpu_count() or 1
-
-
 # Individuals a batch holds at once by default: enough that a batch's fixed cost per season
 # (array calls around the compiled pass; numpy calls per replicate for some laws) is spread
 # over many individuals, few enough that a batch finishes (and is saved) quickly. In an
 # invasion most replicates leave early and a few run long: the larger the batch, the more
 # replicates share the long tail's seasons (K = 500, one worker: 1000 replicates a batch ran
-# 20,000 replicates in 4.2 s, 200 a batch in 7.2 s, measured in one run).
+# 20,000 replicates in 4.2 s, 200 a batch in 7.2 s, measured in one run). A batch's results
+# stay in memory until saved, trajectories included; without trajectories (``trajectory =
+# "none"``) they are a few numbers a replicate, so such batches may be four times larger
+# (K = 500, 16,384 replicates on one core: 4096 a batch took 64 microseconds of CPU a
+# replicate against 84 at 1024 with `counts`, 200 against 243 with `individual`).
 BATCH_INDIVIDUALS = 500_000
+BATCH_REPLICATES = 1024
+UNRECORDED_FACTOR = 4
 
 
-def default_batch_size(n_replicates: int, slots: int, census_size: int = 1) -> int:
+def default_batch_size(n_replicates: int, slots: int, census_size: int = 1, *,
+                       records: bool = True) -> int:
     """Replicates per batch: about ``BATCH_INDIVIDUALS`` individuals at the starting census
-    (at most 1024 replicates), and small enough that every slot gets about four batches."""
-    cap = max(1, min(1024, BATCH_INDIVIDUALS // max(census_size, 1)))
+    (at most ``BATCH_REPLICATES`` replicates; both ``UNRECORDED_FACTOR`` times larger when
+    no trajectories are kept, ``records=False``), and small enough that every slot gets
+    about four batches."""
+    factor = 1 if records else UNRECORDED_FACTOR
+    cap = max(1, min(factor * BATCH_REPLICATES, factor * BATCH_INDIVIDUALS // max(census_size, 1)))
     return max(1, min(cap, math.ceil(n_replicates / (4 * max(slots, 1)))))
 
 
@@ -117,6 +121,8 @@ def run_batch(point: SweepPoint, first: int, last: int, seed: int) -> list[Repli
     This is what a worker runs: a top-level function (spawned processes and
     dask workers import it by name) around ``replicates.run_replicates``.
     """
+    from ..replicates import run_replicates
+
     mode = point.config.experiment.trajectory
     return [reduce_trajectory(r, mode) for r in run_replicates(point, range(first, last + 1), seed)]
 
@@ -125,8 +131,8 @@ def run_batch(point: SweepPoint, first: int, last: int, seed: int) -> list[Repli
 class Job:
     """One batch as a pool runs it: the batch, its sweep point and the root seed; optionally
     the point's starting census (then the worker solves no equilibrium) and a ``ShardTarget``
-    (then the worker saves its batch as a shard and sends back only a ``BatchOutput``
-    without results)."""
+    (then a worker that reaches it saves its batch as a shard and sends back only a
+    ``BatchOutput`` without results)."""
 
     batch: Batch
     point: SweepPoint
@@ -168,17 +174,20 @@ _FIRST_BATCH_CPU: list[float] = []  # this process's CPU time when its first job
 
 
 def run_job(job: Job) -> BatchOutput:
-    """Run one ``Job`` (what a worker process runs): the batch, and its shard if asked."""
+    """Run one ``Job`` (what a worker process runs): the batch, saved as a shard if the job
+    has a target this process can reach (the writer's disk), else sent back as results."""
     cpu0, wall0 = time.process_time(), time.perf_counter()
     if not _FIRST_BATCH_CPU:
         _FIRST_BATCH_CPU.append(cpu0)
+    from ..replicates import run_replicates
+
     batch = job.batch
     mode = job.point.config.experiment.trajectory
     results = [reduce_trajectory(r, mode) for r in
                run_replicates(job.point, batch.replicates, job.seed, start=job.start)]
     outcomes = Counter(r.outcome for r in results)
     shard, cpu1 = None, time.process_time()
-    if job.target is not None:
+    if job.target is not None and job.target.reachable():
         from ..store.writer import write_shard  # h5py: only in processes that save shards
 
         shard = write_shard(job.target, results)

@@ -50,8 +50,12 @@ equal-length column datasets, chunked and gzip-compressed)::
 While running (or after a run was stopped) the file holds the attributes and
 /points with ``complete = False`` and empty tables; each finished batch is a
 shard ``NAME.parts/pPPPPPP-rFFFFFFFFF-LLLLLLLLL.h5`` (point P, replicates F to
-L) with the same /replicates, /trajectories (and /years) groups (``trajectory_start``
-counted within the shard). A shard is written as ``.tmp``, flushed, fsynced,
+L) with the same /trajectories (and /years) groups (``trajectory_start``
+counted within the shard); its /replicates is one table (a compound dataset,
+neither chunked nor compressed, the outcome as its index in the table's
+``outcomes`` attribute, a JSON list), which makes saving a batch and merging it
+a fraction of the cost of eleven column datasets (``replicate_column`` reads
+either form). A shard is written as ``.tmp``, flushed, fsynced,
 closed and renamed into place, so a shard either exists whole or not at all;
 the final file is built the same way and replaces the running one in one
 rename. ``NAME.parts/lock`` is held (``flock``) by the one writing process.
@@ -63,11 +67,12 @@ import json
 import os
 import re
 from dataclasses import dataclass
-from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 
 import h5py
 import numpy as np
+
+from ..version import software_version
 
 __all__ = [
     "FORMAT_VERSION",
@@ -81,6 +86,9 @@ __all__ = [
     "list_shards",
     "software_version",
     "open_results",
+    "SHARD_ROW",
+    "replicate_rows",
+    "replicate_column",
     "is_complete",
 ]
 
@@ -105,6 +113,12 @@ REPLICATE_COLUMNS = {
 }
 
 
+# A shard's /replicates: one row per replicate, the columns above as fields, the outcome as
+# a code (its index in the shard's ``outcomes`` attribute).
+SHARD_ROW = np.dtype([(name, (np.uint8 if dtype is _STR else dtype, shape))
+                      for name, (dtype, shape) in REPLICATE_COLUMNS.items()])
+
+
 class ResultsError(Exception):
     """A results file cannot be written, resumed or read as asked (the message says why)."""
 
@@ -120,13 +134,6 @@ class ConfigMismatchError(ResultsError):
     def __init__(self, message: str, differences: list[str]):
         super().__init__(message)
         self.differences = differences
-
-
-def software_version() -> str:
-    try:
-        return version("broodline")
-    except PackageNotFoundError:  # running from a source tree
-        return "0+unknown"
 
 
 def parts_dir(path) -> Path:
@@ -166,6 +173,24 @@ def list_shards(parts: Path) -> list[Shard]:
     except FileNotFoundError:
         return []
     return sorted(s for s in map(Shard.parse, names) if s is not None)
+
+
+def replicate_rows(f) -> int:
+    """Replicates in the /replicates table of an open results file or shard."""
+    return int(f["replicates"].shape[0] if isinstance(f["replicates"], h5py.Dataset)
+               else f["replicates"]["replicate"].shape[0])
+
+
+def replicate_column(f, name: str, rows=slice(None)) -> np.ndarray:
+    """Rows ``rows`` of one /replicates column of an open results file or shard, outcomes as
+    the names stored (str); a shard's table and a file's column datasets read alike."""
+    reps = f["replicates"]
+    if isinstance(reps, h5py.Dataset):  # a shard: one table, outcomes as codes
+        values = reps.fields(name)[rows]
+        if name == "outcome":
+            values = np.array(json.loads(reps.attrs["outcomes"]), dtype=object)[values]
+        return values
+    return reps[name].asstr()[rows] if name == "outcome" else reps[name][rows]
 
 
 def _column(group, name, dtype, shape, chunk, data=None):

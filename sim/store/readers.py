@@ -12,7 +12,17 @@ import pandas as pd
 
 from ..config import Config
 from ..vocabulary import outcome_name
-from .layout import _STR, REPLICATE_COLUMNS, YEARS, DamagedResultsError, list_shards, open_results, parts_dir
+from .layout import (
+    _STR,
+    REPLICATE_COLUMNS,
+    YEARS,
+    DamagedResultsError,
+    list_shards,
+    open_results,
+    parts_dir,
+    replicate_column,
+    replicate_rows,
+)
 
 __all__ = [
     "read_attrs",
@@ -138,11 +148,10 @@ def _outcome_names(stored: np.ndarray) -> np.ndarray:
 
 
 def _replicate_columns(f, offset, names) -> dict:
-    g = f["replicates"]
     out = {}
     for name in names:
-        col = g[name]
-        out[name] = _outcome_names(col.asstr()[:]) if name == "outcome" else col[:]
+        col = replicate_column(f, name)
+        out[name] = _outcome_names(col) if name == "outcome" else col
     if "trajectory_start" in out:
         out["trajectory_start"] = out["trajectory_start"] + offset
     return out
@@ -164,10 +173,11 @@ def count_outcomes(path) -> pd.DataFrame:
     """How many replicates of each point ended in each outcome so far: ``point``, ``outcome``,
     ``count``; read in chunks, so a billion replicates cost what a million do."""
     def read(f, offset):
-        g, counts = f["replicates"], {}
-        for start in range(0, g["point"].shape[0], _CHUNK_ROWS):
-            chunk = pd.DataFrame({"point": g["point"][start:start + _CHUNK_ROWS],
-                                  "outcome": _outcome_names(g["outcome"].asstr()[start:start + _CHUNK_ROWS])})
+        counts = {}
+        for start in range(0, replicate_rows(f), _CHUNK_ROWS):
+            rows = slice(start, start + _CHUNK_ROWS)
+            chunk = pd.DataFrame({"point": replicate_column(f, "point", rows),
+                                  "outcome": _outcome_names(replicate_column(f, "outcome", rows))})
             for key, n in chunk.value_counts(sort=False).items():
                 counts[key] = counts.get(key, 0) + n
         return counts

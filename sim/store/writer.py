@@ -15,12 +15,14 @@ import h5py
 import numpy as np
 
 from ..config import config_differences, config_hash
+from ..vocabulary import OUTCOMES
 from . import durable
 from .layout import (
     _FORMAT,
     _STR,
     FORMAT_VERSION,
     REPLICATE_COLUMNS,
+    SHARD_ROW,
     YEARS,
     ConfigMismatchError,
     ResultsError,
@@ -33,8 +35,12 @@ from .layout import (
     is_complete,
     list_shards,
     parts_dir,
+    replicate_column,
+    replicate_rows,
     software_version,
 )
+
+_OUTCOME_CODES = {name: code for code, name in enumerate(OUTCOMES)}
 
 try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
     import fcntl
@@ -283,8 +289,19 @@ class ResultsWriter:
         cache = self.__dict__.setdefault("_targets", {})
         if point not in cache:
             cache[point] = ShardTarget(self.parts, self.mode, self.n_alleles, self.n_ages,
-                                       self._point_hash(point), self.config.environment)
+                                       self._point_hash(point), self.config.environment, self._probe())
         return cache[point]
+
+    def _probe(self) -> str:
+        """The name of this writer's probe file in the shards' folder, made on first use."""
+        if "_probe_name" not in self.__dict__:
+            name = f"writer-{os.getpid()}-{os.urandom(6).hex()}.probe"
+            try:
+                (self.parts / name).touch()
+            except OSError as err:
+                raise ResultsError(self._write_failure(err)) from None
+            self._probe_name = name
+        return self._probe_name
 
     def add_shard(self, shard: Shard) -> None:
         """Record a shard a worker wrote itself (``write_shard`` with ``shard_target``)."""
@@ -376,7 +393,7 @@ class ResultsWriter:
         if merge is not None:
             merge.abandon()
         if self._lock_fd is not None:
-            for leftover in self.parts.glob("*.tmp"):
+            for leftover in [*self.parts.glob("*.tmp"), *self.parts.glob("*.probe")]:
                 leftover.unlink(missing_ok=True)
         self._unlock()
 
@@ -440,17 +457,25 @@ class _MergedFile:
     def _read(self, path: Path) -> None:
         buffer = self.buffer
         with h5py.File(path, "r") as f:
-            reps, traj = f["replicates"], f["trajectories"]
-            for name in REPLICATE_COLUMNS:
-                buffer[name].append(reps[name][()])
+            if isinstance(f["replicates"], h5py.Dataset):  # one table: read at once
+                table = f["replicates"][()]
+                # as bytes: h5py stores them as the str column a third faster than str
+                names = np.array([n.encode() for n in json.loads(f["replicates"].attrs["outcomes"])],
+                                 dtype=object)
+                for name in REPLICATE_COLUMNS:
+                    buffer[name].append(names[table[name]] if name == "outcome" else table[name])
+            else:  # a shard of an earlier version: column datasets
+                for name in REPLICATE_COLUMNS:
+                    buffer[name].append(replicate_column(f, name))
             buffer["trajectory_start"][-1] = buffer["trajectory_start"][-1] + self.offset
-            steps = traj["step"][()]
-            buffer["step"].append(steps)
-            buffer["counts"].append(traj["counts"][()])
+            records = int(buffer["trajectory_length"][-1].sum())
+            if records:  # (none with trajectory = "none": two datasets not opened)
+                buffer["step"].append(f["trajectories"]["step"][()])
+                buffer["counts"].append(f["trajectories"]["counts"][()])
             if YEARS in f:
                 buffer[YEARS].append(f[YEARS]["type"][()])
-        self.offset += steps.shape[0]
-        self.records += steps.shape[0]
+        self.offset += records
+        self.records += records
 
     def _write(self, *, complete: bool = False) -> None:
         """Append the buffered rows to the ``.tmp`` file (created with the header the first
@@ -494,7 +519,8 @@ class _MergedFile:
 class ShardTarget:
     """Everything needed to save a batch of one sweep point as a shard, in any process:
     the shards' folder, the trajectory mode and counts shape of the file, the point's config
-    hash (a shard carries it) and the ``[environment]`` section (None: no years)."""
+    hash (a shard carries it), the ``[environment]`` section (None: no years) and ``probe``,
+    a file the writer made in the folder (a process that sees it sees the writer's disk)."""
 
     parts: Path
     mode: str
@@ -502,6 +528,12 @@ class ShardTarget:
     n_ages: int
     point_hash: str
     environment: object = None
+    probe: str = ""
+
+    def reachable(self) -> bool:
+        """True if this process sees the writer's folder of shards (the probe is there): a
+        worker on another machine of a dask cluster may not, and then sends its results."""
+        return not self.probe or (self.parts / self.probe).is_file()
 
 
 def write_shard(target: ShardTarget, results) -> Shard:
@@ -521,28 +553,22 @@ def _fill_shard(f, target: ShardTarget, results) -> None:
     f.attrs["config_hash"] = target.point_hash
     lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
     starts = np.concatenate([[0], np.cumsum(lengths)[:-1]])
-    columns = {
-        "point": [r.point for r in results],
-        "replicate": [r.replicate for r in results],
-        "seed": [r.seed for r in results],
-        "spawn_key": [(r.point, r.replicate) for r in results],
-        "outcome": [r.outcome for r in results],
-        "winner": [r.winner for r in results],
-        "steps": [r.steps for r in results],
-        "fixation_step": [r.fixation_step for r in results],
-        "final_census": [r.final_census for r in results],
-        "trajectory_start": starts,
-        "trajectory_length": lengths,
-    }
-    reps = f.create_group("replicates")
-    for name, (dtype, shape) in REPLICATE_COLUMNS.items():
-        _column(reps, name, dtype, shape, 1024, columns[name])
+    table = np.empty(len(results), SHARD_ROW)
+    table["point"] = table["spawn_key"][:, 0] = [r.point for r in results]
+    table["replicate"] = table["spawn_key"][:, 1] = [r.replicate for r in results]
+    table["outcome"] = [_OUTCOME_CODES[r.outcome] for r in results]
+    for name in ("seed", "winner", "steps", "fixation_step", "final_census"):
+        table[name] = [getattr(r, name) for r in results]
+    table["trajectory_start"], table["trajectory_length"] = starts, lengths
+    f.create_dataset("replicates", data=table).attrs["outcomes"] = json.dumps(OUTCOMES)
     traj = f.create_group("trajectories")
     counts_shape = _counts_shape(target.mode, target.n_alleles, target.n_ages)
-    steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
-    counts = [r.trajectory if target.mode == "by-allele" else _pad_ages(r.trajectory, target.n_ages)
-              for r in results]
-    counts = np.concatenate(counts) if steps.size else np.zeros((0, *counts_shape), np.uint32)
+    if lengths.sum():
+        steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
+        counts = np.concatenate([r.trajectory if target.mode == "by-allele"
+                                 else _pad_ages(r.trajectory, target.n_ages) for r in results])
+    else:  # no records (trajectory = "none"): no pass over the replicates for them
+        steps, counts = np.zeros(0, np.int32), np.zeros((0, *counts_shape), np.uint32)
     _column(traj, "step", np.int32, (), 4096, steps)
     _column(traj, "counts", np.uint32, counts_shape, 4096, counts)
     if target.environment is not None:
@@ -619,7 +645,7 @@ def _shard_rows(path: Path, config_hash: str) -> int:
     try:
         with h5py.File(path, "r") as f:
             written_by = f.attrs.get("config_hash", config_hash)
-            rows = int(f["replicates"]["replicate"].shape[0])
+            rows = replicate_rows(f)
     except (OSError, KeyError):
         return -1
     if written_by != config_hash:
