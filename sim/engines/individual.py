@@ -29,7 +29,10 @@ class IndividualPopulations(ReplicateBatch):
     over individuals is compiled (``compiled.survive``): one pass for every
     replicate of the batch, each drawing from its own generator; where
     ``ReplicateBatch.recruits_in_pass`` (Poisson offspring), a replicate draws its
-    recruits of each allele in the same pass, right after its individuals.
+    recruits of each allele in the same pass, right after its individuals. The next
+    census is built by a second pass (``compiled.next_census``), which also takes its
+    density index; where the recruits go in as drawn (no mutation, no parental
+    effects) the two passes are one call (``compiled.survive_to_census``).
 
     Parameters are those of ``ReplicateBatch``.
     """
