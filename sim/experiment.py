@@ -14,6 +14,7 @@ import importlib
 import logging
 import threading
 import time
+from collections import Counter
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -62,6 +63,7 @@ class _Progress:
         self.n_reps = writer.replicates
         self.done = np.zeros(len(points), np.int64)
         self.fixed = np.zeros(len(points), np.int64)
+        self.outcomes = Counter()  # (point, outcome) -> replicates: the summary, without a re-read
         if writer.done:  # resuming: count what the shards already hold
             from .store.readers import count_outcomes
 
@@ -69,6 +71,7 @@ class _Progress:
             np.add.at(self.done, so_far["point"].to_numpy(), so_far["count"].to_numpy())
             won = so_far[so_far["outcome"] == self.fixed_name]
             np.add.at(self.fixed, won["point"].to_numpy(), won["count"].to_numpy())
+            self.outcomes.update({(int(p), o): int(n) for p, o, n in so_far.itertuples(index=False)})
         self.bar = tqdm(total=writer.expected, initial=int(self.done.sum()), disable=not show,
                         unit="rep", desc=writer.config.experiment.name, dynamic_ncols=True)
         self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
@@ -77,6 +80,7 @@ class _Progress:
         p = batch.point
         self.done[p] += len(batch)
         self.fixed[p] += outcomes.get(self.fixed_name, 0)
+        self.outcomes.update({(p, o): n for o, n in outcomes.items()})
         self.bar.update(len(batch))
         self.bar.set_postfix({self.fixed_name: int(self.fixed.sum())}, refresh=False)
         if self.done[p] == self.n_reps:
@@ -84,6 +88,14 @@ class _Progress:
             where = f" ({', '.join(f'{k} = {v!r}' for k, v in values.items())})" if values else ""
             log.info("point %d%s done: %d replicates, %s %d (%.3f)", p, where, self.n_reps,
                      self.fixed_name, self.fixed[p], self.fixed[p] / self.n_reps)
+
+    def outcome_counts(self):
+        """Replicates per (point, outcome), as ``sim.store.count_outcomes`` reads them from the
+        file: counted as batches came, so the summary needs no pass over the file."""
+        import pandas as pd
+
+        return pd.DataFrame([(p, o, n) for (p, o), n in sorted(self.outcomes.items())],
+                            columns=["point", "outcome", "count"])
 
     def close(self) -> None:
         self.bar.close()
@@ -273,8 +285,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if tracker is not None:
             tracker.close()
     pool.shutdown()
-    from .store.readers import count_outcomes, read_points  # pandas: loaded by now with workers
+    from .store.readers import read_points  # (pandas, loaded in the background by now)
 
-    summary = summarize(count_outcomes(out), read_points(out), fixed=fixed_outcome(config))
+    summary = summarize(tracker.outcome_counts(), read_points(out), fixed=fixed_outcome(config))
     clock.finished = time.perf_counter()
     return summary

@@ -107,3 +107,22 @@ def test_a_worker_saves_its_shard_only_where_it_sees_the_writers_folder(tmp_path
     both = [read_replicates(f).query("point == 0").reset_index(drop=True)
             for f in (reference, tmp_path / "probe.h5")]
     pd.testing.assert_frame_equal(*both)
+
+
+def test_the_run_summary_counts_what_the_file_holds(tmp_path):
+    # the summary is tallied from the batches as they come (and, on resume, from the shards
+    # already saved), not read back from the file: it must be what the file holds
+    from sim.outcomes import fixed_outcome, summarize
+    from sim.store import count_outcomes
+
+    config = small_config(replicates=7)
+    out = tmp_path / "sum.h5"
+    points = sweep_points(config)
+    writer = ResultsWriter(out, config, points)
+    writer.write(run_batch(points[-1], 2, 4, config.experiment.seed))  # saved before a "crash"
+    writer.release()
+    resumed = run_experiment(config, out, resume=True, batch_size=3, progress=False)
+    fresh = run_experiment(config, tmp_path / "fresh.h5", workers=2, progress=False)
+    for summary, path in ((resumed, out), (fresh, tmp_path / "fresh.h5")):
+        pd.testing.assert_frame_equal(summary, summarize(count_outcomes(path), read_points(path),
+                                                         fixed=fixed_outcome(config)))
