@@ -104,7 +104,8 @@ class _Section(BaseModel):
     # Each field's meaning is the docstring under it (``field_descriptions`` reads them for the
     # config reference); pydantic is not asked to read them (use_attribute_docstrings), which
     # would parse this file's source at every import, in every worker process.
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False)
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False,
+                              defer_build=True)
 
     # Keys added after 0.2.0 are left out of a dump while they hold their default (given
     # here), so an older config's resolved form (its config_hash, the results file's
