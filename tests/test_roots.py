@@ -37,7 +37,7 @@ def test_random_polynomials_same_root_as_scipy():
         a, b = -3.0, 3.0
         if np.sign(f(a)) == np.sign(f(b)):
             continue
-        assert brentq(lambda x: float(f(x)), a, b) == scipy_brentq(f, a, b)
+        assert brentq(f, a, b) == scipy_brentq(f, a, b)
 
 
 def test_endpoint_root_and_refusals():

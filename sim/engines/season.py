@@ -104,7 +104,7 @@ class ReplicateBatch:
         Births are drawn first (step 2) where ``counted = "offspring"``;
         elsewhere they are not needed and None is returned for them.
         """
-        kernel, counts = self.kernel, self.counts
+        kernel = self.kernel
         year = None if self.years is None else self.years.advance()
         if not kernel.counted_after_breeding:
             return None, kernel.multipliers(kernel.factors(self.census_index()), year=year)

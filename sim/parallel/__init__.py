@@ -20,8 +20,8 @@ _WHERE = {
     **dict.fromkeys(["CLUSTER_INSTALL", "DaskPool"], "cluster"),
     **dict.fromkeys(["ProcessPool", "SerialPool"], "local"),
     **dict.fromkeys(["default_workers", "start_soon"], "start"),
-    **dict.fromkeys(["BATCH_INDIVIDUALS", "BATCH_REPLICATES", "Batch", "BatchClock", "BatchOutput", "Job", "ClusterError",
-                     "PoolError", "default_batch_size", "plan_batches", "iter_batches",
+    **dict.fromkeys(["BATCH_INDIVIDUALS", "BATCH_REPLICATES", "Batch", "BatchClock", "BatchOutput", "Job",
+                     "ClusterError", "PoolError", "default_batch_size", "plan_batches", "iter_batches",
                      "reduce_trajectory", "run_batch", "run_job"], "work"),
 }
 __all__ = [*_WHERE, "make_pool"]
