@@ -29,6 +29,7 @@ class SerialPool:
 
     slots = 1
     description = "1 process"
+
     def run_jobs(self, jobs, *, idle=None):
         for job in jobs:
             yield job.batch, run_job(job)
@@ -50,15 +51,16 @@ def _results(pool, tasks):
 
 def _ready() -> tuple[int, float, float]:
     """A started worker: its pid, when it was ready (perf_counter) and its CPU time so far
-    (interpreter start-up and imports)."""
+    (its own start-up: little for a fork of the fork server, the imports for a spawned one)."""
     return os.getpid(), time.perf_counter(), time.process_time()
 
 
 class ProcessPool:
     """Batches run in ``workers`` local processes (forked from a fork server, or spawned).
 
-    The processes are started at once, not at the first batch: they import what a batch
-    needs while the calling process checks the config and writes the file's header.
+    The processes are started at once (from a thread), not at the first batch: the fork
+    server loads what a batch needs while the calling process checks the config and
+    writes the file's header.
     """
 
     def __init__(self, workers: int):

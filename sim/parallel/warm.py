@@ -3,7 +3,7 @@
 Importing this module imports the engines (numba), the shard writer (h5py)
 and the config schema (pydantic), and sets up numba's code generator, which
 loading the engines' cached machine code would otherwise do in the first
-batch. The fork server (``sim.parallel.local.worker_context``) imports it
+batch. The fork server (``sim.parallel.start.worker_context``) imports it
 before forking any worker, so every worker starts with all of it loaded; a
 spawned worker imports it in its initializer.
 """
