@@ -476,4 +476,3 @@ class SeasonKernel:
             b, pmf = self.offspring.pmf_table(m_i)
             out[i] = pmf @ (1.0 - q_i * x_i ** (b - 1.0) * (1.0 - s1)) ** b
         return out
-

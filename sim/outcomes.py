@@ -54,7 +54,7 @@ def mutant_index(config: Config) -> int | None:
 
 def census_states(totals: np.ndarray, mutant: int | None) -> tuple[np.ndarray, np.ndarray]:
     """``classify`` with the mutant's index (``mutant_index``) known: what the stop rule calls
-    every season."""
+    in a season where the alleles present change."""
     totals = np.asarray(totals)
     present = totals > 0
     n_present = present.sum(axis=1)

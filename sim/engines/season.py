@@ -35,7 +35,6 @@ from .compiled import DRAW_LIMIT
 __all__ = ["ReplicateBatch", "OneReplicate", "DRAW_LIMIT"]
 
 
-
 class ReplicateBatch:
     """What the array engines hold alike: each replicate's stream, its census by class
     and its last season's recruits (the engines add how individuals are kept), and the

@@ -15,7 +15,7 @@ import h5py
 import numpy as np
 
 from ..config import config_differences, config_hash
-from ..vocabulary import OUTCOMES
+from ..outcomes import CODES, OUTCOMES
 from . import durable
 from .layout import (
     _FORMAT,
@@ -39,8 +39,6 @@ from .layout import (
     replicate_rows,
     software_version,
 )
-
-_OUTCOME_CODES = {name: code for code, name in enumerate(OUTCOMES)}
 
 try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
     import fcntl
@@ -556,7 +554,7 @@ def _fill_shard(f, target: ShardTarget, results) -> None:
     table = np.empty(len(results), SHARD_ROW)
     table["point"] = table["spawn_key"][:, 0] = [r.point for r in results]
     table["replicate"] = table["spawn_key"][:, 1] = [r.replicate for r in results]
-    table["outcome"] = [_OUTCOME_CODES[r.outcome] for r in results]
+    table["outcome"] = [CODES[r.outcome] for r in results]
     for name in ("seed", "winner", "steps", "fixation_step", "final_census"):
         table[name] = [getattr(r, name) for r in results]
     table["trajectory_start"], table["trajectory_length"] = starts, lengths
