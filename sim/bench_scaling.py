@@ -107,13 +107,14 @@ SCALING_KEYS = {
     "fixed_cost_s": "wall_s - batch seconds / workers: the time not spent in batches, per worker",
     "writer_busy_fraction": "share of wall_s during which the writing process records batches "
                             "or merges shards",
-    "writer_per_replicate_s": "seconds the writing process spends recording one replicate's batch",
-    "merge_per_replicate_s": "seconds the writing process spends merging one replicate into the "
-                             "results file (while it waits for workers, and at the end)",
+    "writer_per_replicate_s": "CPU seconds the writing process spends recording one replicate's batch",
+    "merge_per_replicate_s": "CPU seconds the writing process spends merging one replicate into the "
+                             "results file (while it waits for workers, and at the end, creating "
+                             "and committing the file included)",
     "merge_saturates_at_workers": "worker_per_replicate_s / merge_per_replicate_s: past this many "
                                   "workers the merge falls behind and finishes after the last batch",
     "save_per_replicate_s": "CPU seconds a worker spends saving one replicate to its shard",
-    "worker_per_replicate_s": "a worker's wall seconds per replicate (its batches' time / replicates / workers)",
+    "worker_per_replicate_s": "a worker's CPU seconds per replicate (its batches' CPU time / replicates)",
     "writer_saturates_at_workers": "worker_per_replicate_s / writer_per_replicate_s: workers at "
                                    "which the one writer would be busy all the time (null: never)",
     "saver_saturates_at_workers": "the same if the writer saved every batch itself, as it does "
@@ -272,11 +273,13 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         per_worker.setdefault(c.pid, []).append(c.finished - c.started)
     extra = [w[0] - statistics.median(w) for w in per_worker.values() if len(w) > 1]
     starts = [cpu for _, _, cpu in t.workers]
-    writer = t.writer_s / max(t.replicates, 1)
-    worker = batch_wall / max(t.replicates, 1)  # a worker's seconds per replicate
+    # costs per replicate in CPU seconds: what saturates is a process's core, and CPU time is
+    # not stretched by the writer and the workers sharing the cores of a small machine
+    writer = t.writer_cpu_s / max(t.replicates, 1)
+    worker = batch_cpu / max(t.replicates, 1)  # a worker's CPU seconds per replicate
     save = sum(c.save_cpu for c in clocks) / max(t.replicates, 1)
     busy = (t.writer_s + t.merge_run_s + t.merge_s) / wall
-    merge = (t.merge_run_s + t.merge_s) / max(t.replicates, 1)
+    merge = (t.merge_run_cpu_s + t.merge_cpu_s) / max(t.replicates, 1)
     return ScalingRecord(
         kind="scaling", engine=engine, workers=workers, replicates=replicates,
         batch_size=t.batch_size, batches=len(clocks),
@@ -366,7 +369,7 @@ def format_scaling(report: ScalingReport) -> str:
         lines.append(f"{r.engine:<11}{r.workers:>8}{r.startup_s:>9.2f}{r.startup_cpu_s:>7.2f}"
                      f"{r.to_first_batch_s:>13.2f}{worker_start:>19}{r.first_batch_extra_s:>16.3f}"
                      f"{r.tail_s:>7.2f}{r.merge_s:>7.2f}")
-    lines += ["", "The writer (per replicate, microseconds; saturation in workers):",
+    lines += ["", "The writer (CPU microseconds per replicate; saturation in workers):",
               f"{'engine':<11}{'workers':>8}{'worker':>8}{'writer':>8}{'merge':>8}{'saving':>8}"
               f"{'writer sat.':>12}{'merge sat.':>11}{'if it saved':>12}"]
 

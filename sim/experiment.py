@@ -254,7 +254,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         for batch, output in _saving_errors(writer, pool.run_jobs(jobs, idle=merge_one)):
             wall, cpu = time.perf_counter(), time.process_time()
             if output.shard is not None:
-                writer.add_shard(output.shard)
+                writer.add_shard(output.shard, output.rows)
+            elif output.rows is not None:  # (a worker that cannot reach this disk)
+                writer.write_rows(output.rows)
             else:
                 writer.write(output.results)
             tracker.update(batch, output.outcomes)

@@ -142,9 +142,9 @@ def nth():
 W = store.ResultsWriter
 if where == "before-any-shard":
     import sim.store.writer as writer
-    def patched(target, results):
+    def patched(target, rows):
         stop_here()
-    writer.write_shard = patched
+    writer.save_shard = patched
 elif where == "mid-shard-write":  # the .tmp shard half written to disk
     original = durable._write_file
     def patched(path, data):
@@ -176,13 +176,13 @@ elif where == "mid-merge":  # every row in the merged .tmp file, not yet marked 
     writer._MergedFile.commit = patched
 elif where == "merging-during-run":  # the merged .tmp file holds the first shards, the run goes on
     import sim.store.writer as writer
-    original = writer._MergedFile._read
-    def patched(self, path):
-        original(self, path)
+    original = writer._MergedFile._add
+    def patched(self, rows):
+        original(self, rows)
         if nth():
             self._write()
             stop_here()
-    writer._MergedFile._read = patched
+    writer._MergedFile._add = patched
 elif where == "slow-commits":  # every shard takes a while: time to press Ctrl-C mid-run
     original = durable._commit
     def patched(tmp, path):

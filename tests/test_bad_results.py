@@ -82,7 +82,7 @@ def test_a_newer_format_is_refused_with_the_versions(finished, tmp_path, capsys)
     with h5py.File(out, "a") as f:
         f.attrs["format_version"] = 99
     for err in _one_line(capsys, *_commands(out, tmp_path)):
-        assert "results format 99, newer than this broodline reads (formats 1 to 2)" in err
+        assert "results format 99, newer than this broodline reads (formats 1 to 3)" in err
     config = write_config(tmp_path)
     err, = _one_line(capsys, ["run", str(config), "-o", str(out), "--resume", "--quiet", "--workers", "1"])
     assert "format 99" in err

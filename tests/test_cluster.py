@@ -25,6 +25,7 @@ def test_local_cluster_gives_the_datasets_of_one_process(tmp_path, monkeypatch):
 
     # these workers share this machine's disk: they save every batch themselves
     monkeypatch.setattr(ResultsWriter, "write", saved_by_the_writer)
+    monkeypatch.setattr(ResultsWriter, "write_rows", saved_by_the_writer)
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
                                   dashboard_address=None) as cluster:
         run_experiment(config, out, cluster=cluster.scheduler_address, batch_size=3, progress=False)

@@ -58,6 +58,23 @@ def test_merge_in_small_pieces_gives_the_same_file(tmp_path, monkeypatch):
     assert_same_datasets(whole, pieces)
 
 
+def test_merging_rows_held_in_memory_gives_the_file_read_back_from_the_shards(tmp_path, monkeypatch):
+    # The writer merges the rows a batch's saver hands it without reading its shard back;
+    # with no room to hold rows it reads every shard: the two files must be the same.
+    config = small_config(replicates=7)
+    reads = []
+    original = store.writer.read_shard
+    monkeypatch.setattr(store.writer, "read_shard", lambda path: reads.append(path) or original(path))
+    held = tmp_path / "held.h5"
+    run_experiment(config, held, batch_size=2, progress=False, workers=1)
+    assert reads == []
+    monkeypatch.setattr(store.writer, "HELD_ROWS_BYTES", 0)
+    read_back = tmp_path / "read_back.h5"
+    run_experiment(config, read_back, batch_size=2, progress=False, workers=1)
+    assert len(reads) == 4 * 4  # 4 points, 7 replicates in batches of 2
+    assert_same_datasets(held, read_back)
+
+
 def test_writer_refuses_a_replicate_twice(tmp_path):
     config = small_config(replicates=6)
     points = sweep_points(config)
@@ -82,7 +99,7 @@ def test_a_corrupt_shard_is_redone_on_resume(tmp_path):
 
 def test_a_worker_saves_its_shard_only_where_it_sees_the_writers_folder(tmp_path):
     # a dask worker on another machine may not see the writer's disk: it finds no probe file
-    # there and sends its results back instead (the writer saves them); one that sees the
+    # there and sends the batch's rows back instead (the writer saves them); one that sees the
     # folder saves the shard itself, as a local worker does
     from sim.parallel import Batch, Job, run_job
 
@@ -96,10 +113,10 @@ def test_a_worker_saves_its_shard_only_where_it_sees_the_writers_folder(tmp_path
     elsewhere = dataclasses.replace(target, parts=tmp_path / "another-machine")
     (tmp_path / "another-machine").mkdir()
     unseen = run_job(Job(Batch(0, 3, 5), point, config.experiment.seed, target=elsewhere))
-    assert unseen.shard is None and len(unseen.results) == 3
+    assert unseen.shard is None and unseen.results is None and len(unseen.rows.table) == 3
     assert not list((tmp_path / "another-machine").iterdir())  # nothing written where unseen
-    writer.add_shard(seen.shard)
-    writer.write(unseen.results)
+    writer.add_shard(seen.shard, seen.rows)
+    writer.write_rows(unseen.rows)
     writer.release()
     assert not list(target.parts.glob("*.probe"))  # the probe goes with the writer
     reference = tmp_path / "one.h5"

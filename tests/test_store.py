@@ -70,7 +70,12 @@ def test_layout_and_readers(config, tmp_path):
         assert f["trajectories/counts"].shape[1:] == (2, 1)
         assert f["trajectories/counts"].compression == "gzip"
         assert f["replicates/seed"][0] == 42
+        # the outcome is fixed-length ASCII text (format 3): numpy bytes, or str through asstr()
+        assert f.attrs["format_version"] == 3 and f["replicates/outcome"].dtype == np.dtype("S12")
+        plain = list(f["replicates/outcome"].asstr()[:])
+        assert [o.decode() for o in f["replicates/outcome"][:]] == plain
     reps = read_replicates(path)
+    assert list(reps.outcome) == plain
     assert set(reps.outcome) <= {"mutant-fixed", "mutant-lost", "extinct", "undecided", "capped"}
     assert (reps.spawn_key.map(tuple) == list(zip(reps.point, reps.replicate))).all()
     fixed = reps[reps.outcome == "mutant-fixed"]
@@ -119,8 +124,9 @@ def test_outcome_names_of_other_versions_are_read_as_this_versions(config, tmp_p
     old = np.array([{"mutant-fixed": "mutant_fixed", "mutant-lost": "mutant_lost"}.get(o, o) for o in now],
                    dtype=object)
     old[0] = "unresolved"
-    with h5py.File(path, "r+") as f:
-        f["replicates/outcome"][...] = old
+    with h5py.File(path, "r+") as f:  # as format 2 and earlier stored it: variable-length text
+        del f["replicates/outcome"]
+        f["replicates"].create_dataset("outcome", data=old, dtype=h5py.string_dtype())
     expected = now.copy()
     expected[0] = "undecided"
     assert list(read_replicates(path)["outcome"]) == list(expected)

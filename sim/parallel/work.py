@@ -161,13 +161,17 @@ class BatchClock:
 
 @dataclass
 class BatchOutput:
-    """What a pool yields for a finished ``Job``: the results (None when the worker saved
-    them itself, as ``shard``), each outcome's count, and the batch's ``BatchClock``."""
+    """What a pool yields for a finished ``Job``: the batch saved by the worker as ``shard``
+    (with its ``rows`` when they are small, ``SEND_ROWS_BYTES``, so that the writer merges
+    them without reading the shard back), or, from a worker that cannot reach the writer's
+    disk, only the ``rows`` for the writer to save; each outcome's count, and the batch's
+    ``BatchClock``. ``results`` are sent instead of rows for a job without a target."""
 
     results: list[ReplicateResult] | None
     shard: object  # sim.store.Shard, or None
     outcomes: Counter = field(default_factory=Counter)
     clock: BatchClock | None = None
+    rows: object = None  # sim.store.ShardRows, or None
 
 
 _FIRST_BATCH_CPU: list[float] = []  # this process's CPU time when its first job started
@@ -186,13 +190,17 @@ def run_job(job: Job) -> BatchOutput:
     results = [reduce_trajectory(r, mode) for r in
                run_replicates(job.point, batch.replicates, job.seed, start=job.start)]
     outcomes = Counter(r.outcome for r in results)
-    shard, cpu1 = None, time.process_time()
-    if job.target is not None and job.target.reachable():
-        from ..store.writer import write_shard  # h5py: only in processes that save shards
+    shard = rows = None
+    cpu1 = time.process_time()
+    if job.target is not None:  # the rows made here: the writer's work per replicate is a copy
+        from ..store.writer import SEND_ROWS_BYTES, save_shard, shard_rows
 
-        shard = write_shard(job.target, results)
-        results = None
+        rows, results = shard_rows(job.target, results), None
+        if job.target.reachable():
+            shard = save_shard(job.target, rows)
+            if rows.nbytes > SEND_ROWS_BYTES:
+                rows = None
     cpu2 = time.process_time()
     clock = BatchClock(os.getpid(), wall0, time.perf_counter(), cpu2 - cpu0, cpu2 - cpu1,
                        _FIRST_BATCH_CPU[0])
-    return BatchOutput(results, shard, outcomes, clock)
+    return BatchOutput(results, shard, outcomes, clock, rows)

@@ -13,7 +13,6 @@ import pandas as pd
 from ..config import Config
 from ..vocabulary import outcome_name
 from .layout import (
-    _STR,
     REPLICATE_COLUMNS,
     YEARS,
     DamagedResultsError,
@@ -201,7 +200,7 @@ def read_replicates(path) -> pd.DataFrame:
     data = {}
     for name, (dtype, shape) in REPLICATE_COLUMNS.items():
         cols = [p[name] for p in parts]
-        data[name] = np.concatenate(cols) if cols else np.zeros((0, *shape), object if dtype == _STR else dtype)
+        data[name] = np.concatenate(cols) if cols else np.zeros((0, *shape), object if name == "outcome" else dtype)
     data["spawn_key"] = [tuple(k) for k in data["spawn_key"]]
     df = pd.DataFrame(data)
     df["winner"] = [alleles[w] if w >= 0 else "" for w in df["winner"]]
