@@ -241,9 +241,13 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
                                                 records=config.experiment.trajectory != "none")
         clock.batch_size = size
         # workers that see the writer's disk save their own shards (the writer indexes them);
-        # the others (a dask worker elsewhere) send their results, which the writer saves
+        # the others (a dask worker elsewhere) send their rows, which the writer saves. The
+        # default batches taper at the end, so that the workers finish together; a size the
+        # caller chose is kept as it is.
+        taper = pool.slots if pool.slots > 1 and not batch_size else 0
+        batches = iter_batches(writer.missing(), size, taper=taper)
         jobs = (Job(batch, points[batch.point], seed, starts[batch.point], writer.shard_target(batch.point))
-                for batch in iter_batches(writer.missing(), size))
+                for batch in batches)
         def merge_one() -> bool:  # while the writer waits for workers: merge a shard, if one is next
             wall, cpu = time.perf_counter(), time.process_time()
             merged = writer.merge_ready(limit=1)

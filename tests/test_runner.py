@@ -25,6 +25,9 @@ def test_one_and_two_workers_give_identical_datasets(reference, tmp_path):
     summary = run_experiment(small_config(replicates=14), out, workers=2, batch_size=3, progress=False)
     assert_same_datasets(reference, out)
     assert summary["replicates"].tolist() == [14, 14, 14, 14]
+    tapered = tmp_path / "tapered.h5"  # the default batches, which taper on 2 workers
+    run_experiment(small_config(replicates=14), tapered, workers=2, progress=False)
+    assert_same_datasets(reference, tapered)
 
 
 @pytest.mark.parametrize("batch_size", [1, 5])
@@ -63,6 +66,25 @@ def test_plan_batches_cuts_runs_of_missing_replicates():
                                         Batch(2, 7, 8), Batch(2, 9, 10), Batch(2, 11, 11)]
     with pytest.raises(ValueError, match="batch_size must be >= 1; got 0"):
         plan_batches(missing, 0)
+
+
+def test_tapered_batches_cover_every_missing_replicate_once_and_shrink_at_the_end():
+    from sim.parallel import iter_batches
+    from sim.parallel.work import TAPER_FLOOR
+
+    missing = {0: [range(0, 10_000)], 3: [range(5, 900), range(1000, 30_000)]}
+    batches = list(iter_batches(missing, 1024, taper=4))
+    covered = [(b.point, r) for b in batches for r in b.replicates]
+    assert covered == [(p, r) for p in sorted(missing) for run in missing[p] for r in run]
+    sizes = [len(b) for b in batches]
+    assert max(sizes) == 1024
+    # guided self-scheduling: no batch holds more than 1/(2 * workers) of what is left
+    left = sum(sizes)
+    for size in sizes:
+        assert size <= max(left / 8, 1024 // TAPER_FLOOR) + 1
+        left -= size
+    assert sizes[-1] <= 1024 // TAPER_FLOOR  # the end is cut finer than the full batches
+    assert list(iter_batches(missing, 1024)) == plan_batches(missing, 1024)  # taper=0: unchanged
 
 
 def test_by_allele_is_the_sum_over_ages_and_none_keeps_no_trajectory(reference, tmp_path):

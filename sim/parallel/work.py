@@ -93,13 +93,39 @@ def plan_batches(missing: dict[int, list[range]], batch_size: int) -> list[Batch
     return list(iter_batches(missing, batch_size))
 
 
-def iter_batches(missing: dict[int, list[range]], batch_size: int):
-    """``plan_batches`` one batch at a time: planning a billion replicates holds one batch."""
+def iter_batches(missing: dict[int, list[range]], batch_size: int, *, taper: int = 0):
+    """``plan_batches`` one batch at a time: planning a billion replicates holds one batch.
+
+    With ``taper`` (the number of workers), the last batches get smaller: none is larger
+    than the replicates left divided by ``2 * taper`` (guided self-scheduling, Polychronopoulos
+    & Kuck 1987), down to ``batch_size // TAPER_FLOOR``, so that the workers finish close
+    together instead of all but one waiting for the last full batch. Results do not depend
+    on how replicates are cut into batches.
+    """
     if batch_size < 1:
         raise ValueError(f"batch_size must be >= 1; got {batch_size}")
-    return (Batch(point, first, min(first + batch_size, run.stop) - 1)
-            for point in sorted(missing) for run in missing[point]
-            for first in range(run.start, run.stop, batch_size))
+    if taper < 1:
+        return (Batch(point, first, min(first + batch_size, run.stop) - 1)
+                for point in sorted(missing) for run in missing[point]
+                for first in range(run.start, run.stop, batch_size))
+    return _tapered(missing, batch_size, taper)
+
+
+TAPER_FLOOR = 16  # the smallest tapered batch is batch_size // TAPER_FLOOR (at least 1)
+
+
+def _tapered(missing: dict[int, list[range]], batch_size: int, workers: int):
+    left = sum(len(run) for runs in missing.values() for run in runs)
+    smallest = max(1, batch_size // TAPER_FLOOR)
+    for point in sorted(missing):
+        for run in missing[point]:
+            first = run.start
+            while first < run.stop:
+                size = min(batch_size, max(smallest, math.ceil(left / (2 * workers))))
+                last = min(first + size, run.stop) - 1
+                yield Batch(point, first, last)
+                left -= last - first + 1
+                first = last + 1
 
 
 def reduce_trajectory(result: ReplicateResult, mode: str) -> ReplicateResult:
@@ -179,7 +205,8 @@ _FIRST_BATCH_CPU: list[float] = []  # this process's CPU time when its first job
 
 def run_job(job: Job) -> BatchOutput:
     """Run one ``Job`` (what a worker process runs): the batch, saved as a shard if the job
-    has a target this process can reach (the writer's disk), else sent back as results."""
+    has a target this process can reach (the writer's disk), else sent back as rows (as
+    results without a target)."""
     cpu0, wall0 = time.process_time(), time.perf_counter()
     if not _FIRST_BATCH_CPU:
         _FIRST_BATCH_CPU.append(cpu0)
@@ -191,11 +218,12 @@ def run_job(job: Job) -> BatchOutput:
                run_replicates(job.point, batch.replicates, job.seed, start=job.start)]
     outcomes = Counter(r.outcome for r in results)
     shard = rows = None
-    cpu1 = time.process_time()
     if job.target is not None:  # the rows made here: the writer's work per replicate is a copy
         from ..store.writer import SEND_ROWS_BYTES, save_shard, shard_rows
 
         rows, results = shard_rows(job.target, results), None
+    cpu1 = time.process_time()  # (saving: what the writer does for a worker that cannot)
+    if rows is not None:
         if job.target.reachable():
             shard = save_shard(job.target, rows)
             if rows.nbytes > SEND_ROWS_BYTES:

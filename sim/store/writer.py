@@ -203,7 +203,10 @@ class ResultsWriter:
             raise ResultsError(f"cannot resume {where!r}: {err}") from None
         if attrs.get("format_version") != FORMAT_VERSION:
             raise ResultsError(f"cannot resume {where!r}: it has results format "
-                               f"{attrs.get('format_version')}, this broodline writes {FORMAT_VERSION}")
+                               f"{attrs.get('format_version')} (broodline "
+                               f"{attrs.get('software_version', 'unknown')}), this broodline writes "
+                               f"{FORMAT_VERSION}: finish it with the version that started it, or "
+                               "start it again with --overwrite")
         if attrs["config_hash"] != self.hash:
             diffs = config_differences(attrs["config"], self.config)
             raise ConfigMismatchError(
