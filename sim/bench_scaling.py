@@ -104,7 +104,9 @@ SCALING_KEYS = {
     "tail_s": "from the end of the last batch to the end of the run (the merge and the summary)",
     "merge_s": "seconds the merge of the shards into the results file took",
     "one_replicate_s": "wall_s of the same run with a single replicate: the fixed cost of a run",
-    "fixed_cost_s": "wall_s - batch seconds / workers: the time not spent in batches, per worker",
+    "fixed_cost_s": "wall_s - (batch seconds - the first batches' extra) / workers: the time not "
+                    "spent simulating, per worker (on 1 worker, where the writer's first batch "
+                    "loads the engines, that loading included)",
     "writer_busy_fraction": "share of wall_s during which the writing process records batches "
                             "or merges shards",
     "writer_per_replicate_s": "CPU seconds the writing process spends recording one replicate's batch",
@@ -291,7 +293,7 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         first_batch_extra_s=statistics.fmean(extra) if extra else 0.0,
         tail_s=t.finished - t.finished_batches, merge_s=t.merge_s,
         one_replicate_s=one["timings"].finished - one["spawned"],
-        fixed_cost_s=wall - batch_wall / workers,
+        fixed_cost_s=wall - (batch_wall - sum(extra)) / workers,
         writer_busy_fraction=busy, writer_per_replicate_s=writer, merge_per_replicate_s=merge,
         merge_saturates_at_workers=worker / merge if merge > 0 else None, save_per_replicate_s=save,
         worker_per_replicate_s=worker,
@@ -386,7 +388,8 @@ def format_scaling(report: ScalingReport) -> str:
               "NO: " + ", ".join(f"{r.engine} on {r.workers}" for r in report.records if not r.identical)),
               f"command-line start-up (`python -m sim run --help`): {report.cli_startup_s:.2f} s",
               "wall s: writer process start to merged file; effic. = speed-up / workers; CPU eff. = "
-              "CPU s on 1 worker / CPU s here (load does not hide it); fixed s = wall - batch time / "
+              "CPU s on 1 worker / CPU s here (load does not hide it); fixed s = wall - (batch time - "
+              "first batches' extra) / "
               "workers; writer sat.: workers at which recording batches would keep the writer busy; merge "
               "sat.: past it the merge finishes after the last batch; if it saved: the writer's limit "
               "were it to save every batch itself, as for a dask cluster."]
