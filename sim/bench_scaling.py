@@ -274,7 +274,12 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
     for c in sorted(clocks, key=lambda c: c.started):
         per_worker.setdefault(c.pid, []).append(c.finished - c.started)
     extra = [w[0] - statistics.median(w) for w in per_worker.values() if len(w) > 1]
-    starts = [cpu for _, _, cpu in t.workers]
+    # a worker's CPU time when its first batch started (the pool's start-up probes may run
+    # on a worker that has already run a batch, so they are not used for this)
+    firsts: dict[int, float] = {}
+    for c in sorted(clocks, key=lambda c: c.started):
+        firsts.setdefault(c.pid, c.process_cpu)
+    starts = list(firsts.values()) if t.workers else []
     # costs per replicate in CPU seconds: what saturates is a process's core, and CPU time is
     # not stretched by the writer and the workers sharing the cores of a small machine
     writer = t.writer_cpu_s / max(t.replicates, 1)
