@@ -119,8 +119,10 @@ SCALING_KEYS = {
     "worker_per_replicate_s": "a worker's CPU seconds per replicate (its batches' CPU time / replicates)",
     "writer_saturates_at_workers": "worker_per_replicate_s / writer_per_replicate_s: workers at "
                                    "which the one writer would be busy all the time (null: never)",
-    "saver_saturates_at_workers": "the same if the writer saved every batch itself, as it does "
-                                  "for a dask cluster's workers",
+    "saver_saturates_at_workers": "worker_per_replicate_s / (writer + saving + merge per replicate): "
+                                  "workers at which the writer would be busy all the time if it "
+                                  "saved every batch itself, as it does for dask workers that "
+                                  "cannot see its disk",
     "results_hash": "SHA-256 (first 16 hex digits) of every dataset of the results file",
     "identical": "true when results_hash equals the 1-worker run's",
     "load": "the 1-minute load average when the run started (os.getloadavg)",
@@ -303,7 +305,8 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         merge_saturates_at_workers=worker / merge if merge > 0 else None, save_per_replicate_s=save,
         worker_per_replicate_s=worker,
         writer_saturates_at_workers=worker / writer if writer > 0 else None,
-        saver_saturates_at_workers=worker / (writer + save) if writer + save > 0 else None,
+        saver_saturates_at_workers=(worker / (writer + save + merge) if writer + save + merge > 0
+                                    else None),
         results_hash=digest[:16], identical=base is None or digest[:16] == base["results_hash"],
         load=load,
     )
@@ -397,5 +400,6 @@ def format_scaling(report: ScalingReport) -> str:
               "first batches' extra) / "
               "workers; writer sat.: workers at which recording batches would keep the writer busy; merge "
               "sat.: past it the merge finishes after the last batch; if it saved: the writer's limit "
-              "were it to save every batch itself, as for a dask cluster."]
+              "(recording, merging) were it also to save every batch, as for dask workers that cannot "
+              "see its disk."]
     return "\n".join(lines)
