@@ -222,12 +222,11 @@ def run_job(job: Job) -> BatchOutput:
         from ..store.writer import SEND_ROWS_BYTES, save_shard, shard_rows
 
         rows, results = shard_rows(job.target, results), None
-    cpu1 = time.process_time()  # (saving: what the writer does for a worker that cannot)
-    if rows is not None:
-        if job.target.reachable():
-            shard = save_shard(job.target, rows)
-            if rows.nbytes > SEND_ROWS_BYTES:
-                rows = None
+    cpu1 = time.process_time()  # saving, from here: what the writer does for a worker that cannot
+    if rows is not None and job.target.reachable():
+        shard = save_shard(job.target, rows)
+        if rows.nbytes > SEND_ROWS_BYTES:
+            rows = None
     cpu2 = time.process_time()
     clock = BatchClock(os.getpid(), wall0, time.perf_counter(), cpu2 - cpu0, cpu2 - cpu1,
                        _FIRST_BATCH_CPU[0])
