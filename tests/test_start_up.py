@@ -67,3 +67,54 @@ def test_workers_start_with_the_engines_loaded_by_the_fork_server():
         pool.shutdown()
     assert {"numba", "h5py", "pydantic"} <= loaded  # loaded once, in the server, before forking
     assert "pandas" not in loaded and "matplotlib" not in loaded
+
+
+# A pool cancelled while its background thread is still starting a worker (a run whose config
+# or results file is refused just after the pool was made). The second worker's start is
+# slowed until the first worker sits idle in the task queue's read; the cancel must stop that
+# worker too, else it waits forever for the lock its stopped sibling held, and so does the
+# interpreter's exit. Run in a subprocess, so that a hang fails the test instead of the session.
+_CANCEL_WHILE_STARTING = """
+import threading, time
+from multiprocessing import popen_forkserver
+from sim.parallel.local import ProcessPool
+
+if __name__ == "__main__":
+    slow = threading.Event()
+    launch = popen_forkserver.Popen._launch
+    def slow_launch(self, process_obj):
+        launch(self, process_obj)
+        if slow.is_set():
+            time.sleep(1.0)  # the worker runs; the pool has not listed it yet
+    popen_forkserver.Popen._launch = slow_launch
+    release = threading.Event()
+    start_workers = ProcessPool._start_workers
+    def late_start(self, workers):
+        release.wait()
+        start_workers(self, workers)
+    ProcessPool._start_workers = late_start
+    pool = ProcessPool(2)
+    pool._executor.submit(time.sleep, 0).result()  # the first worker, now idle
+    slow.set()
+    release.set()  # the background thread starts the second worker, slowly
+    time.sleep(0.3)
+    pool.shutdown(cancel=True)
+    print("cancelled")
+"""
+
+
+@pytest.mark.skipif(worker_context().get_start_method() != "forkserver", reason="no fork server here")
+def test_a_pool_cancelled_while_a_worker_starts_leaves_no_worker_behind():
+    import os
+    import signal
+
+    proc = subprocess.Popen([sys.executable, "-c", _CANCEL_WHILE_STARTING], cwd=ROOT,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
+    try:
+        out, err = proc.communicate(timeout=60)
+    except subprocess.TimeoutExpired:
+        os.killpg(proc.pid, signal.SIGKILL)  # the process and any worker left
+        proc.communicate()
+        pytest.fail("the process did not exit after cancelling its pool: a worker was left waiting")
+    assert proc.returncode == 0 and "cancelled" in out, err[-2000:]

@@ -74,15 +74,27 @@ class ProcessPool:
         # each submission finding no idle worker starts one more process, up to ``workers``;
         # from a thread, as starting one may wait for the fork server to load the engines
         self._starting = []
-        threading.Thread(target=self._start_workers, args=(workers,), daemon=True,
-                         name="start workers").start()
+        self._closing = threading.Event()
+        self._starter = threading.Thread(target=self._start_workers, args=(workers,), daemon=True,
+                                         name="start workers")
+        self._starter.start()
 
     def _start_workers(self, workers: int) -> None:
         try:
             for _ in range(workers):
+                if self._closing.is_set():
+                    return
                 self._starting.append(self._executor.submit(_ready))
         except RuntimeError:  # shut down before every worker started
             pass
+
+    def _stop_starting(self) -> None:
+        """Start no more workers from the background thread, and wait for one it is starting
+        now: once this returns, every worker process is in the executor's list. (Stopping
+        the workers listed while another was still starting left that one waiting forever
+        for the queue lock of a stopped worker, and the interpreter's exit waiting for it.)"""
+        self._closing.set()
+        self._starter.join()
 
     def run(self, tasks):
         return _results(self, tasks)
@@ -124,6 +136,7 @@ class ProcessPool:
     def shutdown(self, *, cancel: bool = False, wait: bool = True) -> None:
         """Stop the workers: with ``cancel`` at once (running batches are abandoned); else once
         they are idle, waiting for them to exit unless ``wait`` is False (call again to wait)."""
+        self._stop_starting()
         if not cancel:
             # the processes, kept before shutdown(wait=False) forgets them, are joined when waiting
             self._exiting = self._exiting or list((getattr(self._executor, "_processes", None) or {}).values())
