@@ -104,24 +104,21 @@ def iter_batches(missing: dict[int, list[range]], batch_size: int, *, taper: int
     """
     if batch_size < 1:
         raise ValueError(f"batch_size must be >= 1; got {batch_size}")
-    if taper < 1:
-        return (Batch(point, first, min(first + batch_size, run.stop) - 1)
-                for point in sorted(missing) for run in missing[point]
-                for first in range(run.start, run.stop, batch_size))
-    return _tapered(missing, batch_size, taper)
+    return _batches(missing, batch_size, taper)
 
 
 TAPER_FLOOR = 16  # the smallest tapered batch is batch_size // TAPER_FLOOR (at least 1)
 
 
-def _tapered(missing: dict[int, list[range]], batch_size: int, workers: int):
-    left = sum(len(run) for runs in missing.values() for run in runs)
+def _batches(missing: dict[int, list[range]], batch_size: int, taper: int):
+    left = sum(len(run) for runs in missing.values() for run in runs) if taper > 0 else 0
     smallest = max(1, batch_size // TAPER_FLOOR)
     for point in sorted(missing):
         for run in missing[point]:
             first = run.start
             while first < run.stop:
-                size = min(batch_size, max(smallest, math.ceil(left / (2 * workers))))
+                size = (batch_size if taper < 1 else
+                        min(batch_size, max(smallest, math.ceil(left / (2 * taper)))))
                 last = min(first + size, run.stop) - 1
                 yield Batch(point, first, last)
                 left -= last - first + 1

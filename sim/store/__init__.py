@@ -13,7 +13,7 @@ from importlib import import_module
 
 from . import layout, writer
 from .layout import FORMAT_VERSION, ConfigMismatchError, ResultsError, Shard, parts_dir, software_version
-from .writer import ResultsWriter, ShardTarget, rewrite_header, write_shard, writer_state
+from .writer import ResultsWriter, ShardRows, ShardTarget, rewrite_header, save_shard, shard_rows, writer_state
 
 _READERS = ("read_attrs", "read_points", "read_replicates", "read_trajectories", "read_point_configs",
             "read_outcomes", "count_outcomes", "read_years", "read_trait")
@@ -30,5 +30,5 @@ def __getattr__(name: str):
 
 
 __all__ = ["FORMAT_VERSION", "ResultsError", "ConfigMismatchError", "Shard", "ResultsWriter",
-           "ShardTarget", "write_shard", "parts_dir", "software_version", "writer_state",
+           "ShardTarget", "ShardRows", "shard_rows", "save_shard", "parts_dir", "software_version", "writer_state",
            "rewrite_header", *_READERS]

@@ -47,8 +47,8 @@ try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
 except ImportError:  # pragma: no cover
     fcntl = None
 
-__all__ = ["ResultsWriter", "ShardTarget", "ShardRows", "shard_rows", "save_shard", "write_shard",
-           "read_shard", "writer_state", "fill_header", "rewrite_header"]
+__all__ = ["ResultsWriter", "ShardTarget", "ShardRows", "shard_rows", "save_shard", "read_shard",
+           "writer_state", "fill_header", "rewrite_header"]
 
 log = logging.getLogger(__name__)
 
@@ -319,7 +319,7 @@ class ResultsWriter:
 
     def shard_target(self, point: int) -> ShardTarget:
         """Where and how a batch of sweep point ``point`` is saved: what a worker process needs
-        to write its own shard (``write_shard``), so that this writer only records it."""
+        to write its own shard (``save_shard``), so that this writer only records it."""
         cache = self.__dict__.setdefault("_targets", {})
         if point not in cache:
             cache[point] = ShardTarget(self.parts, self.mode, self.n_alleles, self.n_ages,
@@ -338,7 +338,7 @@ class ResultsWriter:
         return self._probe_name
 
     def add_shard(self, shard: Shard, rows: ShardRows | None = None) -> None:
-        """Record a shard a worker wrote itself (``write_shard`` with ``shard_target``), with
+        """Record a shard a worker wrote itself (``save_shard`` with ``shard_target``), with
         its rows if the worker sent them (then the merge need not read the shard back)."""
         self._check_overlap(shard)
         self._record(shard, rows)
@@ -619,13 +619,6 @@ def save_shard(target: ShardTarget, rows: ShardRows) -> Shard:
     shard = rows.shard
     durable.write_atomic(target.parts / shard.name, lambda f: _fill_shard(f, target, rows))
     return shard
-
-
-def write_shard(target: ShardTarget, results) -> tuple[Shard, ShardRows]:
-    """Save finished replicates (one point, consecutive replicates, in order) as a durable
-    shard: the shard, and its rows (which the writer may merge without reading them back)."""
-    rows = shard_rows(target, results)
-    return save_shard(target, rows), rows
 
 
 def _fill_shard(f, target: ShardTarget, rows: ShardRows) -> None:
