@@ -205,9 +205,10 @@ def results_hash(path) -> str:
 def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
     """The writing process of one measured run (spawned: a fresh interpreter, as ``broodline run``)."""
     entered, entry_cpu = time.perf_counter(), time.process_time()
-    if workers > 1:  # as `broodline run` does: the workers' fork server loads while we import
-        from .parallel.start import start_soon
+    from .parallel.start import separate_workers, start_soon
 
+    in_process = not separate_workers(workers)
+    if not in_process:  # as `broodline run` does: the workers' fork server loads while we import
         start_soon()
     from .config import parse_config
     from .experiment import RunTimings, run_experiment
@@ -215,8 +216,9 @@ def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
     imported, import_cpu = time.perf_counter(), time.process_time()
     timings = RunTimings()
     try:
-        run_experiment(parse_config(raw), out, workers=workers, progress=False, timings=timings,
-                       budget=False)  # (to fixation: max_steps is a bound, not the work)
+        # budget=False: to fixation, max_steps is a bound, not the work
+        run_experiment(parse_config(raw), out, workers=workers, in_process=in_process,
+                       progress=False, timings=timings, budget=False)
     except Exception as err:
         conn.send({"error": f"{type(err).__name__}: {err}"})
         conn.close()

@@ -151,7 +151,8 @@ def _import_soon(module: str) -> None:
 
 
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
-                   workers: int = 1, cluster: str | None = None, progress: bool = True,
+                   workers: int = 1, in_process: bool = True, cluster: str | None = None,
+                   progress: bool = True,
                    batch_size: int | None = None, budget: bool = True,
                    timings: RunTimings | None = None):
     """Run every replicate of every sweep point, streaming results to an HDF5 file.
@@ -173,6 +174,10 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         (with ``resume`` and no file yet, the run starts from the beginning).
     workers : int
         Local processes; ignored with ``cluster``.
+    in_process : bool
+        With ``workers=1``: run the batches in this process (default), or in one worker
+        process (``False``; ``broodline run`` on a machine with more than one core), whose
+        engines load while this process checks the config and writes the file's header.
     cluster : str, optional
         Address of a running dask.distributed scheduler, e.g. ``tcp://host:8786``.
     progress : bool
@@ -202,7 +207,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     _STOP.clear()
     # first, so that worker processes start (and import) while the config is checked and the
     # header written; a bad cluster address still fails before any file
-    pool = make_pool(workers=workers, cluster=cluster)
+    pool = make_pool(workers=workers, cluster=cluster, in_process=in_process)
     clock.pool_started = time.perf_counter()
     # the summary's readers (pandas) load in the background: while this process waits for its
     # workers, or while the compiled passes of its own batches leave the interpreter free
@@ -219,9 +224,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     tracker = None
     try:
         # said once the file is accepted (after any refusal), not before
-        where = f"dask scheduler {cluster}" if cluster else \
-            (f"{workers} worker processes" if workers > 1 else "1 process")
-        log.info("running %s on %s", out, where)
+        log.info("running %s on %s", out, pool.description)
         if resume and writer.fresh:
             log.info("nothing to resume at %s: starting", out)
         elif writer.complete:

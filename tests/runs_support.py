@@ -201,10 +201,16 @@ if __name__ == "__main__":  # spawned worker processes import this file too
 '''
 
 
+def _one_core() -> None:
+    os.sched_setaffinity(0, {min(os.sched_getaffinity(0))})
+
+
 def start_stopped_run(tmp_path, where, n=1, workers=1, options=()):
     """Start a run that stops at ``where``; return (process, config path, output path) once it has stopped there.
 
-    ``options``: more command-line options of ``run`` (e.g. ``["--resume"]``).
+    ``options``: more command-line options of ``run`` (e.g. ``["--resume"]``). With one
+    worker the run is held to one core, so that its batches run in the writing process (as
+    ``sim.parallel.start.separate_workers`` says) and ``n`` counts that process's calls.
     """
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "run.h5"
@@ -215,7 +221,8 @@ def start_stopped_run(tmp_path, where, n=1, workers=1, options=()):
     proc = subprocess.Popen(
         [sys.executable, str(driver), where, str(n), str(marker), "run", str(config), "-o", str(out),
          "--workers", str(workers), "--batch-size", str(BATCH), "--quiet", *options],
-        cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+        cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+        preexec_fn=_one_core if workers == 1 and hasattr(os, "sched_setaffinity") else None)
     try:
         wait_for(lambda: marker.exists() or proc.poll() is not None, what=f"the run to reach {where}")
     except AssertionError:

@@ -7,6 +7,7 @@ from pathlib import Path
 
 import pytest
 
+import sim.parallel.start
 import sim.store as store
 from sim.cli import main
 from sim.config import parse_config
@@ -77,6 +78,9 @@ def test_a_write_error_mid_run_keeps_what_was_saved(tmp_path, monkeypatch, capsy
         real(f, target, results)
 
     monkeypatch.setattr(store.writer, "_fill_shard", fill_then_fail)
+    # as on a one-core machine, --workers 1 runs the batches in this process, which sees the
+    # patch (elsewhere the one worker is a process of its own: sim.parallel.start.separate_workers)
+    monkeypatch.setattr(sim.parallel.start, "default_workers", lambda: 1)
     argv = ["run", str(config), "-o", str(out), "--workers", "1", "--batch-size", str(BATCH), "--quiet"]
     assert main(argv) == 2
     err = capsys.readouterr().err

@@ -30,6 +30,15 @@ def test_one_and_two_workers_give_identical_datasets(reference, tmp_path):
     assert_same_datasets(reference, tapered)
 
 
+def test_one_worker_process_gives_the_datasets_of_this_process(reference, tmp_path):
+    # `broodline run --workers 1` on a machine with a second core: the batches run in a worker
+    # process (sim.parallel.start.separate_workers), its shards merged by this one
+    out = tmp_path / "one.h5"
+    run_experiment(small_config(replicates=14), out, workers=1, in_process=False, batch_size=3,
+                   progress=False)
+    assert_same_datasets(reference, out)
+
+
 @pytest.mark.parametrize("batch_size", [1, 5])
 def test_batch_size_does_not_change_datasets(reference, tmp_path, batch_size):
     out = tmp_path / "b.h5"

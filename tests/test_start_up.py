@@ -15,7 +15,7 @@ from pathlib import Path
 import pytest
 
 from sim.parallel import ProcessPool
-from sim.parallel.start import worker_context
+from sim.parallel.start import separate_workers, worker_context
 
 ROOT = Path(__file__).resolve().parent.parent
 HEAVY = ("pandas", "scipy", "numba", "h5py", "pydantic", "matplotlib", "mesa", "dask")
@@ -37,7 +37,10 @@ def test_python_dash_m_sim_help_imports_nothing_heavy():
     assert _loaded_after("import runpy, sim.__main__") == set()
 
 
-def test_the_writer_imports_neither_numba_nor_scipy(tmp_path):
+@pytest.mark.parametrize("workers", ["1", "2"])
+def test_the_writer_imports_neither_numba_nor_scipy(tmp_path, workers):
+    if not separate_workers(int(workers)):
+        pytest.skip("one core: --workers 1 runs the batches in the writer")
     config = tmp_path / "c.toml"
     config.write_text(
         '[experiment]\nname = "w"\nseed = 1\nreplicates = 4\nmax_steps = 50\n'
@@ -49,13 +52,19 @@ def test_the_writer_imports_neither_numba_nor_scipy(tmp_path):
     out = tmp_path / "r.h5"
     loaded = _loaded_after(
         "from sim.cli import main\n"
-        f"assert main(['run', {str(config)!r}, '-o', {str(out)!r}, '--workers', '2', '--quiet']) == 0")
+        f"assert main(['run', {str(config)!r}, '-o', {str(out)!r}, '--workers', {workers!r}, '--quiet']) == 0")
     assert "numba" not in loaded and "scipy" not in loaded
     assert {"h5py", "pydantic", "pandas"} <= loaded  # the file, the config, the summary table
 
 
 def _modules_in_worker() -> list[str]:
-    return sorted(m for m in HEAVY if m in sys.modules)
+    return sorted(m for m in (*HEAVY, "scipy.linalg") if m in sys.modules)
+
+
+def _blas_importable() -> bool:
+    import scipy.linalg.cython_blas  # noqa: F401
+
+    return True
 
 
 @pytest.mark.skipif(worker_context().get_start_method() != "forkserver", reason="no fork server here")
@@ -63,10 +72,14 @@ def test_workers_start_with_the_engines_loaded_by_the_fork_server():
     pool = ProcessPool(2)
     try:
         loaded = set(pool._executor.submit(_modules_in_worker).result(timeout=120))
+        blas = pool._executor.submit(_blas_importable).result(timeout=120)
     finally:
         pool.shutdown()
     assert {"numba", "h5py", "pydantic"} <= loaded  # loaded once, in the server, before forking
     assert "pandas" not in loaded and "matplotlib" not in loaded
+    # numba's check for a BLAS was answered without importing scipy.linalg (sim.parallel.warm),
+    # and scipy.linalg imports as usual afterwards
+    assert "scipy.linalg" not in loaded and blas
 
 
 # A pool cancelled while its background thread is still starting a worker (a run whose config

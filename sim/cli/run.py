@@ -55,9 +55,9 @@ def add_budget_option(parser) -> None:
 def start_workers_soon(args) -> None:
     """With worker processes to come, start their fork server now: it loads the engines while
     this process reads and checks the config."""
-    from ..parallel.start import default_workers, start_soon
+    from ..parallel.start import default_workers, separate_workers, start_soon
 
-    if args.cluster is None and (args.workers or default_workers()) > 1:
+    if args.cluster is None and separate_workers(args.workers or default_workers()):
         start_soon()
 
 
@@ -71,10 +71,12 @@ def run_options(args) -> dict:
                         "process; broodline reaches a dask scheduler over tcp:// (or tls://)")
     if args.resume and args.overwrite:
         raise UserError("--resume finishes the file and --overwrite starts it again: give one of the two")
-    from ..parallel.start import default_workers
+    from ..parallel.start import default_workers, separate_workers
 
-    return dict(workers=args.workers or default_workers(), cluster=args.cluster, resume=args.resume,
-                batch_size=args.batch_size, budget=args.budget, config_path=args.config)
+    workers = args.workers or default_workers()
+    return dict(workers=workers, in_process=not separate_workers(workers), cluster=args.cluster,
+                resume=args.resume, batch_size=args.batch_size, budget=args.budget,
+                config_path=args.config)
 
 
 class _TqdmHandler(logging.Handler):
@@ -140,8 +142,8 @@ def _resume_command(config_path, out) -> str:
     return f"broodline run {config} -o {shlex.quote(str(out))} --resume"
 
 
-def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=1, cluster=None,
-                          resume=False, batch_size=None, budget=True, config_path=None):
+def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=1, in_process=True,
+                          cluster=None, resume=False, batch_size=None, budget=True, config_path=None):
     """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint;
     returns the summary (a pandas DataFrame)."""
     from ..experiment import ExperimentInterrupted, run_experiment
@@ -158,7 +160,7 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
             "share them, which is no faster and holds %d batches in memory", workers, cores, workers)
     try:
         summary = run_experiment(config, out, overwrite=overwrite, resume=resume, workers=workers,
-                                 cluster=cluster, progress=not quiet, batch_size=batch_size,
+                                 in_process=in_process, cluster=cluster, progress=not quiet, batch_size=batch_size,
                                  budget=budget)
     except ExperimentInterrupted as stop:
         print(f"\nStopped: {stop}. To finish the experiment, run:\n"

@@ -28,11 +28,12 @@ __all__ = [*_WHERE, "make_pool"]
 __getattr__, __dir__ = lazy_exports(__name__, _WHERE, globals())
 
 
-def make_pool(*, workers: int = 1, cluster: str | None = None):
+def make_pool(*, workers: int = 1, cluster: str | None = None, in_process: bool = True):
     """The pool for a run: a dask cluster at ``cluster``, else ``workers`` local processes.
 
     ``cluster`` is a scheduler address (``tcp://HOST:8786``) or the JSON file
-    that ``dask scheduler --scheduler-file FILE`` writes.
+    that ``dask scheduler --scheduler-file FILE`` writes. One worker is this
+    process unless ``in_process`` is False (then a worker process, as for more).
     """
     if cluster is not None:
         from .cluster import DaskPool
@@ -42,4 +43,4 @@ def make_pool(*, workers: int = 1, cluster: str | None = None):
         raise ValueError(f"workers must be >= 1; got {workers}")
     from .local import ProcessPool, SerialPool
 
-    return SerialPool() if workers == 1 else ProcessPool(workers)
+    return SerialPool() if workers == 1 and in_process else ProcessPool(workers)

@@ -67,7 +67,7 @@ class ProcessPool:
         if workers < 1:
             raise ValueError(f"workers must be >= 1; got {workers}")
         self.slots = workers
-        self.description = f"{workers} worker processes"
+        self.description = f"{workers} worker process{'es' if workers > 1 else ''}"
         self._executor = ProcessPoolExecutor(workers, mp_context=worker_context(),
                                              initializer=worker_init)
         self._exiting = []

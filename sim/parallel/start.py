@@ -20,7 +20,8 @@ import signal
 import threading
 import time
 
-__all__ = ["default_workers", "worker_context", "start_soon", "stop_fork_server", "worker_init"]
+__all__ = ["default_workers", "separate_workers", "worker_context", "start_soon", "stop_fork_server",
+           "worker_init"]
 
 _PRELOAD = ["sim.parallel.warm"]
 
@@ -31,6 +32,14 @@ def default_workers() -> int:
         return len(os.sched_getaffinity(0))
     except AttributeError:  # not Linux
         return os.cpu_count() or 1
+
+
+def separate_workers(workers: int) -> bool:
+    """Whether a local run of ``workers`` runs its batches in worker processes (the command
+    line's choice): for more than one, and for one where this process may use another core
+    (the worker's fork server then loads the engines while this process reads and checks the
+    config, instead of after it); on a single core one worker is this process."""
+    return workers > 1 or default_workers() > 1
 
 
 def worker_context():

@@ -8,18 +8,36 @@ before forking any worker, so every worker starts with all of it loaded; a
 spawned worker imports it in its initializer.
 """
 
+import sys
+
 from .. import replicates  # noqa: F401  (the engines, numba)
 from ..store import writer  # noqa: F401  (h5py: workers save their own shards)
 from . import work  # noqa: F401
 
+# Setting up the code generator imports numba's implementations of numpy, among them a check
+# for a BLAS at import, which imports scipy.linalg (a sixth of the fork server's start-up,
+# measured with -X importtime). Its answer is read only when compiling np.correlate or
+# np.convolve (then a plain loop instead of BLAS); np.dot and np.linalg check again when they
+# are compiled, and the engines' compiled passes call none of them. So in a worker that check
+# is answered "none" at once: None in sys.modules makes an import raise ImportError (Python's
+# import system documentation), and the entry is removed afterwards, so scipy.linalg imports
+# as usual later.
+_BLAS = "scipy.linalg.cython_blas"
+
 
 def _set_up_code_generator() -> None:
+    blocked = _BLAS not in sys.modules and "scipy.linalg" not in sys.modules
+    if blocked:
+        sys.modules[_BLAS] = None
     try:
         from numba.core.registry import cpu_target
 
         cpu_target.target_context.refresh()
     except Exception:  # an internal of numba: if it moves, the first batch does this itself
         pass
+    finally:
+        if blocked and sys.modules.get(_BLAS, 0) is None:
+            del sys.modules[_BLAS]
 
 
 _set_up_code_generator()
