@@ -152,8 +152,7 @@ def _import_soon(module: str) -> None:
 
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
                    workers: int = 1, in_process: bool = True, cluster: str | None = None,
-                   progress: bool = True,
-                   batch_size: int | None = None, budget: bool = True,
+                   progress: bool = True, batch_size: int | None = None, budget: bool = True,
                    timings: RunTimings | None = None):
     """Run every replicate of every sweep point, streaming results to an HDF5 file.
 

@@ -160,8 +160,8 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
             "share them, which is no faster and holds %d batches in memory", workers, cores, workers)
     try:
         summary = run_experiment(config, out, overwrite=overwrite, resume=resume, workers=workers,
-                                 in_process=in_process, cluster=cluster, progress=not quiet, batch_size=batch_size,
-                                 budget=budget)
+                                 in_process=in_process, cluster=cluster, progress=not quiet,
+                                 batch_size=batch_size, budget=budget)
     except ExperimentInterrupted as stop:
         print(f"\nStopped: {stop}. To finish the experiment, run:\n"
               f"  {_resume_command(config_path, out)}", file=sys.stderr)
