@@ -36,8 +36,8 @@ def _set_up_code_generator() -> None:
     except Exception:  # an internal of numba: if it moves, the first batch does this itself
         pass
     finally:
-        if blocked and sys.modules.get(_BLAS, 0) is None:
-            del sys.modules[_BLAS]
+        if blocked and sys.modules.get(_BLAS) is None:
+            sys.modules.pop(_BLAS, None)
 
 
 _set_up_code_generator()
