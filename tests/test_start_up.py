@@ -82,6 +82,44 @@ def test_workers_start_with_the_engines_loaded_by_the_fork_server():
     assert "scipy.linalg" not in loaded and blas
 
 
+def _collector_and_blas() -> tuple[bool, int, str | None]:
+    import gc
+    import os
+
+    return gc.isenabled(), gc.get_freeze_count(), os.environ.get("OPENBLAS_NUM_THREADS")
+
+
+@pytest.mark.skipif(worker_context().get_start_method() != "forkserver", reason="no fork server here")
+def test_workers_inherit_frozen_objects_a_running_collector_and_one_blas_thread():
+    import os
+
+    pool = ProcessPool(1)
+    try:
+        enabled, frozen, blas = pool._executor.submit(_collector_and_blas).result(timeout=120)
+    finally:
+        pool.shutdown()
+    # the fork server froze what it loaded (the gc module's documentation: freeze before
+    # forking) and left the collector running, so a worker collects its own garbage
+    assert enabled and frozen > 10_000
+    # one BLAS thread unless the caller's environment chose a number
+    assert blas == os.environ.get("OPENBLAS_NUM_THREADS", "1")
+
+
+@pytest.mark.parametrize("given, expected", [(None, "1"), ("3", "3")])
+def test_the_command_line_asks_for_one_blas_thread_unless_told(given, expected):
+    import os
+
+    env = {k: v for k, v in os.environ.items() if k != "OPENBLAS_NUM_THREADS"}
+    if given is not None:
+        env["OPENBLAS_NUM_THREADS"] = given
+    probe = ("import os, sys\nfrom sim.cli import main\ntry:\n    main(['--version'])\n"
+             "except SystemExit:\n    pass\nprint(os.environ['OPENBLAS_NUM_THREADS'], 'numpy' in sys.modules)")
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, cwd=ROOT,
+                          env=env, check=True, timeout=120)
+    # set before numpy was imported, which is when OpenBLAS reads it
+    assert done.stdout.split() == [expected, "False"]
+
+
 # A pool cancelled while its background thread is still starting a worker (a run whose config
 # or results file is refused just after the pool was made). The second worker's start is
 # slowed until the first worker sits idle in the task queue's read; the cancel must stop that

@@ -100,6 +100,9 @@ def _user_errors() -> tuple[type[Exception], ...]:
 
 
 def main(argv=None) -> int:
+    from ..parallel.start import one_blas_thread
+
+    one_blas_thread()  # before numpy is imported
     parser = build_parser()
     args = parser.parse_args(argv)
     _plain_warnings(args.command)
