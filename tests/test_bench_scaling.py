@@ -61,3 +61,42 @@ def test_results_hash_sees_any_changed_value(tmp_path):
 
     assert write(tmp_path / "a.h5", [3, 7]) == write(tmp_path / "b.h5", [3, 7])
     assert write(tmp_path / "c.h5", [3, 8]) != write(tmp_path / "a2.h5", [3, 7])
+
+
+def test_rounds_alternate_worker_counts_and_keep_the_fastest_run_of_each(monkeypatch, tmp_path):
+    # The runs are faked (their walls chosen here), so this checks the bookkeeping of
+    # --rounds: alternation, and the fastest run of each worker count being the one reported.
+    from sim import bench_scaling
+    from sim.experiment import RunTimings
+
+    walls = iter([9.0, 6.0, 8.0, 7.0, 10.0, 4.0])  # rounds of (1 worker, 2 workers), 3 rounds
+    order = []
+
+    def fake_run(raw, out, workers):
+        one = raw["experiment"]["replicates"] == 1
+        if not one:
+            order.append(workers)
+        if out.exists():  # as run_experiment refuses to overwrite
+            raise RuntimeError(f"{out} exists")
+        out.write_bytes(b"")
+        timings = RunTimings(started=0.0, finished=0.5 if one else next(walls), replicates=1,
+                             batch_size=1)
+        return {"spawned": 0.0, "imported": 0.1, "startup_cpu": 0.1, "process_cpu": 1.0,
+                "workers_cpu": 1.0, "timings": timings}
+
+    monkeypatch.setattr(bench_scaling, "_measured_run", fake_run)
+    monkeypatch.setattr(bench_scaling, "results_hash", lambda path: "0" * 64)
+    monkeypatch.setattr(bench_scaling, "_cli_startup", lambda: 0.1)
+    report = bench_scaling.run_scaling(replicates=10, workers=2, engines=["counts"], rounds=3)
+    assert order == [1, 2, 1, 2, 1, 2]
+    one, two = report.records
+    assert (one.wall_s, two.wall_s) == (8.0, 4.0) and one.rounds == two.rounds == 3
+    assert two.speedup == pytest.approx(2.0) and two.efficiency == pytest.approx(1.0)
+    assert "the fastest of 3 runs each" in bench_scaling.format_scaling(report)
+
+
+def test_rounds_must_be_at_least_one():
+    from sim.bench_scaling import run_scaling
+
+    with pytest.raises(ValueError, match="rounds must be >= 1"):
+        run_scaling(replicates=1, rounds=0)

@@ -51,7 +51,8 @@ def cmd_bench_scaling(args) -> int:
         raise UserError("--replicates must be >= 1 with --scaling; got 0")
     say = None if args.json else (lambda m: print(f"  running {m} ...", file=sys.stderr, flush=True))
     report = run_scaling(replicates=SCALING_REPLICATES if args.replicates is None else args.replicates,
-                         workers=args.workers, engines=args.engine or SCALING_ENGINES, progress=say)
+                         workers=args.workers, engines=args.engine or SCALING_ENGINES,
+                         rounds=args.rounds, progress=say)
     print(json.dumps(report.to_records(), indent=1) if args.json else format_scaling(report))
     return 0
 
@@ -117,6 +118,9 @@ def register(sub) -> None:
                    help="with --scaling: the larger worker count (default: every core available)")
     p.add_argument("--engine", action="append", choices=SCALING_ENGINES,
                    help="with --scaling: only this engine (repeat for several; default: both)")
+    p.add_argument("--rounds", type=_count(1), default=1, metavar="N",
+                   help="with --scaling: run each worker count N times, alternating, and report the "
+                        "fastest of each (default 1)")
     p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
     p.set_defaults(func=cmd_bench)
 
