@@ -100,7 +100,7 @@ def _user_errors() -> tuple[type[Exception], ...]:
 
 
 def main(argv=None) -> int:
-    from ..parallel.start import one_blas_thread
+    from ..parallel.blas import one_blas_thread
 
     one_blas_thread()  # before numpy is imported
     parser = build_parser()

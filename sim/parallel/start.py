@@ -20,8 +20,8 @@ import signal
 import threading
 import time
 
-__all__ = ["default_workers", "separate_workers", "one_blas_thread", "worker_context", "start_soon",
-           "stop_fork_server", "worker_init"]
+__all__ = ["default_workers", "separate_workers", "worker_context", "start_soon", "stop_fork_server",
+           "worker_init"]
 
 _PRELOAD = ["sim.parallel.warm"]
 
@@ -40,20 +40,6 @@ def separate_workers(workers: int) -> bool:
     (the worker's fork server then loads the engines while this process reads and checks the
     config, instead of after it); on a single core one worker is this process."""
     return workers > 1 or default_workers() > 1
-
-
-BLAS_THREADS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
-
-
-def one_blas_thread() -> None:
-    """Ask numpy's BLAS for one thread in this process and in the processes it starts, unless
-    the user set a number: the variables are read when numpy is first imported, so this is
-    called before (by the command line, and by the fork server). broodline's matrices are a
-    few ages across, and its workers use every core between them, so more BLAS threads
-    could only oversubscribe the cores (common practice for process pools); idle, they spun
-    for about 0.1 s of CPU in the writer's start-up and in the fork server's (profiled)."""
-    for variable in BLAS_THREADS:
-        os.environ.setdefault(variable, "1")
 
 
 def worker_context():

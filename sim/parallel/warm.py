@@ -14,14 +14,13 @@ Two settings come first, before numpy is imported:
   documentation advises for a process that forks workers: the collections that
   loading triggers took a sixth of the fork server's start-up (profiled), and a
   worker's collections then skip the frozen objects.
-- One BLAS thread (``sim.parallel.start.one_blas_thread``), unless the user set
-  a number.
+- One BLAS thread (``sim.parallel.blas``), unless the user set a number.
 """
 
 import gc
 import sys
 
-from .start import one_blas_thread
+from .blas import one_blas_thread
 
 _collecting = gc.isenabled()
 gc.disable()
