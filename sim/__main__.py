@@ -5,6 +5,6 @@ if __name__ == "__main__":
     # ``__mp_main__`` and needs none of the command line
     import sys
 
-    from sim.cli import main
+    from sim.cli import entry_point
 
-    sys.exit(main())
+    sys.exit(entry_point())

@@ -169,3 +169,19 @@ def test_a_pool_cancelled_while_a_worker_starts_leaves_no_worker_behind():
         proc.communicate()
         pytest.fail("the process did not exit after cancelling its pool: a worker was left waiting")
     assert proc.returncode == 0 and "cancelled" in out, err[-2000:]
+
+
+def test_the_command_ends_with_every_object_frozen_and_mains_exit_status(tmp_path):
+    # `broodline` and `python -m sim` run entry_point: main's exit status, then gc.freeze(), so
+    # that the interpreter's exit skips the collector's walk over every loaded module
+    import tomllib
+
+    scripts = tomllib.loads((ROOT / "pyproject.toml").read_text())["project"]["scripts"]
+    assert scripts == {"broodline": "sim.cli:entry_point"}
+    probe = ("import gc, sys\nfrom sim.cli import entry_point\n"
+             "sys.argv = ['broodline', 'check', sys.argv[1]]\n"
+             "before = gc.get_freeze_count()\ncode = entry_point()\n"
+             "print(code, before == 0, gc.get_freeze_count() > 10_000)")
+    done = subprocess.run([sys.executable, "-c", probe, str(ROOT / "configs" / "demo.toml")],
+                          capture_output=True, text=True, cwd=tmp_path, timeout=120)
+    assert done.stdout.split()[-3:] == ["0", "True", "True"], done.stderr[-2000:]
