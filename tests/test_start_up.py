@@ -105,6 +105,16 @@ def test_workers_inherit_frozen_objects_a_running_collector_and_one_blas_thread(
     assert blas == os.environ.get("OPENBLAS_NUM_THREADS", "1")
 
 
+def test_a_failed_load_leaves_the_collector_running():
+    # the fork server swallows a preload's ImportError and goes on: the collector it paused
+    # for the load must run again
+    probe = ("import gc, sys\nsys.modules['sim.store.writer'] = None\n"
+             "try:\n    import sim.parallel.warm\nexcept ImportError:\n    print(gc.isenabled())")
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, cwd=ROOT,
+                          check=True, timeout=120)
+    assert done.stdout.split() == ["True"], done.stderr[-2000:]
+
+
 @pytest.mark.parametrize("given, expected", [(None, "1"), ("3", "3")])
 def test_the_command_line_asks_for_one_blas_thread_unless_told(given, expected):
     import os

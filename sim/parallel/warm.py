@@ -22,14 +22,6 @@ import sys
 
 from .blas import one_blas_thread
 
-_collecting = gc.isenabled()
-gc.disable()
-one_blas_thread()
-
-from .. import replicates  # noqa: E402, F401  (the engines, numba)
-from ..store import writer  # noqa: E402, F401  (h5py: workers save their own shards)
-from . import work  # noqa: E402, F401
-
 # Setting up the code generator imports numba's implementations of numpy, among them a check
 # for a BLAS at import, which imports scipy.linalg (a sixth of the fork server's start-up,
 # measured with -X importtime). Its answer is read only when compiling np.correlate or
@@ -56,7 +48,16 @@ def _set_up_code_generator() -> None:
             sys.modules.pop(_BLAS, None)
 
 
-_set_up_code_generator()
-gc.freeze()  # what was loaded lives as long as the process: no collection need walk it again
-if _collecting:
-    gc.enable()
+_collecting = gc.isenabled()
+gc.disable()
+try:
+    one_blas_thread()
+    from .. import replicates  # noqa: F401  (the engines, numba)
+    from ..store import writer  # noqa: F401  (h5py: workers save their own shards)
+    from . import work  # noqa: F401
+
+    _set_up_code_generator()
+    gc.freeze()  # what was loaded lives as long as the process: no collection need walk it again
+finally:
+    if _collecting:
+        gc.enable()
