@@ -22,14 +22,13 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
-from matplotlib.ticker import MaxNLocator  # noqa: E402
-
 from matplotlib.patches import Patch  # noqa: E402
+from matplotlib.ticker import MaxNLocator  # noqa: E402
 
 from sim.config import sweep_factors, swept_paths  # noqa: E402
 from sim.meanfield import NoEquilibriumError, growth_rate  # noqa: E402
-from sim.years import scaled_schedule  # noqa: E402
 from sim.store import read_points, read_replicates, read_trajectories  # noqa: E402
+from sim.years import scaled_schedule  # noqa: E402
 
 from .comparison import (  # noqa: E402
     CAPPED,
@@ -528,7 +527,7 @@ def invasion_map_figure(table: pd.DataFrame, config, *, resolution: int = 24):
     share = table["fixed_fraction"].to_numpy(float)
     scatter = ax.scatter(xs, ys, c=share, s=260, cmap="viridis", vmin=0, vmax=max(float(np.nanmax(share)), 0.01),
                          edgecolors="black", linewidths=0.6, zorder=3)
-    for xv, yv, s, ag in zip(xs, ys, share, table["agreement"]):
+    for xv, yv, ag in zip(xs, ys, table["agreement"]):
         mark = {"agrees": "", "disagrees": "x", "inconclusive": "?"}.get(ag, "")
         if mark:
             ax.annotate(mark, (xv, yv), ha="center", va="center", fontsize=9, color="white", zorder=4)

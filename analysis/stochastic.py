@@ -22,8 +22,8 @@ makes comparisons and thresholds use common random numbers.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
-from typing import Callable
 
 import numpy as np
 from scipy.optimize import brentq

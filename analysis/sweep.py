@@ -17,7 +17,6 @@ from sim.config import Config, SweepFactor, sweep_factors, sweep_points
 from sim.meanfield import NoEquilibriumError
 
 from .environment import invasion_pair
-from .fixation import COLUMNS as FINITE_COLUMNS
 from .fixation import finite_population_columns
 from .invasion import predict
 from .thresholds import ThresholdResult, threshold, with_values

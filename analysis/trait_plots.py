@@ -41,10 +41,10 @@ def trait_figure(path, *, max_replicates: int = 8):
     points = read_points(path)
     n = len(configs)
     fig, axes = plt.subplots(n, 1, figsize=(7.0, 3.2 * n), squeeze=False, sharex=True)
-    for ax, (i, row), config in zip(axes[:, 0], points.iterrows(), configs):
+    for ax, (_, row), config in zip(axes[:, 0], points.iterrows(), configs):
         point = int(row["point"])
         here = trait[(trait["point"] == point) & (trait["replicate"] < max_replicates)]
-        for k, (rep, run) in enumerate(here.groupby("replicate")):
+        for k, (_, run) in enumerate(here.groupby("replicate")):
             colour = f"C{k % 10}"
             mean, sd = run["mean_effort"].to_numpy(), run["sd_effort"].to_numpy()
             ax.fill_between(run["step"], mean - sd, mean + sd, color=colour, alpha=0.15, linewidth=0)

@@ -4,14 +4,15 @@ from __future__ import annotations
 
 import numpy as np
 
-from .aggregation import counts_obstacles
 from . import vocabulary as words
+from .aggregation import counts_obstacles
 from .config import Config, ConfigError, sweep_factors, sweep_points, swept_values
 from .density import Factors
 from .lifecycle import initial_census
 from .meanfield import growth_rate
 
-__all__ = ["BUDGET", "AGENTS_BROOD_BUDGET", "ConfigWarning", "config_warnings", "describe_experiment", "describe_environment",
+__all__ = ["BUDGET", "AGENTS_BROOD_BUDGET", "ConfigWarning", "config_warnings", "describe_experiment",
+           "describe_environment",
            "preflight", "counts_engine_note"]
 
 

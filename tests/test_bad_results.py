@@ -61,7 +61,8 @@ def test_a_deleted_dataset(finished, tmp_path, capsys):
 def test_a_corrupted_file_structure(finished, tmp_path, capsys):
     out = _copy(finished, tmp_path)
     with h5py.File(out, "r") as f:  # overwrite the B-tree of the outcome column's chunks
-        where = f["replicates"]["outcome"].id.get_offset() or f["replicates"]["outcome"].id.get_chunk_info(0).byte_offset
+        outcome = f["replicates"]["outcome"].id
+        where = outcome.get_offset() or outcome.get_chunk_info(0).byte_offset
     data = bytearray(out.read_bytes())
     data[where:where + 512] = b"\xa5" * 512
     out.write_bytes(bytes(data))

@@ -16,7 +16,7 @@ import pytest
 from sim.config import parse_config, sweep_points
 from sim.model import BroodModel
 from sim.outcomes import OUTCOMES, classify
-from sim.replicates import ReplicateResult, replicate_rng, run_replicate, run_replicates
+from sim.replicates import ReplicateResult, replicate_rng, run_replicates
 from sim.streams import keyed_generators
 
 

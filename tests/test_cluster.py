@@ -6,8 +6,8 @@ import socket
 import pytest
 
 from sim.cli import main
-from sim.parallel import ClusterError
 from sim.experiment import run_experiment
+from sim.parallel import ClusterError
 from sim.store import ResultsWriter
 from tests.runs_support import assert_same_datasets, small_config
 

@@ -53,7 +53,8 @@ def test_warnings_before_anything_runs(tmp_path, capsys):
 @pytest.mark.parametrize(
     "section, key, value, message",
     [
-        ("allele", "fecundity", "4.5", r"allele\[1\]\.fecundity must be a number \(written without quotes\); got '4.5'"),
+        ("allele", "fecundity", "4.5",
+         r"allele\[1\]\.fecundity must be a number \(written without quotes\); got '4.5'"),
         ("allele", "juvenile_survival", "0.5", r"allele\[1\]\.juvenile_survival must be a number"),
         ("density", "capacity", "100", r"density\.capacity must be a number \(written without quotes\); got '100'"),
         ("experiment", "replicates", "20", r"experiment\.replicates must be a whole number"),

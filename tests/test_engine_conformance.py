@@ -17,7 +17,7 @@ lists. What is checked:
 """
 
 import copy
-from functools import lru_cache
+from functools import cache
 
 import numpy as np
 import pytest
@@ -289,7 +289,7 @@ def _sample(name, engine, n, seed):
     return np.array(totals), np.array(freqs), np.array(gone)
 
 
-@lru_cache(maxsize=None)
+@cache
 def _reference(name):
     return _sample(name, REFERENCE_ENGINE, 250, seed=202)
 

@@ -20,7 +20,6 @@ from sim.config import parse_config
 from sim.density import Factors
 from sim.offspring import Fixed, NegativeBinomial, Poisson
 from sim.schedules import iteroparous, semelparous
-
 from tests.invasion_configs import invasion_config
 
 

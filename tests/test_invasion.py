@@ -96,7 +96,8 @@ def test_neutral_expectation_weights_by_reproductive_value():
 
 
 def test_prediction_of_the_design_example():
-    # The worked example (Mylius & Diekmann 1995 placement rule): B_i = 2, P = 0.5, c = 0.5 with Beverton-Holt on recruitment, K = 100:
+    # The worked example (Mylius & Diekmann 1995 placement rule): B_i = 2, P = 0.5, c = 0.5 with
+    # Beverton-Holt on recruitment, K = 100:
     # f* = 1/2 so D* = K; a semelparous mutant with B_s = 5 has lambda = 5 / 4 and Poisson(1.25)
     # recruits, so q = exp(1.25 (q - 1)).
     p = predict(invasion_config(mutant_fecundity=5.0, capacity=100.0))

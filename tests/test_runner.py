@@ -5,8 +5,8 @@ import pandas as pd
 import pytest
 
 from sim.config import sweep_points
-from sim.parallel import Batch, plan_batches, run_batch
 from sim.experiment import run_experiment
+from sim.parallel import Batch, plan_batches, run_batch
 from sim.replicates import run_replicate
 from sim.store import read_attrs, read_replicates, read_trajectories
 from tests.runs_support import assert_same_datasets, datasets, small_config

@@ -8,8 +8,8 @@ import pytest
 
 import sim.store as store
 from sim.config import sweep_points
-from sim.parallel import run_batch
 from sim.experiment import run_experiment
+from sim.parallel import run_batch
 from sim.store import (
     ResultsError,
     ResultsWriter,

@@ -26,7 +26,6 @@ from sim.meanfield import growth_rate, mean_field_step, solve_equilibrium
 from sim.offspring import NegativeBinomial, Poisson
 from sim.schedules import iteroparous, semelparous, stack_schedules, table
 from sim.years import YearType, YearTypes, constant_years, scaled_schedule
-
 from tests.invasion_configs import invasion_config
 
 # The example: two equally likely years with juvenile survival 0.8 and 0.1 (the

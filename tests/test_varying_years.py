@@ -179,9 +179,8 @@ def test_a_neutral_mutant_fixes_at_its_share_under_the_points_shared_years(seed)
     # extinct population takes the share with it: the neutral share is the fixation
     # probability of a population that persists); tolerance 4 binomial standard errors at
     # the prediction (false failure 6e-5), and the average year's value lies beyond 8 of them.
-    from sim.replicates import run_replicates
-
     from analysis.varying_years import neutral_in_years
+    from sim.replicates import run_replicates
 
     config = _neutral(seed=seed, shared=True)
     predicted = neutral_in_years(config, point=0)
@@ -204,12 +203,11 @@ def test_a_neutral_mutant_fixes_at_its_share_under_its_own_years():
     # building it: the mean gap was -0.002, -0.007 and -0.004, each SE 0.0027, at K = 320 and
     # twice at K = 1280 with other seeds; the average year's reproductive values are off by
     # +0.007 to +0.009 here.)
+    from analysis.stochastic import YearSequences, neutral_share_in_years
+    from analysis.varying_years import neutral_in_years
     from sim.replicates import run_replicates
     from sim.streams import keyed_generators
     from sim.year_draws import YEAR_STREAM
-
-    from analysis.stochastic import YearSequences, neutral_share_in_years
-    from analysis.varying_years import neutral_in_years
 
     config, replicates = _neutral(replicates=20000), 20000
     years = config.year_types()
@@ -233,7 +231,7 @@ def test_the_replacement_threshold_bounds_the_region_where_each_invades_the_othe
     # density dependence the reverse fitness is the inverse, so there is no such region.
     # Check of the swap: at the replacement threshold the reverse log fitness is 0 within
     # its batch-means standard errors (4 of them), and it is positive at the invasion one.
-    from analysis.stochastic import InvasionSetting, stochastic_invasion
+    from analysis.stochastic import stochastic_invasion
     from analysis.varying_years import stochastic_threshold_result, year_draws
     from sim.schedules import semelparous
 

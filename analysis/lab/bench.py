@@ -95,7 +95,7 @@ def measure_page() -> list[str]:
             else:
                 waits, running = [], threading.Event()
 
-                def probe():  # a user's request while the replicates run
+                def probe(running=running, server=server, waits=waits):  # a user's request meanwhile
                     running.wait()
                     while running.is_set():
                         t = time.perf_counter()
@@ -115,7 +115,8 @@ def measure_page() -> list[str]:
                 running.clear()
                 prober.join()
                 if waits:
-                    out.append(f"{'  answers to the page while they ran (n = %d)' % len(waits):<58} "
+                    answered = f"  answers to the page while they ran (n = {len(waits)})"
+                    out.append(f"{answered:<58} "
                                f"median {statistics.median(waits) * 1000:.1f} ms, longest {max(waits) * 1000:.1f} ms")
             page.close()
             server.close()

@@ -11,7 +11,7 @@ worker process that saves its own shards imports the writer only.
 
 from importlib import import_module
 
-from . import layout, writer
+from . import layout, writer  # noqa: F401  (sim.store.layout and .writer, named by their users)
 from .layout import FORMAT_VERSION, ConfigMismatchError, ResultsError, Shard, parts_dir, software_version
 from .writer import ResultsWriter, ShardRows, ShardTarget, rewrite_header, save_shard, shard_rows, writer_state
 
