@@ -358,8 +358,8 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
     with tempfile.TemporaryDirectory(prefix="broodline-scaling-") as folder:
         for engine in engines:
             raw, one_raw = (scaling_config(engine, n, capacity=capacity) for n in (replicates, 1))
-            fastest: dict[int, tuple] = {}  # workers -> (run, digest, load); and the 1-replicate run
-            fastest_one: dict[int, dict] = {}
+            fastest: dict[int, tuple] = {}  # workers -> (its fastest run, that file's hash, load)
+            fastest_one: dict[int, dict] = {}  # workers -> its fastest one-replicate run
             for round_ in range(1, rounds + 1):
                 for n in counts:
                     of = f" (round {round_} of {rounds})" if rounds > 1 else ""
