@@ -23,9 +23,9 @@ from tqdm import tqdm
 
 from .config import Config
 from .describe import preflight
-from .lifecycle import initial_census
 from .outcomes import fixed_outcome, summarize
 from .parallel import BatchClock, Job, default_batch_size, iter_batches, make_pool
+from .point_run import PointRun
 from .store import ResultsWriter, software_version
 
 log = logging.getLogger(__name__)
@@ -237,8 +237,10 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
                             "is split)", out, writer.resumed_from_version, software_version(),
                             writer.resumed_from_version)
         tracker = _Progress(writer, points, show=progress)
-        starts = {p.index: initial_census(p.config) for p in points}  # workers solve no equilibrium
-        census = max(int(start.sum()) for start in starts.values())
+        # each point's life cycle and starting census, worked out here once: a worker is sent
+        # plain data (no config schema to import, no equilibrium to solve)
+        runs = {p.index: PointRun.of(p) for p in points}
+        census = max(int(run.start.sum()) for run in runs.values())
         size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census,
                                                 records=config.experiment.trajectory != "none")
         clock.batch_size = size
@@ -248,8 +250,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         # caller chose is kept as it is.
         taper = pool.slots if pool.slots > 1 and not batch_size else 0
         batches = iter_batches(writer.missing(), size, taper=taper)
-        jobs = (Job(batch, points[batch.point], seed, starts[batch.point], writer.shard_target(batch.point))
-                for batch in batches)
+        jobs = (Job(batch, runs[batch.point], seed, writer.shard_target(batch.point)) for batch in batches)
         def merge_one() -> bool:  # while the writer waits for workers: merge a shard, if one is next
             wall, cpu = time.perf_counter(), time.process_time()
             merged = writer.merge_ready(limit=1)

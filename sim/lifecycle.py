@@ -11,16 +11,20 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .care import ParentalCare
-from .config import MAX_COUNT, Config, ConfigError
 from .density import DensityDependence
 from .kernel import SeasonKernel
 from .meanfield import solve_equilibrium, stable_age_distribution
 from .mutation import Mutation
 from .schedules import stack_schedules
+from .vocabulary import MAX_COUNT
+
+if TYPE_CHECKING:  # the config schema (pydantic) is not imported by the engines' worker processes
+    from .config import Config
 
 __all__ = ["LifeCycle", "initial_census", "round_preserving_total"]
 
@@ -103,6 +107,8 @@ def initial_census(config: Config, life: LifeCycle | None = None) -> np.ndarray:
     if inv.resident_count == "equilibrium":
         eq = solve_equilibrium(schedule, life.density, offspring=life.offspring)
         if not eq.census_size <= MAX_COUNT:
+            from .config import ConfigError
+
             raise ConfigError(f"density.capacity: the resident's equilibrium census is "
                               f"{eq.census_size:.3g} individuals, more than {MAX_COUNT} can be counted")
         target, shape = int(round(eq.census_size)), eq.census

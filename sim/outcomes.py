@@ -11,11 +11,12 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .config import Config
 from .vocabulary import DECIDED, DECIDED_WITH_WINNER, OUTCOMES
 
-if TYPE_CHECKING:  # pandas is imported where a table is made: a worker process never needs it
+if TYPE_CHECKING:  # pandas, where a table is made, and pydantic: a worker process needs neither
     import pandas as pd
+
+    from .config import Config
 
 __all__ = ["OUTCOMES", "DECIDED", "DECIDED_WITH_WINNER", "CODES", "classify", "mutant_index",
            "census_states", "fixed_outcome", "summarize"]

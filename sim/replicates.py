@@ -17,15 +17,19 @@ import gc
 from contextlib import contextmanager
 from dataclasses import dataclass
 from itertools import pairwise
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .config import MAX_COUNT, SweepPoint
 from .engines import ENGINES
-from .lifecycle import LifeCycle, initial_census
-from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, census_states, mutant_index
+from .outcomes import CODES, DECIDED, DECIDED_WITH_WINNER, OUTCOMES, census_states
+from .point_run import PointRun
 from .streams import keyed_generators
+from .vocabulary import MAX_COUNT
 from .year_draws import SeasonYears
+
+if TYPE_CHECKING:  # the config schema: a worker process is sent a PointRun and never loads it
+    from .config import SweepPoint
 
 __all__ = ["ReplicateResult", "replicate_rng", "run_replicates", "run_replicate"]
 
@@ -146,7 +150,7 @@ def _cycle_collection_paused():
             gc.enable()
 
 
-def run_replicates(point: SweepPoint, replicates, seed: int, *,
+def run_replicates(point: SweepPoint | PointRun, replicates, seed: int, *,
                    start: np.ndarray | None = None) -> list[ReplicateResult]:
     """Run replicates of one sweep point to the stop rule (the unit of work a worker takes).
 
@@ -157,24 +161,26 @@ def run_replicates(point: SweepPoint, replicates, seed: int, *,
 
     Parameters
     ----------
-    point : SweepPoint
+    point : SweepPoint or PointRun
+        The sweep point, or its ``PointRun`` (what a worker process is sent).
     replicates : iterable of int
         Replicate indices (each keys its own stream).
     seed : int
         The experiment's root seed.
     start : ndarray, optional
         The point's starting census, ``initial_census(point.config)``, where the caller
-        has it already (a worker process then needs no equilibrium solver).
+        has it already and passes a ``SweepPoint`` (a ``PointRun`` holds its own).
 
     Returns
     -------
     list of ReplicateResult, in the order of ``replicates``.
     """
+    run = point if isinstance(point, PointRun) else PointRun.of(point, start)
     reps = [int(r) for r in replicates]
     with _cycle_collection_paused():
-        if hasattr(ENGINES[point.config.experiment.engine], "populations"):
-            return _run_batch(point, reps, seed, start)
-        return [result for rep in reps for result in _run_batch(point, [rep], seed, start)]
+        if hasattr(ENGINES[run.engine], "populations"):
+            return _run_batch(run, reps, seed)
+        return [result for rep in reps for result in _run_batch(run, [rep], seed)]
 
 
 def run_replicate(point: SweepPoint, replicate: int, seed: int) -> ReplicateResult:
@@ -182,31 +188,25 @@ def run_replicate(point: SweepPoint, replicate: int, seed: int) -> ReplicateResu
     return run_replicates(point, [replicate], seed)[0]
 
 
-def _run_batch(point: SweepPoint, reps: list[int], seed: int,
-               start: np.ndarray | None = None) -> list[ReplicateResult]:
+def _run_batch(run: PointRun, reps: list[int], seed: int) -> list[ReplicateResult]:
     """The stop rule, applied to a batch: stop a replicate when its outcome is decided
     (``stop = "fixation"``; extinction always stops), at ``max_steps``, or when its
     census passes ``max_population`` (capped); record every ``record_every`` seasons
     and at the end."""
-    config = point.config
-    exp = config.experiment
     n = len(reps)
     if n == 0:
         return []
-    rngs = keyed_generators(seed, point.index, reps)  # replicate_rng's, built together
-    engine = ENGINES[exp.engine]
-    years = config.year_types()  # None: a constant environment, no year stream at all
-    shared = years is not None and config.environment.shared_years
+    rngs = keyed_generators(seed, run.index, reps)  # replicate_rng's, built together
+    engine = ENGINES[run.engine]
+    years, shared = run.years, run.shared_years  # years None: a constant environment, no year stream
     if hasattr(engine, "populations"):
-        life = LifeCycle.from_config(config)
-        start = initial_census(config, life) if start is None else start
-        batch = engine.populations(life, np.broadcast_to(start, (n, *start.shape)), rngs,
-                                   limit=exp.max_population)
+        batch = engine.populations(run.life, np.broadcast_to(run.start, (n, *run.start.shape)), rngs,
+                                   limit=run.max_population)
         if years is not None:
-            batch.years = SeasonYears.for_replicates(years, seed, point.index, reps, shared=shared)
+            batch.years = SeasonYears.for_replicates(years, seed, run.index, reps, shared=shared)
     else:
-        batch = _Models(config, rngs, None if years is None else [
-            SeasonYears.for_replicates(years, seed, point.index, [r], shared=shared) for r in reps])
+        batch = _Models(run.config, rngs, None if years is None else [
+            SeasonYears.for_replicates(years, seed, run.index, [r], shared=shared) for r in reps])
     year_records = None if years is None else _YearRecords()
 
     outcome = np.full(n, -1)  # codes into OUTCOMES
@@ -215,7 +215,7 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
 
     active = np.arange(n)
     census = batch.census()
-    mutant = mutant_index(config)
+    mutant = run.mutant
     totals = census.sum(axis=2)
     # a census's state and winner depend only on which alleles are present (``census_states``):
     # worked out again only in a season where that changes, looked for only in a season where
@@ -225,8 +225,8 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
     since = np.zeros(n, dtype=np.int64)
     records.add(active, 0, census)
     season = 0
-    stop_decided = exp.stop == "fixation"
-    max_steps, max_population, record_every = exp.max_steps, exp.max_population, exp.record_every
+    stop_decided = run.stop == "fixation"
+    max_steps, max_population, record_every = run.max_steps, run.max_population, run.record_every
     changed = True  # the states changed since the stop rule last looked at them
 
     def finish(done: np.ndarray, codes, recorded: np.ndarray) -> None:
@@ -293,7 +293,7 @@ def _run_batch(point: SweepPoint, reps: list[int], seed: int,
             enumerate(zip(*columns, strict=True))):
         name = OUTCOMES[code]
         out.append(ReplicateResult(
-            point=point.index,
+            point=run.index,
             replicate=reps[i],
             seed=seed,
             outcome=name,

@@ -11,8 +11,12 @@ This module imports nothing, so any module may import it.
 __all__ = [
     "ENGINES", "STOP_RULES", "TRAJECTORY_MODES", "DENSITY_FORMS", "PLACEMENTS", "COUNTED",
     "DISTRIBUTIONS", "BREEDING", "BROOD_EFFECTS", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED", "outcome_name",
-    "SWITCHING", "STATIONARY", "YEAR_MULTIPLIERS",
+    "SWITCHING", "STATIONARY", "YEAR_MULTIPLIERS", "MAX_COUNT",
 ]
+
+# The largest census count (counts are stored as uint32): the schema refuses configs past it
+# and the engines store a capped replicate's last census as this ceiling.
+MAX_COUNT = 2**32 - 1
 
 ENGINES = ("individual", "agents", "counts")
 STOP_RULES = ("fixation", "max-steps")

@@ -141,10 +141,10 @@ def nth():
 
 W = store.ResultsWriter
 if where == "before-any-shard":
-    import sim.store.writer as writer
+    import sim.store.shards as shards
     def patched(target, rows):
         stop_here()
-    writer.save_shard = patched
+    shards.save_shard = patched
 elif where == "mid-shard-write":  # the .tmp shard half written to disk
     original = durable._write_file
     def patched(path, data):

@@ -68,7 +68,7 @@ def test_read_only_output_folder(tmp_path, capsys):
 def test_a_write_error_mid_run_keeps_what_was_saved(tmp_path, monkeypatch, capsys):
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "out.h5"
-    real = store.writer._fill_shard  # what saves a shard, in the writer or in a worker
+    real = store.shards._fill_shard  # what saves a shard, in the writer or in a worker
     calls = []
 
     def fill_then_fail(f, target, results):
@@ -77,7 +77,7 @@ def test_a_write_error_mid_run_keeps_what_was_saved(tmp_path, monkeypatch, capsy
             raise OSError(errno.ENOSPC, "No space left on device")
         real(f, target, results)
 
-    monkeypatch.setattr(store.writer, "_fill_shard", fill_then_fail)
+    monkeypatch.setattr(store.shards, "_fill_shard", fill_then_fail)
     # as on a one-core machine, --workers 1 runs the batches in this process, which sees the
     # patch (elsewhere the one worker is a process of its own: sim.parallel.start.separate_workers)
     monkeypatch.setattr(sim.parallel.start, "default_workers", lambda: 1)

@@ -63,8 +63,8 @@ def test_merging_rows_held_in_memory_gives_the_file_read_back_from_the_shards(tm
     # with no room to hold rows it reads every shard: the two files must be the same.
     config = small_config(replicates=7)
     reads = []
-    original = store.writer.read_shard
-    monkeypatch.setattr(store.writer, "read_shard", lambda path: reads.append(path) or original(path))
+    original = store.shards.read_shard
+    monkeypatch.setattr(store.shards, "read_shard", lambda path: reads.append(path) or original(path))
     held = tmp_path / "held.h5"
     run_experiment(config, held, batch_size=2, progress=False, workers=1)
     assert reads == []
@@ -102,9 +102,10 @@ def test_a_worker_saves_its_shard_only_where_it_sees_the_writers_folder(tmp_path
     # there and sends the batch's rows back instead (the writer saves them); one that sees the
     # folder saves the shard itself, as a local worker does
     from sim.parallel import Batch, Job, run_job
+    from sim.point_run import PointRun
 
     config = small_config(replicates=6)
-    point = sweep_points(config)[0]
+    point = PointRun.of(sweep_points(config)[0])
     writer = ResultsWriter(tmp_path / "probe.h5", config, sweep_points(config))
     target = writer.shard_target(0)
     assert (target.parts / target.probe).is_file()

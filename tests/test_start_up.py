@@ -4,8 +4,10 @@ A run's fixed cost is mostly imports (numpy, pydantic, h5py, numba, pandas,
 scipy), so each process loads only what it uses: the command line's parser
 nothing heavy; the writer no numba (its workers run the batches) and no scipy;
 worker processes start from a fork server that loaded the engines once
-(``sim.parallel.start``). These are checks of the import graph at run time, not
-timings (speed goes in ``broodline bench --scaling``)."""
+(``sim.parallel.start``), and neither it nor they load the config schema
+(pydantic): a batch comes with its point's ``PointRun``, plain data. These are
+checks of the import graph at run time, not timings (speed goes in
+``broodline bench --scaling``)."""
 
 import json
 import subprocess
@@ -75,11 +77,44 @@ def test_workers_start_with_the_engines_loaded_by_the_fork_server():
         blas = pool._executor.submit(_blas_importable).result(timeout=120)
     finally:
         pool.shutdown()
-    assert {"numba", "h5py", "pydantic"} <= loaded  # loaded once, in the server, before forking
-    assert "pandas" not in loaded and "matplotlib" not in loaded
+    assert {"numba", "h5py"} <= loaded  # loaded once, in the server, before forking
+    assert not {"pydantic", "pandas", "matplotlib"} & loaded
     # numba's check for a BLAS was answered without importing scipy.linalg (sim.parallel.warm),
     # and scipy.linalg imports as usual afterwards
     assert "scipy.linalg" not in loaded and blas
+
+
+def _run_job_then_modules(job) -> tuple[int, list[str]]:
+    from sim.parallel import run_job
+
+    output = run_job(job)
+    return len(output.results), _modules_in_worker()
+
+
+@pytest.mark.skipif(worker_context().get_start_method() != "forkserver", reason="no fork server here")
+@pytest.mark.parametrize("engine", ["individual", "counts"])
+def test_a_worker_runs_a_batch_without_loading_the_config_schema(engine):
+    # the job carries a PointRun (the life cycle, starting census and stop rule as plain data),
+    # so unpickling it and running the batch imports no pydantic in the worker
+    from sim.config import parse_config, sweep_points
+    from sim.parallel import Batch, Job
+    from sim.point_run import PointRun
+
+    config = parse_config({
+        "experiment": {"name": "w", "seed": 3, "replicates": 8, "max_steps": 200, "engine": engine},
+        "density": {"form": "beverton-holt", "acts_on": "recruitment", "capacity": 40.0},
+        "allele": [{"name": "a", "breeding": "iteroparous", "fecundity": 2.0, "adult_survival": 0.5,
+                    "juvenile_survival": 0.5},
+                   {"name": "b", "breeding": "semelparous", "fecundity": 4.0, "juvenile_survival": 0.5}],
+        "invasion": {"resident": "a", "mutant": "b", "mutant_count": 1, "resident_count": "equilibrium"},
+    })
+    job = Job(Batch(0, 0, 7), PointRun.of(sweep_points(config)[0]), config.experiment.seed)
+    pool = ProcessPool(1)
+    try:
+        n, loaded = pool._executor.submit(_run_job_then_modules, job).result(timeout=120)
+    finally:
+        pool.shutdown()
+    assert n == 8 and "pydantic" not in loaded
 
 
 def _collector_and_blas() -> tuple[bool, int, str | None]:
@@ -108,7 +143,7 @@ def test_workers_inherit_frozen_objects_a_running_collector_and_one_blas_thread(
 def test_a_failed_load_leaves_the_collector_running():
     # the fork server swallows a preload's ImportError and goes on: the collector it paused
     # for the load must run again
-    probe = ("import gc, sys\nsys.modules['sim.store.writer'] = None\n"
+    probe = ("import gc, sys\nsys.modules['sim.store.shards'] = None\n"
              "try:\n    import sim.parallel.warm\nexcept ImportError:\n    print(gc.isenabled())")
     done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, cwd=ROOT,
                           check=True, timeout=120)

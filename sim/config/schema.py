@@ -27,6 +27,7 @@ from ..mutation import Mutation, neighbour_mutation, uniform_mutation
 from ..offspring import make_offspring
 from ..schedules import Schedule, iteroparous, semelparous, table
 from ..tradeoff import TradeOff
+from ..vocabulary import MAX_COUNT
 from ..years import YearType, YearTypes, scaled_schedule
 
 __all__ = [
@@ -52,7 +53,6 @@ __all__ = [
     "field_descriptions",
 ]
 
-MAX_COUNT = 2**32 - 1  # census counts are stored as uint32
 MAX_SEED = 2**64 - 1  # stored as uint64, and SeedSequence's entropy
 MAX_REPLICATES = 2**31 - 1  # replicate indices are stored as int32
 MAX_SWEEP_POINTS = 100_000  # points of a [sweep]: each is a config held in memory while running

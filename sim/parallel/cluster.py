@@ -10,7 +10,7 @@ import time
 import uuid
 from pathlib import Path
 
-from .work import ClusterError, Job, run_job
+from .work import ClusterError, jobs_of, run_job
 
 __all__ = ["DaskPool", "CLUSTER_INSTALL"]
 
@@ -119,7 +119,7 @@ class DaskPool:
         return max(1, sum(self.client.nthreads().values()))
 
     def run(self, tasks):
-        for batch, output in self.run_jobs(Job(batch, point, seed) for batch, point, seed in tasks):
+        for batch, output in self.run_jobs(jobs_of(tasks)):
             yield batch, output.results
 
     def run_jobs(self, jobs, *, idle=None):

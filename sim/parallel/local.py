@@ -19,7 +19,7 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 
 from .start import worker_context, worker_init
-from .work import Job, PoolError, run_job
+from .work import PoolError, jobs_of, run_job
 
 __all__ = ["SerialPool", "ProcessPool"]
 
@@ -45,7 +45,7 @@ class SerialPool:
 
 def _results(pool, tasks):
     """``pool.run``: (batch, point, seed) in, (batch, results) out."""
-    for batch, output in pool.run_jobs(Job(batch, point, seed) for batch, point, seed in tasks):
+    for batch, output in pool.run_jobs(jobs_of(tasks)):
         yield batch, output.results
 
 

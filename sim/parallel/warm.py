@@ -1,7 +1,8 @@
 """What a worker process needs before its first batch, loaded once by the fork server.
 
-Importing this module imports the engines (numba), the shard writer (h5py)
-and the config schema (pydantic), and sets up numba's code generator, which
+Importing this module imports the engines (numba) and the shard saver (h5py),
+not the config schema (pydantic: a worker is sent plain ``PointRun`` data),
+and sets up numba's code generator, which
 loading the engines' cached machine code would otherwise do in the first
 batch. The fork server (``sim.parallel.start.worker_context``) imports it
 before forking any worker, so every worker starts with all of it loaded; a
@@ -53,7 +54,7 @@ gc.disable()
 try:
     one_blas_thread()
     from .. import replicates  # noqa: F401  (the engines, numba)
-    from ..store import writer  # noqa: F401  (h5py: workers save their own shards)
+    from ..store import shards  # noqa: F401  (h5py: workers save their own shards)
     from . import work  # noqa: F401
 
     _set_up_code_generator()

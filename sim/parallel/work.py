@@ -17,9 +17,10 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..config import SweepPoint
-
-if TYPE_CHECKING:  # the engines (numba) are imported where a batch runs, not by the writer
+if TYPE_CHECKING:  # the engines (numba) are imported where a batch runs, not by the writer;
+    # the config schema (pydantic) by neither worker processes nor this module
+    from ..config import SweepPoint
+    from ..point_run import PointRun
     from ..replicates import ReplicateResult
 
 __all__ = [
@@ -32,6 +33,7 @@ __all__ = [
     "run_batch",
     "reduce_trajectory",
     "Job",
+    "jobs_of",
     "BatchClock",
     "BatchOutput",
     "run_job",
@@ -152,16 +154,28 @@ def run_batch(point: SweepPoint, first: int, last: int, seed: int) -> list[Repli
 
 @dataclass(frozen=True)
 class Job:
-    """One batch as a pool runs it: the batch, its sweep point and the root seed; optionally
-    the point's starting census (then the worker solves no equilibrium) and a ``ShardTarget``
-    (then a worker that reaches it saves its batch as a shard and sends back only a
+    """One batch as a pool runs it: the batch, its point's ``PointRun`` (plain data: the
+    worker imports no config schema) and the root seed; optionally a ``ShardTarget`` (then
+    a worker that reaches it saves its batch as a shard and sends back only a
     ``BatchOutput`` without results)."""
 
     batch: Batch
-    point: SweepPoint
+    point: PointRun
     seed: int
-    start: np.ndarray | None = None
     target: object = None  # sim.store.ShardTarget
+
+
+def jobs_of(tasks):
+    """``Job``s for (batch, sweep point, seed) tasks (what ``pool.run`` takes): each point's
+    ``PointRun`` is worked out once, when its first batch comes."""
+    from ..point_run import PointRun
+
+    runs: dict[int, tuple] = {}
+    for batch, point, seed in tasks:
+        known = runs.get(point.index)
+        if known is None or known[0] is not point:
+            known = runs[point.index] = (point, PointRun.of(point))
+        yield Job(batch, known[1], seed)
 
 
 @dataclass(frozen=True)
@@ -210,13 +224,12 @@ def run_job(job: Job) -> BatchOutput:
     from ..replicates import run_replicates
 
     batch = job.batch
-    mode = job.point.config.experiment.trajectory
-    results = [reduce_trajectory(r, mode) for r in
-               run_replicates(job.point, batch.replicates, job.seed, start=job.start)]
+    results = [reduce_trajectory(r, job.point.trajectory) for r in
+               run_replicates(job.point, batch.replicates, job.seed)]
     outcomes = Counter(r.outcome for r in results)
     shard = rows = None
     if job.target is not None:  # the rows made here: the writer's work per replicate is a copy
-        from ..store.writer import SEND_ROWS_BYTES, save_shard, shard_rows
+        from ..store.shards import SEND_ROWS_BYTES, save_shard, shard_rows
 
         rows, results = shard_rows(job.target, results), None
     cpu1 = time.process_time()  # saving, from here: what the writer does for a worker that cannot

@@ -226,13 +226,29 @@ def _append(ds, values) -> None:
 YEARS = "years"  # the group of year types (variable environments)
 
 
-def _years_group(f, environment, data=None) -> None:
+@dataclass(frozen=True)
+class YearsHeader:
+    """What ``/years`` says of an ``[environment]``: its year types' names, and whether the
+    replicates share one sequence of years (plain data: a worker saving a shard needs no config)."""
+
+    names: tuple[str, ...]
+    shared: bool
+
+    @classmethod
+    def of(cls, environment) -> YearsHeader | None:
+        """The header of an ``[environment]`` section (None: none, so no ``/years``)."""
+        if environment is None:
+            return None
+        return cls(tuple(y.name for y in environment.year), bool(environment.shared_years))
+
+
+def _years_group(f, years: YearsHeader | None, data=None) -> None:
     """Create ``/years`` (where there is an [environment] section), holding ``data`` if given."""
-    if environment is None:
+    if years is None:
         return
     g = f.create_group(YEARS)
-    g.attrs["names"] = json.dumps([y.name for y in environment.year])
-    g.attrs["shared"] = bool(environment.shared_years)
+    g.attrs["names"] = json.dumps(list(years.names))
+    g.attrs["shared"] = years.shared
     _column(g, "type", np.uint8, (), 4096, data)
 
 

@@ -7,7 +7,6 @@ import logging
 import os
 import shutil
 import socket
-from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -15,9 +14,9 @@ import h5py
 import numpy as np
 
 from ..config import config_differences, config_hash
-from ..outcomes import CODES, OUTCOMES
 from ..vocabulary import outcome_name
 from . import durable
+from . import shards as shard_files  # saved and read through the module: one place to patch
 from .layout import (
     _FORMAT,
     _STR,
@@ -25,15 +24,14 @@ from .layout import (
     OUTCOME_TEXT,
     REPLICATE_CHUNK,
     REPLICATE_COLUMNS,
-    SHARD_ROW,
     YEARS,
     ConfigMismatchError,
     ResultsError,
     Shard,
+    YearsHeader,
     _append,
     _column,
     _counts_shape,
-    _pad_ages,
     _years_group,
     is_complete,
     list_shards,
@@ -41,14 +39,14 @@ from .layout import (
     replicate_rows,
     software_version,
 )
+from .shards import ShardRows, ShardTarget, shard_rows
 
 try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
     import fcntl
 except ImportError:  # pragma: no cover
     fcntl = None
 
-__all__ = ["ResultsWriter", "ShardTarget", "ShardRows", "shard_rows", "save_shard", "read_shard",
-           "writer_state", "fill_header", "rewrite_header"]
+__all__ = ["ResultsWriter", "writer_state", "fill_header", "rewrite_header"]
 
 log = logging.getLogger(__name__)
 
@@ -57,11 +55,10 @@ log = logging.getLogger(__name__)
 # 0.5, in one microbenchmark of a K = 500 invasion's table)
 _MERGE_ROWS = 1 << 17
 _MERGE_RECORDS = 1 << 16
-# A worker that saves its shard sends the shard's rows along (``ShardRows``) when they are at
-# most SEND_ROWS_BYTES, and the writer holds rows not yet merged up to HELD_ROWS_BYTES in all;
-# a shard whose rows it does not hold is read back from disk by the merge (which reading cost
-# about 0.7 microseconds a replicate, most of the merge's cost per replicate).
-SEND_ROWS_BYTES = 8 << 20
+# The writer holds rows not yet merged up to HELD_ROWS_BYTES in all (a worker sends its shard's
+# rows along when they are at most ``SEND_ROWS_BYTES``); a shard whose rows it does not hold is
+# read back from disk by the merge (which reading cost about 0.7 microseconds a replicate, most
+# of the merge's cost per replicate).
 HELD_ROWS_BYTES = 64 << 20
 
 
@@ -290,7 +287,7 @@ class ResultsWriter:
         shard = rows.shard
         self._check_overlap(shard)
         try:
-            save_shard(self.shard_target(shard.point), rows)
+            shard_files.save_shard(self.shard_target(shard.point), rows)
         except OSError as err:
             raise ResultsError(self._write_failure(err)) from None
         self._record(shard, rows)
@@ -307,7 +304,7 @@ class ResultsWriter:
         """The rows of ``shard`` for the merge: held in memory, else read from its file."""
         rows = self._held.pop((shard.point, shard.first), None)
         if rows is None:
-            return read_shard(self.parts / shard.name)
+            return shard_files.read_shard(self.parts / shard.name)
         self._held_bytes -= rows.nbytes
         return rows
 
@@ -323,7 +320,8 @@ class ResultsWriter:
         cache = self.__dict__.setdefault("_targets", {})
         if point not in cache:
             cache[point] = ShardTarget(self.parts, self.mode, self.n_alleles, self.n_ages,
-                                       self._point_hash(point), self.config.environment, self._probe())
+                                       self._point_hash(point), YearsHeader.of(self.config.environment),
+                                       self._probe())
         return cache[point]
 
     def _probe(self) -> str:
@@ -472,7 +470,7 @@ class _MergedFile:
             head.copy("points", out)
         out.attrs["complete"] = False  # set last: a file is complete only once all rows are in
         _empty_tables(out, w.mode, w.n_alleles, w.n_ages)
-        _years_group(out, w.config.environment)
+        _years_group(out, YearsHeader.of(w.config.environment))
 
     def advance(self, shards: dict, limit: int | None = None) -> bool:
         """Read up to ``limit`` (default: every) shard that comes next in order (``shards``:
@@ -543,111 +541,6 @@ class _MergedFile:
         self.tmp.unlink(missing_ok=True)
 
 
-@dataclass(frozen=True)
-class ShardTarget:
-    """Everything needed to save a batch of one sweep point as a shard, in any process:
-    the shards' folder, the trajectory mode and counts shape of the file, the point's config
-    hash (a shard carries it), the ``[environment]`` section (None: no years) and ``probe``,
-    a file the writer made in the folder (a process that sees it sees the writer's disk)."""
-
-    parts: Path
-    mode: str
-    n_alleles: int
-    n_ages: int
-    point_hash: str
-    environment: object = None
-    probe: str = ""
-
-    def reachable(self) -> bool:
-        """True if this process sees the writer's folder of shards (the probe is there): a
-        worker on another machine of a dask cluster may not, and then sends its results."""
-        return not self.probe or (self.parts / self.probe).is_file()
-
-
-@dataclass(frozen=True)
-class ShardRows:
-    """A shard's contents in memory: ``table`` (one ``SHARD_ROW`` per replicate, the outcome
-    a code into ``outcomes``), the census records ``steps`` and ``counts`` (None when there
-    are none, as with ``trajectory = "none"``) and the year types ``years`` (None without
-    an ``[environment]``)."""
-
-    table: np.ndarray
-    outcomes: tuple[str, ...]
-    steps: np.ndarray | None
-    counts: np.ndarray | None
-    years: np.ndarray | None
-
-    @property
-    def nbytes(self) -> int:
-        return sum(a.nbytes for a in (self.table, self.steps, self.counts, self.years) if a is not None)
-
-    @property
-    def shard(self) -> Shard:
-        """The shard these rows make: their point and first and last replicates."""
-        table = self.table
-        return Shard(int(table["point"][0]), int(table["replicate"][0]), int(table["replicate"][-1]))
-
-
-def shard_rows(target: ShardTarget, results) -> ShardRows:
-    """Finished replicates (one point, consecutive replicates, in order) as a shard holds them."""
-    lengths = np.array([r.record_steps.size for r in results], dtype=np.int64)
-    table = np.empty(len(results), SHARD_ROW)
-    table["point"] = table["spawn_key"][:, 0] = [r.point for r in results]
-    table["replicate"] = table["spawn_key"][:, 1] = [r.replicate for r in results]
-    table["outcome"] = [CODES[r.outcome] for r in results]
-    for name in ("seed", "winner", "steps", "fixation_step", "final_census"):
-        table[name] = [getattr(r, name) for r in results]
-    table["trajectory_start"] = np.concatenate([[0], np.cumsum(lengths)[:-1]])
-    table["trajectory_length"] = lengths
-    steps = counts = None
-    if lengths.sum():  # (none with trajectory = "none": no pass over the replicates for them)
-        steps = np.concatenate([r.record_steps for r in results]).astype(np.int32)
-        counts = np.concatenate([r.trajectory if target.mode == "by-allele"
-                                 else _pad_ages(r.trajectory, target.n_ages) for r in results])
-    years = None if target.environment is None else np.concatenate([r.years for r in results])
-    return ShardRows(table, OUTCOMES, steps, counts, years)
-
-
-def save_shard(target: ShardTarget, rows: ShardRows) -> Shard:
-    """Save one batch's rows as a durable shard.
-
-    The shard is written as ``.tmp``, fsynced and renamed into place
-    (``durable.write_atomic``), so it exists whole or not at all; a worker
-    process that sees the writer's disk calls this for its own batch, and the
-    writer only records it.
-    """
-    shard = rows.shard
-    durable.write_atomic(target.parts / shard.name, lambda f: _fill_shard(f, target, rows))
-    return shard
-
-
-def _fill_shard(f, target: ShardTarget, rows: ShardRows) -> None:
-    # a shard from another run (or another point's config) is refused, never merged
-    f.attrs["config_hash"] = target.point_hash
-    f.create_dataset("replicates", data=rows.table).attrs["outcomes"] = json.dumps(rows.outcomes)
-    traj = f.create_group("trajectories")
-    counts_shape = _counts_shape(target.mode, target.n_alleles, target.n_ages)
-    empty = rows.steps is None
-    _column(traj, "step", np.int32, (), 4096, np.zeros(0, np.int32) if empty else rows.steps)
-    _column(traj, "counts", np.uint32, counts_shape, 4096,
-            np.zeros((0, *counts_shape), np.uint32) if empty else rows.counts)
-    if rows.years is not None:
-        _years_group(f, target.environment, rows.years)
-
-
-def read_shard(path) -> ShardRows:
-    """A shard's contents, from its file (a shard of this results format: a run of an earlier
-    format is not resumed, so its shards, which may hold column datasets, never come here)."""
-    with h5py.File(path, "r") as f:
-        reps = f["replicates"]
-        table, outcomes = reps[()], tuple(json.loads(reps.attrs["outcomes"]))
-        steps = counts = None
-        if table["trajectory_length"].sum():  # (none with trajectory = "none": not opened)
-            steps, counts = f["trajectories"]["step"][()], f["trajectories"]["counts"][()]
-        years = f[YEARS]["type"][()] if YEARS in f else None
-    return ShardRows(table, outcomes, steps, counts, years)
-
-
 def _empty_tables(f, mode, n_alleles, n_ages) -> None:
     reps = f.create_group("replicates")
     for name, (dtype, shape) in REPLICATE_COLUMNS.items():
@@ -692,7 +585,7 @@ def fill_header(f, config, points, *, created: str | None = None, extra: dict | 
     if config.trait is not None:  # each allele's effort: turns counts by allele into the trait
         f.attrs["trait_efforts"] = json.dumps(config.efforts())
     _empty_tables(f, mode, len(config.allele_names), n_ages)
-    _years_group(f, config.environment)
+    _years_group(f, YearsHeader.of(config.environment))
     if created is not None:
         f.attrs["created"] = created
     f.attrs.update(extra or {})
