@@ -9,11 +9,15 @@ with 1 worker and with every core this process may use
 (``os.sched_getaffinity``), each run in a fresh process (the writer) with its
 own workers, as ``broodline run`` would; and once more with a single
 replicate, whose wall time is the fixed cost of a run. With ``rounds`` above
-1 this is done that many times, the worker counts alternating, and the
-fastest run of each is kept (the others were slowed by something else: the
-usual reading of repeated timings, as in the ``timeit`` module's
-documentation), so that a slow spell of a shared machine does not decide the
-speed-up.
+1 this is done that many times, the worker counts alternating (1 worker
+first in odd rounds, last in even ones, so that a machine that slows down or
+speeds up over the rounds favours neither), and the fastest run of each is
+kept (the others were slowed by something else: the usual reading of
+repeated timings, as in the ``timeit`` module's documentation), so that a
+slow spell of a shared machine does not decide the speed-up. Each round's
+runs are also compared with each other (``round_efficiencies``): a spell
+slows neighbouring runs alike, so their median says how far the fastest
+runs' efficiency is typical.
 
 From one run's ``RunTimings`` (``sim.experiment``) and the workers'
 ``BatchClock`` of every batch:
@@ -133,6 +137,9 @@ SCALING_KEYS = {
     "load": "the 1-minute load average when the run started (os.getloadavg)",
     "rounds": "runs of each worker count (alternating); the fastest is reported, for wall_s and "
               "one_replicate_s each",
+    "round_efficiencies": "each round's efficiency: that round's 1-worker wall time / (its wall "
+                          "time here x workers), one per round, in order (1 on 1 worker)",
+    "median_efficiency": "the median of round_efficiencies",
 }
 
 
@@ -173,6 +180,8 @@ class ScalingRecord:
     identical: bool
     load: float
     rounds: int = 1
+    round_efficiencies: list[float] | None = None
+    median_efficiency: float | None = None
 
 
 @dataclass
@@ -273,7 +282,8 @@ def _cli_startup() -> float:
 
 
 def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, base: dict | None,
-            digest: str, load: float, rounds: int = 1) -> ScalingRecord:
+            digest: str, load: float, rounds: int = 1,
+            round_efficiencies: list[float] | None = None) -> ScalingRecord:
     t = run["timings"]
     clocks = t.batches
     wall = t.finished - run["spawned"]
@@ -318,7 +328,8 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         saver_saturates_at_workers=(worker / (writer + save + merge) if writer + save + merge > 0
                                     else None),
         results_hash=digest[:16], identical=base is None or digest[:16] == base["results_hash"],
-        load=load, rounds=rounds,
+        load=load, rounds=rounds, round_efficiencies=round_efficiencies,
+        median_efficiency=statistics.median(round_efficiencies) if round_efficiencies else None,
     )
 
 
@@ -338,7 +349,8 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
     capacity : float
         K of the experiment.
     rounds : int
-        Runs of each worker count, alternating; the fastest is kept (>= 1).
+        Runs of each worker count, alternating; the fastest is kept, and each round's
+        efficiency is reported (>= 1).
     progress : callable, optional
         Called with a line before each run.
     """
@@ -360,8 +372,9 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
             raw, one_raw = (scaling_config(engine, n, capacity=capacity) for n in (replicates, 1))
             fastest: dict[int, tuple] = {}  # workers -> (its fastest run, that file's hash, load)
             fastest_one: dict[int, dict] = {}  # workers -> its fastest one-replicate run
+            walls: dict[int, list[float]] = {n: [] for n in counts}  # workers -> each round's wall
             for round_ in range(1, rounds + 1):
-                for n in counts:
+                for n in (counts if round_ % 2 else counts[::-1]):
                     of = f" (round {round_} of {rounds})" if rounds > 1 else ""
                     say(f"{engine}, {replicates} replicates at K = {capacity:g} on {n} "
                         f"worker{'s' * (n > 1)}{of}")
@@ -369,6 +382,7 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
                     out, one_out = (Path(folder) / f"{engine}-{n}{end}.h5" for end in ("", "-one"))
                     run = _measured_run(raw, out, n)
                     one = _measured_run(one_raw, one_out, n)
+                    walls[n].append(_wall(run))
                     if n not in fastest or _wall(run) < _wall(fastest[n][0]):
                         fastest[n] = (run, results_hash(out), load)
                     if n not in fastest_one or _wall(one) < _wall(fastest_one[n]):
@@ -378,7 +392,9 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
             base = None
             for n in counts:
                 run, digest, load = fastest[n]
-                record = _record(engine, n, replicates, run, fastest_one[n], base, digest, load, rounds)
+                paired = [w1 / (w * n) for w1, w in zip(walls[1], walls[n], strict=True)]
+                record = _record(engine, n, replicates, run, fastest_one[n], base, digest, load,
+                                 rounds, paired)
                 if base is None:
                     base = asdict(record)
                 records.append(record)
@@ -404,6 +420,14 @@ def format_scaling(report: ScalingReport) -> str:
                      f"{r.efficiency:>8.2f}{r.total_cpu_s:>8.1f}{r.cpu_efficiency:>9.2f}"
                      f"{r.fixed_cost_s:>9.2f}{r.one_replicate_s:>9.2f}{r.writer_busy_fraction:>12.3f}"
                      f"{r.load:>6.1f}")
+    paired = [r for r in report.records if r.workers > 1 and r.round_efficiencies and rounds > 1]
+    if paired:
+        lines += ["", "Efficiency round by round (a round's run against that round's 1-worker run):",
+                  f"{'engine':<11}{'workers':>8}{'median':>8}{'lowest':>8}{'highest':>8}  each round"]
+        for r in paired:
+            each = " ".join(f"{e:.2f}" for e in r.round_efficiencies)
+            lines.append(f"{r.engine:<11}{r.workers:>8}{r.median_efficiency:>8.2f}"
+                         f"{min(r.round_efficiencies):>8.2f}{max(r.round_efficiencies):>8.2f}  {each}")
     lines += ["", "Fixed cost by phase (seconds; CPU seconds where marked):",
               f"{'engine':<11}{'workers':>8}{'start-up':>9}{'(CPU)':>7}{'to 1st batch':>13}"
               f"{'worker start (CPU)':>19}{'1st batch extra':>16}{'tail':>7}{'merge':>7}"]

@@ -69,7 +69,8 @@ def test_rounds_alternate_worker_counts_and_keep_the_fastest_run_of_each(monkeyp
     from sim import bench_scaling
     from sim.experiment import RunTimings
 
-    walls = iter([9.0, 6.0, 8.0, 7.0, 10.0, 4.0])  # rounds of (1 worker, 2 workers), 3 rounds
+    # 3 rounds: (1 worker, 2 workers), then (2, 1), then (1, 2): who goes first alternates
+    walls = iter([9.0, 6.0, 7.0, 8.0, 10.0, 4.0])
     order = []
 
     def fake_run(raw, out, workers):
@@ -88,11 +89,18 @@ def test_rounds_alternate_worker_counts_and_keep_the_fastest_run_of_each(monkeyp
     monkeypatch.setattr(bench_scaling, "results_hash", lambda path: "0" * 64)
     monkeypatch.setattr(bench_scaling, "_cli_startup", lambda: 0.1)
     report = bench_scaling.run_scaling(replicates=10, workers=2, engines=["counts"], rounds=3)
-    assert order == [1, 2, 1, 2, 1, 2]
+    assert order == [1, 2, 2, 1, 1, 2]
     one, two = report.records
     assert (one.wall_s, two.wall_s) == (8.0, 4.0) and one.rounds == two.rounds == 3
     assert two.speedup == pytest.approx(2.0) and two.efficiency == pytest.approx(1.0)
-    assert "the fastest of 3 runs each" in bench_scaling.format_scaling(report)
+    # each round's pair: 9 / (6 x 2), 8 / (7 x 2), 10 / (4 x 2); the median is the middle one
+    assert two.round_efficiencies == pytest.approx([0.75, 8 / 14, 1.25])
+    assert two.median_efficiency == pytest.approx(0.75)
+    assert one.round_efficiencies == [1.0, 1.0, 1.0] and one.median_efficiency == 1.0
+    text = bench_scaling.format_scaling(report)
+    assert "the fastest of 3 runs each" in text
+    rows = [line.split() for line in text.splitlines()]
+    assert ["counts", "2", "0.75", "0.57", "1.25", "0.75", "0.57", "1.25"] in rows
 
 
 def test_rounds_must_be_at_least_one():

@@ -120,7 +120,7 @@ def register(sub) -> None:
                    help="with --scaling: only this engine (repeat for several; default: both)")
     p.add_argument("--rounds", type=_count(1), default=1, metavar="N",
                    help="with --scaling: run each worker count N times, alternating, and report the "
-                        "fastest of each (default 1)")
+                        "fastest of each and each round's efficiency (default 1)")
     p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
     p.set_defaults(func=cmd_bench)
 
