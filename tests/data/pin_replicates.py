@@ -60,10 +60,14 @@ def read_pinned(path) -> dict:
         columns = {name: (reps[name].asstr()[()].tolist() if name == "outcome"
                           else reps[name][()].tolist()) for name in COLUMNS}
         digests = {}
+
+        def add(name, obj):
+            if isinstance(obj, h5py.Dataset):
+                digests[obj.name.lstrip("/")] = digest(obj[()])
+
         for group in ("trajectories", "years"):
             if group in f:
-                f[group].visititems(lambda name, obj, g=group: digests.__setitem__(
-                    f"{g}/{name}", digest(obj[()])) if isinstance(obj, h5py.Dataset) else None)
+                f[group].visititems(add)
     return {"columns": columns, "digests": digests}
 
 
