@@ -43,6 +43,7 @@ from sim.vocabulary import outcome_name
 
 from .closedform import closed_form
 from .estimates import ObservedThreshold, observed_threshold, wilson_interval
+from .fixation import note_lines
 from .sweep import predict_configs, sweep_thresholds
 
 __all__ = [
@@ -534,13 +535,8 @@ def _judged_against(table: pd.DataFrame, *, width: int) -> list[str]:
         lines += textwrap.wrap(f"judged against the {name}: {_point_list(rows['point'].tolist())}", width=width)
     if "fixation_probability_note" in table:
         invalid = table[table["prediction"] == FINITE_NOT_VALID]
-        # notes that differ only in their numbers are said once, with the first point's numbers
-        kinds = invalid["fixation_probability_note"].str.replace(r"\d[\d.e+-]*", "#", regex=True)
-        for _, rows in invalid.groupby(kinds, sort=False):
-            points = rows["point"].tolist()
-            numbers = f" (numbers of point {points[0]}; every point's in --json)" if len(points) > 1 else ""
-            lines += textwrap.wrap(f"{_point_list(points)}{numbers}: {rows['fixation_probability_note'].iloc[0]}",
-                                   width=width, initial_indent="  ", subsequent_indent="    ")
+        lines += note_lines(invalid["point"].tolist(), invalid["fixation_probability_note"].tolist(),
+                            width=width)
     return lines
 
 

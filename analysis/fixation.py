@@ -10,6 +10,8 @@ Notes of ``finite_population_prediction`` give the result.
 from __future__ import annotations
 
 import math
+import re
+import textwrap
 from dataclasses import asdict, dataclass
 
 import numpy as np
@@ -33,6 +35,7 @@ __all__ = [
     "finite_population_prediction",
     "finite_population_columns",
     "shown_finite_columns",
+    "note_lines",
     "COLUMNS",
 ]
 
@@ -533,7 +536,24 @@ def shown_finite_columns(points):
         table.pop(name) if name in table else None
     lines = ["finite_N: the diffusion's fixation probability; in brackets where not valid:"]
     ids = points["point"] if "point" in points else points.index
-    for note in dict.fromkeys(notes):
-        where = [str(i) for i, n in zip(ids, notes) if n == note]
-        lines.append(f"  point{'s' if len(where) > 1 else ''} {', '.join(where)}: {note}")
+    lines += note_lines(list(ids), list(notes))
     return table, "\n".join(lines)
+
+
+_NUMBER = re.compile(r"\d[\d.e+-]*")
+
+
+def note_lines(points: list, notes: list[str], *, width: int = 100) -> list[str]:
+    """Each point's note, said once for the points whose notes differ only in their numbers
+    (with the first point's numbers), wrapped to ``width``."""
+    groups: dict[str, list[int]] = {}
+    for i, note in enumerate(notes):
+        groups.setdefault(_NUMBER.sub("#", note), []).append(i)
+    lines = []
+    for rows in groups.values():
+        where = [points[i] for i in rows]
+        numbers = f" (numbers of point {where[0]}; every point's in --json)" if len(where) > 1 else ""
+        said = ("point " if len(where) == 1 else "points ") + ", ".join(map(str, where))
+        lines += textwrap.wrap(f"{said}{numbers}: {notes[rows[0]]}", width=width,
+                               initial_indent="  ", subsequent_indent="    ")
+    return lines

@@ -1,6 +1,7 @@
 """The threshold, compare, plot and report commands (thin layers over the Python API)."""
 
 import json
+import re
 
 import pandas as pd
 import pytest
@@ -123,6 +124,31 @@ def test_threshold_text(config, capsys):
     )
     # plain words: the abbreviations come with a legend below the table
     assert "D*: the resident's equilibrium density index" in out
+
+
+def test_notes_that_differ_only_in_numbers_are_said_once():
+    from analysis.fixation import note_lines
+
+    notes = ["selection not weak: |s| = 0.4 > 0.05 per season", "no regulated census",
+             "selection not weak: |s| = 0.25 > 0.05 per season"]
+    assert note_lines([3, 5, 7], notes, width=200) == [
+        "  points 3, 7 (numbers of point 3; every point's in --json): selection not weak: |s| = 0.4 > "
+        "0.05 per season",
+        "  point 5: no regulated census",
+    ]
+    long = note_lines([0], ["word " * 60], width=40)
+    assert len(long) > 1 and all(len(line) <= 40 for line in long)
+    assert long[1].startswith("    ")
+
+
+def test_threshold_text_says_each_kind_of_finite_n_note_once(config, capsys):
+    assert main(["threshold", str(config)]) == 0
+    notes = capsys.readouterr().out.split("in brackets where not valid:\n")[1].split("\nthresholds:")[0]
+    said = [line for line in notes.splitlines() if line.startswith("  point")]
+    assert main(["threshold", str(config), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    kinds = {re.sub(r"\d[\d.e+-]*", "#", p["fixation_probability_note"]) for p in data["points"]}
+    assert len(data["points"]) == 3 and 1 <= len(said) == len(kinds) < 3
 
 
 def test_threshold_json(config, capsys):
