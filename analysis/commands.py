@@ -216,9 +216,9 @@ def cmd_threshold(args) -> int:
 
     config = load_config(args.config)
     if config.invasion is None:
-        raise UserError(
-            f"{args.config}: needs an [invasion] table naming the resident and the mutant"
-        )
+        evolving = (" (this config evolves a trait, [trait]: its prediction is `broodline invasibility "
+                    f"{args.config} -o DIR`)" if config.trait is not None else "")
+        raise UserError(f"{args.config}: needs an [invasion] table naming the resident and the mutant{evolving}")
     result = threshold_report(
         config,
         parameters=args.parameter or None,

@@ -2,6 +2,7 @@
 
 import json
 import re
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -254,7 +255,15 @@ def test_threshold_bad_parameter_and_no_invasion(config, tmp_path, capsys):
         )
     )
     assert main(["threshold", str(plain)]) == 2
-    assert "needs an [invasion] table" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "needs an [invasion] table" in err and "invasibility" not in err
+
+
+def test_threshold_of_a_trait_config_points_to_invasibility(capsys):
+    trait = Path(__file__).parents[1] / "configs" / "tallowcap-effort.toml"
+    assert main(["threshold", str(trait)]) == 2
+    err = capsys.readouterr().err
+    assert "needs an [invasion] table" in err and f"`broodline invasibility {trait} -o DIR`" in err
 
 
 def test_finish_demo_prints_table_and_report(results, tmp_path, capsys):
