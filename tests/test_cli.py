@@ -62,6 +62,14 @@ def test_run_writes_results_and_prints_summary(tmp_path, capsys):
     assert main(["run", str(cfg), "-o", str(out), "--quiet"]) == 0
     text = capsys.readouterr().out
     assert f"Results: {out}" in text and "fixed_fraction" in text
+    assert f"Next: broodline compare {out} (the results against the analytic prediction)" in text
+
+
+def test_a_trait_run_points_to_its_comparison_with_the_singular_efforts(tmp_path, capsys):
+    out = tmp_path / "t.h5"
+    assert main(["run", "configs/tallowcap-effort.toml", "-o", str(out), "--quiet", "--replicates", "1",
+                 "--max-steps", "20", "--workers", "1"]) == 0
+    assert f"Next: broodline compare {out} (the results against the singular efforts)" in capsys.readouterr().out
 
 
 def test_a_refused_output_is_not_announced_as_running(tmp_path):

@@ -206,6 +206,11 @@ def cmd_run(args) -> int:
     config = with_overrides(load_config(args.config), args)
     run_from_command_line(config, args.output, overwrite=args.overwrite, quiet=args.quiet,
                           **run_options(args))
+    if config.invasion is not None or config.trait is not None:
+        against = "the singular efforts" if config.trait is not None else "the analytic prediction"
+        out = shlex.quote(str(args.output))
+        print(f"\nNext: broodline compare {out} (the results against {against}), "
+              f"broodline plot {out} -o DIR (figures)")
     return 0
 
 
