@@ -92,6 +92,11 @@ def describe_allele(a) -> str:
     )
 
 
+# config words as prose spells them (the names of published laws capitalised)
+_PROSE = {"beverton-holt": "Beverton-Holt", "ricker": "Ricker", "poisson": "Poisson",
+          "negative-binomial": "negative binomial"}
+
+
 def _density_words(config) -> str:
     d = config.density
     if d.form == "none":
@@ -99,7 +104,7 @@ def _density_words(config) -> str:
     swept = swept_values(config, "density.capacity")
     k = f"capacity K swept over {', '.join(_g(v) for v in swept)}" if swept else f"capacity K = {d.capacity:g}"
     return (
-        f"{d.form} density dependence with {k}, acting on "
+        f"{_PROSE.get(d.form, d.form)} density dependence with {k}, acting on "
         f"{d.placement}, the density index counting {_COUNTED[d.counted]}"
     )
 
@@ -127,7 +132,7 @@ def _experiment_text(config) -> str:
         else f"at {inv.resident_count} individuals"
     )
     density = _density_words(config)
-    offspring = config.offspring.distribution + (
+    offspring = _PROSE.get(config.offspring.distribution, config.offspring.distribution) + (
         f" (dispersion {config.offspring.dispersion:g})" if config.offspring.dispersion else ""
     )
     sweep = _sweep_words(config)

@@ -74,6 +74,8 @@ def test_report_content(page):
         words,
     )
     assert "1 are" not in words and "breeds every season at age" not in words
+    # published laws by their names as printed (Beverton & Holt 1957; the Poisson law)
+    assert "has Beverton-Holt density dependence" in words and "offspring numbers are Poisson" in words
     assert " ".join(CAUTIONS.split()) in " ".join(words.split())
     assert "not advice for managing real populations" in words
 
