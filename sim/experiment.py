@@ -27,6 +27,7 @@ from .outcomes import fixed_outcome, summarize
 from .parallel import BatchClock, Job, default_batch_size, iter_batches, make_pool
 from .point_run import PointRun
 from .store import ResultsWriter, software_version
+from .vocabulary import DECIDED
 
 log = logging.getLogger(__name__)
 
@@ -86,8 +87,18 @@ class _Progress:
         if self.done[p] == self.n_reps:
             values = self.points[p].values
             where = f" ({', '.join(f'{k} = {v!r}' for k, v in values.items())})" if values else ""
-            log.info("point %d%s done: %d replicates, %s %d (%.3f)", p, where, self.n_reps,
-                     self.fixed_name, self.fixed[p], self.fixed[p] / self.n_reps)
+            log.info("point %d%s done: %d replicates, %s", p, where, self.n_reps, self._fixed_words(p))
+
+    def _fixed_words(self, p: int) -> str:
+        """A finished point's fixed count and fraction, over the resolved replicates as in the
+        summary's ``fixed_fraction`` (``sim.outcomes.summarize``)."""
+        resolved = sum(self.outcomes[p, o] for o in DECIDED)
+        fixed = f"{self.fixed_name} {self.fixed[p]}"
+        if resolved == 0:
+            return f"{fixed}, none resolved"
+        if resolved < self.n_reps:
+            return f"{fixed} of {resolved} resolved ({self.fixed[p] / resolved:.3f})"
+        return f"{fixed} ({self.fixed[p] / resolved:.3f})"
 
     def outcome_counts(self):
         """Replicates per (point, outcome), as ``sim.store.count_outcomes`` reads them from the

@@ -161,3 +161,19 @@ def test_summary_counts_fixed_without_invasion(tmp_path):
     assert summary["fixed"].sum() > 0
     assert np.allclose(summary["fixed_fraction"], summary["fixed"] / summary["resolved"])
     assert np.allclose(summary["fixed_fraction"], status.table["fixed_fraction"])
+
+
+def test_a_points_log_line_gives_the_summarys_fixed_fraction(tmp_path, caplog):
+    # a point's line says the fraction over its resolved replicates, as the summary does
+    # (undecided and capped replicates are not losses), and how many were resolved when not all
+    from tests.invasion_configs import invasion_config
+
+    config = invasion_config(mutant_fecundity=6.0, capacity=30.0, replicates=60, max_steps=12,
+                             sweep={"allele.one-shot.fecundity": [6.0, 8.0]})
+    with caplog.at_level("INFO", logger="sim.experiment"):
+        summary = run_experiment(config, tmp_path / "r.h5", workers=1, progress=False)
+    lines = [r.getMessage() for r in caplog.records if " done: " in r.getMessage()]
+    assert len(lines) == 2 and (summary["resolved"] < 60).all() and (summary["mutant-fixed"] > 0).any()
+    for line, (_, row) in zip(lines, summary.iterrows()):
+        assert line.endswith(f"done: 60 replicates, mutant-fixed {row['mutant-fixed']:.0f} of {row['resolved']:.0f} "
+                             f"resolved ({row['fixed_fraction']:.3f})"), line
