@@ -57,6 +57,8 @@ def closed_form(config: Config, parameter: str, at: dict | None = None) -> str:
         return ""
     if res.maturity_age != 1 or mut.maturity_age != 1 or res.juvenile_survival != mut.juvenile_survival:
         return ""
+    if any(a.orphan_survival is not None or a.brood_effect != "none" for a in (res, mut)):
+        return ""  # parental care or a brood effect: not the textbook case (docs/care.md)
     d = base.density
     bi, p, c = float(res.fecundity), float(res.adult_survival), float(res.juvenile_survival)
     if d.form == "none" or d.placement == "all-survival":

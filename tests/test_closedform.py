@@ -41,3 +41,22 @@ def test_no_constant_environment_formula_when_years_vary():
     raw["environment"] = {"year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.6},
                                    {"name": "dry", "probability": 0.5, "juvenile_survival": 0.4}]}
     assert closed_form(parse_config(raw), PATH) == ""
+
+
+@pytest.mark.parametrize("care", [{"orphan_survival": 0.1},
+                                  {"brood_effect": "exponential", "brood_scale": 4.0}])
+@pytest.mark.parametrize("who", [0, 1])
+def test_no_textbook_formula_with_parental_care_or_a_brood_effect(care, who):
+    # with care the threshold moves (docs/care.md: a resident B = 2, P = 0.5, c = 0.5,
+    # c_orphan = 0.1 grows at 0.5 + 2 (0.25 + 0.05) = 1.1, so a semelparous mutant, all of
+    # whose young are orphans, needs B = 1.1 / 0.1 = 11 without density dependence, not 3):
+    # the textbook formula must not be printed beside the solver's value
+    from sim.config import parse_config
+
+    raw = invasion_config(form="none").model_dump(exclude_none=True)
+    raw["allele"][who].update(care)
+    config = parse_config(raw)
+    assert closed_form(config, PATH) == ""
+    if care == {"orphan_survival": 0.1} and who == 0:  # the resident cares: the worked example
+        raw["allele"][1]["orphan_survival"] = 0.1
+        assert threshold(parse_config(raw), PATH, bracket=(1.0, 20.0)).value == pytest.approx(11.0, rel=1e-8)
