@@ -9,7 +9,8 @@ never runs a simulation). Nothing there is drawn by hand:
 - ``demo-*.png``: ``broodline demo`` (its fixation, trajectories and invasion
   fitness figures);
 - ``NAME-*.png`` for each example config ``configs/NAME.toml`` other than the
-  demo: ``broodline run`` then ``broodline plot``;
+  demo: ``broodline run`` then ``broodline plot`` (an invasion's figures, or a
+  trait run's ``trait``);
 - ``pairwise_invasibility.png``, ``selection_gradient.png``: the reproductive
   effort example of docs/effort.md (``analysis.invasibility``);
 - ``lab.png``: the screenshot the lab's browser test takes
@@ -42,7 +43,12 @@ def broodline(*args: str) -> None:
 
 
 def copy_figures(folder: Path, prefix: str) -> None:
-    for name in FIGURES:
+    """Copy the figures ``broodline plot`` wrote into ``folder`` that the pages show (an
+    invasion's ``FIGURES``, or a trait run's ``trait``)."""
+    names = [name for name in (*FIGURES, "trait") if (folder / f"{name}.png").exists()]
+    if not names:
+        raise SystemExit(f"broodline plot wrote none of {FIGURES + ('trait',)} into {folder}")
+    for name in names:
         shutil.copyfile(folder / f"{name}.png", IMAGES / f"{prefix}-{name}.png")
 
 
