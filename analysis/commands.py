@@ -66,6 +66,8 @@ JSON_KEYS = {
             "mutant": "name of the mutant allele",
             "points": "list, one object per sweep point",
             "thresholds": "list, one object per swept parameter and combination of the other swept values",
+            "sensitivities": "only with --sensitivities: list, one object per sweep point and vital rate "
+            "of the mutant",
         },
         "points": {
             "point": "index of the sweep point",
@@ -105,6 +107,18 @@ JSON_KEYS = {
             "message": "the finding in words",
             "at": "the other swept parameters, held at these values",
             "linked": "only along a [[sweep.linked]] group: the other members' values at the threshold",
+        },
+        "sensitivities": {
+            "point": "index of the sweep point",
+            SWEPT: "the point's value of that swept path",
+            "rate": "the mutant's vital rate: m(a) or s(a) at census age a, or c",
+            "kind": "fecundity, survival or juvenile_survival",
+            "age": "the census age (null for c)",
+            "value": "the rate's value in the schedule (before density factors)",
+            "sensitivity": "d(invasion fitness) / d(rate) (Caswell 2001, ch. 9)",
+            "elasticity": "d ln(invasion fitness) / d ln(rate)",
+            "selection_gradient": "d ln(invasion fitness) / d(rate) (Lande 1982)",
+            "problem": "empty, or why the values are missing (no resident equilibrium)",
         },
     },
     "compare": {
@@ -168,6 +182,37 @@ JSON_KEYS = {
         },
     },
 }
+# With [environment] (year types) a point's prediction is the stochastic theory's
+# (docs/environments.md): the finite-N keys (analysis.fixation.COLUMNS) are absent, and these
+# are added to each object of `points` (in threshold and compare alike; `prediction` is
+# compare's own key already) and, in threshold, to each object of `thresholds`.
+_ENVIRONMENT_POINT_KEYS = {
+    "environment": "the year types, their probabilities and how years are drawn, in words",
+    "resident_invades_back": "true where the resident, rare, invades the mutant's environment back "
+    "(then the two coexist)",
+    "invasion_fitness_se": "standard error of invasion_fitness (delta method)",
+    "log_invasion_fitness_se": "batch-means standard error of log(invasion_fitness)",
+    "establishment_probability_se": "standard error of establishment_probability",
+    "neutral_expectation_se": "standard error of neutral_expectation",
+    "stochastic_growth_rate": "the mutant's density-free log lambda_s: the long-run mean of "
+    "log(N_t+1 / N_t), by simulation of the random matrix product",
+    "stochastic_growth_rate_se": "its batch-means standard error",
+    "small_noise_approximation": "Tuljapurkar's (1982) approximation of the mutant's log lambda_s "
+    "(null for Markov switching)",
+    "resident_stochastic_growth_rate": "the resident's density-free log lambda_s",
+    "resident_stochastic_growth_rate_se": "its batch-means standard error",
+    "resident_small_noise_approximation": "Tuljapurkar's approximation of the resident's log lambda_s",
+}
+JSON_KEYS["threshold"]["points, with [environment]"] = _ENVIRONMENT_POINT_KEYS | {
+    "prediction": '"stochastic": the stochastic theory gave the values'}
+JSON_KEYS["threshold"]["thresholds, with [environment]"] = {
+    "standard_error": "standard error of value (from the stochastic invasion fitness's)",
+    "replacement": "where the resident stops invading back (between it and value the two coexist; "
+    "null where it does not)",
+    "replacement_standard_error": "standard error of replacement",
+}
+JSON_KEYS["compare"]["points, with [environment]"] = _ENVIRONMENT_POINT_KEYS
+
 # `broodline bench --scaling --json` prints a list of these objects (sim.bench_scaling states them)
 JSON_KEYS["bench-scaling"] = {"[]": SCALING_KEYS}
 

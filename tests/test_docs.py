@@ -28,7 +28,7 @@ from tests.invasion_configs import SMALL_SWEEP, invasion_config, write_small_res
 DOCS = Path(__file__).resolve().parent.parent / "docs"
 SWEPT_PATH = "allele.one-shot.fecundity"  # the swept path of the configs below
 # `linked` is written only for a threshold along a [[sweep.linked]] group (ThresholdResult.as_dict)
-WRITTEN_ONLY_SOMETIMES = {("threshold", "thresholds"): {"linked"}}
+WRITTEN_ONLY_SOMETIMES = {("threshold", "thresholds"): {"linked"}, ("threshold", ""): {"sensitivities"}}
 
 
 def _models(model: type[BaseModel], seen=None) -> list[type[BaseModel]]:
@@ -90,6 +90,41 @@ def test_threshold_json_keys_are_the_documented_ones(tmp_path, capsys):
     _check_keys("threshold", "", set(data))
     _check_keys("threshold", "points", set(data["points"][0]))
     _check_keys("threshold", "thresholds", set(data["thresholds"][0]))
+    assert main(["threshold", str(path), "--json", "--sensitivities"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    _check_keys("threshold", "", set(data))
+    assert data["sensitivities"] and all(set(row) == set(data["sensitivities"][0]) for row in data["sensitivities"])
+    _check_keys("threshold", "sensitivities", set(data["sensitivities"][0]))
+
+
+def _check_environment_keys(command: str, part: str, written: set[str]) -> None:
+    """With [environment]: the documented keys, less the finite-N ones, plus the added ones."""
+    from analysis.fixation import COLUMNS
+
+    added = set(JSON_KEYS[command][f"{part}, with [environment]"])
+    documented = (set(JSON_KEYS[command][part]) - set(COLUMNS)) | added
+    written = {SWEPT if key == SWEPT_PATH else key for key in written}
+    sometimes = WRITTEN_ONLY_SOMETIMES.get((command, part), set())
+    assert written <= documented, f"{command} --json {part}: undocumented keys {written - documented}"
+    assert documented - sometimes <= written, f"{command} --json {part}: not written {documented - sometimes - written}"
+
+
+def test_json_keys_with_year_types_are_the_documented_ones(tmp_path, capsys):
+    from tests.invasion_configs import wet_and_dry
+
+    config = wet_and_dry(capacity=30.0, replicates=4, max_steps=200, sweep={SWEPT_PATH: [3.0, 6.0]})
+    path = tmp_path / "years.toml"
+    path.write_text(toml_text(config))
+    assert main(["threshold", str(path), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    _check_environment_keys("threshold", "points", set(data["points"][0]))
+    _check_environment_keys("threshold", "thresholds", set(data["thresholds"][0]))
+    results = tmp_path / "years.h5"
+    assert main(["run", str(path), "-o", str(results), "--quiet", "--workers", "1"]) == 0
+    capsys.readouterr()
+    assert main(["compare", str(results), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    _check_environment_keys("compare", "points", set(data["points"][0]))
 
 
 def test_compare_json_keys_are_the_documented_ones(tmp_path, capsys):

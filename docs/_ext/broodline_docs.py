@@ -208,7 +208,10 @@ def json_keys_lines(command: str) -> list[str]:
         raise DocsGenerationError(f"json-keys: no command {command!r} in analysis.commands.JSON_KEYS")
     lines = []
     for part, keys in JSON_KEYS[command].items():
+        table, _, condition = part.partition(", with ")
         caption = {"": "The object", "[]": "Each object of the list"}.get(part, f"Each object of ``{part}``")
+        if condition:  # keys added under a condition (e.g. "points, with [environment]")
+            caption = f"With ``{condition}``, added to each object of ``{table}``"
         rows = [[rst_text(k) if k == SWEPT else literal(k), rst_text(meaning)] for k, meaning in keys.items()]
         lines += [f"{caption}:", ""] + list_table(["key", "meaning"], rows, [25, 75])
     return lines
