@@ -43,7 +43,7 @@ def cmd_demo(args) -> int:
 
 def register(sub) -> None:
     """Add ``demo`` to the command line."""
-    p = sub.add_parser("demo", help="run the demo invasion experiment (about a minute)")
+    p = sub.add_parser("demo", help="run the demo invasion experiment (seconds on two cores)")
     p.add_argument("-o", "--output", default="broodline-demo", help="folder for the demo's files")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.add_argument("--overwrite", action="store_true", help="replace the results of an earlier demo")
