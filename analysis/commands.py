@@ -41,8 +41,13 @@ def _results(path) -> Path:
     return path
 
 
-def _free(paths, overwrite: bool) -> None:
-    """Refuse to replace existing files unless asked, before anything is written."""
+def _free(paths, overwrite: bool, *, inputs=(), option: str = "-o") -> None:
+    """Refuse to replace existing files unless asked, and to write over a folder or one of
+    ``inputs`` at all, before anything is written."""
+    from sim.outputs import check_output_file
+
+    for p in paths:
+        check_output_file(p, inputs=inputs, option=option)
     taken = [str(p) for p in paths if Path(p).exists()]
     if taken and not overwrite:
         raise FileExistsError(
@@ -336,7 +341,7 @@ def cmd_compare(args) -> int:
 
         return compare_trait_run(args, free=_free, show=_show_table, records=_records)
     if args.csv:
-        _free([args.csv], args.overwrite)
+        _free([args.csv], args.overwrite, inputs=[path], option="--csv")
     _warn_incomplete("compare", path)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", IncompleteResultsWarning)
@@ -378,7 +383,7 @@ def cmd_plot(args) -> int:
         return plot_trait_run(args, free=_free)
     _free(
         [out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
-        args.overwrite,
+        args.overwrite, inputs=[path],
     )
     figs = plot(path, out)
     for name, files in figs.files.items():
@@ -393,7 +398,7 @@ def cmd_report(args) -> int:
     from .reporting import report
 
     path = _results(args.results)
-    _free([args.output], args.overwrite)
+    _free([args.output], args.overwrite, inputs=[path])
     _warn_incomplete("report", path)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", IncompleteResultsWarning)

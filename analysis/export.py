@@ -15,6 +15,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from sim.outputs import check_output_file
 from sim.store import read_attrs, read_points, read_replicates, read_trajectories
 
 from .comparison import IncompleteResultsWarning, compare, experiment_config
@@ -95,6 +96,7 @@ def export(path, what: str, out, *, overwrite: bool = False) -> Path:
     if what not in TABLES:
         raise ValueError(f"--what must be one of {', '.join(TABLES)}; got {what!r}")
     out = Path(out)
+    check_output_file(out, inputs=[path])
     if out.suffix.lower() not in (".csv", ".parquet"):
         raise ValueError(f"-o {out}: the file name must end in .csv or .parquet")
     if not out.parent.exists():

@@ -44,13 +44,14 @@ def cmd_invasibility(args) -> int:
 def plot_trait_run(args, *, free) -> int:
     """``broodline plot`` of a trait run: the mean effort over time over the singular efforts.
 
-    ``free(paths, overwrite)`` refuses existing files unless ``--overwrite``.
+    ``free(paths, overwrite, inputs=)`` refuses existing files unless ``--overwrite``, and the
+    results file itself.
     """
     from .trait_plots import TRAIT_FIGURES, plot_trait
 
     out = Path(args.output)
     free([out / f"{n}.{e}" for n in TRAIT_FIGURES for e in ("png", "svg")] if out.is_dir() else [],
-         args.overwrite)
+         args.overwrite, inputs=[args.results])
     for name, files in plot_trait(args.results, out).items():
         print(f"{name}: {files['png']}  {files['svg']}")
     return 0
@@ -65,7 +66,7 @@ def compare_trait_run(args, *, free, show, records) -> int:
     from .trait import compare_trait
 
     if args.csv:
-        free([args.csv], args.overwrite)
+        free([args.csv], args.overwrite, inputs=[args.results], option="--csv")
     table = compare_trait(args.results)
     if args.csv:
         table.to_csv(args.csv, index=False)

@@ -4,17 +4,23 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from ..errors import UserError
 from .run import run_from_command_line
 
 __all__ = ["register"]
 
 
 def cmd_demo(args) -> int:
-    from ..config import demo_config_path, load_config
+    from ..config import ConfigError, demo_config_path, load_config
     from ..describe import describe_experiment
 
     out = Path(args.output)
-    out.mkdir(parents=True, exist_ok=True)
+    if out.exists() and not out.is_dir():
+        raise UserError(f"-o {out}: exists and is not a folder (the demo writes several files there)")
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise UserError(f"-o {out}: cannot create the folder ({err.strerror})") from None
     config_path = out / "demo.toml"  # a copy the user can edit and run again
     results = out / "demo.h5"
     earlier = [p for p in (results, out / "report.html") if p.exists()]
@@ -27,7 +33,11 @@ def cmd_demo(args) -> int:
         print(f"running the demo from its own config {config_path} (delete it for the shipped one)\n")
     else:
         config_path.write_text(demo_config_path().read_text())
-    config = load_config(config_path)
+    try:
+        config = load_config(config_path)
+    except ConfigError as err:  # the user's edited copy: name it, with the way back
+        raise ConfigError([f"{config_path} (the demo's own config; delete it for the shipped one): "
+                           f"{problem}" for problem in err.problems]) from None
     print(describe_experiment(config))
     print()
     run_from_command_line(config, results, overwrite=True, quiet=args.quiet)

@@ -200,6 +200,9 @@ def with_overrides(config, args):
 
 
 def cmd_run(args) -> int:
+    from ..outputs import check_output_file
+
+    check_output_file(args.output, inputs=[args.config])
     start_workers_soon(args)
     from ..config import load_config
 

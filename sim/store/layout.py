@@ -277,6 +277,8 @@ def is_complete(path: Path) -> bool | None:
 
 def open_results(path) -> h5py.File:
     path = Path(path)
+    if path.is_dir():
+        raise ValueError(f"{str(path)!r} is a folder, not a results file")
     if not path.is_file():
         raise FileNotFoundError(f"results file {str(path)!r} not found")
     try:
