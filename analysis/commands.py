@@ -13,6 +13,7 @@ from pathlib import Path
 
 from sim.bench_scaling import SCALING_KEYS
 from sim.errors import UserError
+from sim.outputs import free_outputs
 
 from .jsonable import jsonable
 
@@ -39,23 +40,6 @@ def _results(path) -> Path:
             f"{str(path)!r} cannot be read as a broodline results file ({err})"
         ) from None
     return path
-
-
-def _free(paths, overwrite: bool, *, inputs=(), option: str = "-o") -> None:
-    """Refuse to replace existing files unless asked, and to write over a folder or one of
-    ``inputs`` at all, before anything is written."""
-    from sim.outputs import check_output_file
-
-    for p in paths:
-        check_output_file(p, inputs=inputs, option=option)
-    taken = [str(p) for p in paths if Path(p).exists()]
-    if taken and not overwrite:
-        raise FileExistsError(
-            f"{', '.join(taken)} exist{'s' if len(taken) == 1 else ''}; pass --overwrite to replace"
-        )
-    for p in paths:
-        if not Path(p).parent.exists():
-            raise FileNotFoundError(f"output folder {str(Path(p).parent)!r} does not exist")
 
 
 # -- what --json writes ---------------------------------------------------------------
@@ -339,9 +323,9 @@ def cmd_compare(args) -> int:
     if _trait_run(path):
         from .trait_commands import compare_trait_run
 
-        return compare_trait_run(args, free=_free, show=_show_table, records=_records)
+        return compare_trait_run(args, show=_show_table, records=_records)
     if args.csv:
-        _free([args.csv], args.overwrite, inputs=[path], option="--csv")
+        free_outputs([args.csv], args.overwrite, inputs=[path], option="--csv")
     _warn_incomplete("compare", path)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", IncompleteResultsWarning)
@@ -380,8 +364,8 @@ def cmd_plot(args) -> int:
     if _trait_run(path):
         from .trait_commands import plot_trait_run
 
-        return plot_trait_run(args, free=_free)
-    _free(
+        return plot_trait_run(args, )
+    free_outputs(
         [out / f"{n}.{e}" for n in FIGURES for e in ("png", "svg")] if out.is_dir() else [],
         args.overwrite, inputs=[path],
     )
@@ -398,7 +382,7 @@ def cmd_report(args) -> int:
     from .reporting import report
 
     path = _results(args.results)
-    _free([args.output], args.overwrite, inputs=[path])
+    free_outputs([args.output], args.overwrite, inputs=[path])
     _warn_incomplete("report", path)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", IncompleteResultsWarning)

@@ -29,7 +29,7 @@ from matplotlib.patches import Patch  # noqa: E402
 
 from .adaptive import AdaptiveAnalysis, EffortModel, analyse_effort  # noqa: E402
 
-__all__ = ["InvasibilityOutput", "invasibility", "invasibility_figure", "gradient_figure"]
+__all__ = ["InvasibilityOutput", "INVASIBILITY_FILES", "invasibility", "invasibility_figure", "gradient_figure"]
 
 _DPI = 110
 _MARKERS = {
@@ -125,6 +125,11 @@ def _save(fig, out_dir: Path, stem: str) -> dict:
         fig.savefig(paths[ext], dpi=_DPI)
     plt.close(fig)
     return paths
+
+
+# what ``invasibility`` writes into its folder
+INVASIBILITY_FILES = ("pairwise_invasibility.png", "pairwise_invasibility.svg", "selection_gradient.png",
+                      "selection_gradient.svg", "invasion_fitness.csv", "invasibility.json")
 
 
 def invasibility(model: EffortModel, out_dir, *, grid=101) -> InvasibilityOutput:

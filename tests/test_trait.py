@@ -197,8 +197,23 @@ def test_invasibility_command_writes_the_plot_and_json(tmp_path, capsys):
     assert out["efforts"] == pytest.approx(list(np.arange(1, 11) / 10))  # the [trait] grid by default
     assert out["attractors"] == pytest.approx([(C * 3.0 / (2 * P)) ** 2])
     assert (tmp_path / "inv" / "pairwise_invasibility.svg").is_file()
-    assert main(["invasibility", str(config), "-o", str(tmp_path / "inv"), "--grid", "21", "--json"]) == 0
+    # an earlier run's files are replaced only when asked, as plot's figures are
+    before = (tmp_path / "inv" / "invasibility.json").read_text()
+    assert main(["invasibility", str(config), "-o", str(tmp_path / "inv"), "--grid", "21"]) == 2
+    assert "pass --overwrite to replace" in capsys.readouterr().err
+    assert (tmp_path / "inv" / "invasibility.json").read_text() == before
+    assert main(["invasibility", str(config), "-o", str(tmp_path / "inv"), "--grid", "21", "--json",
+                 "--overwrite"]) == 0
     assert len(json.loads(capsys.readouterr().out)["efforts"]) == 21
+
+
+@pytest.mark.parametrize("grid", ["2", "1002"])
+def test_invasibility_refuses_a_grid_out_of_bounds_before_computing(tmp_path, capsys, grid):
+    config = tmp_path / "trait.toml"
+    _write_toml(config, trait_raw(placement="all-survival"))
+    assert main(["invasibility", str(config), "-o", str(tmp_path / "inv"), "--grid", grid]) == 2
+    assert f"--grid must be from 3 to 1001 (N x N invasion fitnesses); got {grid}" in capsys.readouterr().err
+    assert not (tmp_path / "inv").exists()
 
 
 def test_invasibility_command_refuses_a_bad_config_with_status_2(tmp_path, capsys):
