@@ -116,3 +116,16 @@ def test_memory_report_has_no_empty_worker_column():
     assert list(one.table["replicates"]) == [20, 40] and (one.table["writer_peak_mib"] > 0).all()
     two = measure_memory((20,), workers=2)
     assert (two.table["worker_peak_mib"] > 0).all() and "nan" not in str(two).lower()
+
+
+@pytest.mark.parametrize("argv, message", [
+    (["--rounds", "3"], "--rounds: only with --scaling"),
+    (["--engine", "counts", "--workers", "4"], "--workers, --engine: only with --scaling"),
+    (["--scaling", "--seasons", "5", "--large"], "--large, --seasons: of the engine benchmark, not of "
+                                                 "--scaling (leave them out)"),
+])
+def test_bench_refuses_an_option_of_the_other_benchmark_before_running(argv, message, capsys):
+    # given to the benchmark that ignores it, an option would change nothing the user sees
+    assert main(["bench"] + argv) == 2
+    out = capsys.readouterr()
+    assert message in out.err and "timing" not in out.err and "running" not in out.err

@@ -46,6 +46,24 @@ def _count(low: int):
     return parse
 
 
+# The options of each kind of benchmark, with their defaults: one given to the other kind
+# (with a value other than its default) is refused, not ignored.
+ENGINE_OPTIONS = {"sizes": None, "large": False, "seasons": 20, "min_time": 1.0, "agents_max": 10_000,
+                  "capacity": 200, "sequential": 1_000, "single_seasons": 20_000}
+SCALING_OPTIONS = {"workers": None, "engine": None, "rounds": 1}
+
+
+def _refuse_options_of_the_other_kind(args) -> None:
+    others = ENGINE_OPTIONS if args.scaling else SCALING_OPTIONS
+    given = [f"--{name.replace('_', '-')}" for name, default in others.items() if getattr(args, name) != default]
+    if not given:
+        return
+    if args.scaling:
+        raise UserError(f"{', '.join(given)}: of the engine benchmark, not of --scaling (leave "
+                        f"{'it' if len(given) == 1 else 'them'} out)")
+    raise UserError(f"{', '.join(given)}: only with --scaling")
+
+
 def cmd_bench_scaling(args) -> int:
     if args.replicates == 0:
         raise UserError("--replicates must be >= 1 with --scaling; got 0")
@@ -58,6 +76,7 @@ def cmd_bench_scaling(args) -> int:
 
 
 def cmd_bench(args) -> int:
+    _refuse_options_of_the_other_kind(args)
     if args.scaling:
         return cmd_bench_scaling(args)
     from ..bench import DEFAULT_SIZES, LARGE_SIZE, format_report, run_bench
@@ -96,19 +115,20 @@ def register(sub) -> None:
     p.add_argument("--sizes", nargs="+", type=_size, metavar="N",
                    help="census sizes (default: 1e3 1e4 1e5 1e6)")
     p.add_argument("--large", action="store_true", help="also N = 1e7")
-    p.add_argument("--seasons", type=_count(1), default=20,
+    p.add_argument("--seasons", type=_count(1), default=ENGINE_OPTIONS["seasons"],
                    help="seasons per timed block, each from the starting census (default 20)")
-    p.add_argument("--min-time", type=_seconds, default=1.0,
+    p.add_argument("--min-time", type=_seconds, default=ENGINE_OPTIONS["min_time"],
                    help="least seconds of stepping timed per engine and size (default 1)")
-    p.add_argument("--agents-max", type=_count(0), default=10_000,
+    p.add_argument("--agents-max", type=_count(0), default=ENGINE_OPTIONS["agents_max"],
                    help="largest N the slow Mesa engine runs at (default 1e4)")
     p.add_argument("--replicates", type=_count(0), default=None,
                    help="replicates of the K = 200 invasion experiment (default 1e4; 0 skips it); "
                         f"with --scaling, of its experiment (default {SCALING_REPLICATES:,})")
-    p.add_argument("--capacity", type=_count(10), default=200, help="K of the invasion experiment")
-    p.add_argument("--sequential", type=_count(0), default=1_000,
+    p.add_argument("--capacity", type=_count(10), default=ENGINE_OPTIONS["capacity"],
+                   help="K of the invasion experiment")
+    p.add_argument("--sequential", type=_count(0), default=ENGINE_OPTIONS["sequential"],
                    help="replicates also run one at a time, for comparison (0 skips)")
-    p.add_argument("--single-seasons", type=_count(0), default=20_000,
+    p.add_argument("--single-seasons", type=_count(0), default=ENGINE_OPTIONS["single_seasons"],
                    help="seasons of one replicate run alone at K = 100 and 1000 (default 20000; "
                         "0 skips)")
     p.add_argument("--scaling", action="store_true",
@@ -118,7 +138,7 @@ def register(sub) -> None:
                    help="with --scaling: the larger worker count (default: every core available)")
     p.add_argument("--engine", action="append", choices=SCALING_ENGINES,
                    help="with --scaling: only this engine (repeat for several; default: both)")
-    p.add_argument("--rounds", type=_count(1), default=1, metavar="N",
+    p.add_argument("--rounds", type=_count(1), default=SCALING_OPTIONS["rounds"], metavar="N",
                    help="with --scaling: run each worker count N times, alternating, and report the "
                         "fastest of each and each round's efficiency (default 1)")
     p.add_argument("--json", action="store_true", help="print the table as a JSON list of records")
