@@ -121,6 +121,9 @@ def export(path, what: str, out, *, overwrite: bool = False) -> Path:
                     sink.write(frame)
             if sink.first:  # no rows at all (trajectory = "none"): the header alone
                 sink.write(frame if frame is not None else read_trajectories(path, points=[], by_age=by_age))
+                if attrs.get("trajectory") == "none":
+                    warnings.warn(f"{path} keeps no trajectories (trajectory = \"none\"): {out} holds "
+                                  "the header only", stacklevel=2)
         sink.close()
         tmp.replace(out)
     finally:

@@ -363,6 +363,16 @@ def _shade_colour(level: float) -> tuple:
     return (g, g, g, 1.0)
 
 
+def _no_trajectories_figure():
+    """What ``trajectory_figure`` draws for a file that keeps no trajectories."""
+    fig, ax = plt.subplots(figsize=(8, 2.4))
+    ax.axis("off")
+    ax.text(0.5, 0.5, 'No trajectories: this experiment kept none (trajectory = "none").\n'
+            'Run it with trajectory = "by-allele" or "by-age" to draw them.',
+            ha="center", va="center", fontsize=10, transform=ax.transAxes)
+    return fig
+
+
 def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, panels: int = 4,
                       seed: int = 0):
     """Share of the tracked allele (top) and census size (bottom), replicates coloured by outcome.
@@ -372,6 +382,8 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
     when they are shared, else the years of one drawn replicate, drawn bold
     (each replicate lives through its own years; the legend says whose).
     """
+    if config.experiment.trajectory == "none":
+        return _no_trajectories_figure()
     xpath, _ = _axis(table, config)
     reps = read_replicates(path)
     reps["outcome"] = _outcome_labels(reps)
@@ -577,30 +589,33 @@ def plot(path, out_dir, *, table: pd.DataFrame | None = None,
         numeric parameters are swept.
     """
     config = experiment_config(path)
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
     figs = {}
-    if config.invasion is not None:
-        if table is None:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", IncompleteResultsWarning)
-                table = compare(path)
-        thresholds = compare_thresholds(path, table) if thresholds is None else thresholds
-        figs["fixation"] = fixation_figure(table, thresholds, config)
-        figs["trajectories"] = trajectory_figure(path, table, config)
-        figs["outcomes"] = outcome_figure(path, config)
-        figs["invasion_fitness"] = fitness_figure(table, thresholds, config)
-        if len(numeric_sweep_paths(config)) >= 2:
-            figs["invasion_map"] = invasion_map_figure(table, config)
-    else:
-        figs["trajectories"] = trajectory_figure(path, read_points(path), config)
-        figs["outcomes"] = outcome_figure(path, config)
-    files = {}
-    for name, fig in figs.items():
-        files[name] = {}
-        for ext in ("png", "svg"):
-            target = out / f"{name}.{ext}"
-            fig.savefig(target, dpi=_DPI)
-            files[name][ext] = target
-        plt.close(fig)
+    try:
+        if config.invasion is not None:
+            if table is None:
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore", IncompleteResultsWarning)
+                    table = compare(path)
+            thresholds = compare_thresholds(path, table) if thresholds is None else thresholds
+            figs["fixation"] = fixation_figure(table, thresholds, config)
+            figs["trajectories"] = trajectory_figure(path, table, config)
+            figs["outcomes"] = outcome_figure(path, config)
+            figs["invasion_fitness"] = fitness_figure(table, thresholds, config)
+            if len(numeric_sweep_paths(config)) >= 2:
+                figs["invasion_map"] = invasion_map_figure(table, config)
+        else:
+            figs["trajectories"] = trajectory_figure(path, read_points(path), config)
+            figs["outcomes"] = outcome_figure(path, config)
+        out = Path(out_dir)
+        out.mkdir(parents=True, exist_ok=True)  # once every figure is drawn: a damaged file leaves no folder
+        files = {}
+        for name, fig in figs.items():
+            files[name] = {}
+            for ext in ("png", "svg"):
+                target = out / f"{name}.{ext}"
+                fig.savefig(target, dpi=_DPI)
+                files[name][ext] = target
+    finally:
+        for fig in figs.values():
+            plt.close(fig)
     return Figures(files)

@@ -72,9 +72,9 @@ def trait_figure(path, *, max_replicates: int = 8):
 
 def plot_trait(path, out_dir) -> dict:
     """Write ``trait.png`` and ``trait.svg`` into ``out_dir``; return {"trait": {"png": ..., "svg": ...}}."""
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
     fig = trait_figure(path)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)  # once the figure is drawn: a damaged file leaves no folder
     files = {}
     for ext in ("png", "svg"):
         files[ext] = out / f"trait.{ext}"

@@ -53,3 +53,35 @@ def test_refuses_to_overwrite(results, tmp_path, capsys):
     assert out.read_text() != "keep me"
     assert main(["export", str(results), "--what", "replicates", "-o", str(tmp_path / "x.txt")]) == 2
     assert ".csv or .parquet" in capsys.readouterr().err
+
+
+def test_a_file_without_trajectories_says_so_in_export_and_plot(tmp_path, capsys):
+    from tests.runs_support import write_config
+
+    config = write_config(tmp_path, replicates=4, trajectory="none")
+    results = tmp_path / "none.h5"
+    assert main(["run", str(config), "-o", str(results), "--quiet", "--workers", "1"]) == 0
+    capsys.readouterr()
+    out = tmp_path / "t.csv"
+    assert main(["export", str(results), "--what", "trajectories", "-o", str(out)]) == 0
+    assert 'keeps no trajectories (trajectory = "none")' in capsys.readouterr().err
+    assert len(pd.read_csv(out)) == 0
+    from analysis.comparison import experiment_config
+    from analysis.plots import trajectory_figure
+    from sim.store import read_points
+
+    fig = trajectory_figure(results, read_points(results), experiment_config(results))
+    assert 'kept none (trajectory = "none")' in " ".join(t.get_text() for ax in fig.axes for t in ax.texts)
+
+
+def test_plot_of_a_damaged_file_leaves_no_folder(results, tmp_path, capsys):
+    import shutil
+
+    import h5py
+
+    damaged = tmp_path / "damaged.h5"
+    shutil.copyfile(results, damaged)
+    with h5py.File(damaged, "a") as f:
+        del f["replicates"]["outcome"]
+    assert main(["plot", str(damaged), "-o", str(tmp_path / "figs")]) == 2
+    assert not (tmp_path / "figs").exists()
