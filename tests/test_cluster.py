@@ -121,6 +121,8 @@ def test_scheduler_file_gives_the_address(tmp_path):
     f.write_text("{}")
     with pytest.raises(ClusterError, match="cannot read a scheduler address from"):
         _scheduler_address(str(f))
+    with pytest.raises(ClusterError, match="scheduler file '.*missing.json' not found"):
+        _scheduler_address(str(tmp_path / "missing.json"))
 
 
 def test_all_workers_gone_is_said_and_the_run_goes_on_when_they_return(tmp_path, monkeypatch, caplog):

@@ -27,8 +27,12 @@ log = logging.getLogger(__name__)
 def _scheduler_address(address: str) -> str:
     """An address as given, or the one in a scheduler file (``dask scheduler --scheduler-file``)."""
     path = Path(address)
-    if not address.endswith(".json") or not path.is_file():
+    if not address.endswith(".json"):
         return address
+    if not path.is_file():
+        raise ClusterError(f"cluster: scheduler file {address!r} not found (an address is "
+                           "tcp://HOST:PORT; a scheduler file is the .json `dask scheduler "
+                           "--scheduler-file` writes)")
     try:
         return json.loads(path.read_text())["address"]
     except (OSError, ValueError, KeyError, TypeError) as err:
