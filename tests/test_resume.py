@@ -91,9 +91,13 @@ def _children(pid):
         return []
 
 
-@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM], ids=["ctrl-c", "sigterm"])
-def test_ctrl_c_saves_finished_work_and_prints_the_resume_command(reference, tmp_path, signum):
-    # SIGINT is Ctrl-C; SIGTERM is what batch schedulers send at a job's time limit
+@pytest.mark.parametrize("signum, group", [(signal.SIGINT, True), (signal.SIGTERM, False), (signal.SIGTERM, True)],
+                         ids=["ctrl-c", "sigterm", "sigterm-to-the-group"])
+def test_ctrl_c_saves_finished_work_and_prints_the_resume_command(reference, tmp_path, signum, group):
+    # SIGINT is Ctrl-C, which a terminal sends the whole process group; SIGTERM is what batch
+    # schedulers send at a job's time limit, to the process or to every process of the job (the
+    # workers and the fork server must not die of it: the writer then said "a worker process
+    # died ... (out of memory?)" instead of the resume command)
     config = write_config(tmp_path, replicates=REPLICATES)
     out = tmp_path / "run.h5"
     driver = tmp_path / "driver.py"
@@ -101,10 +105,14 @@ def test_ctrl_c_saves_finished_work_and_prints_the_resume_command(reference, tmp
     proc = subprocess.Popen([sys.executable, str(driver), "slow-commits", "0", str(tmp_path / "x"),
                              "run", str(config), "-o", str(out), "--workers", "2", "--batch-size", "1",
                              "--quiet"],
-                            cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+                            cwd=ROOT, env=env(), stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
     wait_for(lambda: len(list(parts_dir(out).glob("p*.h5"))) >= 3 or proc.poll() is not None,
              what="some finished batches")
-    proc.send_signal(signum)
+    if group:
+        os.killpg(proc.pid, signum)
+    else:
+        proc.send_signal(signum)
     stdout, stderr = proc.communicate(timeout=60)
     assert proc.returncode == 130, stderr
     assert "Traceback" not in stderr

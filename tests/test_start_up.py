@@ -12,6 +12,7 @@ checks of the import graph at run time, not timings (speed goes in
 import json
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import pytest
@@ -138,6 +139,41 @@ def test_workers_inherit_frozen_objects_a_running_collector_and_one_blas_thread(
     assert enabled and frozen > 10_000
     # one BLAS thread unless the caller's environment chose a number
     assert blas == os.environ.get("OPENBLAS_NUM_THREADS", "1")
+
+
+def _pids() -> tuple[int, int]:
+    import os
+
+    return os.getpid(), os.getppid()
+
+
+@pytest.mark.skipif(worker_context().get_start_method() != "forkserver", reason="no fork server here")
+def test_workers_and_their_fork_server_leave_sigterm_to_the_writer_and_cancel_still_stops_them():
+    # A batch scheduler's SIGTERM (and a terminal's Ctrl-C) may reach every process of the job:
+    # the writer alone handles it (stops, keeps finished work, prints the resume command), so a
+    # worker or the fork server must not die of it; cancelling the pool still stops the workers
+    import os
+    import signal
+
+    pool = ProcessPool(1)
+    try:
+        worker, server = pool._executor.submit(_pids).result(timeout=120)
+        for pid in (worker, server):
+            os.kill(pid, signal.SIGTERM)
+            os.kill(pid, signal.SIGINT)
+        time.sleep(0.5)
+        assert pool._executor.submit(_pids).result(timeout=60) == (worker, server)  # alive, same worker
+    finally:
+        pool.shutdown(cancel=True)
+    deadline = time.monotonic() + 30
+    while time.monotonic() < deadline:
+        try:
+            os.kill(worker, 0)
+        except ProcessLookupError:
+            break
+        time.sleep(0.05)
+    else:
+        pytest.fail("a cancelled pool left its worker running")
 
 
 def test_a_failed_load_leaves_the_collector_running():

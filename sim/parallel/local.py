@@ -145,10 +145,12 @@ class ProcessPool:
                 for process in self._exiting:
                     process.join()
             return
-        terminate = getattr(self._executor, "terminate_workers", None)  # Python 3.14+
-        if terminate is not None:
-            terminate()
+        # SIGKILL: workers ignore SIGTERM, which a batch scheduler sends the whole process group
+        # (sim.parallel.start.ignore_stop_signals)
+        kill = getattr(self._executor, "kill_workers", None)  # Python 3.14+
+        if kill is not None:
+            kill()
         else:  # older Pythons have no public way to stop a running worker
             for process in list((getattr(self._executor, "_processes", None) or {}).values()):
-                process.terminate()
+                process.kill()
         self._executor.shutdown(wait=False, cancel_futures=True)

@@ -21,7 +21,7 @@ import threading
 import time
 
 __all__ = ["default_workers", "separate_workers", "worker_context", "start_soon", "stop_fork_server",
-           "worker_init"]
+           "worker_init", "ignore_stop_signals"]
 
 _PRELOAD = ["sim.parallel.warm"]
 
@@ -80,11 +80,21 @@ def _watch_writer(writer) -> None:
             os._exit(1)
 
 
+def ignore_stop_signals() -> None:
+    """Leave Ctrl-C (SIGINT) and a batch scheduler's SIGTERM to the writer: both reach the whole
+    process group, and a worker or fork server killed by one made the writer report a dead
+    worker ("out of memory?") instead of a stopped run with its resume command. The writer
+    stops its workers itself (SIGKILL: running batches are abandoned and re-run on resume),
+    and a worker whose writer is gone exits on its own (``_watch_writer``); the standard
+    library's resource tracker ignores both signals likewise."""
+    for stop in (signal.SIGINT, signal.SIGTERM):
+        signal.signal(stop, signal.SIG_IGN)
+
+
 def worker_init() -> None:
-    """A worker process's start: Ctrl-C left to the writer, an exit when the writer dies, and
-    what a batch needs loaded (already there in a fork server's worker)."""
-    # Ctrl-C in a terminal reaches the whole process group; the writer alone handles it.
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    """A worker process's start: Ctrl-C and SIGTERM left to the writer, an exit when the writer
+    dies, and what a batch needs loaded (already there in a fork server's worker)."""
+    ignore_stop_signals()
     # the process that asked for this worker (the writer), whether it spawned it or a fork
     # server forked it (the server outlives the writer while its workers live)
     writer = multiprocessing.parent_process()

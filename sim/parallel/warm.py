@@ -8,7 +8,10 @@ batch. The fork server (``sim.parallel.start.worker_context``) imports it
 before forking any worker, so every worker starts with all of it loaded; a
 spawned worker imports it in its initializer.
 
-Two settings come first, before numpy is imported:
+Three settings come first, before numpy is imported:
+
+- Ctrl-C and SIGTERM are ignored: the writer alone handles them
+  (``sim.parallel.start.ignore_stop_signals``).
 
 - Python's cyclic garbage collector is paused while the modules load and the
   objects they made are then frozen (``gc.freeze``), as the ``gc`` module's
@@ -22,6 +25,7 @@ import gc
 import sys
 
 from .blas import one_blas_thread
+from .start import ignore_stop_signals
 
 # Setting up the code generator imports numba's implementations of numpy, among them a check
 # for a BLAS at import, which imports scipy.linalg (a sixth of the fork server's start-up,
@@ -49,6 +53,7 @@ def _set_up_code_generator() -> None:
             sys.modules.pop(_BLAS, None)
 
 
+ignore_stop_signals()  # in the fork server (its forks inherit it) and in a spawned worker
 _collecting = gc.isenabled()
 gc.disable()
 try:
