@@ -77,6 +77,51 @@ def test_refused_naming_the_key(changes, message):
     _refused(changes, message)
 
 
+TABLE = {"name": "one-shot", "breeding": "table", "fecundity": [0.0, 2.0], "adult_survival": [0.5, 0.5],
+         "juvenile_survival": 0.5}
+
+# a quoted number or a boolean inside a list by age: once refused with an empty message
+# (both branches of the scalar-or-list union were dropped as "the wrong branch")
+IN_A_LIST_BY_AGE = [
+    (dict(allele1={**TABLE, "fecundity": [0.0, "2"]}),
+     r"^allele\[1\]\.fecundity\[1\] must be a number \(written without quotes\); got '2'$"),
+    (dict(allele1={**TABLE, "adult_survival": [0.5, "0.5"]}),
+     r"^allele\[1\]\.adult_survival\[1\] must be a number \(written without quotes\); got '0\.5'$"),
+    (dict(allele1={**TABLE, "fecundity": [0.0, True]}),
+     r"^allele\[1\]\.fecundity\[1\] must be a number, not true or false; got True$"),
+    (dict(allele0__fecundity=["2.0"]),
+     r"^allele\[0\]\.fecundity\[0\] must be a number \(written without quotes\); got '2\.0'$"),
+    (dict(allele1={**TABLE, "fecundity": [0.0, [2.0]]}),
+     r"^allele\[1\]\.fecundity\[1\] must be a number, not a list; got \[2\.0\]$"),
+]
+
+
+@pytest.mark.parametrize("changes, message", IN_A_LIST_BY_AGE)
+def test_a_bad_value_in_a_list_by_age_is_named_with_its_index(changes, message, tmp_path, capsys):
+    err = _refused(changes, message)
+    assert len(err.problems) == 1
+    path = tmp_path / "c.toml"
+    path.write_text(_toml(_raw(**changes)))
+    assert main(["check", str(path)]) == 2
+    said = capsys.readouterr().err.strip()
+    assert re.search(message.removeprefix("^"), said) and said.count("\n") == 0
+
+
+def _toml(raw: dict) -> str:
+    """A raw config as TOML (tables, arrays of tables, lists of numbers, strings and booleans)."""
+    import json
+
+    def value(v):
+        return json.dumps(v) if not isinstance(v, list) else "[" + ", ".join(map(value, v)) + "]"
+
+    lines = []
+    for section, body in raw.items():
+        for table in (body if isinstance(body, list) else [body]):
+            lines.append(f"[[{section}]]" if isinstance(body, list) else f"[{section}]")
+            lines += [f"{json.dumps(k)} = {value(v)}" for k, v in table.items()]
+    return "\n".join(lines) + "\n"
+
+
 def test_a_sweep_too_large_to_hold_is_refused_before_it_is_expanded():
     err = _refused(dict(sweep={"allele.one-shot.fecundity": [1.0] * 1000,
                                "density.capacity": [50.0] * 1000}), r"sweep: 1,000,000 points; at most")

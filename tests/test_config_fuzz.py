@@ -89,6 +89,7 @@ def test_two_thousand_mutated_configs_are_refused_naming_a_key_or_run():
             continue
         except ConfigError as err:
             refused += 1
+            assert err.problems and all(line.strip() for line in err.problems), f"config {i}: empty message"
             for line in err.problems:
                 assert NAMES_A_KEY.match(line), f"config {i}: {line!r} names no key\n{raw}"
             continue
@@ -103,3 +104,31 @@ def test_two_thousand_mutated_configs_are_refused_naming_a_key_or_run():
             pytest.fail(f"config {i} ran into {type(err).__name__}: {err}\n{raw}")
         ran += 1
     assert refused > 500 and ran > 300, (refused, ran)  # both branches are exercised
+
+
+# what may sit inside a list by age: numbers, and the values a hand-written list gets wrong
+ELEMENTS = [0.0, 0.5, 2.0, 1.5, -1.0, 1, "2", "0.5", "", True, False, [1.0], [], {"a": 1.0},
+            float("nan"), float("inf"), 1e300]
+
+
+def test_hostile_values_inside_lists_by_age_are_refused_naming_the_key_never_with_an_empty_message():
+    # the issue: `fecundity = [0.0, "2"]` on a table allele was refused with an empty message
+    rng = np.random.default_rng(20261204)
+    refused = 0
+    for i in range(400):
+        raw = copy.deepcopy(BASE)
+        allele = raw["allele"][1]
+        if rng.random() < 0.7:
+            allele.update(breeding="table", fecundity=[0.0, 2.0], adult_survival=[0.5, 0.5])
+        for key in ("fecundity", "adult_survival", "juvenile_survival")[:rng.integers(1, 4)]:
+            if rng.random() < 0.7:
+                n = int(rng.integers(1, 4))
+                allele[key] = [copy.deepcopy(ELEMENTS[rng.integers(len(ELEMENTS))]) for _ in range(n)]
+        try:
+            parse_config(raw)
+        except ConfigError as err:
+            refused += 1
+            assert err.problems, f"config {i}: refused with no message\n{raw}"
+            for line in err.problems:
+                assert line.strip() and NAMES_A_KEY.match(line), f"config {i}: {line!r} names no key\n{raw}"
+    assert refused > 300, refused

@@ -23,20 +23,37 @@ def _loc(loc: tuple) -> str:
 
 
 def _wrong_union_branch(e) -> bool:
-    """True for the error of a scalar-or-list union's branch the input plainly was not meant for."""
-    labels = [p for p in e["loc"] if isinstance(p, str) and ("[" in p or p in ("float", "int"))]
-    if not labels:
+    """True for the error of a scalar-or-list union's branch the input plainly was not meant for.
+
+    ``fecundity = 2.0`` fails the list branch and ``fecundity = [0.0, "2"]`` the scalar branch:
+    those errors are dropped. An error *inside* the list branch (its loc goes on past the branch
+    label to an index) was given a list: it is the one to report, whatever the element was.
+    """
+    loc = e["loc"]
+    at = next((i for i, p in enumerate(loc) if isinstance(p, str) and _is_branch_label(p)), None)
+    if at is None:
         return False
-    list_branch = labels[0].startswith("list[")
-    return list_branch != isinstance(e.get("input"), list) and e["type"] in (
+    list_branch = loc[at].startswith("list[")
+    given_list = isinstance(e.get("input"), list) or (list_branch and any(isinstance(p, int) for p in loc[at + 1:]))
+    return list_branch != given_list and e["type"] in (
         "list_type", "float_type", "float_parsing", "int_type", "int_parsing", "literal_error")
 
 
+def _is_branch_label(part: str) -> bool:
+    return "[" in part or part in ("float", "int")
+
+
 def messages(err: ValidationError) -> list[str]:
+    """One line per problem, each naming its key; never empty (a ValidationError has errors)."""
+    errors = err.errors(include_url=False)
+    out = _worded(e for e in errors if not _wrong_union_branch(e))
+    # every error dropped as a union's wrong branch would leave the user an empty message
+    return out or _worded(errors)
+
+
+def _worded(errors) -> list[str]:
     seen, out = set(), []
-    for e in err.errors(include_url=False):
-        if _wrong_union_branch(e):
-            continue
+    for e in errors:
         path = _loc(e["loc"])
         kind = e["type"]
         got = e.get("input")
@@ -59,11 +76,16 @@ def messages(err: ValidationError) -> list[str]:
                 continue
         elif kind == "finite_number":
             msg = f"{path} must be a finite number; got {got!r}"
-        elif kind in ("int_type", "float_type", "string_type", "bool_type") and isinstance(got, (str, bool)):
+        elif kind in ("int_type", "float_type", "string_type", "bool_type") and \
+                isinstance(got, (str, bool, list, dict)):
             what = {"int_type": "a whole number", "float_type": "a number", "string_type": "a string",
                     "bool_type": "true or false"}[kind]
-            msg = f"{path} must be {what} (written without quotes); got {got!r}" if isinstance(got, str) \
-                else f"{path} must be {what}, not true or false; got {got!r}"
+            if isinstance(got, str):
+                msg = f"{path} must be {what} (written without quotes); got {got!r}"
+            elif isinstance(got, bool):
+                msg = f"{path} must be {what}, not true or false; got {got!r}"
+            else:  # a list or a table where one value belongs (e.g. a list inside a list by age)
+                msg = f"{path} must be {what}, not a {'list' if isinstance(got, list) else 'table'}; got {got!r}"
         elif kind == "missing":
             msg = f"{path} is required"
         elif kind == "literal_error":
