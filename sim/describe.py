@@ -154,8 +154,16 @@ def _census_problems(config: Config, census: np.ndarray) -> list[str]:
                     "equilibrium rounds to 0); raise density.capacity or give invasion.resident_count"]
     total = int(census.sum())
     if total > limit:
-        key = ("invasion.mutant_count" if inv is not None and inv.mutant_count > limit else
-               "density.capacity" if inv is not None else "allele.initial_count")
+        # the key that sets the count: a resident at equilibrium is as large as density.capacity
+        # lets it be; a resident of a given count is that count
+        if inv is None:
+            key = "allele.initial_count"
+        elif inv.mutant_count > limit:
+            key = "invasion.mutant_count"
+        elif inv.resident_count == "equilibrium":
+            key = "density.capacity"
+        else:
+            key = "invasion.resident_count"
         return [f"{key}: the starting census has {total:,} individuals, more than "
                 f"experiment.max_population = {limit:,}; lower it or raise max_population"]
     return []

@@ -159,6 +159,13 @@ CANNOT_START = [
     (dict(invasion__mutant_count=4294967295),
      r"invasion\.mutant_count: the starting census has 4,294,967,345 individuals, more than "
      r"experiment\.max_population = 1,000,000"),
+    # a resident of a given count: that count is the key to lower, not density.capacity
+    (dict(invasion__resident_count=5_000_000),
+     r"^invasion\.resident_count: the starting census has 5,000,001 individuals, more than "
+     r"experiment\.max_population = 1,000,000"),
+    (dict(density__capacity=500, experiment__max_population=100),
+     r"^density\.capacity: the starting census has 501 individuals, more than "
+     r"experiment\.max_population = 100"),
     (dict(offspring={"distribution": "negative-binomial", "dispersion": 1e-300}),
      r"offspring\.dispersion must be >= 1e-06; got 1e-300"),
 ]

@@ -1,6 +1,7 @@
 """Config validation: every refusal names the key path and the reason, before anything runs."""
 
 import copy
+import re
 
 import pytest
 
@@ -113,3 +114,35 @@ def test_semelparous_maturity_needs_pre_breeding_survival():
     schedule = parse_config(raw).schedules()[1]
     assert schedule.fecundity.tolist() == [0, 0, 4.5]
     assert schedule.survival.tolist() == [0.8, 0.8, 0.0]
+
+
+ENVIRONMENT = {"switching": "iid", "year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.2},
+                                           {"name": "dry", "probability": 0.5, "juvenile_survival": 0.8}]}
+
+MISLEADING_ONCE = [
+    # an allele's name is not a key it lacks: no "did you mean 'name'?"
+    ([(("sweep",), {"allele.one-shot.name": ["a", "b"]})],
+     r"^sweep\.'allele\.one-shot\.name': an allele's name cannot be swept \(sweep paths and \[invasion\] "
+     r"refer to alleles by name\)$"),
+    ([(("environment",), ENVIRONMENT), (("sweep",), {"environment.year.wet.name": ["a"]})],
+     r"^sweep\.'environment\.year\.wet\.name': a year type's name cannot be swept"),
+    # an unknown key of a year type: the year's keys, not the environment's
+    ([(("environment",), ENVIRONMENT), (("environment", "year", 0, "probabilty"), 0.5)],
+     r"^unknown key environment\.year\[0\]\.probabilty; did you mean 'probability'\?$"),
+    ([(("environment",), ENVIRONMENT), (("environment", "year", 1, "zzz"), 1.0)],
+     r"^unknown key environment\.year\[1\]\.zzz \(known keys: name, probability, fecundity, "
+     r"adult_survival, juvenile_survival\)$"),
+    # the environment's own check words its keys relative to it, once prefixed
+    ([(("environment",), {"switching": "markov", "transitions": [[1.0, 0.0], [0.0, 1.0]],
+                          "year": ENVIRONMENT["year"]}),
+      (("environment", "year", 0, "probability"), KeyError), (("environment", "year", 1, "probability"), KeyError)],
+     r"^environment\.transitions: the chain has no unique stationary law"),
+]
+
+
+@pytest.mark.parametrize("changes, message", MISLEADING_ONCE)
+def test_messages_that_once_misled(changes, message):
+    with pytest.raises(ConfigError) as err:
+        parse_config(_with(copy.deepcopy(changes)))  # (changes share ENVIRONMENT)
+    assert len(err.value.problems) == 1
+    assert re.match(message, err.value.problems[0]), err.value.problems[0]

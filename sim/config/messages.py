@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
-from pydantic import ValidationError
+import re
+import typing
 
-from .schema import SECTIONS, AlleleSection, Config, suggest
+from pydantic import BaseModel, ValidationError
+
+from .schema import Config, suggest
 
 __all__ = ["messages"]
 
@@ -103,9 +106,23 @@ def _worded(errors) -> list[str]:
 
 
 def _model_at(path: str):
-    head = path.split("[")[0].split(".")[0]
-    if path == "":
-        return Config
-    if head == "allele":
-        return AlleleSection
-    return SECTIONS.get(head)
+    """The section a message's path leads to (``environment.year[0]``: a year type), or None."""
+    model = Config
+    for part in re.findall(r"[^.\[\]]+", path):
+        if part.isdigit():
+            continue  # an index into a list of tables
+        field = model.model_fields.get(part)
+        model = None if field is None else _section_in(field.annotation)
+        if model is None:
+            return None
+    return model
+
+
+def _section_in(annotation):
+    """The config section a field holds, alone, in a list or optional (None for a plain value)."""
+    if isinstance(annotation, type) and issubclass(annotation, BaseModel):
+        return annotation
+    for arg in typing.get_args(annotation):
+        if (found := _section_in(arg)) is not None:
+            return found
+    return None

@@ -412,7 +412,10 @@ class EnvironmentSection(_Section):
                 raise ValueError(f"transitions[{i}]: row must sum to 1; got {sum(row):.12g}")
         if self.start != words.STATIONARY and self.start not in names:
             raise ValueError(f"start: {words.STATIONARY!r} or a year name {names}; got {self.start!r}")
-        self.year_types()  # a chain without a unique stationary law is refused here
+        try:
+            self.year_types()  # a chain without a unique stationary law is refused here
+        except ValueError as err:  # YearTypes names keys from the config's top; here they are relative
+            raise ValueError(str(err).removeprefix("environment.")) from None
         return self
 
     def year_types(self) -> YearTypes:
@@ -691,7 +694,9 @@ def check_sweep_path(config: Config, path: str) -> str | None:
         written = [a.name for a in config.allele]  # as written: a [trait] template is swept by its name
         if parts[1] not in written:
             return f"no allele is named {parts[1]!r} (alleles: {written})"
-        if parts[2] == "name" or parts[2] not in AlleleSection.model_fields:
+        if parts[2] == "name":
+            return "an allele's name cannot be swept (sweep paths and [invasion] refer to alleles by name)"
+        if parts[2] not in AlleleSection.model_fields:
             return f"allele has no sweepable key {parts[2]!r}{suggest(parts[2], AlleleSection)}"
         return None
     if parts[:2] == ["environment", "year"]:
@@ -717,7 +722,9 @@ def _check_year_path(config: Config, parts: list[str]) -> str | None:
     names = [y.name for y in config.environment.year]
     if parts[2] not in names:
         return f"no year type is named {parts[2]!r} (year types: {names})"
-    if parts[3] == "name" or parts[3] not in YearSection.model_fields:
+    if parts[3] == "name":
+        return "a year type's name cannot be swept (sweep paths refer to year types by name)"
+    if parts[3] not in YearSection.model_fields:
         return f"a year type has no sweepable key {parts[3]!r}{suggest(parts[3], YearSection)}"
     return None
 
