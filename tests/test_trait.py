@@ -98,6 +98,28 @@ def test_bad_effort_and_trait_keys_are_refused_with_their_path(path, value, matc
         parse_config(_with(path, value))
 
 
+def test_a_grid_past_the_cap_is_refused_naming_step_and_its_size(tmp_path, capsys):
+    # the issue: step = 1e-7 made `broodline check` build 9.5 million alleles for minutes
+    from sim.config.schema import MAX_TRAIT_VALUES
+
+    raw = trait_raw()
+    raw["trait"].update(start=0.05, stop=1.0, step=1e-7, initial=1.0)
+    with pytest.raises(ConfigError) as err:
+        parse_config(raw)
+    assert err.value.problems == [
+        f"trait.step: a grid from 0.05 to 1 in steps of 1e-07 would make 9,500,001 values; at most "
+        f"{MAX_TRAIT_VALUES:,} (each is an allele of the run): use a larger step"]
+    raw["trait"].update(start=0.0, stop=1.0, step=0.001)  # the finest grid allowed: 1,001 values
+    assert len(parse_config(raw).alleles) == MAX_TRAIT_VALUES == 1_001
+    raw["trait"] = {"allele": "tmpl", "values": [i / 2000 for i in range(2001)], "initial": 1.0}
+    with pytest.raises(ConfigError, match=r"^trait\.values: 2,001 efforts; at most 1,001"):
+        parse_config(raw)
+    path = tmp_path / "fine.toml"
+    path.write_text(open("configs/tallowcap-effort.toml").read().replace("step = 0.05", "step = 0.0000001"))
+    assert main(["check", str(path)]) == 2
+    assert "trait.step: a grid from" in capsys.readouterr().err
+
+
 def test_tradeoff_without_effort_alleles_is_refused():
     raw = {"tradeoff": {"max_fecundity": 2.0, "max_adult_survival": 0.5},
            "allele": [{"name": "a", "breeding": "semelparous", "fecundity": 2.0, "juvenile_survival": 0.5,
