@@ -29,21 +29,28 @@ _FLOOR = {
 }
 
 
-def config_warnings(config: Config) -> list[str]:
-    """What looks wrong in a valid config: keys a breeding type ignores, alleles nothing regulates.
+def config_warnings(config: Config, points=None) -> list[str]:
+    """What looks wrong in a valid config: keys it ignores, alleles nothing regulates.
+
+    A key is said to be ignored only when it is ignored at every sweep point
+    (``points``: the config's ``sweep_points``, expanded here if not given):
+    ``adult_survival`` of a semelparous allele is used where a swept
+    ``maturity_age`` passes 1, ``density.acts_on`` where a swept ``form`` is not
+    "none".
 
     An allele cannot be regulated when its growth rate stays above 1 even as
     the density factor goes to 0 (a form that only scales the rate where
     density acts: Beverton-Holt, Ricker); a population of it grows without
     bound and every replicate ends capped.
     """
-    out = []
-    for i, a in enumerate(config.allele):
-        if a.breeding == "semelparous" and a.maturity_age == 1 and a.adult_survival is not None:
-            out.append(f"allele[{i}].adult_survival: ignored: {a.name!r} is semelparous and breeds at "
-                       "age 1, then dies (adult_survival is the survival of the years before breeding)")
-        if config.invasion is not None and a.initial_count:
-            out.append(f"allele[{i}].initial_count: ignored: [invasion] sets the starting counts")
+    points = sweep_points(config) if points is None else points
+    at_every_point = None
+    for point in points:
+        found = _ignored_keys(point.config)
+        at_every_point = found if at_every_point is None else [k for k in at_every_point if k in found]
+        if not at_every_point:
+            break
+    out = list(at_every_point or [])
     d = config.density
     if d.form in ("beverton-holt", "ricker"):
         for a, schedule in zip(config.allele, config.schedules()):
@@ -55,6 +62,35 @@ def config_warnings(config: Config) -> list[str]:
                     "recruits where density does not act), so it grows without bound and its "
                     "replicates will pass experiment.max_population"
                 )
+    return out
+
+
+def _ignored_keys(config: Config) -> list[str]:
+    """Keys a valid config sets that nothing reads, one ``KEY: ignored: why`` line each.
+
+    Warned, not refused, like every key here: each is used where another key, which may be
+    swept or edited on its own, says so (a semelparous allele's ``maturity_age`` > 1, a
+    ``density.form`` other than "none", a second allele, no ``[invasion]``), so one table can
+    serve several points or edits. A key that only a fixed word of its own table would use
+    (``dispersion`` beside poisson, ``brood_scale`` without a brood effect, ``transitions``
+    beside iid years) is refused by the schema instead.
+    """
+    out = []
+    for i, a in enumerate(config.allele):
+        if a.breeding == "semelparous" and a.maturity_age == 1 and a.adult_survival is not None:
+            out.append(f"allele[{i}].adult_survival: ignored: {a.name!r} is semelparous and breeds at "
+                       "age 1, then dies (adult_survival is the survival of the years before breeding)")
+        if config.invasion is not None and a.initial_count:
+            out.append(f"allele[{i}].initial_count: ignored: [invasion] sets the starting counts")
+    d = config.density
+    if d.form == "none":
+        # counted's default ("census") cannot be told from a written one, so only another word is said
+        set_keys = [key for key, unset in (("acts_on", None), ("counted", "census"), ("capacity", None))
+                    if getattr(d, key) != unset]
+        out += [f"density.{key}: ignored: form = 'none' has no density dependence" for key in set_keys]
+    if config.trait is None and len(config.allele) == 1 and config.mutation.rate > 0:
+        out.append(f"mutation.rate: ignored: {config.allele[0].name!r} is the only allele, so an "
+                   "offspring has no other allele to mutate to")
     return out
 
 
@@ -93,9 +129,9 @@ def preflight(config: Config, *, budget: bool = True) -> list:
 
     from .meanfield import NoEquilibriumError
 
-    for message in config_warnings(config):
-        warnings.warn(message, ConfigWarning, stacklevel=2)
     points = sweep_points(config)
+    for message in config_warnings(config, points):
+        warnings.warn(message, ConfigWarning, stacklevel=2)
     work, problems = 0, []
     for point in points:
         where = ", ".join(f"{k} = {v!r}" for k, v in point.values.items())
@@ -248,7 +284,7 @@ def describe_experiment(config: Config, *, budget: bool = True) -> str:
     lines.append(f"replicates: {exp.replicates} per point, {total} in all "
                  f"(at most {seasons:,} seasons; trajectories {exp.trajectory})")
     lines.append(counts_engine_note(config))
-    lines.extend(f"warning: {w}" for w in config_warnings(config))
+    lines.extend(f"warning: {w}" for w in config_warnings(config, points))
     return "\n".join(lines)
 
 

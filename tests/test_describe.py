@@ -1,5 +1,7 @@
 """What `broodline check` prints: the swept range where the base value would mislead."""
 
+import re
+
 import pytest
 
 from sim.describe import describe_experiment
@@ -71,3 +73,88 @@ def test_strings_where_numbers_belong_are_refused(section, key, value, message):
         raw[section][key] = value
     with pytest.raises(ConfigError, match=message):
         parse_config(raw)
+
+
+# keys a valid config sets that nothing reads: one warning each, from `check` and before `run`
+def _base(**changes) -> dict:
+    import copy
+
+    from tests.conftest import BASE
+
+    raw = copy.deepcopy(BASE)
+    raw["experiment"].update(replicates=1, max_steps=3)
+    for section, value in sorted(changes.items(), reverse=True):  # allele1 before allele0
+        if section.startswith("allele") and value is None:
+            del raw["allele"][int(section[-1])]
+        elif section.startswith("allele"):
+            raw["allele"][int(section[-1])].update(value)
+        elif value is None:
+            raw.pop(section, None)
+        else:
+            raw[section] = {k: v for k, v in {**raw.get(section, {}), **value}.items() if v is not None}
+    return raw
+
+
+IGNORED = [
+    (dict(allele0={"initial_count": 50}),
+     "allele[0].initial_count: ignored: [invasion] sets the starting counts"),
+    (dict(allele1={"adult_survival": 0.9}),
+     "allele[1].adult_survival: ignored: 'one-shot' is semelparous and breeds at age 1"),
+    (dict(density={"form": "none", "acts_on": "fecundity", "capacity": None}, invasion={"resident_count": 20}),
+     "density.acts_on: ignored: form = 'none' has no density dependence"),
+    (dict(density={"form": "none", "acts_on": None, "counted": "breeders", "capacity": None},
+          invasion={"resident_count": 20}),
+     "density.counted: ignored: form = 'none' has no density dependence"),
+    (dict(density={"form": "none", "acts_on": None, "capacity": 50}, invasion={"resident_count": 20}),
+     "density.capacity: ignored: form = 'none' has no density dependence"),
+    (dict(allele0={"initial_count": 10}, allele1=None, invasion=None, mutation={"rate": 0.5}),
+     "mutation.rate: ignored: 'perennial' is the only allele, so an offspring has no other allele"),
+]
+
+
+def _toml(raw: dict) -> str:
+    import json
+
+    lines = []
+    for section, body in raw.items():
+        for table in (body if isinstance(body, list) else [body]):
+            lines.append(f"[[{section}]]" if isinstance(body, list) else f"[{section}]")
+            lines += [f"{json.dumps(k)} = {json.dumps(v)}" for k, v in table.items()]
+    return "\n".join(lines) + "\n"
+
+
+@pytest.mark.parametrize("changes, warning", IGNORED)
+def test_an_ignored_key_is_said_by_check_and_before_a_run(changes, warning, tmp_path, capsys):
+    from sim.cli import main
+    from sim.config import parse_config
+    from sim.describe import ConfigWarning, config_warnings, preflight
+
+    raw = _base(**changes)
+    config = parse_config(raw)
+    assert [w for w in config_warnings(config) if "ignored" in w] == [w for w in config_warnings(config)
+                                                                       if w.startswith(warning)]
+    with pytest.warns(ConfigWarning, match=re.escape(warning)):
+        preflight(config)
+    path = tmp_path / "c.toml"
+    path.write_text(_toml(raw))
+    assert main(["check", str(path)]) == 0
+    assert f"warning: {warning}" in capsys.readouterr().out
+
+
+def test_a_key_used_at_some_sweep_point_is_not_said_to_be_ignored():
+    from sim.config import parse_config
+    from sim.describe import config_warnings
+
+    # adult_survival is the survival before breeding where the swept maturity_age is 2
+    raw = _base(allele1={"adult_survival": 0.9}, sweep={"allele.one-shot.maturity_age": [1, 2]})
+    assert not any("ignored" in w for w in config_warnings(parse_config(raw)))
+    raw["sweep"] = {"allele.one-shot.fecundity": [3.0, 4.0]}
+    assert any("allele[1].adult_survival: ignored" in w for w in config_warnings(parse_config(raw)))
+    # acts_on is used where the swept form is not "none"
+    raw = _base(density={"form": "ricker", "acts_on": "fecundity"}, invasion={"resident_count": 20},
+                sweep={"density.form": ["ricker", "none"]})
+    assert not any("ignored" in w for w in config_warnings(parse_config(raw)))
+    raw["sweep"] = {"density.form": ["none"]}
+    assert [w for w in config_warnings(parse_config(raw)) if "ignored" in w] == [
+        "density.acts_on: ignored: form = 'none' has no density dependence",
+        "density.capacity: ignored: form = 'none' has no density dependence"]
