@@ -41,3 +41,21 @@ def test_run_override_flags_exist(flag, capsys):
     with pytest.raises(SystemExit):
         main(["run", "--help"])
     assert flag in capsys.readouterr().out
+
+
+def test_an_override_of_a_swept_key_is_refused_naming_the_option_and_the_key(tmp_path, capsys):
+    # the issue: --max-steps 5 on a config sweeping experiment.max_steps ran the swept values
+    # while the results file recorded max_steps = 5
+    config = tmp_path / "c.toml"
+    config.write_text(open("configs/demo.toml").read().split("[sweep]")[0]
+                      + '[sweep]\n"experiment.max_steps" = [10, 20]\n')
+    out = tmp_path / "o.h5"
+    argv = ["run", str(config), "-o", str(out), "--quiet", "--workers", "1", "--replicates", "2"]
+    assert main([*argv, "--max-steps", "5"]) == 2
+    assert capsys.readouterr().err.strip() == (
+        "broodline run: error: --max-steps: experiment.max_steps is swept by the config (over 10, 20), "
+        "so --max-steps 5 would be recorded but not run; remove --max-steps or the sweep of "
+        "experiment.max_steps")
+    assert not out.exists()
+    assert main(argv) == 0  # an override of a key the config does not sweep still runs
+    assert read_attrs(out)["config"]["experiment"]["replicates"] == 2

@@ -192,8 +192,18 @@ def with_overrides(config, args):
     given = {k: getattr(args, k) for k in _OVERRIDES if getattr(args, k, None) is not None}
     if not given:
         return config
-    from ..config import parse_config
+    from ..config import parse_config, swept_values
 
+    for key, value in given.items():
+        # a point's swept value overrides the [experiment] table: the option would be recorded
+        # in the results file but not run (seed and replicates cannot be swept; max_steps can)
+        swept = swept_values(config, f"experiment.{key}")
+        if swept is not None:
+            option = "--" + key.replace("_", "-")
+            raise UserError(
+                f"{option}: experiment.{key} is swept by the config (over "
+                f"{', '.join(map(str, swept))}), so {option} {value} would be recorded but not run; "
+                f"remove {option} or the sweep of experiment.{key}")
     raw = config.model_dump(mode="json", exclude_none=True)
     raw["experiment"].update(given)
     return parse_config(raw)
