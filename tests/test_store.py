@@ -101,7 +101,7 @@ def test_existing_results_are_not_overwritten(config, tmp_path):
 def test_capped_replicates_stop_and_are_marked(tmp_path):
     config = make_config(
         experiment={"replicates": 3, "max_steps": 200, "max_population": 500, "stop": "max-steps"},
-        density={"form": "none", "capacity": None},
+        density=None,  # no [density]: no density dependence
         invasion={"resident": "perennial", "mutant": "one-shot", "resident_count": 100},
     )
     path = tmp_path / "cap.h5"
