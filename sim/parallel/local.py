@@ -146,7 +146,7 @@ class ProcessPool:
                     process.join()
             return
         # SIGKILL: workers ignore SIGTERM, which a batch scheduler sends the whole process group
-        # (sim.parallel.start.ignore_stop_signals)
+        # (sim.parallel.signals)
         kill = getattr(self._executor, "kill_workers", None)  # Python 3.14+
         if kill is not None:
             kill()

@@ -16,12 +16,13 @@ from __future__ import annotations
 
 import multiprocessing
 import os
-import signal
 import threading
 import time
 
+from .signals import ignore_stop_signals
+
 __all__ = ["default_workers", "separate_workers", "worker_context", "start_soon", "stop_fork_server",
-           "worker_init", "ignore_stop_signals"]
+           "worker_init"]
 
 _PRELOAD = ["sim.parallel.warm"]
 
@@ -78,17 +79,6 @@ def _watch_writer(writer) -> None:
         time.sleep(0.5)
         if not writer.is_alive():  # the writer died (kill -9): do not run on as an orphan
             os._exit(1)
-
-
-def ignore_stop_signals() -> None:
-    """Leave Ctrl-C (SIGINT) and a batch scheduler's SIGTERM to the writer: both reach the whole
-    process group, and a worker or fork server killed by one made the writer report a dead
-    worker ("out of memory?") instead of a stopped run with its resume command. The writer
-    stops its workers itself (SIGKILL: running batches are abandoned and re-run on resume),
-    and a worker whose writer is gone exits on its own (``_watch_writer``); the standard
-    library's resource tracker ignores both signals likewise."""
-    for stop in (signal.SIGINT, signal.SIGTERM):
-        signal.signal(stop, signal.SIG_IGN)
 
 
 def worker_init() -> None:

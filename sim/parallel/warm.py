@@ -11,7 +11,7 @@ spawned worker imports it in its initializer.
 Three settings come first, before numpy is imported:
 
 - Ctrl-C and SIGTERM are ignored: the writer alone handles them
-  (``sim.parallel.start.ignore_stop_signals``).
+  (``sim.parallel.signals``).
 
 - Python's cyclic garbage collector is paused while the modules load and the
   objects they made are then frozen (``gc.freeze``), as the ``gc`` module's
@@ -25,7 +25,7 @@ import gc
 import sys
 
 from .blas import one_blas_thread
-from .start import ignore_stop_signals
+from .signals import ignore_stop_signals
 
 # Setting up the code generator imports numba's implementations of numpy, among them a check
 # for a BLAS at import, which imports scipy.linalg (a sixth of the fork server's start-up,
