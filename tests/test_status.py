@@ -45,3 +45,27 @@ def test_status_of_something_else_is_a_clear_error(tmp_path, capsys):
         assert main(["status", str(tmp_path / name)]) == 2
         err = capsys.readouterr().err
         assert ("not found" in err or "is not a broodline results file" in err) and "Traceback" not in err
+
+
+def test_status_before_the_first_batch_is_saved(tmp_path, capsys):
+    # the header is written, no batch yet: the first second of every run, or a run stopped then
+    from sim.config import sweep_points
+    from sim.store import ResultsWriter
+    from tests.runs_support import small_config
+
+    config = small_config(replicates=REPLICATES)
+    out = tmp_path / "run.h5"
+    writer = ResultsWriter(out, config, sweep_points(config))
+    try:
+        status = experiment_status(out)
+        assert status.state == "running"
+        assert (status.done, status.total, status.fixed) == (0, 4 * REPLICATES, 0)
+        assert status.table["done"].tolist() == [0] * 4
+        assert status.table["of"].tolist() == [REPLICATES] * 4
+        assert status.table["fixed"].tolist() == [0] * 4
+    finally:
+        writer.release()
+    assert main(["status", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "stopped before the end" in text
+    assert f"0 of {4 * REPLICATES} replicates done (0%)" in text

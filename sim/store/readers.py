@@ -185,8 +185,10 @@ def count_outcomes(path) -> pd.DataFrame:
     for counts in _read_blocks(path, read):
         for key, n in counts.items():
             total[key] = total.get(key, 0) + n
-    return pd.DataFrame([(int(p), o, int(n)) for (p, o), n in sorted(total.items())],
-                        columns=["point", "outcome", "count"])
+    keys = sorted(total)  # typed columns even before the first batch is saved (no rows yet)
+    return pd.DataFrame({"point": np.array([p for p, _ in keys], np.int64),
+                         "outcome": pd.Series([o for _, o in keys], dtype=object),
+                         "count": np.array([total[k] for k in keys], np.int64)})
 
 
 def read_replicates(path) -> pd.DataFrame:
