@@ -38,6 +38,7 @@ import numpy as np
 import pandas as pd
 
 from sim.config import Config, ConfigError
+from sim.status import resume_command
 from sim.store import read_attrs, read_point_configs, read_points, read_replicates, read_trajectories
 from sim.vocabulary import outcome_name
 
@@ -222,8 +223,8 @@ def incomplete_message(path) -> str:
     saved = len(read_replicates(path))
     return (
         f"{str(path)!r} is incomplete: {saved} of {planned} replicates saved (the run was "
-        "stopped, or is still going); finish it with `broodline run CONFIG -o "
-        f"{path} --resume`. Points without all their replicates are judged on those saved."
+        f"stopped, or is still going); finish it with `{resume_command(path, attrs)}`. "
+        "Points without all their replicates are judged on those saved."
     )
 
 

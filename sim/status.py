@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+import shlex
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -11,7 +13,7 @@ import pandas as pd
 from .store import count_outcomes, parts_dir, read_attrs, read_points, writer_state
 from .vocabulary import DECIDED
 
-__all__ = ["ExperimentStatus", "experiment_status"]
+__all__ = ["ExperimentStatus", "experiment_status", "resume_command"]
 
 
 @dataclass
@@ -36,6 +38,9 @@ class ExperimentStatus:
         undecided ones are left out, not counted as losses), ``capped``.
     writer : str
         Who holds the writer's lock (``pid N on HOST``) while running.
+    resume : str
+        The command line that finishes the file (``broodline run CONFIG -o FILE
+        --resume``, or ``broodline locate ...`` for a file ``locate`` writes).
     """
 
     path: Path
@@ -46,12 +51,13 @@ class ExperimentStatus:
     fixed_outcome: str
     table: pd.DataFrame
     writer: str = ""
+    resume: str = ""
 
     def __str__(self) -> str:
         share = f" ({self.done / self.total:.0%})" if self.total else ""
         state = {"running": f"running ({self.writer})" if self.writer else "running",
                  "stopped": "stopped before the end: finish it with "
-                            f"`broodline run CONFIG -o {self.path} --resume`",
+                            f"`{self.resume or resume_command(self.path, {})}`",
                  "complete": "complete"}[self.state]
         head = (f"{self.path}: {state}\n{self.done} of {self.total} replicates done{share}, "
                 f"{self.fixed_outcome} so far {self.fixed}")
@@ -95,4 +101,28 @@ def experiment_status(path) -> ExperimentStatus:
             pass
     return ExperimentStatus(path=path, state=state, done=int(done.sum()), total=int(per_point * n),
                             fixed=int(fixed.sum()), fixed_outcome=fixed_name, table=table,
-                            writer=writer)
+                            writer=writer, resume=resume_command(path, attrs))
+
+
+def resume_command(path, attrs: dict, *, config=None) -> str:
+    """The command line that finishes the results file ``path``, whose root attributes are ``attrs``.
+
+    A file ``broodline locate`` wrote (its ``locate`` attribute: parameter, bracket,
+    tolerance and budget) is finished by ``locate --resume`` with the same design; when the
+    stages so far leave no room for another within its budget, the command doubles the
+    budget (any larger one goes on). ``config``: the config's path (default ``CONFIG``, as
+    the file does not record it).
+    """
+    config = shlex.quote(str(config)) if config else "CONFIG"
+    out = shlex.quote(str(path))
+    if "locate" not in attrs:
+        return f"broodline run {config} -o {out} --resume"
+    design = json.loads(attrs["locate"])
+    budget = int(design["budget"])
+    per_stage = int(attrs.get("replicates", attrs["config"]["experiment"]["replicates"]))
+    if (int(attrs.get("n_points", 0)) + 1) * per_stage > budget:  # locate's own budget rule
+        budget *= 2
+    low, high = design["bracket"]
+    return (f"broodline locate {config} --parameter {shlex.quote(design['parameter'])} "
+            f"--bracket {float(low)!r} {float(high)!r} --tolerance {float(design['tolerance'])!r} "
+            f"--budget {budget} -o {out} --resume")

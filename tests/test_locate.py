@@ -147,3 +147,33 @@ def test_grid_first_passage_stops_at_the_first_look_within_the_tolerance():
     got = grid_first_passage(np.linspace(2.7, 3.3, 9), fixed, read, tolerance=0.2, step=10)
     assert got.replicates == 9 * 30 and looks == [10, 20, 30]  # 1/sqrt(30) = 0.18 <= 0.2 < 1/sqrt(20)
     assert math.isinf(grid_first_passage(np.linspace(2.7, 3.3, 9), fixed, read, tolerance=0.01, step=10).replicates)
+
+
+def test_status_of_an_unfinished_locate_file_gives_the_command_that_goes_on(tmp_path, capsys):
+    import shlex
+
+    from analysis.lab.toml_text import toml_text
+    from sim.cli import main
+
+    config = tmp_path / "locate.toml"
+    config.write_text(toml_text(_config(replicates=40)))
+    out = tmp_path / "L.h5"
+    assert main(["locate", str(config), "--parameter", PARAMETER, "--bracket", "2.5", "3.5",
+                 "--tolerance", "1e-6", "--budget", "80", "-o", str(out), "--workers", "1"]) == 0
+    first = read_points(out)[PARAMETER].tolist()
+    assert len(first) == 2  # stopped by its budget, unfinished
+    capsys.readouterr()
+    assert main(["status", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "broodline run" not in text
+    status = experiment_status(out)
+    assert status.state == "stopped" and f"`{status.resume}`" in text
+    from analysis.comparison import incomplete_message
+
+    assert f"`{status.resume}`" in incomplete_message(out)  # compare's warning says the same
+    command = shlex.split(status.resume.replace("CONFIG", shlex.quote(str(config))))
+    assert command[:2] == ["broodline", "locate"] and "--resume" in command
+    assert main(command[1:] + ["--workers", "1"]) == 0  # the advice is accepted and goes on
+    assert read_points(out)[PARAMETER].tolist()[:2] == first
+    assert experiment_status(out).done > 80
+

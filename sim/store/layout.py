@@ -18,7 +18,10 @@ equal-length column datasets, chunked and gzip-compressed)::
                                   trait_efforts (only for a [trait] run: JSON list,
                                   each allele's effort E in allele order, so counts
                                   by allele are the effort distribution; see
-                                  readers.read_trait)
+                                  readers.read_trait),
+                                  locate (only in a ``broodline locate`` file: JSON
+                                  parameter, bracket, tolerance, budget; status
+                                  builds its ``locate --resume`` advice from it)
     /points/               one row per sweep point
         index              int32
         config             the point's full config as JSON (str)
