@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import json
+import shlex
 import sys
 
 __all__ = ["register_locate", "register_locate_bench"]
@@ -35,8 +36,8 @@ def cmd_locate(args) -> int:
             progress=None if args.json else print,
         )
     except KeyboardInterrupt:
-        print(f"finished batches are saved in {args.output}; go on with\n  broodline locate {args.config} "
-              f"--parameter {args.parameter} -o {args.output} --resume", file=sys.stderr)
+        print(f"finished batches are saved in {args.output}; go on with\n  {_resume_command(args)}",
+              file=sys.stderr)
         raise
     if args.json:
         print(json.dumps(jsonable(result.as_dict()), indent=2))
@@ -44,6 +45,17 @@ def cmd_locate(args) -> int:
         print(locate_report(result))
         print(f"results: {args.output} (broodline status / compare / report read it)")
     return 0
+
+
+def _resume_command(args) -> str:
+    """This command line made to go on with its file: the same design (bracket, tolerance, budget)."""
+    design = ["--parameter", args.parameter]
+    if args.bracket:
+        design += ["--bracket", *map(repr, args.bracket)]
+    if args.tolerance is not None:
+        design += ["--tolerance", repr(args.tolerance)]
+    design += ["--budget", str(args.budget)]
+    return shlex.join(["broodline", "locate", args.config, *design, "-o", args.output, "--resume"])
 
 
 def register_locate(sub) -> None:

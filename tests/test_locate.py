@@ -177,3 +177,21 @@ def test_status_of_an_unfinished_locate_file_gives_the_command_that_goes_on(tmp_
     assert read_points(out)[PARAMETER].tolist()[:2] == first
     assert experiment_status(out).done > 80
 
+
+def test_locate_stopped_by_ctrl_c_says_how_to_go_on_with_the_same_design(tmp_path, capsys, monkeypatch):
+    import analysis.locate
+    from sim.cli import main
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    from analysis.lab.toml_text import toml_text
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "c.toml").write_text(toml_text(_config()))
+    monkeypatch.setattr(analysis.locate, "locate", interrupted)
+    assert main(["locate", "c.toml", "--parameter", PARAMETER, "--bracket", "2.5", "3.5",
+                 "--tolerance", "0.01", "--budget", "500", "-o", "L.h5"]) == 130
+    err = capsys.readouterr().err
+    assert (f"broodline locate c.toml --parameter {PARAMETER} --bracket 2.5 3.5 --tolerance 0.01 "
+            "--budget 500 -o L.h5 --resume") in err
