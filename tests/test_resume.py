@@ -173,6 +173,24 @@ def _points():
     return sweep_points(small_config(replicates=REPLICATES))
 
 
+@pytest.mark.parametrize("damage", ["empty", "not-hdf5", "truncated", "another-config"])
+def test_a_refused_resume_leaves_nothing_new_behind(reference, tmp_path, capsys, damage):
+    config = write_config(tmp_path, replicates=REPLICATES)
+    out = tmp_path / "out.h5"
+    data = {"empty": b"", "not-hdf5": b"not a results file\n",
+            "truncated": reference.read_bytes()[:4000],
+            "another-config": reference.read_bytes()}[damage]
+    out.write_bytes(data)
+    if damage == "another-config":
+        config.write_text(config.read_text().replace("capacity = 25", "capacity = 26"))
+    before = sorted(p.name for p in tmp_path.iterdir())
+    assert main(["run", str(config), "-o", str(out), "--resume", "--quiet", "--workers", "1"]) == 2
+    err = capsys.readouterr().err
+    assert f"cannot resume {str(out)!r}" in err and err.count("error:") == 1 and "Traceback" not in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == before  # no out.h5.parts/lock left
+    assert out.read_bytes() == data
+
+
 def test_resume_by_another_version_warns_that_draws_may_differ(tmp_path, caplog):
     # The promise is per version (README, Reproducibility): a run finished by another version
     # of broodline is still valid, but not what one version alone would have given.

@@ -17,7 +17,7 @@ from . import layout, shards  # noqa: F401  (sim.store.layout and .shards, named
 from .layout import FORMAT_VERSION, ConfigMismatchError, ResultsError, Shard, parts_dir, software_version
 from .shards import ShardRows, ShardTarget, save_shard, shard_rows
 
-_WRITER = ("ResultsWriter", "rewrite_header", "writer_state")
+_WRITER = ("ResultsWriter", "rewrite_header", "writer_state", "resumable_attrs")
 
 _READERS = ("read_attrs", "read_points", "read_replicates", "read_trajectories", "read_point_configs",
             "read_outcomes", "count_outcomes", "read_years", "read_trait")
@@ -39,4 +39,4 @@ def __getattr__(name: str):
 
 __all__ = ["FORMAT_VERSION", "ResultsError", "ConfigMismatchError", "Shard", "ResultsWriter",
            "ShardTarget", "ShardRows", "shard_rows", "save_shard", "parts_dir", "software_version", "writer_state",
-           "rewrite_header", *_READERS]
+           "rewrite_header", "resumable_attrs", *_READERS]

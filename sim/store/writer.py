@@ -46,7 +46,7 @@ try:  # advisory locks: POSIX only; elsewhere a second writer is not detected
 except ImportError:  # pragma: no cover
     fcntl = None
 
-__all__ = ["ResultsWriter", "writer_state", "fill_header", "rewrite_header"]
+__all__ = ["ResultsWriter", "writer_state", "fill_header", "rewrite_header", "resumable_attrs"]
 
 log = logging.getLogger(__name__)
 
@@ -102,6 +102,8 @@ class ResultsWriter:
         self._held: dict[tuple[int, int], ShardRows] = {}  # rows of shards not yet merged
         self._held_bytes = 0
         self._check_target(overwrite=overwrite, resume=resume)
+        if resume and self._resumable():
+            self._checked_attrs()  # a file that cannot be resumed is refused before the lock's folder is made
         self._lock()
         try:
             self.fresh = not (resume and self._resumable())
@@ -190,20 +192,11 @@ class ResultsWriter:
     def _write_header(self, f) -> None:
         fill_header(f, self.config, self.points)
 
-    def _open_existing(self) -> None:
-        from .readers import read_attrs  # pandas: only where a file is resumed
-
+    def _checked_attrs(self) -> dict:
+        """The file's attributes, once it is known to be a results file of this format and
+        config (else ``ResultsError`` / ``ConfigMismatchError``); changes nothing on disk."""
         where = str(self.path)
-        try:
-            attrs = read_attrs(self.path)
-        except (OSError, ValueError) as err:
-            raise ResultsError(f"cannot resume {where!r}: {err}") from None
-        if attrs.get("format_version") != FORMAT_VERSION:
-            raise ResultsError(f"cannot resume {where!r}: it has results format "
-                               f"{attrs.get('format_version')} (broodline "
-                               f"{attrs.get('software_version', 'unknown')}), this broodline writes "
-                               f"{FORMAT_VERSION}: finish it with the version that started it, or "
-                               "start it again with --overwrite")
+        attrs = resumable_attrs(self.path)
         if attrs["config_hash"] != self.hash:
             diffs = config_differences(attrs["config"], self.config)
             raise ConfigMismatchError(
@@ -212,6 +205,10 @@ class ResultsWriter:
                 "Differences (file -> now):\n  " + "\n  ".join(diffs or ["(none visible)"])
                 + "\nResume with the config that started the file, or pass overwrite=True to start again.",
                 diffs)
+        return attrs
+
+    def _open_existing(self) -> None:
+        attrs = self._checked_attrs()  # again under the lock: the file may have changed since
         self.resumed_from_version = attrs["software_version"]
         self.complete = bool(attrs.get("complete", False))
         for leftover in self.parts.glob("*.tmp"):  # a batch or merge cut short by a crash
@@ -603,6 +600,25 @@ def rewrite_header(path, config, points, *, extra: dict | None = None) -> None:
         with h5py.File(path, "r") as f:
             created = f.attrs.get("created")
     durable.write_atomic(path, lambda f: fill_header(f, config, points, created=created, extra=extra))
+
+
+def resumable_attrs(path) -> dict:
+    """The root attributes of a results file to resume; ``ResultsError`` when it cannot be
+    (not a results file: not HDF5, truncated, empty...; or another results format)."""
+    from .readers import read_attrs  # pandas: only where a file is resumed
+
+    where = str(path)
+    try:
+        attrs = read_attrs(path)
+    except (OSError, ValueError) as err:
+        raise ResultsError(f"cannot resume {where!r}: {err}") from None
+    if attrs.get("format_version") != FORMAT_VERSION:
+        raise ResultsError(f"cannot resume {where!r}: it has results format "
+                           f"{attrs.get('format_version')} (broodline "
+                           f"{attrs.get('software_version', 'unknown')}), this broodline writes "
+                           f"{FORMAT_VERSION}: finish it with the version that started it, or "
+                           "start it again with --overwrite")
+    return attrs
 
 
 def _shard_rows(path: Path, config_hash: str) -> int:
