@@ -59,6 +59,7 @@ from __future__ import annotations
 
 import json
 import math
+import numbers
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -313,6 +314,20 @@ class LocateResult:
         return d
 
 
+def _check_options(*, tolerance, budget, workers) -> None:
+    """Refuse a bad tolerance, budget or worker count before anything runs: one message each."""
+    problems = []
+    if tolerance is not None and not (isinstance(tolerance, numbers.Real) and math.isfinite(tolerance)
+                                      and tolerance > 0):
+        problems.append(f"tolerance must be a finite number > 0; got {tolerance!r}")
+    if isinstance(budget, bool) or not isinstance(budget, (int, np.integer)) or budget < 1:
+        problems.append(f"budget must be a whole number >= 1; got {budget!r}")
+    if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 1:
+        problems.append(f"workers must be a whole number >= 1; got {workers!r}")
+    if problems:
+        raise ConfigError(problems)
+
+
 def _default_bracket(config: Config, parameter: str, analytic: ThresholdResult) -> tuple[float, float]:
     if not analytic.converged:
         raise ConfigError(
@@ -368,10 +383,11 @@ def locate(
     LocateResult
     """
     from sim.parallel import default_batch_size, make_pool, plan_batches
-    from sim.store import ResultsError, ResultsWriter, read_attrs
+    from sim.store import ResultsError, ResultsWriter, resumable_attrs
 
     if config.invasion is None:
         raise ConfigError("invasion: locate needs an [invasion] table naming the resident and the mutant")
+    _check_options(tolerance=tolerance, budget=budget, workers=workers)
     base = config.model_copy(update={"sweep": None})
     _check_parameter(base, parameter)
     out = Path(out)
@@ -385,8 +401,6 @@ def locate(
     if tolerance is None:
         centre = analytic.value if analytic.converged else (lo + hi) / 2
         tolerance = 0.01 * abs(centre) if centre else 0.01 * (hi - lo)
-    if tolerance <= 0 or budget < 1:
-        raise ConfigError(f"--tolerance must be > 0 and --budget >= 1; got {tolerance!r}, {budget!r}")
     diffusion = diffusion_threshold(base, parameter, bracket=(lo, hi))
     theta0 = diffusion if math.isfinite(diffusion) else (analytic.value if analytic.converged else (lo + hi) / 2)
     beta0 = _slope(base, parameter, theta0, hi - lo)
@@ -398,7 +412,7 @@ def locate(
     if resume:
         if not out.exists():
             raise ResultsError(f"nothing to resume: {str(out)!r} does not exist (run without --resume)")
-        stored = read_attrs(out)
+        stored = resumable_attrs(out)  # not a results file (not HDF5, truncated, empty): one line
         if "locate" not in stored:
             raise ResultsError(f"cannot resume {str(out)!r}: it was not written by locate")
         found = json.loads(stored["locate"])["parameter"]

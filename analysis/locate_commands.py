@@ -7,6 +7,8 @@ import json
 import shlex
 import sys
 
+from sim.arguments import positive, positive_number
+
 __all__ = ["register_locate", "register_locate_bench"]
 
 
@@ -70,14 +72,15 @@ def register_locate(sub) -> None:
     p.add_argument("--parameter", required=True, metavar="PATH", help="sweep path of the parameter")
     p.add_argument("--bracket", nargs=2, type=float, metavar=("LO", "HI"),
                    help="range searched (default: the analytic threshold +- 10%%)")
-    p.add_argument("--tolerance", type=float, default=None, metavar="T",
+    p.add_argument("--tolerance", type=positive_number, default=None, metavar="T",
                    help="stop at a 95%% interval half-width <= T (default: 1%% of the analytic threshold)")
-    p.add_argument("--budget", type=int, default=200_000, metavar="REPLICATES",
+    p.add_argument("--budget", type=positive, default=200_000, metavar="REPLICATES",
                    help="stop before using more replicates than this (default 200000)")
     p.add_argument("-o", "--output", required=True, help="results file to write (.h5)")
     p.add_argument("--resume", action="store_true", help="go on with an unfinished locate file")
     p.add_argument("--overwrite", action="store_true", help="replace an existing results file")
-    p.add_argument("--workers", type=int, default=None, metavar="N", help="local worker processes")
+    p.add_argument("--workers", type=positive, default=None, metavar="N",
+                   help="local worker processes (default: the cores this process may use)")
     p.add_argument("--json", action="store_true", help="print the result as JSON")
     p.set_defaults(func=cmd_locate)
 
@@ -111,6 +114,6 @@ def register_locate_bench(sub) -> None:
                    help="brackets: the analytic threshold +- F x itself (default 0.1 0.25)")
     p.add_argument("--seeds", type=int, default=10, metavar="N", help="locate runs (default 10)")
     p.add_argument("--grid-seeds", type=int, default=5, metavar="N", help="grid runs per bracket (default 5)")
-    p.add_argument("--workers", type=int, default=None, metavar="N", help="local worker processes")
+    p.add_argument("--workers", type=positive, default=None, metavar="N", help="local worker processes")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.set_defaults(func=cmd_locate_bench)

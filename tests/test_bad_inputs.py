@@ -259,6 +259,57 @@ def test_a_billion_replicates_are_planned_lazily(tmp_path):
         writer.release()
 
 
+# -- locate's options: refused at the command line, naming the option, before anything runs ------
+LOCATE_OPTIONS = [
+    (["--tolerance", "nan"], "argument --tolerance: must be a finite number; got nan"),
+    (["--tolerance", "inf"], "argument --tolerance: must be a finite number; got inf"),
+    (["--tolerance", "0"], "argument --tolerance: must be > 0; got 0"),
+    (["--budget", "0"], "argument --budget: must be >= 1; got 0"),
+    (["--workers", "0"], "argument --workers: must be >= 1; got 0"),
+    (["--workers", "-3"], "argument --workers: must be >= 1; got -3"),
+]
+
+
+@pytest.mark.parametrize("option, message", LOCATE_OPTIONS, ids=[" ".join(o) for o, _ in LOCATE_OPTIONS])
+def test_locate_refuses_a_bad_option_naming_it(tmp_path, capsys, option, message):
+    config = write_config(tmp_path)
+    out = tmp_path / "L.h5"
+    with pytest.raises(SystemExit) as stop:
+        main(["locate", str(config), "--parameter", "allele.one-shot.fecundity", "-o", str(out), *option])
+    assert stop.value.code == 2
+    err = capsys.readouterr().err
+    assert err.splitlines()[-1] == f"broodline locate: error: {message}"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["small.toml"]
+
+
+def test_locate_refuses_each_bad_setting_in_its_own_message(tmp_path):
+    from analysis.locate import locate
+
+    config = small_config().model_copy(update={"sweep": None})
+    with pytest.raises(ConfigError) as err:
+        locate(config, "allele.one-shot.fecundity", tmp_path / "L.h5", tolerance=float("nan"), budget=0,
+               workers=-3)
+    assert err.value.problems == ["tolerance must be a finite number > 0; got nan",
+                                  "budget must be a whole number >= 1; got 0",
+                                  "workers must be a whole number >= 1; got -3"]
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("damage", ["empty", "not-hdf5", "truncated"])
+def test_locate_resume_of_something_not_a_results_file_is_one_line(tmp_path, capsys, damage):
+    config = write_config(tmp_path)
+    out = tmp_path / "L.h5"
+    data = {"empty": b"", "not-hdf5": b"not a results file\n", "truncated": b"\x89HDF\r\n\x1a\n" + bytes(600)}
+    out.write_bytes(data[damage])
+    assert main(["locate", str(config), "--parameter", "allele.one-shot.fecundity", "-o", str(out),
+                 "--resume", "--workers", "1"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("error:") == 1 and "Traceback" not in err
+    assert f"broodline locate: error: cannot resume {str(out)!r}: " in err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["L.h5", "small.toml"]
+    assert out.read_bytes() == data[damage]
+
+
 # -- --cluster aimed at something that is not a dask scheduler: one line, no hang ---------------
 import socket  # noqa: E402
 import threading  # noqa: E402

@@ -6,27 +6,16 @@ table, and the command that finishes an interrupted run.
 
 from __future__ import annotations
 
-import argparse
 import logging
 import shlex
 import signal
 import sys
 
+from ..arguments import positive
 from ..errors import UserError
 
 __all__ = ["register", "add_run_options", "run_options", "run_from_command_line", "positive",
            "add_budget_option", "start_workers_soon"]
-
-
-def positive(text: str) -> int:
-    """argparse type: a whole number >= 1."""
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"must be a whole number; got {text!r}") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"must be >= 1; got {value}")
-    return value
 
 
 def add_run_options(parser) -> None:
