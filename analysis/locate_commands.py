@@ -14,6 +14,7 @@ __all__ = ["register_locate", "register_locate_bench"]
 
 def cmd_locate(args) -> int:
     from sim.config import load_config
+    from sim.outputs import check_output_file
     from sim.parallel import default_workers
 
     from .jsonable import jsonable
@@ -23,6 +24,7 @@ def cmd_locate(args) -> int:
         from sim.errors import UserError
 
         raise UserError("--resume goes on with the file and --overwrite starts it again: give one of the two")
+    check_output_file(args.output, inputs=[args.config])
     config = load_config(args.config)
     try:
         result = locate(

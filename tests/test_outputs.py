@@ -24,6 +24,7 @@ def _digest(path) -> str:
 
 @pytest.mark.parametrize("command", [
     ["run", "{config}", "-o", "{config}"],
+    ["locate", "{config}", "--parameter", "allele.one-shot.fecundity", "-o", "{config}"],
     ["report", "{results}", "-o", "{results}"],
     ["compare", "{results}", "--csv", "{results}"],
     ["export", "{results}", "--what", "points", "-o", "{results}"],
@@ -39,13 +40,14 @@ def test_an_output_that_is_the_input_is_refused_even_with_overwrite(results, com
 
 
 @pytest.mark.parametrize("command", [
+    ["locate", "{config}", "--parameter", "allele.one-shot.fecundity", "-o", "{folder}"],
     ["report", "{results}", "-o", "{folder}"],
     ["compare", "{results}", "--csv", "{folder}"],
     ["export", "{results}", "--what", "points", "-o", "{folder}"],
 ])
 def test_a_folder_given_as_an_output_file_is_named_as_such(results, command, tmp_path, capsys):
-    _, out = results
-    argv = [a.format(results=out, folder=tmp_path) for a in command] + ["--overwrite"]
+    config, out = results
+    argv = [a.format(config=config, results=out, folder=tmp_path) for a in command] + ["--overwrite"]
     assert main(argv) == 2
     assert f"{tmp_path}: is a folder; give the file to write" in capsys.readouterr().err
 
