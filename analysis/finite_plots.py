@@ -71,7 +71,8 @@ def draw_finite_curve(ax, config: Config, parameter: str, low: float, high: floa
     curve = finite_curve(config, parameter, low, high, resolution=resolution)
     solid = np.where(curve.valid, curve.fixation_probability, np.nan)
     dotted = np.where(~curve.valid, curve.fixation_probability, np.nan)
-    ax.plot(curve.x, solid, "-", color=color, lw=1.5, label=label)
+    if np.isfinite(solid).any():  # (a legend entry only for what is drawn)
+        ax.plot(curve.x, solid, "-", color=color, lw=1.5, label=label)
     if np.isfinite(dotted).any():
         ax.plot(curve.x, dotted, ":", color=color, lw=1.2, alpha=0.7,
                 label=f"{label}, outside its assumptions")

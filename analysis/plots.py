@@ -43,7 +43,7 @@ from .comparison import (  # noqa: E402
 )
 from .finite_plots import draw_finite_curve  # noqa: E402
 from .sweep import factor_of, numeric_sweep_paths, other_swept_paths  # noqa: E402
-from .thresholds import fitness_along, with_values  # noqa: E402
+from .thresholds import establishment_along, fitness_along, with_values  # noqa: E402
 from .varying_years import year_spans  # noqa: E402
 
 __all__ = [
@@ -197,17 +197,56 @@ def _legend_below(fig, ax, *, ncol: int = 2) -> None:
         )
 
 
-def _finite_curve(ax, config, xpath, at, x, colour, suffix) -> None:
-    """The finite-N fixation probability along the x axis (solid where valid), if it applies."""
+def _along_one_parameter(config, xpath, x) -> bool:
+    """Whether theory can be drawn as a curve along the x axis: one parameter (a linked group
+    moves several at once) in a constant environment (with year types the invasion fitness and
+    the establishment are the stochastic theory's, estimated by simulation at the sweep points
+    only, and no finite-N prediction exists; docs/environments.md)."""
     factor = factor_of(config, xpath) if xpath else None
-    if config.invasion is None or factor is None or factor.linked or len(x) < 2:
-        return  # a curve along one parameter; a linked group moves several at once
+    return (config.invasion is not None and config.environment is None and factor is not None
+            and not factor.linked and len(x) >= 2)
+
+
+def _finite_curve(ax, config, xpath, at, x, colour, suffix) -> float:
+    """The finite-N fixation probability along the x axis (solid where valid), if it applies;
+    returns its highest value drawn (nan: none)."""
+    if not _along_one_parameter(config, xpath, x):
+        return float("nan")
     try:
-        draw_finite_curve(ax, with_values(config, at) if at else config, xpath,
-                          float(np.nanmin(x)), float(np.nanmax(x)), color=colour,
-                          label=f"finite-N fixation probability (diffusion){suffix}")
+        curve = draw_finite_curve(ax, with_values(config, at) if at else config, xpath,
+                                  float(np.nanmin(x)), float(np.nanmax(x)), color=colour,
+                                  label=f"finite-N fixation probability (diffusion){suffix}")
     except (ValueError, ArithmeticError, NoEquilibriumError):
-        return  # no finite-N prediction here (e.g. no resident equilibrium): nothing to draw
+        return float("nan")  # no finite-N prediction here (e.g. no resident equilibrium): nothing to draw
+    u = curve.fixation_probability
+    return float(np.nanmax(u)) if np.isfinite(u).any() else float("nan")
+
+
+def _establishment(ax, config, xpath, at, x, sub, colour, suffix) -> float:
+    """The establishment probability: a curve on a fine grid where theory gives one along the
+    axis (straight lines between sweep points put it above 0 below the threshold), else the
+    sweep points' values as markers; returns its highest value drawn."""
+    label = f"establishment probability (branching process){suffix}"
+    if _along_one_parameter(config, xpath, x):
+        grid = np.linspace(float(np.nanmin(x)), float(np.nanmax(x)), _CURVE_POINTS)
+        values = establishment_along(with_values(config, at) if at else config, xpath, grid)
+        ax.plot(grid, values, "-.", color=colour, alpha=0.85, lw=1.4, label=label)
+    else:
+        values = sub["establishment_probability"].to_numpy(float)
+        ax.plot(x, values, "x", color=colour, ms=7, label=label)
+    return float(np.nanmax(values)) if np.isfinite(values).any() else float("nan")
+
+
+_CURVE_POINTS = 120  # values of the swept parameter where a theory curve is computed
+
+
+def _replacement_line(ax, row, colour, suffix) -> None:
+    """With year types and density dependence: where the resident stops invading back (between
+    it and the invasion threshold the two coexist), if ``compare`` found one."""
+    value = row.get("replacement", float("nan"))
+    if value is not None and np.isfinite(value):
+        ax.axvline(value, color=colour, ls="-.", lw=1,
+                   label=f"replacement threshold {_number(value)} (the resident invades back below it){suffix}")
 
 
 def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
@@ -216,7 +255,7 @@ def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
     fig, ax = plt.subplots(figsize=(8, 6))
     colours = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#56B4E9", "#E69F00"]
     groups = _groups(table, config, xpath)
-    spans = []
+    spans, highest = [], []
     for g, (at, label, sub) in enumerate(groups):
         colour = colours[g % len(colours)]
         sub = sub.sort_values(xpath or "point")
@@ -226,23 +265,24 @@ def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
         err = np.vstack([y - sub["fixed_low"].to_numpy(float), sub["fixed_high"].to_numpy(float) - y])
         ax.errorbar(x, y, yerr=err, fmt="o", color=colour, capsize=3, zorder=3,
                     label=f"observed fixation, 95% Wilson interval{suffix}")
-        ax.plot(x, sub["establishment_probability"], "-", color=colour, alpha=0.8,
-                label=f"establishment probability (branching process){suffix}")
+        highest.append(_establishment(ax, config, xpath, at, x, sub, colour, suffix))
         ax.plot(x, sub["neutral_expectation"], ":", color=colour, lw=2.0,
                 label=f"neutral expectation{suffix}")
-        _finite_curve(ax, config, xpath, at, x, colour, suffix)
+        highest.append(_finite_curve(ax, config, xpath, at, x, colour, suffix))
         for _, row in thresholds.iterrows():
             if row["parameter"] != xpath or not _same(at, row["at"]):
                 continue
             if np.isfinite(row["analytic"]):
                 ax.axvline(row["analytic"], color=colour if label else "black", ls="--", lw=1,
                            label=f"analytic threshold {_number(row['analytic'])}{suffix}")
+            _replacement_line(ax, row, colour if label else "black", suffix)
             if np.isfinite(row["observed"]) or np.isfinite(row["observed_low"]) or np.isfinite(
                 row["observed_high"]
             ):
                 spans.append((row, colour if label else "grey", suffix))
     ymax = float(np.nanmax(np.r_[table["fixed_high"].to_numpy(float),
-                                 table["establishment_probability"].to_numpy(float), 0.05]))
+                                 table["establishment_probability"].to_numpy(float), highest, 0.05]))
+    ymax = min(ymax, 1.0)
     # room below 0 so that a neutral line near 0 stands clear of the axis
     ax.set_ylim(-0.04 * ymax, ymax * 1.08)
     for row, colour, suffix in spans:  # after the data, so open bounds reach the axis ends
@@ -498,14 +538,21 @@ def fitness_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config, *, res
     fig, ax = plt.subplots(figsize=(8, 5))
     colours = ["#0072B2", "#D55E00", "#009E73", "#CC79A7", "#56B4E9", "#E69F00"]
     groups = _groups(table, config, xpath)
+    varying = config.environment is not None
     for g, (at, label, sub) in enumerate(groups[:6] if xpath is not None else []):
+        suffix = f" ({label})" if label else ""
+        colour = colours[g % len(colours)]
+        xs = sub[xpath].to_numpy(float)
+        if varying:  # the stochastic theory's estimates at the sweep points, with their SE
+            se = sub["invasion_fitness_se"].to_numpy(float) if "invasion_fitness_se" in sub else None
+            ax.errorbar(xs, sub["invasion_fitness"], yerr=se, fmt="o", color=colour, capsize=3,
+                        label=f"sweep points, stochastic theory (+- 1 SE){suffix}")
+            continue
         grid = np.linspace(x.min(), x.max(), resolution if len(groups) == 1 else resolution // 2)
         base = with_values(config, at) if at else config
-        suffix = f" ({label})" if label else ""
-        ax.plot(grid, fitness_along(base, xpath, grid), "-", color=colours[g % len(colours)],
+        ax.plot(grid, fitness_along(base, xpath, grid), "-", color=colour,
                 label=f"invasion fitness (theory){suffix}")
-        ax.plot(sub[xpath].to_numpy(float), sub["invasion_fitness"], "o", color=colours[g % len(colours)],
-                label=f"sweep points{suffix}")
+        ax.plot(xs, sub["invasion_fitness"], "o", color=colour, label=f"sweep points{suffix}")
     if xpath is None:
         ax.plot(x, table["invasion_fitness"], "o", color="#0072B2", label="sweep points")
     ax.axhline(1.0, color="black", lw=1, label="invasion fitness 1 (neutral)")
@@ -517,9 +564,11 @@ def fitness_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config, *, res
                 continue
             drawn.add(value)
             ax.axvline(row["analytic"], color="black", ls="--", lw=1, label=f"analytic threshold {value:g}")
+            _replacement_line(ax, row, "black", "")
     _label_x(ax, xpath)
     ax.set_ylabel("invasion fitness of the mutant")
-    ax.set_title("Mutant's growth rate in the resident's equilibrium environment")
+    ax.set_title("Mutant's long-run growth in the resident's fluctuating environment (stochastic theory)"
+                 if varying else "Mutant's growth rate in the resident's equilibrium environment")
     ax.grid(alpha=0.3)
     _legend_below(fig, ax)
     fig.tight_layout()

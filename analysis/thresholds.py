@@ -28,7 +28,7 @@ from sim.meanfield import NoEquilibriumError
 
 from .invasion import invasion_fitness
 
-__all__ = ["ThresholdResult", "with_values", "parameter_value", "fitness_along", "threshold"]
+__all__ = ["ThresholdResult", "with_values", "parameter_value", "fitness_along", "establishment_along", "threshold"]
 
 _GRID = 64  # intervals scanned for sign changes before the root is polished
 _MAX_UPPER = 1e6  # an open-ended bracket is extended geometrically up to here
@@ -148,11 +148,22 @@ def fitness_along(config: Config, parameter: str, values, *, group: SweepFactor 
     With ``group`` (a linked sweep factor whose axis is ``parameter``), the
     other members move with it (``SweepFactor.along``).
     """
+    return _along(config, parameter, values, group, invasion_fitness)
+
+
+def establishment_along(config: Config, parameter: str, values, *, group: SweepFactor | None = None
+                        ) -> np.ndarray:
+    """The introduced mutants' establishment probability (branching process) at each value of
+    ``parameter`` (nan: no resident equilibrium); ``group`` as in ``fitness_along``."""
+    from .invasion import predict
+
+    return _along(config, parameter, values, group, lambda point: predict(point).establishment_probability)
+
+
+def _along(config: Config, parameter: str, values, group, quantity) -> np.ndarray:
     base = config.model_copy(update={"sweep": None})
-    out = np.empty(len(values))
-    for i, v in enumerate(values):
-        out[i] = _fitness(base, _setting(parameter, group), float(v))
-    return out
+    setting = _setting(parameter, group)
+    return np.array([_at(base, setting, float(v), quantity) for v in values], dtype=float)
 
 
 def _setting(parameter: str, group: SweepFactor | None):
@@ -162,11 +173,12 @@ def _setting(parameter: str, group: SweepFactor | None):
     return group.along
 
 
-def _fitness(base: Config, setting, value: float) -> float:
+def _at(base: Config, setting, value: float, quantity=invasion_fitness) -> float:
+    """``quantity`` (of a point config) where ``setting(value)`` is set; nan without equilibrium."""
     sweep = {path: [v] for path, v in setting(value).items()}
     point = sweep_points(base.model_copy(update={"sweep": sweep}))[0].config  # checked as a point
     try:
-        return invasion_fitness(point)
+        return float(quantity(point))
     except NoEquilibriumError:
         return float("nan")
 
@@ -254,7 +266,7 @@ def threshold(
     base = config.model_copy(update={"sweep": None})
 
     def excess(v):
-        return _fitness(base, setting, v) - 1.0
+        return _at(base, setting, v) - 1.0
 
     while True:
         grid = np.linspace(lo, hi, _GRID + 1)

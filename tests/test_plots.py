@@ -199,3 +199,61 @@ def test_trajectories_without_years_shade_nothing(results):
     assert not any(_year_patches(ax) for ax in fig.axes)
     assert "shaded" not in fig.legends[0].get_title().get_text()
     plt.close(fig)
+
+
+def _line(ax, label):
+    found = [line for line in ax.get_lines() if line.get_label() == label]
+    assert len(found) == 1, [line.get_label() for line in ax.get_lines()]
+    return found[0]
+
+
+def test_establishment_is_drawn_as_theory_along_the_axis_zero_below_the_threshold(results):
+    # A subcritical branching process dies out with probability 1 (Harris 1963, ch. 1, from memory;
+    # common practice): below the threshold (B_s = 4 here, Mylius & Diekmann 1995) the curve must be 0,
+    # where straight lines between sweep points (3.5 and 4.5) rose above it; above it, the
+    # curve's values are analysis.predict's at the same fecundities.
+    from analysis import predict
+    from analysis.thresholds import with_values
+
+    config = experiment_config(results)
+    table = compare(results)
+    fig = fixation_figure(table, compare_thresholds(results, table), config)
+    line = _line(fig.axes[0], "establishment probability (branching process)")
+    x, y = line.get_xdata(), line.get_ydata()
+    assert len(x) > 100 and line.get_linestyle() == "-."
+    assert np.all(y[x < 4.0 - 1e-9] == 0.0) and np.all(y[x > 4.0 + 1e-6] > 0)
+    base = config.model_copy(update={"sweep": None})
+    for i in (len(x) // 2, len(x) - 1):
+        expected = predict(with_values(base, {"allele.one-shot.fecundity": float(x[i])})).establishment_probability
+        assert y[i] == pytest.approx(expected, rel=1e-12)
+    # the finite-N curve is named in the legend only for the parts drawn
+    labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+    for text in labels:
+        if text.startswith("finite-N"):
+            assert any(line.get_label() == text for line in fig.axes[0].get_lines())
+    plt.close(fig)
+
+
+def test_with_year_types_no_constant_environment_theory_is_drawn(tmp_path):
+    # the stochastic theory is estimated at the sweep points only and no finite-N prediction
+    # exists for random years (docs/environments.md): a curve of the constant-year theory,
+    # crossing 1 elsewhere than the stochastic threshold, contradicted it
+    path = tmp_path / "years.h5"
+    run_experiment(wet_and_dry(replicates=8, seed=5, capacity=30.0, max_steps=400,
+                               sweep={"allele.one-shot.fecundity": [3.0, 5.0, 7.0]}), path, progress=False)
+    config, table = experiment_config(path), compare(path)
+    thresholds = compare_thresholds(path, table)
+    fig = fixation_figure(table, thresholds, config)
+    ax = fig.axes[0]
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert not any(t.startswith("finite-N") for t in labels)
+    marks = _line(ax, "establishment probability (branching process)")
+    assert marks.get_linestyle() == "None" and len(marks.get_xdata()) == 3  # the sweep points' estimates
+    plt.close(fig)
+    fig = fitness_figure(table, thresholds, config)
+    ax = fig.axes[0]
+    assert "stochastic theory" in ax.get_title()
+    assert not any(line.get_label().startswith("invasion fitness (theory)") for line in ax.get_lines())
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert any(t.startswith("sweep points, stochastic theory") for t in labels)
+    plt.close(fig)
