@@ -61,7 +61,10 @@ class InvasibilityOutput:
 
 def _mark_singular(ax, analysis: AdaptiveAnalysis, y_of) -> None:
     seen = set()
+    e = analysis.invasibility.efforts
     for s in analysis.singular:
+        if not e[0] - 1e-9 <= s.effort <= e[-1] + 1e-9:
+            continue  # outside the efforts drawn (and computed)
         marker, colour = _MARKERS[s.kind]
         label = None if s.kind in seen else s.kind
         seen.add(s.kind)
@@ -82,10 +85,12 @@ def invasibility_figure(analysis: AdaptiveAnalysis):
         if status in _HATCHES:
             colour = _HATCHES[status][0]
             ax.axvspan(edges[i], edges[i + 1], facecolor="none", edgecolor=colour, hatch="//", linewidth=0)
-    ax.plot([0, 1], [0, 1], color="black", linewidth=1)
+    ax.plot([edges[0], edges[-1]], [edges[0], edges[-1]], color="black", linewidth=1)
     _mark_singular(ax, analysis, lambda x: x)
-    ax.set_xlim(0, 1)
-    ax.set_ylim(0, 1)
+    # the efforts computed, not all of [0, 1]: a band left white outside the grid read as "does
+    # not invade" (a [trait] grid from 0.05)
+    ax.set_xlim(edges[0], edges[-1])
+    ax.set_ylim(edges[0], edges[-1])
     ax.set_aspect("equal")
     ax.set_xlabel("resident effort (share put into breeding)")
     ax.set_ylabel("mutant effort (share put into breeding)")
@@ -109,7 +114,7 @@ def gradient_figure(analysis: AdaptiveAnalysis):
     ax.axhline(0.0, color="0.5", linewidth=1)
     ax.plot(e[shown], d[shown], color="tab:blue", label="selection gradient")
     _mark_singular(ax, analysis, lambda x: 0.0)
-    ax.set_xlim(0, 1)
+    ax.set_xlim(e[0], e[-1])
     ax.set_xlabel("resident effort (share put into breeding)")
     ax.set_ylabel("selection gradient (d fitness / d mutant effort)")
     ax.set_title("Selection gradient along the diagonal: effort rises where it is above 0")

@@ -472,7 +472,10 @@ def trajectory_figure(path, table: pd.DataFrame, config, *, per_point: int = 8, 
         bottom.grid(alpha=0.3)
         bottom.set_xlabel("season", fontsize=8)
         bottom.xaxis.set_major_locator(MaxNLocator(integer=True))
-        bottom.set_ylim(bottom=0)
+        if len(traj):  # room above the highest census: a census held at a ceiling ran along the frame
+            bottom.set_ylim(0, 1.1 * float(traj.groupby(["replicate", "step"])["count"].sum().max()) or 1.0)
+        else:
+            bottom.set_ylim(bottom=0)
         if len(traj) and traj.groupby(["replicate", "step"])["count"].sum().max() > 50 * max(
             1.0, float(traj[traj["step"] == 0].groupby("replicate")["count"].sum().max())
         ):

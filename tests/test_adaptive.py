@@ -270,6 +270,25 @@ def test_invasibility_writes_figures_table_and_json(tmp_path):
     np.testing.assert_allclose(np.array(full["invasion_fitness"], float), table[:, 1:], rtol=1e-10)
 
 
+def test_the_invasibility_plot_spans_the_efforts_computed():
+    # a grid from 0.05 (a [trait] grid) left a white band below it, read as "does not invade";
+    # a singular effort outside the grid (E = 0, not viable) is not drawn outside the axes
+    import matplotlib.pyplot as plt
+
+    from analysis.adaptive import analyse_effort
+    from analysis.invasibility import invasibility_figure
+
+    model = EffortModel(CONCAVE, C, 1, dd("beverton-holt", "recruitment"))
+    analysis = analyse_effort(model, grid=np.linspace(0.05, 1.0, 20))
+    fig = invasibility_figure(analysis)
+    ax = fig.axes[0]
+    assert ax.get_xlim() == pytest.approx((0.05, 1.0)) and ax.get_ylim() == pytest.approx((0.05, 1.0))
+    drawn = [x for line in ax.get_lines() if line.get_marker() not in ("None", None, "")
+             for x in line.get_xdata()]
+    assert drawn and all(0.05 - 1e-9 <= x <= 1.0 + 1e-9 for x in drawn)
+    plt.close(fig)
+
+
 @pytest.mark.parametrize(
     "build, error, match",
     [

@@ -194,6 +194,15 @@ def test_trajectories_shade_the_bad_years_of_the_shown_replicate(tmp_path, share
         plt.close(fig)
 
 
+def test_census_panels_leave_room_above_the_highest_census(results):
+    # a census held at a ceiling ran along the panel's top frame and read as an empty panel
+    fig = trajectory_figure(results, compare(results), experiment_config(results))
+    for ax in fig.axes[len(fig.axes) // 2:]:  # the census row
+        highest = max((line.get_ydata().max() for line in ax.get_lines()), default=0)
+        assert highest > 0 and ax.get_ylim()[1] >= 1.09 * highest
+    plt.close(fig)
+
+
 def test_trajectories_without_years_shade_nothing(results):
     fig = trajectory_figure(results, compare(results), experiment_config(results))
     assert not any(_year_patches(ax) for ax in fig.axes)
