@@ -525,9 +525,11 @@ def observed_threshold(
         )
         if gap > width:
             add = suggest_points(*neighbours, min(5, max(1, int(np.ceil(gap / width)) - 1)))
+            wide = ("the interval is wide" if np.isfinite(low) and np.isfinite(high)
+                    else "the interval's part within the swept range is wide")  # an open bound
             message += (
                 f"; the sweep points next to it ({neighbours[0]:g} and {neighbours[1]:g}) are "
-                "further apart than the interval is wide, so it rests on the fitted curve's "
+                f"further apart than {wide}, so it rests on the fitted curve's "
                 f"shape between them: add sweep points between {neighbours[0]:g} and "
                 f"{neighbours[1]:g} (e.g. {', '.join(f'{v:g}' for v in add)})"
             )

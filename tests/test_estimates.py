@@ -123,6 +123,9 @@ def test_cinderwort_spacing_is_flagged():
     low = res.low if np.isfinite(res.low) else -np.inf
     assert low <= 12.5333 <= res.high
     assert "add sweep points" in res.message and "between 12 and 16" in res.message
+    # the interval is open below (beyond the range): its part inside the range is what is compared
+    assert not np.isfinite(res.low)
+    assert "further apart than the interval's part within the swept range is wide" in res.message
 
 
 def test_too_far_apart_points_are_named():
@@ -135,6 +138,7 @@ def test_too_far_apart_points_are_named():
     assert res.neighbours == (3.0, 6.0)
     assert res.add_points and all(3.0 < v < 6.0 for v in res.add_points)
     assert "add sweep points between 3 and 6" in res.message
+    assert "further apart than the interval is wide" in res.message
 
 
 def test_observed_threshold_open_and_missing():
