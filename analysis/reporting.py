@@ -1,4 +1,8 @@
-"""A self-contained HTML report of an invasion experiment (figures embedded as base64 PNG)."""
+"""A self-contained HTML report of a results file (figures embedded as base64 PNG).
+
+An invasion experiment is compared with the invasion theory (the stochastic one
+where years vary, ``[environment]``); any other run gets its outcomes.
+"""
 
 from __future__ import annotations
 
@@ -13,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from sim.config import sweep_factors, swept_paths, swept_values
+from sim.describe import describe_environment
 from sim.store import read_attrs, read_points, read_replicates
 
 from .comparison import (
@@ -26,7 +31,7 @@ from .comparison import (
     incomplete_message,
     warn_if_incomplete,
 )
-from .plots import plot
+from .plots import parameter_words, plot
 
 __all__ = ["CAUTIONS", "report", "describe_allele", "verdict_text"]
 
@@ -44,6 +49,19 @@ _LIMITS = (
     "inconclusive, and small populations can depart from the prediction."
 )
 
+_LIMITS_IN_YEARS = (
+    "The theory assumes an infinite resident following its mean-field dynamics through the "
+    "years (it has no fixed equilibrium when years vary), years independent of the population, "
+    "and mutants rare enough not to change the resident; its long-run growth rates are time "
+    "averages over a finite number of simulated years, with the standard errors they report. "
+    "Between the invasion threshold and the replacement threshold (where the resident invades "
+    "back) the two alleles invade each other and a point there has no prediction. Finite "
+    "populations drift: near a threshold, observed fixation falls between the neutral "
+    "expectation and the establishment probability, points there are expected to be "
+    "inconclusive, and small populations can depart from the prediction (no finite-population "
+    "prediction exists yet for random years)."
+)
+
 _COUNTED = {
     "census": "everyone at the census",
     "breeders": "the breeders",
@@ -56,9 +74,10 @@ body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; max-width:
 h1 { font-size: 1.6em; } h2 { font-size: 1.25em; margin-top: 1.6em; border-bottom: 1px solid #ddd; }
 table { border-collapse: collapse; font-size: 0.8em; margin: 0.8em 0; }
 th, td { border: 1px solid #ccc; padding: 0.2em 0.35em; text-align: right; }
-th { background: #f2f2f2; } td.text { text-align: left; white-space: nowrap; }
+th { background: #f2f2f2; } td.text { text-align: left; }
 td.agrees { background: #e3f4e3; } td.disagrees { background: #f8dcdc; }
 td.inconclusive { background: #f6f1dc; }
+td.agrees, td.disagrees, td.inconclusive { white-space: nowrap; }
 div.scroll { overflow-x: auto; }
 figure { margin: 1em 0; } figure img { max-width: 100%; border: 1px solid #eee; }
 figcaption { font-size: 0.9em; color: #555; }
@@ -72,29 +91,87 @@ def _g(v) -> str:
     return f"{v:g}" if isinstance(v, (int, float)) else html.escape(str(v))
 
 
-def describe_allele(a) -> str:
-    """One allele's schedule in words (from its config section)."""
+def _care_words(a) -> str:
+    """An allele's parental effects in words (``orphan_survival``, ``brood_effect``); "" without."""
+    out = []
+    orphan = getattr(a, "orphan_survival", None)
+    if orphan is not None and a.breeding == "semelparous":
+        out.append(f"its young are all orphaned and survive {_g(orphan)} (orphan survival)")
+    elif orphan is not None:
+        out.append(f"young whose parent survives the season survive {_g(a.juvenile_survival)} "
+                   f"(parental care), orphans {_g(orphan)}")
+    if getattr(a, "brood_effect", "none") == "exponential" and getattr(a, "brood_scale", None) is not None:
+        out.append(f"in a brood of b, each young's survival is multiplied by exp(-(b - 1) / "
+                   f"{_g(a.brood_scale)}): larger broods, less per head")
+    return "; " + "; ".join(out) if out else ""
+
+
+def _tradeoff_words(tradeoff) -> str:
+    """The effort trade-off's two curves, as formulas in words."""
+    if tradeoff is None:
+        return "on the [tradeoff] curve"
+    t = tradeoff
+    return (
+        f"on the trade-off fecundity B(E) = {_g(t.max_fecundity)} E^{_g(t.fecundity_shape)} and "
+        f"survival of a breeder P(E) = {_g(t.max_adult_survival)} (1 - E)^{_g(t.survival_shape)}"
+    )
+
+
+def describe_allele(a, tradeoff=None) -> str:
+    """One allele's schedule in words (from its config section), with its parental effects.
+
+    ``tradeoff`` (the config's ``[tradeoff]``) spells out an effort allele's curves.
+    """
+    care = _care_words(a)
     if a.breeding == "table":
         return (
             f"an age table: fecundity {_g(a.fecundity)} and survival {_g(a.adult_survival)} by "
-            f"census age, juvenile survival {_g(a.juvenile_survival)}"
+            f"census age, juvenile survival {_g(a.juvenile_survival)}{care}"
+        )
+    if a.breeding == "effort":
+        return (
+            f"reproductive effort E = {_g(a.effort)}: each season from age {a.maturity_age} it puts "
+            f"that share of its resources into breeding, {_tradeoff_words(tradeoff)} (E = 1 breeds "
+            f"once); juvenile survival {_g(a.juvenile_survival)}{care}"
         )
     if a.breeding == "semelparous":
         at = f" at age {a.maturity_age}" if a.maturity_age > 1 else " at age 1"
         return (
             f"semelparous: breeds once{at} with mean fecundity {_g(a.fecundity)}, then dies; "
-            f"juvenile survival {_g(a.juvenile_survival)}"
+            f"juvenile survival {_g(a.juvenile_survival)}{care}"
         )
     at = f" from age {a.maturity_age}"
     return (
         f"iteroparous: breeds every season{at} with mean fecundity {_g(a.fecundity)}, adult "
-        f"survival {_g(a.adult_survival)}, juvenile survival {_g(a.juvenile_survival)}"
+        f"survival {_g(a.adult_survival)}, juvenile survival {_g(a.juvenile_survival)}{care}"
     )
 
 
 # config words as prose spells them (the names of published laws capitalised)
 _PROSE = {"beverton-holt": "Beverton-Holt", "ricker": "Ricker", "poisson": "Poisson",
           "negative-binomial": "negative binomial"}
+
+
+# where density dependence acts (``density.acts_on``), in words
+_PLACEMENT_WORDS = {
+    "recruitment": "recruitment (the survival of young to age 1)",
+    "fecundity": "fecundity",
+    "adult-survival": "adult survival",
+    "all-survival": "all survival (adults' and young's)",
+}
+
+
+def _path_words(path: str) -> str:
+    """A config path in words (as the figures label it), the path itself on hover."""
+    return f'<span title="{html.escape(path)}">{html.escape(parameter_words(path))}</span>'
+
+
+def _plain_paths(text: str, config) -> str:
+    """Escaped ``text`` with every swept config path in it replaced by its words."""
+    out = html.escape(text)
+    for path in sorted(swept_paths(config) if config is not None else [], key=len, reverse=True):
+        out = out.replace(html.escape(path), _path_words(path))
+    return out
 
 
 def _density_words(config) -> str:
@@ -105,7 +182,8 @@ def _density_words(config) -> str:
     k = f"capacity K swept over {', '.join(_g(v) for v in swept)}" if swept else f"capacity K = {d.capacity:g}"
     return (
         f"{_PROSE.get(d.form, d.form)} density dependence with {k}, acting on "
-        f"{d.placement}, the density index counting {_COUNTED[d.counted]}"
+        f"{_PLACEMENT_WORDS.get(d.placement, d.placement)}, the density index counting "
+        f"{_COUNTED[d.counted]}"
     )
 
 
@@ -115,11 +193,23 @@ def _sweep_words(config) -> str:
     return (
         " The experiment sweeps "
         + "; ".join(
-            f"<code>{html.escape(k)}</code> over {', '.join(_g(x) for x in v)}"
+            f"the {_path_words(k)} over {', '.join(_g(x) for x in v)}"
             for f in sweep_factors(config)
             for k, v in f.values.items()
         )
         + "."
+    )
+
+
+def _environment_text(config) -> str:
+    """The year types in words (as ``broodline check`` says them); "" in a constant environment."""
+    if config.environment is None:
+        return ""
+    return (
+        "<p>Years vary: each season is a year of one of several types, and a year multiplies "
+        "every allele's fecundity, adult survival and juvenile survival by its own factors (1 "
+        "where none is given) before density dependence acts. The environment: "
+        f"{html.escape(describe_environment(config))}.</p>"
     )
 
 
@@ -139,25 +229,59 @@ def _experiment_text(config) -> str:
     stop = "until one allele is left" if exp.stop == "fixation" else "for a fixed number of seasons"
     return (
         f"<p>A resident <b>{html.escape(inv.resident)}</b> "
-        f"({describe_allele(alleles[inv.resident])}) "
+        f"({describe_allele(alleles[inv.resident], config.tradeoff)}) "
         f"starts {start}. Into it, {inv.mutant_count} mutant"
         f"{'s' if inv.mutant_count > 1 else ''} <b>{html.escape(inv.mutant)}</b> "
-        f"({describe_allele(alleles[inv.mutant])}) {'are' if inv.mutant_count > 1 else 'is'} "
+        f"({describe_allele(alleles[inv.mutant], config.tradeoff)}) {'are' if inv.mutant_count > 1 else 'is'} "
         f"introduced at age 1. The population has {density}; offspring numbers are {offspring}."
-        f"{sweep}</p><p>Each sweep point was run {exp.replicates} times ({exp.engine} engine), "
+        f"{sweep}</p>{_environment_text(config)}"
+        f"<p>Each sweep point was run {exp.replicates} times ({exp.engine} engine), "
         f"{stop}, at most {exp.max_steps} seasons, from seed {exp.seed}.</p>"
     )
 
 
+_CONSTANT_THEORY = (
+    "<p>A rare mutant invades when its invasion fitness, the dominant eigenvalue of its "
+    "projection matrix in the resident's equilibrium environment, exceeds 1 (Metz, Nisbet "
+    "&amp; Geritz 1992). Where it invades, the chance that the introduced mutants escape "
+    "early loss is the survival probability of their branching process; where it does "
+    "not, it should fix less often than a neutral allele, whose chance is its share of "
+    "reproductive value.</p>"
+)
+_STOCHASTIC_THEORY = (
+    "<p>The years vary, so the prediction is the stochastic theory's. A rare mutant invades "
+    "when its invasion fitness exceeds 1: exp of its long-run growth rate (Lyapunov exponent) "
+    "in the resident's fluctuating environment, the resident following its mean-field dynamics "
+    "through the years (Metz, Nisbet &amp; Geritz 1992; Ferriere &amp; Gatto 1995); without "
+    "density dependence, exp of the difference of the two alleles' stochastic growth rates "
+    "(Tuljapurkar 1990). The chance that the introduced mutants escape early loss is the "
+    "survival probability of their branching process in random years; a neutral allele's chance "
+    "is its mean share of the random environment's reproductive values. Each is a time average "
+    "over simulated years (the same years for every sweep point), with a standard error.</p>"
+    "<p>With density dependence the roles are also swapped on the same years: the replacement "
+    "threshold is where the resident, rare, stops invading the mutant back. Between the invasion "
+    "and the replacement thresholds each invades the other, a point there has no prediction, and "
+    "a large population fixes the mutant more often than a neutral allele only past the "
+    "replacement threshold.</p>"
+)
+
+
+def _threshold_item(r, config) -> str:
+    """One analytic threshold of ``compare_thresholds`` in words (swept paths as words)."""
+    at = json.loads(r.at) if isinstance(r.at, str) else {}
+    where = f" (with {_at_text(at)})" if at else ""
+    # with density dependence in varying years the message also names the replacement threshold
+    return f"<li>{_plain_paths(r.analytic_message, config)}{where}</li>"
+
+
+def _at_text(at: dict) -> str:
+    return html.escape(", ").join(
+        f"{_path_words(k)} = {_g(v)}" for k, v in at.items()
+    )
+
+
 def _prediction_text(table: pd.DataFrame, thresholds: pd.DataFrame, config) -> str:
-    parts = [
-        "<p>A rare mutant invades when its invasion fitness, the dominant eigenvalue of its "
-        "projection matrix in the resident's equilibrium environment, exceeds 1 (Metz, Nisbet "
-        "&amp; Geritz 1992). Where it invades, the chance that the introduced mutants escape "
-        "early loss is the survival probability of their branching process; where it does "
-        "not, it should fix less often than a neutral allele, whose chance is its share of "
-        "reproductive value.</p>"
-    ]
+    parts = [_STOCHASTIC_THEORY if config.environment is not None else _CONSTANT_THEORY]
     if config.density.form == "none":
         parts.append(
             "<p>Without density dependence the resident has no equilibrium: the invasion "
@@ -171,12 +295,9 @@ def _prediction_text(table: pd.DataFrame, thresholds: pd.DataFrame, config) -> s
             + ".</p>"
         )
     if len(thresholds):
-        items = "".join(
-            f"<li>{html.escape(r.analytic_message)}"
-            f"{' (with ' + html.escape(r.at) + ')' if r.at != '{}' else ''}</li>"
-            for r in thresholds.itertuples()
-        )
-        parts.append(f"<p>Analytic thresholds:</p><ul>{items}</ul>")
+        items = "".join(_threshold_item(r, config) for r in thresholds.itertuples())
+        head = "Thresholds of the stochastic theory" if config.environment is not None else "Analytic thresholds"
+        parts.append(f"<p>{head}:</p><ul>{items}</ul>")
     return "".join(parts)
 
 
@@ -217,9 +338,12 @@ def verdict_text(table: pd.DataFrame, thresholds: pd.DataFrame, config=None) -> 
             f"Points that disagree: {bad}. Look at their replicates, the number of "
             "replicates and the population size before drawing conclusions."
         )
+    theory = "stochastic invasion" if config is not None and config.environment is not None else "analytic"
     for r in thresholds.itertuples():
         at = json.loads(r.at)
-        where = f" (at {html.escape(', '.join(f'{k} = {v:g}' for k, v in at.items()))})" if at else ""
+        where = f" (at {_at_text(at)})" if at else ""
+        along = _path_words(r.parameter) if config is None or r.parameter in swept_paths(config) \
+            else html.escape(r.parameter)
         if np.isfinite(r.analytic) and (np.isfinite(r.observed_low) or np.isfinite(r.observed_high)
                                         or np.isfinite(r.observed)):
             inside = "lies inside" if r.analytic_in_interval else "lies outside"
@@ -229,27 +353,46 @@ def verdict_text(table: pd.DataFrame, thresholds: pd.DataFrame, config=None) -> 
                         "stops invading back; the two coexist in between) "
                         f"{'lies inside' if r.replacement_in_interval else 'lies outside'} it.")
             words.append(
-                f"Along <code>{html.escape(r.parameter)}</code>{where}: "
-                f"{html.escape(r.observed_message)}. The analytic threshold "
+                f"Along the {along}{where}: "
+                f"{_plain_paths(r.observed_message, config)}. The {theory} threshold "
                 f"{float(f'{r.analytic:.4g}'):g} {inside} that interval.{back}"
             )
         else:
             words.append(
-                f"Along <code>{html.escape(r.parameter)}</code>{where}: "
-                f"{html.escape(r.observed_message)}; {html.escape(r.analytic_message)}."
+                f"Along the {along}{where}: "
+                f"{_plain_paths(r.observed_message, config)}; {_plain_paths(r.analytic_message, config)}."
             )
     return " ".join(words)
 
 
+def _header(c: str, swept: list[str]) -> str:
+    if c in swept:
+        return _path_words(c)
+    return html.escape(c.replace("_", " "))
+
+
+def _reasons_html(table: pd.DataFrame) -> str:
+    """Why each point got its agreement, under the table (one line per agreement and reason)."""
+    if "reason" not in table:
+        return ""
+    items = []
+    for (agreement, reason), rows in table.groupby(["agreement", "reason"], sort=False):
+        points = rows["point"].tolist()
+        which = ("Point " if len(points) == 1 else "Points ") + ", ".join(str(p) for p in points)
+        items.append(f"<li>{which}: {html.escape(str(agreement))}, {html.escape(str(reason))}.</li>")
+    return f'<p>Why each point agrees or not:</p><ul class="reasons">{"".join(items)}</ul>'
+
+
 def _table_html(table: pd.DataFrame, swept: list[str]) -> str:
-    cols = ["point", *swept, *SHOWN_COLUMNS, "reason"]
-    head = "".join(f"<th>{html.escape(c.replace('_', ' '))}</th>" for c in cols)
+    """The results table, narrow enough for the page; the reasons follow it as a list."""
+    cols = ["point", *swept, *SHOWN_COLUMNS]
+    head = "".join(f"<th>{_header(c, swept)}</th>" for c in cols)
     rows = []
     for _, r in table.iterrows():
         cells = []
         for c in cols:
             v = r[c]
-            if c in ("verdict", "agreement", "reason"):
+            if c in ("verdict", "agreement"):
                 cls = f"text {v}" if c == "agreement" else "text"
                 cells.append(f'<td class="{cls}">{html.escape(str(v))}</td>')
             elif isinstance(v, (float, np.floating)):
@@ -259,7 +402,7 @@ def _table_html(table: pd.DataFrame, swept: list[str]) -> str:
         rows.append("<tr>" + "".join(cells) + "</tr>")
     return (
         f'<div class="scroll"><table><thead><tr>{head}</tr></thead>'
-        f"<tbody>{''.join(rows)}</tbody></table></div>"
+        f"<tbody>{''.join(rows)}</tbody></table></div>" + _reasons_html(table)
     )
 
 
@@ -292,9 +435,9 @@ def _figures_html(path, figures_dir, **tables) -> str:
         return "".join(_figure(figs.png(name), _CAPTIONS[name]) for name in _CAPTIONS if name in figs.files)
 
 
-def _cautions() -> tuple:
+def _cautions(limits: str = _LIMITS) -> tuple:
     esc = html.escape
-    return ("Cautions", f'<p class="caution">{esc(CAUTIONS)}</p><p>{esc(_LIMITS)}</p>')
+    return ("Cautions", f'<p class="caution">{esc(CAUTIONS)}</p><p>{esc(limits)}</p>')
 
 
 def _invasion_sections(path, config, figures_dir, incomplete, table, thresholds) -> dict:
@@ -331,7 +474,7 @@ def _invasion_sections(path, config, figures_dir, incomplete, table, thresholds)
         "results": ("Results", _table_html(table, swept) + "".join(notes)),
         "figures": ("Figures", figures),
         "verdict": ("Verdict", f'<p class="verdict">{verdict_text(table, thresholds, config)}</p>'),
-        "cautions": _cautions(),
+        "cautions": _cautions(_LIMITS if config.environment is None else _LIMITS_IN_YEARS),
     }
 
 
@@ -351,7 +494,7 @@ def outcome_counts(path) -> pd.DataFrame:
 def _plain_sections(path, config, figures_dir, incomplete) -> dict:
     exp = config.experiment
     alleles = "".join(
-        f"<li><b>{html.escape(a.name)}</b>: {describe_allele(a)}; {a.initial_count} at the start</li>"
+        f"<li><b>{html.escape(a.name)}</b>: {describe_allele(a, config.tradeoff)}; {a.initial_count} at the start</li>"
         for a in config.allele
     )
     stop = "until one allele is left" if exp.stop == "fixation" else "for a fixed number of seasons"

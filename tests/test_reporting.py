@@ -68,7 +68,7 @@ def test_report_content(page):
     words = " ".join(parsed.text)
     assert parsed.rows == 1 + len(SMALL_SWEEP)  # header + one row per sweep point
     assert "perennial" in words and "one-shot" in words
-    assert "allele.one-shot.fecundity = 4" in words  # the analytic threshold
+    assert "one-shot fecundity = 4" in " ".join(words.split())  # the analytic threshold, in words
     assert re.search(
         r"Of 4 sweep points at K = 30, \d+ (agrees|agree), \d+ (is|are) inconclusive, \d+ (disagrees|disagree)",
         words,
@@ -98,3 +98,89 @@ def test_report_words_for_a_swept_capacity():
     table = pd.DataFrame({"agreement": ["agrees", "inconclusive"], "point": [0, 1]})
     text = verdict_text(table, pd.DataFrame(columns=["parameter"]), config)
     assert text.startswith("Of 2 sweep points (K swept: see the table for each K), 1 agrees, 1 is inconclusive")
+
+
+def _visible(path) -> str:
+    """The page's text as a reader sees it (no tags, attributes or style), spaces collapsed."""
+    parser = _Page()
+    parser.feed(path.read_text(encoding="utf-8"))
+    text = " ".join(parser.text)
+    style = re.search(r"<style>(.*?)</style>", path.read_text(encoding="utf-8"), re.S).group(1)
+    return " ".join(text.replace(style, " ").split())
+
+
+# -- config words as prose ------------------------------------------------------------------
+def test_swept_paths_and_placements_are_words_on_the_page(page, tmp_path):
+    text, _ = page
+    parser = _Page()
+    parser.feed(text)
+    words = " ".join(parser.text)
+    # the sweep, the thresholds and the verdict say the parameter as the figures label it; the
+    # config path is kept only in a title attribute (shown on hover)
+    assert "sweeps the one-shot fecundity over 2.5, 3.5, 4.5, 6" in " ".join(words.split())
+    assert "allele.one-shot.fecundity" not in words
+    assert 'title="allele.one-shot.fecundity"' in text
+    from analysis.reporting import _density_words
+    from tests.invasion_configs import invasion_config
+
+    assert "acting on all survival (adults' and young's)" in _density_words(invasion_config(acts_on="all-survival"))
+    assert "all-survival" not in _density_words(invasion_config(acts_on="all-survival"))
+
+
+def test_a_care_allele_is_described_with_its_orphan_survival_and_brood_effect():
+    from analysis.reporting import describe_allele
+    from sim.config import load_config
+
+    config = load_config("configs/duskmote-care.toml")
+    tending, one_brood = (describe_allele(a) for a in config.allele)
+    assert "young whose parent survives the season survive 0.5 (parental care), orphans 0.2" in tending
+    assert "exp(-(b - 1) / 6)" in tending
+    assert "its young are all orphaned and survive 0.3 (orphan survival)" in one_brood
+    plain = load_config("configs/fenmarrow-hopper.toml").allele[0]
+    assert "orphan" not in describe_allele(plain) and "brood" not in describe_allele(plain)
+
+
+# -- the results table fits the page ----------------------------------------------------------
+def test_results_table_has_no_reason_column_and_the_reasons_follow_it(page):
+    text, _ = page
+    results = re.search(r'<section id="results">(.*?)</section>', text, re.S).group(1)
+    table, after = results.split("</table>", 1)
+    headers = re.findall(r"<th>(.*?)</th>", table)
+    assert "reason" not in headers and len(headers) <= 14
+    # every point's reason is said once, below the table, grouped by agreement and reason
+    assert "Why each point agrees or not" in after
+    said = re.findall(r"<li>Points? ([\d, ]+):", after)
+    points = sorted(int(p) for group in said for p in group.split(", "))
+    assert points == list(range(len(SMALL_SWEEP)))
+    assert "white-space: nowrap; }" not in text.split("td.text", 1)[1].split("}", 1)[0] + "}"
+
+
+# -- years that vary ------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def years_page(tmp_path_factory):
+    from sim.experiment import run_experiment
+    from tests.invasion_configs import wet_and_dry
+
+    folder = tmp_path_factory.mktemp("years")
+    config = wet_and_dry(capacity=30.0, replicates=4, max_steps=200, record_every=5,
+                         sweep={"allele.one-shot.fecundity": [3.0, 6.0]})
+    run_experiment(config, folder / "years.h5", progress=False)
+    return _visible(report(folder / "years.h5", folder / "years.html"))
+
+
+def test_a_report_with_year_types_says_the_environment_and_the_stochastic_theory(years_page):
+    words = years_page
+    # the experiment: the year types, their probabilities, what each multiplies, how drawn
+    assert "Years vary" in words
+    assert "wet (probability 0.5): juvenile survival x1.5" in words
+    assert "dry (probability 0.5): juvenile survival x0.3" in words
+    assert "each season's year type drawn independently" in words
+    assert "each replicate draws its own sequence" in words
+    # the prediction and the cautions: the fluctuating environment, not an equilibrium one
+    assert "long-run growth rate" in words and "resident's fluctuating environment" in words
+    assert "replacement threshold" in words
+    assert "Thresholds of the stochastic theory" in words
+    assert "equilibrium environment" not in words
+    assert "resident at its deterministic equilibrium" not in words
+    assert "mean-field dynamics through the years" in words
+
