@@ -1,7 +1,8 @@
 """A self-contained HTML report of a results file (figures embedded as base64 PNG).
 
 An invasion experiment is compared with the invasion theory (the stochastic one
-where years vary, ``[environment]``); any other run gets its outcomes.
+where years vary, ``[environment]``); a trait run (``[trait]``) with the singular
+efforts of adaptive dynamics (``analysis.trait``); any other run gets its outcomes.
 """
 
 from __future__ import annotations
@@ -18,7 +19,7 @@ import pandas as pd
 
 from sim.config import sweep_factors, swept_paths, swept_values
 from sim.describe import describe_environment
-from sim.store import read_attrs, read_points, read_replicates
+from sim.store import read_attrs, read_point_configs, read_points, read_replicates
 
 from .comparison import (
     FIXED,
@@ -33,7 +34,7 @@ from .comparison import (
 )
 from .plots import parameter_words, plot
 
-__all__ = ["CAUTIONS", "report", "describe_allele", "verdict_text"]
+__all__ = ["CAUTIONS", "report", "describe_allele", "verdict_text", "trait_verdict_text"]
 
 CAUTIONS = (
     "broodline is a conceptual modelling tool for exploring life-history theory. This report "
@@ -60,6 +61,15 @@ _LIMITS_IN_YEARS = (
     "expectation and the establishment probability, points there are expected to be "
     "inconclusive, and small populations can depart from the prediction (no finite-population "
     "prediction exists yet for random years)."
+)
+
+_LIMITS_TRAIT = (
+    "The theory (adaptive dynamics) assumes a resident at its deterministic equilibrium, rare "
+    "mutants, and mutations rare enough that one substitution is over before the next arises; "
+    "its singular efforts are read off the grid of efforts the run uses. A finite population "
+    "with mutation keeps some spread of efforts and wanders around an attractor, so a replicate "
+    "is called at the attractor when its mean effort over the closing tenth of the run lies "
+    "within one grid step of it: the grid's resolution, not a statistical test."
 )
 
 _COUNTED = {
@@ -520,6 +530,170 @@ def _plain_sections(path, config, figures_dir, incomplete) -> dict:
     }
 
 
+# -- trait runs ([trait]: effort alleles on a grid, mutating to neighbours) -----------------------
+_TRAIT_CAPTION = (
+    "Mean effort of each replicate's census over the seasons (a line; the band is plus and minus "
+    "one standard deviation of effort among individuals; up to 8 replicates), one panel per sweep "
+    "point, over horizontal lines at the point's singular efforts from the theory (solid black: "
+    "evolutionarily stable attractor; dotted red: repeller; dashed purple: branching point). A run "
+    "that follows the theory moves towards the solid line and stays in a band around it."
+)
+_TRAIT_VERDICTS = ("at attractor", "away from attractor", "extinct", "no attractor predicted")
+_TRAIT_COLUMNS = {
+    "point": "point", "replicate": "replicate", "final_step": "last season", "final_census": "last census",
+    "final_mean_effort": "mean effort there", "final_sd_effort": "sd of effort there",
+    "end_mean_effort": "mean effort, last tenth", "attractors": "attractors",
+    "nearest_attractor": "nearest attractor", "distance": "distance", "grid_step": "grid step",
+    "verdict": "verdict",
+}
+
+
+def _grid_words(grid) -> str:
+    grid = np.asarray(grid, dtype=float)
+    steps = np.diff(grid)
+    if steps.size and np.allclose(steps, steps[0]):
+        return f"{grid.size} efforts from {grid[0]:g} to {grid[-1]:g} in steps of {steps[0]:.4g}"
+    return f"{grid.size} efforts: {', '.join(f'{v:g}' for v in grid)}"
+
+
+def _trait_experiment_text(config) -> str:
+    trait, exp = config.trait, config.experiment
+    template = next(a for a in config.allele if a.name == trait.allele)
+    rate = config.mutation.rate
+    text = (
+        f"<p>The effort allele <b>{html.escape(template.name)}</b> "
+        f"({describe_allele(template, config.tradeoff)}) evolves on a grid of "
+        f"{_grid_words(trait.grid())}, one allele per value. Every individual starts with effort "
+        f"{trait.initial:g} ({template.initial_count} individuals at age 1); each offspring mutates to "
+        f"a neighbouring grid value with probability {rate:g} (at an end of the grid, to its one "
+        "neighbour), so a long run is a trait-substitution sequence.</p>"
+        f"<p>The population has {_density_words(config)}.{_sweep_words(config)}</p>"
+        f"{_environment_text(config)}"
+        f"<p>Each sweep point was run {exp.replicates} times ({exp.engine} engine) for "
+        f"{exp.max_steps} seasons, recording the census every {exp.record_every}, from seed "
+        f"{exp.seed}.</p>"
+    )
+    return text
+
+
+def _singular_words(analysis) -> str:
+    kinds = [s for s in analysis.singular if s.kind != "not viable"]
+    if not kinds:
+        return "no singular effort on the grid"
+    return "; ".join(f"E = {s.effort:.4g} ({html.escape(s.position)}): {html.escape(s.kind)}" for s in kinds)
+
+
+def _trait_prediction_text(path, config) -> tuple[str, list]:
+    """The adaptive-dynamics prediction per sweep point, and each point's analysis."""
+    from .trait import trait_analysis
+
+    placement = config.density.placement if config.density.form != "none" else None
+    if placement in (None, "all-survival"):
+        maximised = ("the growth rate lambda (no density dependence, or density dependence on all "
+                     "survival)")
+    elif placement in ("recruitment", "fecundity"):
+        maximised = ("R0, proportional to B(E) / (1 - P(E)) (density dependence on recruitment or "
+                     "fecundity alone)")
+    else:
+        maximised = None
+    configs = read_point_configs(path)
+    points = read_points(path)
+    analyses = [trait_analysis(c) for c in configs]
+    items = []
+    for (_, row), a in zip(points.iterrows(), analyses):
+        where = ", ".join(f"{_path_words(k)} = {_g(row[k])}" for k in points.columns if k != "point")
+        attractors = ", ".join(f"{e:.4g}" for e in a.attractors) or "none"
+        items.append(
+            f"<li>Point {int(row['point'])}{' (' + where + ')' if where else ''}: singular efforts "
+            f"{_singular_words(a)}. Predicted attractor{'s' if len(a.attractors) != 1 else ''}: "
+            f"{attractors}.</li>"
+        )
+    text = (
+        "<p>Adaptive dynamics predicts where effort evolves. A rare mutant effort invades a resident "
+        "at its equilibrium when its invasion fitness exceeds 1 (Metz, Nisbet &amp; Geritz 1992); "
+        "effort moves along the selection gradient to singular efforts, where the gradient is zero, "
+        "or to an end of [0, 1]. Each is classified (Geritz, Kisdi, Meszena &amp; Metz 1998): an "
+        "evolutionarily stable attractor is where a run should end; a repeller is left behind; a "
+        "branching point would split the population in two.</p>"
+        + (f"<p>Here the winning effort maximises {maximised} (Mylius &amp; Diekmann 1995).</p>"
+           if maximised else "")
+        + f"<ul>{''.join(items)}</ul>"
+        + ("<p>The theory is computed on the run's grid of efforts (<code>broodline "
+           "invasibility CONFIG -o DIR</code> draws its pairwise invasibility plot).</p>")
+    )
+    return text, analyses
+
+
+def _trait_table_html(table: pd.DataFrame) -> str:
+    cols = [c for c in _TRAIT_COLUMNS if c in table]
+    head = "".join(f"<th>{html.escape(_TRAIT_COLUMNS[c])}</th>" for c in cols)
+    rows = []
+    for _, r in table.iterrows():
+        cells = []
+        for c in cols:
+            v = r[c]
+            if c == "attractors":
+                cells.append(f"<td>{html.escape(', '.join(f'{a:.4g}' for a in v) or 'none')}</td>")
+            elif c == "verdict":
+                cls = {"at attractor": "agrees", "away from attractor": "disagrees"}.get(v, "inconclusive")
+                cells.append(f'<td class="text {cls}">{html.escape(str(v))}</td>')
+            elif isinstance(v, (float, np.floating)):
+                cells.append(f"<td>{v:.4g}</td>" if np.isfinite(v) else "<td>-</td>")
+            else:
+                cells.append(f"<td>{html.escape(str(v))}</td>")
+        rows.append("<tr>" + "".join(cells) + "</tr>")
+    return (
+        f'<div class="scroll"><table><thead><tr>{head}</tr></thead>'
+        f"<tbody>{''.join(rows)}</tbody></table></div>"
+    )
+
+
+def trait_verdict_text(table: pd.DataFrame) -> str:
+    """A trait run's verdict in words: how many replicates ended at a predicted attractor."""
+    counts = table["verdict"].value_counts()
+    n = len(table)
+    parts = [f"{int(counts[v])} {html.escape(v)}" for v in _TRAIT_VERDICTS if counts.get(v, 0)]
+    parts += [f"{int(k)} {html.escape(str(v))}" for v, k in counts.items() if v not in _TRAIT_VERDICTS]
+    text = (
+        f"Of {_plural(n, 'replicate', 'replicates')}: {', '.join(parts)} (at attractor: the mean "
+        "effort over the closing tenth of the run within one grid step of the nearest predicted "
+        "evolutionarily stable attractor)."
+    )
+    away = table.loc[table["verdict"] == "away from attractor", ["point", "replicate"]]
+    if len(away):
+        text += (
+            " Away from the attractor: "
+            + ", ".join(f"point {p} replicate {r}" for p, r in away.itertuples(index=False))
+            + ". A run may not have had the seasons to get there: look at its line in the figure "
+            "(still moving, or settled elsewhere) before drawing conclusions."
+        )
+    return text
+
+
+def _trait_figures_html(path, figures_dir) -> str:
+    from .trait_plots import plot_trait
+
+    with tempfile.TemporaryDirectory() as tmp:
+        files = plot_trait(path, figures_dir or tmp)
+        return _figure(files["trait"]["png"], _TRAIT_CAPTION)
+
+
+def _trait_sections(path, config, figures_dir, incomplete) -> dict:
+    from .trait import compare_trait
+
+    prediction, _ = _trait_prediction_text(path, config)
+    table = compare_trait(path)
+    note = f'<p class="caution">{html.escape(incomplete)}</p>' if incomplete else ""
+    return {
+        "experiment": ("The experiment", _trait_experiment_text(config)),
+        "prediction": ("The prediction", prediction),
+        "results": ("Results", _trait_table_html(table) + note),
+        "figures": ("Figures", _trait_figures_html(path, figures_dir)),
+        "verdict": ("Verdict", f'<p class="verdict">{trait_verdict_text(table)}</p>'),
+        "cautions": _cautions(_LIMITS_TRAIT),
+    }
+
+
 def report(
     path,
     out,
@@ -553,7 +727,9 @@ def report(
     config = experiment_config(path)
     attrs = read_attrs(path)
     incomplete = warn_if_incomplete(path) if table is None else incomplete_message(path)
-    if config.invasion is None:
+    if config.trait is not None:
+        sections = _trait_sections(path, config, figures_dir, incomplete)
+    elif config.invasion is None:
         sections = _plain_sections(path, config, figures_dir, incomplete)
     else:
         sections = _invasion_sections(path, config, figures_dir, incomplete, table, thresholds)

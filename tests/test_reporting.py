@@ -184,3 +184,49 @@ def test_a_report_with_year_types_says_the_environment_and_the_stochastic_theory
     assert "resident at its deterministic equilibrium" not in words
     assert "mean-field dynamics through the years" in words
 
+
+# -- trait runs -----------------------------------------------------------------------------
+@pytest.fixture(scope="module")
+def trait_page(tmp_path_factory):
+    from sim.config import parse_config
+    from sim.experiment import run_experiment
+    from tests.test_trait import trait_raw
+
+    folder = tmp_path_factory.mktemp("trait")
+    run_experiment(parse_config(trait_raw(steps=200, replicates=2)), folder / "trait.h5", progress=False)
+    out = report(folder / "trait.h5", folder / "trait.html")
+    parser = _Page()
+    parser.feed(out.read_text(encoding="utf-8"))
+    return _visible(out), parser
+
+
+def test_a_trait_run_reports_its_effort_allele_prediction_verdicts_and_figure(trait_page):
+    words, parsed = trait_page
+    assert parsed.sections == ["experiment", "prediction", "results", "figures", "verdict", "cautions"]
+    # the allele, the trade-off, the grid and mutation
+    assert "None" not in words and "iteroparous" not in words
+    assert "no theory to compare with" not in words
+    assert "fecundity B(E) = 3 E^0.5" in words and "P(E) = 0.9 (1 - E)^1" in words
+    assert "10 efforts from 0.1 to 1 in steps of 0.1" in words
+    assert "mutates to a neighbouring grid value with probability 0.02" in words
+    # the prediction: singular efforts and the attractor E* = (1 - p) / p = 0.111 (docs/effort.md)
+    assert "evolutionarily stable attractor" in words and "0.1111" in words
+    # results: compare_trait's table (one row per replicate) and the count of verdicts
+    assert parsed.rows == 1 + 2
+    assert re.search(r"Of 2 replicates: (\d+ (at attractor|away from attractor|extinct))", words)
+    # figures: the trait figure alone (trajectories and outcomes mean nothing here)
+    assert len(parsed.images) == 1
+    assert "Mean effort of each replicate" in words and "How the replicates ended" not in words
+    assert "adaptive dynamics" in words
+
+
+def test_trait_verdict_counts_each_verdict():
+    import pandas as pd
+
+    from analysis.reporting import trait_verdict_text
+
+    table = pd.DataFrame({"point": [0, 0, 1], "replicate": [0, 1, 0],
+                          "verdict": ["at attractor", "away from attractor", "at attractor"]})
+    text = trait_verdict_text(table)
+    assert text.startswith("Of 3 replicates: 2 at attractor, 1 away from attractor")
+    assert "point 0 replicate 1" in text
