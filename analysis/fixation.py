@@ -398,6 +398,16 @@ def _placement_note(config: Config, fluct: DensityFluctuation | None) -> str:
     return note
 
 
+def _zero_variance_note(resident: float, mutant: float) -> str:
+    """Why the diffusion has no value: which demographic variance is 0, and what that means."""
+    if not mutant > 0:
+        return ("the mutant's demographic variance is 0 (it leaves no offspring: fecundity or "
+                "juvenile survival 0), so the diffusion has no value; such a mutant cannot fix")
+    if not resident > 0:
+        return "the resident's demographic variance is 0, so the diffusion has no value"
+    return "a demographic variance is 0"
+
+
 def finite_population_prediction(
     config: Config, env: ResidentEnvironment | None = None
 ) -> FinitePrediction:
@@ -472,10 +482,10 @@ def finite_population_prediction(
     if abs(s) > WEAK_SELECTION:
         problems.append(f"selection not weak: |s| = {abs(s):.3g} > {WEAK_SELECTION} per season")
     if not np.isfinite(u):
-        problems.append("a demographic variance is 0")
+        problems.append(_zero_variance_note(res.variance, mut.variance))
     if fluct is None:
         problems.append(_placement_note(config, fluct))
-    elif 2.0 * size * abs(fluct.selection) / mut.variance > _NEGLECTED:
+    elif mut.variance > 0 and 2.0 * size * abs(fluct.selection) / mut.variance > _NEGLECTED:
         problems.append(_placement_note(config, fluct))
     if problems:
         note = (

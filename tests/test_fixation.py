@@ -280,3 +280,15 @@ def test_unequal_placement_is_flagged_not_valid():
         invasion_config(mutant_fecundity=4.0, form="ceiling", acts_on="recruitment", capacity=100)
     )
     assert not ceiling_recruits.valid and "not derived" in ceiling_recruits.fixation_probability_note
+
+
+@pytest.mark.parametrize("sterile", [{"mutant_fecundity": 0.0}, {"mutant_juvenile_survival": 0.0}])
+def test_a_sterile_mutant_has_no_diffusion_value_and_says_why(sterile):
+    # a mutant that leaves no offspring has demographic variance 0: no diffusion, no division by it
+    config = invasion_config(**sterile)
+    f = finite_population_prediction(config)
+    assert not f.valid and math.isnan(f.fixation_probability)
+    assert "the mutant's demographic variance is 0" in f.fixation_probability_note
+    cols = finite_population_columns(config)  # what `broodline threshold` prints
+    assert cols["fixation_probability_valid"] is False
+    assert cols["fixation_probability_note"] == f.fixation_probability_note
