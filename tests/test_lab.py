@@ -97,9 +97,10 @@ def test_a_table_schedule_is_edited_as_comma_separated_ages():
 
 def test_a_resident_without_equilibrium_blocks_runs(session):
     # semelparous resident with B c = 2 x 0.5 = 1: growth rate 1 at low density, no equilibrium
+    theory, config = session.theory, session.config
     problems = session.update({"resident.breeding": "semelparous"})
     assert len(problems) == 1 and "growth rate at low density is 1 <= 1" in problems[0]
-    assert not session.step_season() and session.theory.prediction is None
+    assert not session.step_season() and (session.theory, session.config) == (theory, config)
     assert session.update({"resident.fecundity": "3"}) == [] and session.step_season()
 
 
@@ -128,7 +129,7 @@ def test_seasons_step_the_replicate_run_replicate_gives(session):
     for r, season, census in seen:
         row = np.flatnonzero(expected[r].record_steps == season)[0]
         assert np.array_equal(census, expected[r].trajectory[row]), (r, season)
-    for got, want in zip(session.results, expected):
+    for got, want in zip(session.stored_results(), expected, strict=True):
         assert (got.outcome, got.steps, got.final_census) == (want.outcome, want.steps, want.final_census)
     assert [r for r, s, _ in seen if s == 0] == [0, 1, 2]
 
@@ -137,7 +138,8 @@ def test_one_replicate_in_the_worker(session):
     assert session.run_one()
     session.wait()
     want = run_replicate(sweep_points(session.config)[0], 0, session.config.experiment.seed)
-    assert session.results[0].outcome == want.outcome and session.results[0].steps == want.steps
+    got = list(session.stored_results())
+    assert len(got) == 1 and got[0].outcome == want.outcome and got[0].steps == want.steps
 
 
 def test_stop_ends_a_run_between_batches(session):
@@ -303,3 +305,131 @@ def test_the_finite_n_hook_reaches_the_page(session, monkeypatch):
 
     fake.finite_population_prediction = refuse
     assert page_theory(session.config).finite_n.note == "no regulated census"
+
+
+def _post(server, path, body):
+    import json
+    import urllib.error
+    import urllib.request
+
+    request = urllib.request.Request(server.url + path.lstrip("/"), data=json.dumps(body).encode(),
+                                     headers={"Content-Type": "application/json"})
+    try:
+        with urllib.request.urlopen(request, timeout=30) as answer:
+            return answer.status, json.loads(answer.read())
+    except urllib.error.HTTPError as err:
+        return err.code, json.loads(err.read())
+
+
+def test_a_refused_capacity_is_shown_beside_k_and_changes_nothing(session, tmp_path):
+    from analysis.lab import LabServer
+
+    session.run_many(3)
+    session.wait()
+    before = (session.config, session.theory, session.generation, session.tally())
+    server = LabServer(session, output=tmp_path).start()
+    try:
+        status, view = _post(server, "/api/update", {"changes": {"density.capacity": "1e12"}})
+    finally:
+        server.close()
+    assert status == 200 and view["settings"]["density.capacity"] == 1e12  # shown as typed
+    assert [p["control"] for p in view["problems"]] == ["density.capacity"]
+    assert "more than" in view["problems"][0]["message"] and "can be counted" in view["problems"][0]["message"]
+    assert (session.config, session.theory, session.generation, session.tally()) == before
+    assert not session.step_season() and not session.run_many(3)
+    with pytest.raises(ConfigError, match="density.capacity"):
+        session.save(tmp_path / "k.toml", tmp_path / "k.h5")
+    assert list(tmp_path.iterdir()) == []
+    assert session.update({"density.capacity": "50"}) == [] and session.tally().n == 3  # back: same replicates
+
+
+def test_save_refuses_a_config_broodline_check_refuses(session, tmp_path, monkeypatch):
+    import analysis.lab.session as lab_session
+
+    monkeypatch.setattr(lab_session, "preflight", lambda config: (_ for _ in ()).throw(
+        ConfigError("experiment.replicates: past the budget")))
+    with pytest.raises(ConfigError, match="past the budget"):
+        session.save(tmp_path / "c.toml", tmp_path / "c.h5")
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("key", ["mutant.fecundity", "mutant.juvenile_survival"])
+def test_a_sterile_mutant_has_a_theory_and_discards_the_old_replicates(session, key, tmp_path):
+    session.run_many(3)
+    session.wait()
+    assert session.update({key: "0"}) == []
+    fn = session.theory.finite_n
+    assert fn is not None and not fn.valid and "demographic variance is 0" in fn.note
+    assert session.tally().n == 0 and session.generation == 1
+    session.run_many(2)
+    session.wait()
+    saved = session.save(tmp_path / "s.toml", tmp_path / "s.h5")
+    assert main(["check", str(saved.config)]) == 0
+    from sim.store import read_replicates
+
+    assert len(read_replicates(saved.results)) == 2
+
+
+def test_a_settings_change_that_fails_half_way_changes_nothing(session, monkeypatch, tmp_path):
+    import analysis.lab.session as lab_session
+    from analysis.lab import LabServer
+
+    session.run_many(3)
+    session.wait()
+    before = (copy.deepcopy(session.raw), session.config, session.theory, session.generation, session.tally())
+
+    def fail(config):
+        raise ZeroDivisionError("float division by zero")
+
+    monkeypatch.setattr(lab_session, "page_theory", fail)
+    server = LabServer(session, output=tmp_path).start()
+    try:
+        status, answer = _post(server, "/api/update", {"changes": {"mutant.fecundity": "5"}})
+    finally:
+        server.close()
+    assert status == 500 and "ZeroDivisionError" in answer["message"]  # answered, not a dropped connection
+    assert (session.raw, session.config, session.theory, session.generation, session.tally()) == before
+
+
+def test_changing_only_the_replicates_count_keeps_the_replicates(session):
+    session.run_many(3)
+    session.wait()
+    assert session.update({"experiment.replicates": "7"}) == []
+    assert session.tally().n == 3 and session.generation == 0 and session.config.experiment.replicates == 7
+
+
+def test_many_replicates_keep_a_bounded_number_of_lines(session):
+    from analysis.lab.session import LINES_KEPT
+
+    n = LINES_KEPT + 3 * BATCH
+    session.run_many(n)
+    session.wait()
+    assert session.tally().n == n and len(session.lines) == LINES_KEPT
+    view = session.view()
+    assert [line["replicate"] for line in view["lines"]] == list(range(n - LINES_KEPT, n))
+    assert [line["replicate"] for line in session.view(n - 5, view["generation"])["lines"]] == list(range(n - 5, n))
+    assert sum(1 for _ in session.stored_results()) == n  # every replicate is kept for Save, on disk
+
+
+def test_the_replicate_count_is_capped(session):
+    from analysis.lab.session import MAX_REPLICATES
+
+    problems = session.update({"experiment.replicates": str(10**9)})
+    assert [control_of(p, session.raw) for p in problems] == ["experiment.replicates"]
+    assert f"at most {MAX_REPLICATES} replicates; got 1000000000" in problems[0]
+    assert session.update({"experiment.replicates": "12"}) == []
+    for n in (0, MAX_REPLICATES + 1, 2.5, "10"):
+        with pytest.raises(ValueError, match="n: a whole number of replicates"):
+            session.run_many(n)
+
+
+def test_stop_takes_effect_within_one_batch(session):
+    session.update({"density.capacity": "400"})
+    session.run_many(100 * BATCH)
+    while session.tally().n == 0:
+        session.wait(0.01)
+    with session._lock:  # the count when stop is asked for, with no batch added meanwhile
+        asked = session.tally().n
+        session._stop.set()
+    session.stop()
+    assert not session.running and session.tally().n - asked <= BATCH

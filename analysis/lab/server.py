@@ -159,6 +159,10 @@ class _Handler(BaseHTTPRequestHandler):
         except (KeyError, ValueError, TypeError) as err:  # a request the page never sends
             self._send(HTTPStatus.BAD_REQUEST, json.dumps({"message": str(err)}).encode(), "application/json")
             return
+        except Exception as err:  # a fault: answered, so the page can say so (the session is unchanged)
+            message = {"message": f"the server failed: {type(err).__name__}: {err}"}
+            self._send(HTTPStatus.INTERNAL_SERVER_ERROR, json.dumps(message).encode(), "application/json")
+            return
         if answer is None:
             self._send(HTTPStatus.NOT_FOUND, b'{"message": "not found"}', "application/json")
             return

@@ -6,11 +6,21 @@ saved config, drawn from ``SeedSequence(seed, spawn_key=(0, r))`` through
 ``sim.runner``, so ``broodline run`` of the saved config gives the same
 replicates bit for bit. Long work (one replicate, N replicates) runs in one
 worker thread; the page keeps answering and can stop it between batches.
+
+Memory stays bounded however many replicates run: each finished replicate
+goes to a temporary file (what Save writes), and the session keeps only its
+outcome and the frequency lines of the last ``LINES_KEPT`` replicates.
 """
 
 from __future__ import annotations
 
+import os
+import pickle
+import tempfile
 import threading
+import warnings
+import zlib
+from collections import deque
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
@@ -18,6 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from sim.config import Config, ConfigError, parse_config, sweep_points
+from sim.describe import ConfigWarning, preflight
 from sim.lifecycle import initial_census
 from sim.meanfield import NoEquilibriumError
 from sim.model import BroodModel
@@ -30,10 +41,16 @@ from .controls import control_of, control_value, controls, page_raw, set_control
 from .theory import Theory, page_theory
 from .toml_text import toml_text
 
-__all__ = ["LabSession", "Tally", "SavedFiles", "mutant_frequency"]
+__all__ = ["LabSession", "Tally", "SavedFiles", "mutant_frequency", "MAX_REPLICATES", "LINES_KEPT"]
 
 BATCH = 10  # replicates per batch of an N-replicate run: the page's refresh and stop granularity
 LINE_POINTS = 300  # a frequency line is thinned to about this many points for the page
+LINES_KEPT = 100  # frequency lines kept and drawn: those of the most recent replicates
+# The most replicates the page runs and holds. At 100,000 the Wilson 95% interval of the fixed
+# fraction is at most +-0.0031 wide, finer than the 3 decimals the page shows, so more would not
+# change what it shows; a K = 100 invasion runs them in about a minute and a half on one core.
+# Larger experiments belong to `broodline run` (parallel workers, a resumable results file).
+MAX_REPLICATES = 100_000
 
 
 @dataclass(frozen=True)
@@ -79,12 +96,73 @@ def _thin(steps: np.ndarray, values: np.ndarray) -> tuple[list, list]:
 
 
 def _cannot_start(config: Config) -> list[str]:
-    """Why a valid config cannot start (its resident has no equilibrium), or nothing."""
+    """Why a valid config cannot run here: what ``broodline check`` refuses (a resident with no
+    equilibrium, a starting census too large to count, work past the budget), or more
+    replicates than the page holds. Nothing when it can."""
+    problems = []
+    if config.experiment.replicates > MAX_REPLICATES:
+        problems.append(f"experiment.replicates: the lab runs at most {MAX_REPLICATES} replicates; "
+                        f"got {config.experiment.replicates} (use `broodline run` for more)")
     try:
         initial_census(config)
     except NoEquilibriumError as err:
-        return [f"invasion.resident_count: {err}; give a number or change the resident"]
+        return problems + [f"invasion.resident_count: {err}; give a number or change the resident"]
+    except ConfigError as err:
+        return problems + err.problems
+    return problems + _check_problems(config)
+
+
+def _check_problems(config: Config) -> list[str]:
+    """What ``broodline check`` says is wrong with a config (its ``preflight``), or nothing."""
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConfigWarning)
+            preflight(config)
+    except NoEquilibriumError as err:
+        return [f"invasion.resident_count: {err}"]
+    except ConfigError as err:
+        return err.problems
     return []
+
+
+def _same_replicates(a: Config, b: Config) -> bool:
+    """Whether two configs give the same replicates (``experiment.replicates`` only says how many)."""
+    def key(c: Config) -> dict:
+        d = c.model_dump()
+        d["experiment"].pop("replicates")
+        return d
+    return key(a) == key(b)
+
+
+class _Spool:
+    """The finished replicates, in order, in a temporary file (compressed batches): what Save
+    writes, kept off the heap. Appended under the session's lock; read with ``pread``, so a save
+    reads the first ``count`` replicates while later ones are appended."""
+
+    def __init__(self):
+        self._file = tempfile.TemporaryFile(prefix="broodline-lab-")  # removed when closed
+        self._ends: list[tuple[int, int]] = []  # (replicates so far, bytes so far) after each batch
+        self.count = 0
+
+    def add(self, results: list[ReplicateResult]) -> None:
+        blob = zlib.compress(pickle.dumps(results, protocol=pickle.HIGHEST_PROTOCOL), 1)
+        end = self._ends[-1][1] if self._ends else 0
+        self._file.seek(end)
+        self._file.write(len(blob).to_bytes(8, "little") + blob)
+        self._file.flush()
+        self.count += len(results)
+        self._ends.append((self.count, end + 8 + len(blob)))
+
+    def batches(self, count: int | None = None):
+        """The stored batches (lists of ReplicateResult) holding the first ``count`` replicates."""
+        count = self.count if count is None else count
+        fd, offset = self._file.fileno(), 0
+        for n, end in list(self._ends):
+            if n > count:
+                return
+            size = int.from_bytes(os.pread(fd, 8, offset), "little")
+            yield pickle.loads(zlib.decompress(os.pread(fd, size, offset + 8)))
+            offset = end
 
 
 class _Stepper:
@@ -132,8 +210,9 @@ class LabSession:
         self.config = parse_config(self.raw)
         self.problems: list[str] = _cannot_start(self.config)
         self.generation = 0  # bumped when the replicates are discarded (reset, new settings)
-        self.results: list[ReplicateResult] = []
-        self.lines: list[dict] = []
+        self._spool = _Spool()  # every finished replicate, on disk
+        self.outcomes: list[str] = []  # each finished replicate's outcome, in order
+        self.lines: deque[dict] = deque(maxlen=LINES_KEPT)  # the last replicates' frequency lines
         self.stepper: _Stepper | None = None
         self.shown: dict | None = None  # census of the replicate last advanced or finished
         self.activity = "idle"
@@ -146,32 +225,52 @@ class LabSession:
     def update(self, changes: dict) -> list[str]:
         """Set controls (``{"mutant.fecundity": "4.5", ...}``); returns the schema's problems.
 
-        Values are checked by the config schema, with its messages. Valid
-        settings that differ from the current ones discard the replicates (they
-        belong to another experiment) and recompute the theory; invalid ones
-        are kept for the page to show while the last valid config stays in force.
-        A run in progress is stopped first.
+        Values are checked by the config schema, with its messages, and by
+        what ``broodline check`` refuses. Accepted settings that give other
+        replicates discard the replicates (they belong to another experiment)
+        and recompute the theory (``experiment.replicates`` alone only says how
+        many the next run makes). Refused ones are kept for the page to show,
+        with the problems, while the last accepted config, its theory and its
+        replicates stay in force unchanged. A run in progress is stopped first.
+        Nothing changes when a step fails (an unknown control, an error computing the theory).
         """
         self.stop()
         with self._lock:
             raw = self.raw
             for key, value in changes.items():
                 raw = set_control(raw, key, value)
-            self.raw = raw
             try:
                 config = parse_config(raw)
+                problems = _cannot_start(config)
             except ConfigError as err:
-                self.problems = list(err.problems)
-                return self.problems
-            self.problems = _cannot_start(config)
-            if config != self.config:
-                self.config = config
-                self.theory = page_theory(config)
-                self._discard()
-            return self.problems
+                config, problems = None, list(err.problems)
+            if problems:
+                self.raw, self.problems = raw, problems
+                return problems
+            if _same_replicates(config, self.config):
+                self.raw, self.problems, self.config = raw, [], config
+                return []
+            theory = page_theory(config)  # first: should it fail, nothing has changed
+            self.raw, self.problems, self.config, self.theory = raw, [], config, theory
+            self._discard()
+            return []
+
+    @property
+    def n_replicates(self) -> int:
+        """Replicates finished so far (under the current settings)."""
+        return len(self.outcomes)
+
+    def stored_results(self):
+        """The finished replicates (ReplicateResult), in order, read back from the session's file."""
+        with self._lock:
+            spool, count = self._spool, self._spool.count
+        for batch in spool.batches(count):
+            yield from batch
 
     def _discard(self) -> None:
-        self.results, self.lines, self.stepper, self.shown = [], [], None, None
+        self._spool = _Spool()  # the old file goes when the last reader lets it go
+        self.outcomes, self.stepper, self.shown = [], None, None
+        self.lines = deque(maxlen=LINES_KEPT)
         self.generation += 1
 
     def reset(self) -> None:
@@ -197,7 +296,7 @@ class LabSession:
             if not self._ready():
                 return False
             if self.stepper is None:
-                self.stepper = _Stepper(self.config, len(self.results))
+                self.stepper = _Stepper(self.config, self.n_replicates)
             else:
                 self.stepper.step()
             self._show_stepper()
@@ -219,10 +318,11 @@ class LabSession:
 
     def _add(self, results: list[ReplicateResult]) -> None:
         mutant = self.config.allele_index(self.config.invasion.mutant)
-        for r in results:
+        for r in results[-LINES_KEPT:]:
             steps, freq = _thin(r.record_steps, mutant_frequency(r.trajectory, mutant))
             self.lines.append({"replicate": r.replicate, "outcome": r.outcome, "steps": steps, "freq": freq})
-        self.results.extend(results)
+        self._spool.add(results)
+        self.outcomes.extend(r.outcome for r in results)
         last = results[-1]
         census = last.trajectory[-1] if last.trajectory.size else np.zeros((len(self.config.allele), 1))
         if census.ndim == 1:  # trajectory = "by-allele": no ages recorded
@@ -235,8 +335,16 @@ class LabSession:
         return self._start(self._run_one, "running one replicate")
 
     def run_many(self, n: int | None = None) -> bool:
-        """Run ``n`` more replicates (default: ``experiment.replicates``) in the worker, in batches."""
-        n = self.config.experiment.replicates if n is None else int(n)
+        """Run ``n`` more replicates (default: ``experiment.replicates``) in the worker, in batches.
+
+        Raises
+        ------
+        ValueError
+            For ``n`` not a whole number from 1 to ``MAX_REPLICATES``.
+        """
+        n = self.config.experiment.replicates if n is None else n
+        if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= MAX_REPLICATES:
+            raise ValueError(f"n: a whole number of replicates from 1 to {MAX_REPLICATES}; got {n!r}")
         return self._start(lambda: self._run_many(n), f"running {n} replicates")
 
     def _start(self, work, activity: str) -> bool:
@@ -261,7 +369,7 @@ class LabSession:
     def _run_one(self) -> None:
         with self._lock:
             if self.stepper is None:
-                self.stepper = _Stepper(self.config, len(self.results))
+                self.stepper = _Stepper(self.config, self.n_replicates)
         while not self._stop.is_set():
             with self._lock:
                 self.stepper.step()
@@ -274,7 +382,7 @@ class LabSession:
         with self._lock:
             config, generation = self.config, self.generation
             self.stepper = None  # its replicate is run again below, whole
-            start = len(self.results)
+            start = self.n_replicates
         point, seed = sweep_points(config)[0], config.experiment.seed
         for first in range(start, start + n, BATCH):
             if self._stop.is_set():
@@ -286,7 +394,10 @@ class LabSession:
                 self._add(results)
 
     def stop(self) -> None:
-        """Stop a run after its current batch (or season) and wait for the worker."""
+        """Stop a run after its current batch (or season) and wait for the worker.
+
+        At most the batch under way when this is called is added afterwards.
+        """
         self._stop.set()
         worker = self._worker
         if worker is not None:
@@ -301,17 +412,17 @@ class LabSession:
     def tally(self) -> Tally:
         """Mutant fixed / lost / unresolved so far, and the fixed fraction's Wilson interval."""
         with self._lock:
-            outcomes = [r.outcome for r in self.results]
+            outcomes = self.outcomes
         fixed, lost = outcomes.count("mutant-fixed"), outcomes.count("mutant-lost")
         return Tally(fixed, lost, len(outcomes) - fixed - lost, wilson_interval(fixed, len(outcomes)))
 
     def running_tally(self) -> dict:
         """The fixed fraction and its Wilson interval after each replicate (thinned)."""
         with self._lock:
-            key = (self.generation, len(self.results))
+            key = (self.generation, self.n_replicates)
             if self._running_tally[0] == key:
                 return self._running_tally[1]
-            fixed = np.cumsum([r.outcome == "mutant-fixed" for r in self.results])
+            fixed = np.cumsum([o == "mutant-fixed" for o in self.outcomes])
         n = np.arange(1, fixed.size + 1)
         stride = -(-n.size // LINE_POINTS)  # every stride-th replicate and the last: stable as runs grow
         keep = np.unique(np.r_[np.arange(0, n.size, stride), n.size - 1]) if n.size else n
@@ -331,7 +442,7 @@ class LabSession:
         """The page's settings as a config whose replicates are the ones run so far."""
         with self._lock:
             raw = dict(self.raw)
-            n = len(self.results)
+            n = self.n_replicates
         raw["experiment"] = {**raw.get("experiment", {}), "replicates": max(n, 1)}
         return parse_config(raw)
 
@@ -347,14 +458,18 @@ class LabSession:
         FileExistsError
             When a file exists and ``overwrite`` is False.
         sim.config.ConfigError
-            When the page's settings are invalid.
+            When the page's settings are invalid, or ``broodline check`` would
+            refuse the config to be written (nothing is written then).
         """
-        if self.problems:
-            raise ConfigError(self.problems)
         with self._lock:
-            config, results = self.saved_config(), list(self.results)
+            if self.problems:
+                raise ConfigError(self.problems)
+            config, spool, count = self.saved_config(), self._spool, self._spool.count
+        problems = _check_problems(config)
+        if problems:
+            raise ConfigError(problems)
         config_path = Path(config_path)
-        results_path = Path(results_path) if results_path is not None and results else None
+        results_path = Path(results_path) if results_path is not None and count else None
         for path in (config_path, results_path):
             if path is not None and path.exists() and not overwrite:
                 raise FileExistsError(f"{str(path)!r} exists; choose another name")
@@ -362,7 +477,8 @@ class LabSession:
         config_path.write_text(toml_text(config, header=f"Saved from the broodline lab page, {stamp}."))
         if results_path is not None:
             with ResultsWriter(results_path, config, sweep_points(config), overwrite=overwrite) as writer:
-                writer.write(results)
+                for batch in spool.batches(count):
+                    writer.write(batch)
         return SavedFiles(config_path, results_path)
 
     # -- what the page shows --------------------------------------------------------------
@@ -370,7 +486,8 @@ class LabSession:
         """Everything the page draws, as plain JSON values.
 
         ``lines`` holds the frequency lines of replicates ``since`` onwards
-        (all of them when ``generation`` differs from the session's).
+        (from 0 when ``generation`` differs from the session's), of the last
+        ``LINES_KEPT`` replicates only.
         """
         with self._lock:
             if generation != self.generation:
@@ -386,9 +503,11 @@ class LabSession:
                 "running": self.running,
                 "activity": self.activity,
                 "error": self.error,
-                "replicates": len(self.results),
+                "replicates": self.n_replicates,
+                "max_replicates": MAX_REPLICATES,
+                "lines_kept": LINES_KEPT,
                 "since": since,
-                "lines": self.lines[since:],
+                "lines": [line for line in self.lines if line["replicate"] >= since],
                 "shown": self.shown,
                 "tally": {"fixed": tally.fixed, "lost": tally.lost, "unresolved": tally.unresolved,
                           "n": tally.n, "fraction": tally.estimate.fraction, "low": tally.estimate.low,
