@@ -140,3 +140,30 @@ def test_stop_and_reset(page):
     page.click("#btn-reset")
     page.wait_for_function("document.querySelector('#tally-n').textContent === '0'")
     assert page.locator("#chart-freq path.freq-line").count() == 0
+
+
+def test_a_refused_capacity_is_shown_beside_k_and_many_lines_are_bounded(page, lab):
+    from analysis.lab.session import LINES_KEPT
+
+    set_control(page, "density.capacity", "1e12")  # the page used to throw here (no message, buttons on)
+    page.wait_for_selector("#row-ctl-density-capacity.bad")
+    assert "can be counted" in text(page, "#row-ctl-density-capacity .msg")
+    assert page.is_disabled("#btn-replicates") and page.is_disabled("#btn-save")
+    page.reload()
+    page.wait_for_selector("#row-ctl-density-capacity.bad")  # still refused after a reload
+    assert page.is_disabled("#btn-season")
+    set_control(page, "density.capacity", "100")
+    n = LINES_KEPT + 30
+    set_control(page, "experiment.replicates", str(n))
+    page.wait_for_function(f"document.querySelector('#btn-replicates').textContent === '{n} replicates'")
+    page.click("#btn-replicates")
+    page.wait_for_function(IDLE + f" && +document.querySelector('#tally-n').textContent >= {n}", timeout=60000)
+    assert page.locator("#chart-freq path.freq-line").count() == LINES_KEPT
+    assert text(page, "#freq-which") == f"the last {LINES_KEPT} of {n} replicates"
+
+
+def test_a_refused_request_is_said_and_the_page_keeps_working(page, lab):
+    # a request the server refuses (400) is reported in the page, not thrown
+    page.evaluate("post('/api/replicates', { n: 0 })")
+    page.wait_for_function("document.querySelector('#error').textContent.includes('n: a whole number')")
+    assert not page.is_disabled("#btn-replicates")

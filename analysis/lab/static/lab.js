@@ -8,7 +8,8 @@ const GROUPS = { resident: "group-resident", mutant: "group-mutant", density: "g
 const SVGNS = "http://www.w3.org/2000/svg";
 
 let view = null;        // the last answer of the server
-let lines = [];         // frequency lines of finished replicates, in order
+let lines = [];         // frequency lines of the last finished replicates (view.lines_kept at most), in order
+let seen = 0;           // replicates whose lines have been asked for
 let generation = null;
 let polling = false;
 
@@ -21,11 +22,19 @@ async function call(method, path, body) {
   const options = { method, headers: { "Content-Type": "application/json" } };
   if (body !== undefined) options.body = JSON.stringify(body);
   const response = await fetch(path, options);
-  return response.json();
+  const answer = await response.json();
+  if (!response.ok) throw new Error(answer.message || `${response.status} ${response.statusText}`);
+  return answer;
 }
 
 function post(path, body = {}) {
-  return call("POST", path, { ...body, since: lines.length, generation }).then(receive);
+  return call("POST", path, { ...body, since: seen, generation }).then(receive, refused);
+}
+
+// a request the server refused or failed: say why, and show its state as it now is
+async function refused(err) {
+  receive(await call("GET", `/api/view?since=${seen}&generation=${generation}`));
+  $("error").textContent = err.message;
 }
 
 // -- controls -----------------------------------------------------------------------
@@ -171,6 +180,8 @@ function drawFrequencies(v) {
   }
   if (current) el("path", { d: pathOf(current.steps, current.freq, f.x, f.y), fill: "none", stroke: "#000",
                              "stroke-width": 2 }, f.g);
+  $("freq-which").textContent = v.replicates > lines.length
+    ? `the last ${lines.length} of ${v.replicates} replicates` : "every replicate";
 }
 
 function drawTally(v) {
@@ -229,8 +240,9 @@ function drawTheory(v) {
 
 // -- updates ------------------------------------------------------------------------------
 function receive(v) {
-  if (v.generation !== generation) { lines = []; generation = v.generation; }
-  if (v.since === lines.length) lines.push(...v.lines);
+  if (v.generation !== generation) { lines = []; seen = 0; generation = v.generation; }
+  if (v.since === seen) { lines.push(...v.lines); seen = v.replicates; }
+  if (lines.length > v.lines_kept) lines = lines.slice(-v.lines_kept);
   view = v;
   showControls(v);
   $("status").textContent = v.running ? v.activity : `idle, ${v.replicates} replicates`;
@@ -250,7 +262,7 @@ async function poll() {
   try {
     while (view && view.running) {
       await new Promise((r) => setTimeout(r, 120));
-      receive(await call("GET", `/api/view?since=${lines.length}&generation=${generation}`));
+      receive(await call("GET", `/api/view?since=${seen}&generation=${generation}`));
     }
   } finally { polling = false; }
 }
@@ -263,7 +275,9 @@ async function start() {
   $("btn-stop").onclick = () => post("/api/stop");
   $("btn-reset").onclick = () => post("/api/reset");
   $("btn-save").onclick = async () => {
-    const answer = await call("POST", "/api/save", { name: $("save-name").value });
+    let answer;
+    try { answer = await call("POST", "/api/save", { name: $("save-name").value }); }
+    catch (err) { answer = { saved: false, message: err.message }; }
     $("save-msg").textContent = answer.message;
     $("save-msg").className = answer.saved ? "" : "error";
     $("save-msg").dataset.saved = answer.saved;
