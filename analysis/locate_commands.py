@@ -114,8 +114,8 @@ def register_locate_bench(sub) -> None:
     )
     p.add_argument("--half-range", type=float, nargs="+", default=[0.1, 0.25], metavar="F",
                    help="brackets: the analytic threshold +- F x itself (default 0.1 0.25)")
-    p.add_argument("--seeds", type=int, default=10, metavar="N", help="locate runs (default 10)")
-    p.add_argument("--grid-seeds", type=int, default=5, metavar="N", help="grid runs per bracket (default 5)")
+    p.add_argument("--seeds", type=positive, default=10, metavar="N", help="locate runs (default 10)")
+    p.add_argument("--grid-seeds", type=positive, default=5, metavar="N", help="grid runs per bracket (default 5)")
     p.add_argument("--workers", type=positive, default=None, metavar="N", help="local worker processes")
     p.add_argument("--json", action="store_true", help="print JSON")
     p.set_defaults(func=cmd_locate_bench)

@@ -60,7 +60,8 @@ def trait_figure(path, *, max_replicates: int = 8):
             seen.add(s.kind)
         where = ", ".join(f"{k} = {row[k]:g}" if isinstance(row[k], (int, float, np.number)) else f"{k} = {row[k]}"
                           for k in points.columns if k != "point")
-        ax.set_title(f"point {point}" + (f": {where}" if where else ""), fontsize=9)
+        if where or n > 1:  # one point and no sweep: nothing to tell panels apart by
+            ax.set_title(f"point {point}" + (f": {where}" if where else ""), fontsize=9)
         ax.set_ylim(-0.02, 1.02)
         ax.set_ylabel("effort (share put into breeding)")
         ax.legend(fontsize=7, frameon=False, loc="best")

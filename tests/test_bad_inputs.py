@@ -346,3 +346,10 @@ def test_a_scheme_other_than_tcp_is_one_line(tmp_path, capsys, address):
     err = capsys.readouterr().err
     assert "broodline reaches a dask scheduler over tcp://" in err and "Traceback" not in err
     assert not (tmp_path / "out.h5").exists()
+
+
+@pytest.mark.parametrize("option", ["--seeds", "--grid-seeds"])
+def test_locate_bench_refuses_a_count_below_one_before_running(option, capsys):
+    with pytest.raises(SystemExit) as stop:
+        main(["locate-bench", option, "0"])
+    assert stop.value.code == 2 and f"{option}: must be >= 1; got 0" in capsys.readouterr().err

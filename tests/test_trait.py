@@ -250,6 +250,13 @@ def test_plot_and_compare_of_a_trait_run(tmp_path, capsys):
     run_experiment(parse_config(trait_raw(steps=200, replicates=2)), out, progress=False)
     assert main(["plot", str(out), "-o", str(tmp_path / "fig")]) == 0
     assert (tmp_path / "fig" / "trait.png").is_file() and (tmp_path / "fig" / "trait.svg").is_file()
+    import matplotlib.pyplot as plt
+
+    from analysis.trait_plots import trait_figure
+
+    fig = trait_figure(out)  # one point, nothing swept: no "point 0" title on its one panel
+    assert fig.axes[0].get_title() == ""
+    plt.close(fig)
     capsys.readouterr()
     assert main(["compare", str(out), "--json"]) == 0
     rows = json.loads(capsys.readouterr().out)["replicates"]
