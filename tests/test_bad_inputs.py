@@ -9,6 +9,7 @@ import re
 
 import pytest
 
+from analysis.lab.toml_text import raw_toml_text
 from sim.cli import main
 from sim.config import ConfigError, load_config, parse_config
 from tests.conftest import BASE
@@ -101,25 +102,10 @@ def test_a_bad_value_in_a_list_by_age_is_named_with_its_index(changes, message, 
     err = _refused(changes, message)
     assert len(err.problems) == 1
     path = tmp_path / "c.toml"
-    path.write_text(_toml(_raw(**changes)))
+    path.write_text(raw_toml_text(_raw(**changes)))
     assert main(["check", str(path)]) == 2
     said = capsys.readouterr().err.strip()
     assert re.search(message.removeprefix("^"), said) and said.count("\n") == 0
-
-
-def _toml(raw: dict) -> str:
-    """A raw config as TOML (tables, arrays of tables, lists of numbers, strings and booleans)."""
-    import json
-
-    def value(v):
-        return json.dumps(v) if not isinstance(v, list) else "[" + ", ".join(map(value, v)) + "]"
-
-    lines = []
-    for section, body in raw.items():
-        for table in (body if isinstance(body, list) else [body]):
-            lines.append(f"[[{section}]]" if isinstance(body, list) else f"[{section}]")
-            lines += [f"{json.dumps(k)} = {value(v)}" for k, v in table.items()]
-    return "\n".join(lines) + "\n"
 
 
 def test_a_sweep_too_large_to_hold_is_refused_before_it_is_expanded():

@@ -4,6 +4,7 @@ import re
 
 import pytest
 
+from analysis.lab.toml_text import raw_toml_text
 from sim.describe import describe_experiment
 from tests.invasion_configs import invasion_config
 
@@ -112,17 +113,6 @@ IGNORED = [
 ]
 
 
-def _toml(raw: dict) -> str:
-    import json
-
-    lines = []
-    for section, body in raw.items():
-        for table in (body if isinstance(body, list) else [body]):
-            lines.append(f"[[{section}]]" if isinstance(body, list) else f"[{section}]")
-            lines += [f"{json.dumps(k)} = {json.dumps(v)}" for k, v in table.items()]
-    return "\n".join(lines) + "\n"
-
-
 @pytest.mark.parametrize("changes, warning", IGNORED)
 def test_an_ignored_key_is_said_by_check_and_before_a_run(changes, warning, tmp_path, capsys):
     from sim.cli import main
@@ -136,7 +126,7 @@ def test_an_ignored_key_is_said_by_check_and_before_a_run(changes, warning, tmp_
     with pytest.warns(ConfigWarning, match=re.escape(warning)):
         preflight(config)
     path = tmp_path / "c.toml"
-    path.write_text(_toml(raw))
+    path.write_text(raw_toml_text(raw))
     assert main(["check", str(path)]) == 0
     assert f"warning: {warning}" in capsys.readouterr().out
 

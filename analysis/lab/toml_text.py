@@ -7,7 +7,7 @@ import re
 
 from sim.config import Config
 
-__all__ = ["toml_text"]
+__all__ = ["toml_text", "raw_toml_text"]
 
 _BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
 _ORDER = ("experiment", "density", "offspring", "allele", "invasion", "mutation", "sweep")
@@ -52,7 +52,11 @@ def toml_text(config: Config, *, header: str = "") -> str:
     header : str
         One line written as a comment at the top.
     """
-    raw = config.model_dump(mode="json", exclude_none=True)
+    return raw_toml_text(config.model_dump(mode="json", exclude_none=True), header=header)
+
+
+def raw_toml_text(raw: dict, *, header: str = "") -> str:
+    """A raw config (a dict, as TOML gives, checked or not) as TOML text; None values left out."""
     lines = [f"# {header}"] if header else []
     for section in [*_ORDER, *(k for k in raw if k not in _ORDER)]:
         value = raw.get(section)
