@@ -396,24 +396,36 @@ def _reasons_html(table: pd.DataFrame) -> str:
 def _table_html(table: pd.DataFrame, swept: list[str]) -> str:
     """The results table, narrow enough for the page; the reasons follow it as a list."""
     cols = ["point", *swept, *SHOWN_COLUMNS]
-    head = "".join(f"<th>{_header(c, swept)}</th>" for c in cols)
+
+    def cell(c, v):
+        if c in ("verdict", "agreement"):
+            return f'<td class="{f"text {v}" if c == "agreement" else "text"}">{html.escape(str(v))}</td>'
+        return None
+
+    return _html_table(table, cols, [_header(c, swept) for c in cols], cell) + _reasons_html(table)
+
+
+def _html_table(table: pd.DataFrame, cols: list[str], headers: list[str], cell, *, missing: str | None = None) -> str:
+    """``cols`` of ``table`` as an HTML table under ``headers`` (already HTML): ``cell(column, value)``
+    gives a cell's HTML, or None for the plain one (numbers to 4 significant digits; a
+    non-finite number as ``missing``, if given)."""
     rows = []
     for _, r in table.iterrows():
         cells = []
         for c in cols:
             v = r[c]
-            if c in ("verdict", "agreement"):
-                cls = f"text {v}" if c == "agreement" else "text"
-                cells.append(f'<td class="{cls}">{html.escape(str(v))}</td>')
+            special = cell(c, v)
+            if special is not None:
+                cells.append(special)
             elif isinstance(v, (float, np.floating)):
-                cells.append(f"<td>{v:.4g}</td>")
+                shown = missing if missing is not None and not np.isfinite(v) else f"{v:.4g}"
+                cells.append(f"<td>{shown}</td>")
             else:
                 cells.append(f"<td>{html.escape(str(v))}</td>")
         rows.append("<tr>" + "".join(cells) + "</tr>")
-    return (
-        f'<div class="scroll"><table><thead><tr>{head}</tr></thead>'
-        f"<tbody>{''.join(rows)}</tbody></table></div>" + _reasons_html(table)
-    )
+    head = "".join(f"<th>{h}</th>" for h in headers)
+    return (f'<div class="scroll"><table><thead><tr>{head}</tr></thead>'
+            f"<tbody>{''.join(rows)}</tbody></table></div>")
 
 
 def _figure(png: Path, caption: str) -> str:
@@ -626,26 +638,16 @@ def _trait_prediction_text(path, config) -> tuple[str, list]:
 
 def _trait_table_html(table: pd.DataFrame) -> str:
     cols = [c for c in _TRAIT_COLUMNS if c in table]
-    head = "".join(f"<th>{html.escape(_TRAIT_COLUMNS[c])}</th>" for c in cols)
-    rows = []
-    for _, r in table.iterrows():
-        cells = []
-        for c in cols:
-            v = r[c]
-            if c == "attractors":
-                cells.append(f"<td>{html.escape(', '.join(f'{a:.4g}' for a in v) or 'none')}</td>")
-            elif c == "verdict":
-                cls = {"at attractor": "agrees", "away from attractor": "disagrees"}.get(v, "inconclusive")
-                cells.append(f'<td class="text {cls}">{html.escape(str(v))}</td>')
-            elif isinstance(v, (float, np.floating)):
-                cells.append(f"<td>{v:.4g}</td>" if np.isfinite(v) else "<td>-</td>")
-            else:
-                cells.append(f"<td>{html.escape(str(v))}</td>")
-        rows.append("<tr>" + "".join(cells) + "</tr>")
-    return (
-        f'<div class="scroll"><table><thead><tr>{head}</tr></thead>'
-        f"<tbody>{''.join(rows)}</tbody></table></div>"
-    )
+
+    def cell(c, v):
+        if c == "attractors":
+            return f"<td>{html.escape(', '.join(f'{a:.4g}' for a in v) or 'none')}</td>"
+        if c == "verdict":
+            cls = {"at attractor": "agrees", "away from attractor": "disagrees"}.get(v, "inconclusive")
+            return f'<td class="text {cls}">{html.escape(str(v))}</td>'
+        return None
+
+    return _html_table(table, cols, [html.escape(_TRAIT_COLUMNS[c]) for c in cols], cell, missing="-")
 
 
 def trait_verdict_text(table: pd.DataFrame) -> str:
