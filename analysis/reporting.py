@@ -440,8 +440,8 @@ _CAPTIONS = {
     "fixation": "Observed fixation fraction of the mutant at each sweep point (95% Wilson "
     "intervals), the branching-process establishment probability, the neutral "
     "expectation, and the analytic and observed thresholds.",
-    "trajectories": "Share of the mutant (without an invasion table: of the first allele) in a "
-    "sample of replicates at a few sweep points, coloured by how each ended, and their census "
+    "trajectories": "Share of {tracked} in a sample of replicates at a few sweep points, coloured "
+    "by how each ended, and their census "
     "size below.",
     "outcomes": "How the replicates ended at each sweep point.",
     "invasion_fitness": "Invasion fitness of the mutant along the swept parameter; it invades "
@@ -454,7 +454,9 @@ _CAPTIONS = {
 def _figures_html(path, figures_dir, **tables) -> str:
     with tempfile.TemporaryDirectory() as tmp:
         figs = plot(path, figures_dir or tmp, **tables)
-        return "".join(_figure(figs.png(name), _CAPTIONS[name]) for name in _CAPTIONS if name in figs.files)
+        tracked = "the mutant" if experiment_config(path).invasion is not None else "the first allele"
+        return "".join(_figure(figs.png(name), _CAPTIONS[name].format(tracked=tracked))
+                       for name in _CAPTIONS if name in figs.files)
 
 
 def _cautions(limits: str = _LIMITS) -> tuple:

@@ -78,6 +78,8 @@ def test_report_content(page):
     assert "has Beverton-Holt density dependence" in words and "offspring numbers are Poisson" in words
     assert " ".join(CAUTIONS.split()) in " ".join(words.split())
     assert "not advice for managing real populations" in words
+    # the caption says whose share is drawn here, not both cases
+    assert "Share of the mutant in a sample of replicates" in words and "without an invasion table" not in words
 
 
 def test_report_refuses_missing_folder(tmp_path):
