@@ -202,3 +202,19 @@ def test_a_full_disk_during_the_merge_keeps_the_shards(tiny_fs, tmp_path, monkey
     reference = tmp_path / "ref.h5"
     run_experiment(small_config(replicates=REPLICATES), reference, progress=False)
     assert_same_datasets(reference, out)
+
+
+def test_a_file_that_cannot_be_started_leaves_no_folder_behind(tmp_path, monkeypatch, capsys):
+    # a full disk as the header is written: the message says nothing was written, and the
+    # shards' folder this run made for its lock is gone too (common practice: a failed start
+    # leaves the output folder as it was)
+    config = write_config(tmp_path)
+    out = tmp_path / "out.h5"
+
+    def full_disk(path, fill):
+        raise OSError(errno.ENOSPC, "No space left on device")
+
+    monkeypatch.setattr(store.writer.durable, "write_atomic", full_disk)
+    assert main(["run", str(config), "-o", str(out), "--workers", "1", "--quiet"]) == 2
+    assert "nothing was written" in capsys.readouterr().err
+    assert sorted(p.name for p in tmp_path.iterdir()) == [config.name]

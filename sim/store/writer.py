@@ -104,6 +104,7 @@ class ResultsWriter:
         self._check_target(overwrite=overwrite, resume=resume)
         if resume and self._resumable():
             self._checked_attrs()  # a file that cannot be resumed is refused before the lock's folder is made
+        made_parts = not self.parts.exists()
         self._lock()
         try:
             self.fresh = not (resume and self._resumable())
@@ -113,6 +114,8 @@ class ResultsWriter:
                 self._open_existing()
             self.shards = {} if self.complete else self._scan()
         except BaseException:
+            if made_parts and not self.path.exists():
+                self._remove_lock_folder()
             self._unlock()
             raise
 
@@ -171,6 +174,17 @@ class ResultsWriter:
             raise ResultsError(f"could not start {str(self.path)!r}: {err.strerror or err} "
                                "(nothing was written; free disk space and run again)") from None
         self._lock_fd = fd
+
+    def _remove_lock_folder(self) -> None:
+        """Remove the shards' folder this run made, holding only its lock, when starting the
+        file failed (e.g. a full disk): nothing of the run is left behind. Done while the lock
+        is held; a folder holding anything else is kept."""
+        try:
+            if [p.name for p in self.parts.iterdir()] == ["lock"]:
+                (self.parts / "lock").unlink()
+                self.parts.rmdir()
+        except OSError:
+            pass
 
     def _unlock(self) -> None:
         if self._lock_fd is not None:
