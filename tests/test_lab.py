@@ -391,6 +391,19 @@ def test_a_settings_change_that_fails_half_way_changes_nothing(session, monkeypa
     assert (session.raw, session.config, session.theory, session.generation, session.tally()) == before
 
 
+def test_an_emptied_field_shows_the_default_now_in_force(session):
+    # an empty box means "not set", so the schema's default applies; the page shows that value
+    default = InvasionSection.model_fields["mutant_count"].default
+    assert session.update({"invasion.mutant_count": str(default + 2)}) == []
+    assert session.update({"invasion.mutant_count": ""}) == []
+    assert session.config.invasion.mutant_count == default
+    assert session.view()["settings"]["invasion.mutant_count"] == default
+    # a key with no default, emptied, is refused by the schema and shown empty with the problem
+    problems = session.update({"mutant.fecundity": ""})
+    assert problems and session.view()["settings"]["mutant.fecundity"] is None
+    assert control_of(problems[0], session.raw) == "mutant.fecundity"
+
+
 def test_changing_only_the_replicates_count_keeps_the_replicates(session):
     session.run_many(3)
     session.wait()
@@ -421,6 +434,24 @@ def test_the_replicate_count_is_capped(session):
     for n in (0, MAX_REPLICATES + 1, 2.5, "10"):
         with pytest.raises(ValueError, match="n: a whole number of replicates"):
             session.run_many(n)
+
+
+def test_the_page_holds_at_most_max_replicates_in_all(session, monkeypatch):
+    import analysis.lab.session as lab_session
+
+    monkeypatch.setattr(lab_session, "MAX_REPLICATES", 25)
+    assert session.run_many(20)
+    session.wait()
+    assert session.run_many(20)  # runs the 5 that fit, and says so
+    assert "of 20 asked" in session.activity or session.n_replicates == 25
+    session.wait()
+    assert session.n_replicates == 25 and session.tally().n == 25
+    assert not session.run_many(1) and not session.run_one() and not session.step_season()
+    assert "holds at most 25 replicates" in session.view()["error"] and session.n_replicates == 25
+    session.reset()
+    assert session.run_many(3)
+    session.wait()
+    assert session.n_replicates == 3 and session.view()["error"] == ""
 
 
 def test_stop_takes_effect_within_one_batch(session):

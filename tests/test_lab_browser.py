@@ -167,3 +167,16 @@ def test_a_refused_request_is_said_and_the_page_keeps_working(page, lab):
     page.evaluate("post('/api/replicates', { n: 0 })")
     page.wait_for_function("document.querySelector('#error').textContent.includes('n: a whole number')")
     assert not page.is_disabled("#btn-replicates")
+
+
+def test_an_emptied_box_shows_the_default_now_in_force(page):
+    # Enter keeps the focus in the box; the page still shows what the server now holds
+    selector = "#ctl-invasion-mutant_count"
+    page.fill(selector, "3")
+    page.press(selector, "Enter")
+    page.wait_for_function(f"document.querySelector('{selector}').value === '3'")
+    page.fill(selector, "")
+    page.press(selector, "Enter")
+    # the schema's default mutant count (sim.config.InvasionSection) is 1
+    page.wait_for_function(f"document.querySelector('{selector}').value === '1'")
+    assert page.evaluate("view.settings['invasion.mutant_count']") == 1

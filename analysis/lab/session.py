@@ -247,6 +247,9 @@ class LabSession:
             if problems:
                 self.raw, self.problems = raw, problems
                 return problems
+            # accepted: the page then shows the settings in force (an emptied field shows the
+            # schema's default that now applies, not an empty box)
+            raw = page_raw(config)
             if _same_replicates(config, self.config):
                 self.raw, self.problems, self.config = raw, [], config
                 return []
@@ -285,7 +288,15 @@ class LabSession:
         return self._worker is not None and self._worker.is_alive()
 
     def _ready(self) -> bool:
-        return not self.problems and not self.running
+        return not self.problems and not self.running and not self._full()
+
+    def _full(self) -> bool:
+        """Whether the page holds ``MAX_REPLICATES`` replicates (then its message is shown)."""
+        if self.stepper is not None or self.n_replicates < MAX_REPLICATES:  # an open replicate had room
+            return False
+        self.error = (f"the page holds at most {MAX_REPLICATES:,} replicates: Reset to start again, "
+                      "or use `broodline run` for more")
+        return True
 
     def step_season(self) -> bool:
         """Advance the current replicate one season (starting the next one if none is open).
@@ -340,11 +351,17 @@ class LabSession:
         Raises
         ------
         ValueError
-            For ``n`` not a whole number from 1 to ``MAX_REPLICATES``.
+            For ``n`` not a whole number from 1 to ``MAX_REPLICATES``. The page holds at
+            most ``MAX_REPLICATES`` in all: a larger request runs what fits, and a full page
+            runs none (it says so in ``error``; Reset empties it).
         """
         n = self.config.experiment.replicates if n is None else n
         if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= MAX_REPLICATES:
             raise ValueError(f"n: a whole number of replicates from 1 to {MAX_REPLICATES}; got {n!r}")
+        room = MAX_REPLICATES - self.n_replicates
+        if 0 < room < n:
+            return self._start(lambda: self._run_many(room),
+                               f"running {room} replicates (of {n} asked: the page holds {MAX_REPLICATES:,})")
         return self._start(lambda: self._run_many(n), f"running {n} replicates")
 
     def _start(self, work, activity: str) -> bool:

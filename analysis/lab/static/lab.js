@@ -12,6 +12,7 @@ let lines = [];         // frequency lines of the last finished replicates (view
 let seen = 0;           // replicates whose lines have been asked for
 let generation = null;
 let polling = false;
+let changed = null;     // the control whose change was just sent: its box shows the answer even with focus
 
 const $ = (id) => document.getElementById(id);
 const idOf = (key) => "ctl-" + key.replace(".", "-");
@@ -62,7 +63,10 @@ async function buildControls() {
     }
     input.id = idOf(c.key);
     input.dataset.key = c.key;
-    input.addEventListener("change", () => post("/api/update", { changes: { [c.key]: input.value } }));
+    input.addEventListener("change", () => {
+      changed = c.key;  // an emptied box then shows the default now in force
+      post("/api/update", { changes: { [c.key]: input.value } });
+    });
     const msg = document.createElement("span");
     msg.className = "msg";
     row.append(name, input, msg);
@@ -75,10 +79,11 @@ function showControls(v) {
   $("name-mutant").textContent = v.mutant;
   for (const [key, value] of Object.entries(v.settings)) {
     const input = $(idOf(key));
-    if (input && document.activeElement !== input) input.value = value === null ? "" : (Array.isArray(value) ? value.join(", ") : value);
+    if (input && (document.activeElement !== input || key === changed)) input.value = value === null ? "" : (Array.isArray(value) ? value.join(", ") : value);
     const row = $("row-" + idOf(key));
     if (row) { row.classList.remove("bad"); row.querySelector(".msg").textContent = ""; }
   }
+  changed = null;
   const loose = [];
   for (const p of v.problems) {
     const row = p.control && $("row-" + idOf(p.control));
