@@ -161,6 +161,24 @@ def _import_soon(module: str) -> None:
                      name=f"import {module}").start()
 
 
+def _refuse_locate_file(out) -> None:
+    """Refuse to resume, as an experiment, a file that ``broodline locate`` wrote (its
+    stages are sweeps of their own): the message gives the command that finishes it."""
+    from .store import ResultsError, resumable_attrs
+
+    if not Path(out).is_file():
+        return
+    try:
+        attrs = resumable_attrs(out)
+    except ResultsError:
+        return  # not a results file of this format: the writer says why
+    if "locate" in attrs:
+        from .status import resume_command
+
+        raise ResultsError(f"cannot resume {str(out)!r} with run: broodline locate wrote it; "
+                           f"finish it with\n  {resume_command(out, attrs)}")
+
+
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
                    workers: int = 1, in_process: bool = True, cluster: str | None = None,
                    progress: bool = True, batch_size: int | None = None, budget: bool = True,
@@ -224,6 +242,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     _import_soon("sim.store.readers")
     try:
         points = preflight(config, budget=budget)
+        if resume:
+            _refuse_locate_file(out)
         clock.checked = time.perf_counter()
         writer = ResultsWriter(out, config, points, overwrite=overwrite, resume=resume)
         clock.file_ready = time.perf_counter()
