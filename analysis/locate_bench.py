@@ -182,7 +182,7 @@ def _grid_run(config, workers: int, out: Path) -> np.ndarray:
     from sim.experiment import run_experiment
     from sim.store import read_outcomes
 
-    run_experiment(config, out, overwrite=True, workers=workers, progress=False)
+    run_experiment(config, out, overwrite=True, workers=workers, progress=False, as_frame=False)
     reps = read_outcomes(out).sort_values(["point", "replicate"])
     if not reps["outcome"].isin(["mutant-fixed", "mutant-lost"]).all():
         raise RuntimeError("locate-bench: a grid replicate did not resolve (raise max_steps)")

@@ -67,7 +67,7 @@ from sim.store import read_outcomes
 if __name__ == "__main__":
     config, out, workers = sys.argv[1], sys.argv[2], int(sys.argv[3])
     start = time.perf_counter()
-    run_experiment(load_config(config), out, workers=workers, progress=False)
+    run_experiment(load_config(config), out, workers=workers, progress=False, as_frame=False)
     seconds = time.perf_counter() - start
     print(json.dumps({
         "seconds": seconds,

@@ -235,7 +235,7 @@ def _run_in_child(conn, raw: dict, out: str, workers: int) -> None:
     try:
         # budget=False: to fixation, max_steps is a bound, not the work
         run_experiment(parse_config(raw), out, workers=workers, in_process=in_process,
-                       progress=False, timings=timings, budget=False)
+                       progress=False, timings=timings, budget=False, as_frame=False)
     except Exception as err:
         conn.send({"error": f"{type(err).__name__}: {err}"})
         conn.close()

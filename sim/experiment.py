@@ -10,7 +10,6 @@ only indexes it; a dask worker's results are saved by the writer
 
 from __future__ import annotations
 
-import importlib
 import logging
 import threading
 import time
@@ -23,10 +22,11 @@ from tqdm import tqdm
 
 from .config import Config
 from .describe import preflight
-from .outcomes import fixed_outcome, summarize
+from .outcomes import fixed_outcome, summary_of
 from .parallel import BatchClock, Job, default_batch_size, iter_batches, make_pool
 from .point_run import PointRun
 from .store import ResultsWriter, software_version
+from .store.layout import swept_column
 from .vocabulary import DECIDED
 
 log = logging.getLogger(__name__)
@@ -91,7 +91,7 @@ class _Progress:
 
     def _fixed_words(self, p: int) -> str:
         """A finished point's fixed count and fraction, over the resolved replicates as in the
-        summary's ``fixed_fraction`` (``sim.outcomes.summarize``)."""
+        summary's ``fixed_fraction`` (``sim.outcomes.summary_of``)."""
         resolved = sum(self.outcomes[p, o] for o in DECIDED)
         fixed = f"{self.fixed_name} {self.fixed[p]}"
         if resolved == 0:
@@ -99,14 +99,6 @@ class _Progress:
         if resolved < self.n_reps:
             return f"{fixed} of {resolved} resolved ({self.fixed[p] / resolved:.3f})"
         return f"{fixed} ({self.fixed[p] / resolved:.3f})"
-
-    def outcome_counts(self):
-        """Replicates per (point, outcome), as ``sim.store.count_outcomes`` reads them from the
-        file: counted as batches came, so the summary needs no pass over the file."""
-        import pandas as pd
-
-        return pd.DataFrame([(p, o, n) for (p, o), n in sorted(self.outcomes.items())],
-                            columns=["point", "outcome", "count"])
 
     def close(self) -> None:
         self.bar.close()
@@ -155,10 +147,15 @@ class RunTimings:
     workers: list[tuple[int, float, float]] = field(default_factory=list)
 
 
-def _import_soon(module: str) -> None:
-    """Import ``module`` in a background thread, so that it is loaded when first used."""
-    threading.Thread(target=importlib.import_module, args=(module,), daemon=True,
-                     name=f"import {module}").start()
+def _swept_values(points) -> dict[int, dict]:
+    """Each point's swept values as the results file's /points holds them (``swept_column``)."""
+    values: dict[int, dict] = {p.index: {} for p in points}
+    for key in points[0].values:
+        column = swept_column([p.values[key] for p in points])
+        for p, value in zip(points, column.tolist() if column is not None else
+                            [p.values[key] for p in points], strict=True):
+            values[p.index][key] = value
+    return values
 
 
 def _refuse_locate_file(out) -> None:
@@ -182,7 +179,7 @@ def _refuse_locate_file(out) -> None:
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
                    workers: int = 1, in_process: bool = True, cluster: str | None = None,
                    progress: bool = True, batch_size: int | None = None, budget: bool = True,
-                   timings: RunTimings | None = None):
+                   timings: RunTimings | None = None, as_frame: bool = True):
     """Run every replicate of every sweep point, streaming results to an HDF5 file.
 
     Batches of replicates run in this process (``workers=1``), in local
@@ -219,11 +216,14 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         (``False`` lifts it).
     timings : RunTimings, optional
         Filled with where the time went (``broodline bench --scaling``).
+    as_frame : bool
+        Return the summary as a pandas DataFrame (default), or as a plain
+        ``sim.outcomes.Summary`` (the command line: pandas is then never imported).
 
     Returns
     -------
-    pandas.DataFrame
-        The per-point summary (see ``summarize``).
+    pandas.DataFrame or Summary
+        The per-point summary (see ``sim.outcomes.summary_of``).
 
     Raises
     ------
@@ -237,9 +237,6 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     # header written; a bad cluster address still fails before any file
     pool = make_pool(workers=workers, cluster=cluster, in_process=in_process)
     clock.pool_started = time.perf_counter()
-    # the summary's readers (pandas) load in the background: while this process waits for its
-    # workers, or while the compiled passes of its own batches leave the interpreter free
-    _import_soon("sim.store.readers")
     try:
         points = preflight(config, budget=budget)
         if resume:
@@ -325,8 +322,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if tracker is not None:
             tracker.close()
     pool.shutdown()
-    from .store.readers import read_points  # (pandas, loaded in the background by now)
-
-    summary = summarize(tracker.outcome_counts(), read_points(out), fixed=fixed_outcome(config))
+    # from the outcomes counted as batches came: no pass over the file, and no pandas (whose
+    # import, 0.3 s of CPU, would take a core from the workers)
+    summary = summary_of(tracker.outcomes, _swept_values(points), fixed=fixed_outcome(config))
     clock.finished = time.perf_counter()
-    return summary
+    return summary.frame() if as_frame else summary

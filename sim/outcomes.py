@@ -7,6 +7,9 @@ on arrays of codes (``classify``) and names appear only when results are made.
 
 from __future__ import annotations
 
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -19,7 +22,7 @@ if TYPE_CHECKING:  # pandas, where a table is made, and pydantic: a worker proce
     from .config import Config
 
 __all__ = ["OUTCOMES", "DECIDED", "DECIDED_WITH_WINNER", "CODES", "classify", "mutant_index",
-           "census_states", "fixed_outcome", "summarize"]
+           "census_states", "fixed_outcome", "Summary", "summary_of", "summarize"]
 
 CODES = {name: code for code, name in enumerate(OUTCOMES)}  # outcome name -> code
 _MUTANT_FIXED, _MUTANT_LOST, _FIXED, _EXTINCT, _UNDECIDED = (
@@ -73,8 +76,43 @@ def fixed_outcome(config: Config) -> str:
     return "mutant-fixed" if config.invasion is not None else "fixed"
 
 
-def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
-              fixed: str = "mutant-fixed") -> pd.DataFrame:
+@dataclass(frozen=True)
+class Summary:
+    """The per-point summary of an experiment, as plain columns (``frame()`` makes the
+    pandas table; the command line prints ``text()`` and needs no pandas).
+
+    ``columns`` maps each column's name to its values, one per point: ``point``, the
+    swept keys, ``replicates``, the count of each outcome that occurred (the fixed
+    outcome always, and ``mutant-lost`` with ``[invasion]``), ``resolved`` and
+    ``fixed_fraction``.
+    """
+
+    columns: dict[str, list]
+
+    def frame(self) -> pd.DataFrame:
+        """The summary as a pandas DataFrame, a row per point."""
+        import pandas as pd
+
+        return pd.DataFrame(self.columns)
+
+    def text(self) -> str:
+        """The table as the command line prints it: right-aligned, fractions to 3 decimals."""
+        cells = {name: [_cell(v) for v in values] for name, values in self.columns.items()}
+        widths = {name: max(len(name), *map(len, column)) for name, column in cells.items()}
+        n = len(self.columns["point"])
+        rows = [[name.rjust(widths[name]) for name in cells]]
+        rows += [[cells[name][i].rjust(widths[name]) for name in cells] for i in range(n)]
+        return "\n".join("  ".join(row) for row in rows)
+
+
+def _cell(value) -> str:
+    if isinstance(value, float | np.floating):
+        return f"{value:.3f}"
+    return str(value)
+
+
+def summary_of(counts: Mapping[tuple[int, str], int], values: Mapping[int, Mapping] | None = None, *,
+               fixed: str = "mutant-fixed") -> Summary:
     """Per sweep point: replicates, the count of each outcome, and the fraction ``fixed``.
 
     ``fixed_fraction`` is taken over the resolved replicates (those whose outcome
@@ -83,35 +121,51 @@ def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
 
     Parameters
     ----------
+    counts : mapping
+        Replicates per (point, outcome name); a row for each point with any.
+    values : mapping, optional
+        Each point's swept values (``{point: {key: value}}``), as columns after ``point``.
+    fixed : str
+        The outcome ``fixed_fraction`` counts: ``fixed_outcome(config)``
+        ("fixed" for an experiment without ``[invasion]``).
+    """
+    points = sorted({p for (p, _), k in counts.items() if k})
+    rows = range(len(points))
+    n = {name: [int(counts.get((p, name), 0)) for p in points] for name in OUTCOMES}
+    swept = [(values or {}).get(p, {}) for p in points]
+    columns: dict[str, list] = {"point": points}
+    for key in dict.fromkeys(key for point in swept for key in point):
+        columns[key] = [point.get(key) for point in swept]
+    columns["replicates"] = [sum(n[name][i] for name in OUTCOMES) for i in rows]
+    always = ("mutant-fixed", "mutant-lost") if fixed == "mutant-fixed" else (fixed,)
+    for name in OUTCOMES:
+        if any(n[name]) or name in always:
+            columns[name] = n[name]
+    resolved = [sum(n[name][i] for name in DECIDED) for i in rows]
+    columns["resolved"] = resolved
+    columns["fixed_fraction"] = [k / r if r else math.nan for k, r in zip(n[fixed], resolved, strict=True)]
+    return Summary(columns)
+
+
+def summarize(replicates: pd.DataFrame, points: pd.DataFrame | None = None, *,
+              fixed: str = "mutant-fixed") -> pd.DataFrame:
+    """``summary_of`` for tables read from a results file, as a pandas DataFrame.
+
+    Parameters
+    ----------
     replicates : DataFrame
         At least ``point`` and ``outcome`` (``sim.store.read_outcomes``), one row per
         replicate; or with a ``count`` column, one row per (point, outcome)
         (``sim.store.count_outcomes``, which streams).
     points : DataFrame, optional
-        The sweep points (``sim.store.read_points``), merged in by ``point``.
+        The sweep points (``sim.store.read_points``): their swept values become columns.
     fixed : str
-        The outcome ``fixed_fraction`` counts: ``fixed_outcome(config)``
-        ("fixed" for an experiment without ``[invasion]``).
+        As for ``summary_of``.
     """
-    import pandas as pd
-
-    if "count" in replicates:
-        counts = replicates.pivot_table(index="point", columns="outcome", values="count",
-                                        aggfunc="sum", fill_value=0)
-        counts.columns.name = "outcome"
-    else:
-        counts = pd.crosstab(replicates["point"], replicates["outcome"])
-    for name in OUTCOMES:
-        if name not in counts:
-            counts[name] = 0
-    table = pd.DataFrame({"replicates": counts.sum(axis=1)})
-    always = ("mutant-fixed", "mutant-lost") if fixed == "mutant-fixed" else (fixed,)
-    for name in OUTCOMES:
-        if counts[name].any() or name in always:
-            table[name] = counts[name]
-    table["resolved"] = counts[list(DECIDED)].sum(axis=1)
-    table["fixed_fraction"] = counts[fixed] / table["resolved"].where(table["resolved"] > 0)
-    table = table.reset_index()
-    if points is not None and points.shape[1] > 1:
-        table = points.merge(table, on="point", how="right")
-    return table
+    groups = replicates.groupby(["point", "outcome"])
+    pairs = groups["count"].sum() if "count" in replicates else groups.size()
+    counts = {(int(p), str(o)): int(k) for (p, o), k in pairs.items()}
+    values = None
+    if points is not None:
+        values = {int(row.pop("point")): row for row in points.to_dict("records")}
+    return summary_of(counts, values, fixed=fixed).frame()

@@ -144,3 +144,21 @@ def test_the_run_summary_counts_what_the_file_holds(tmp_path):
     for summary, path in ((resumed, out), (fresh, tmp_path / "fresh.h5")):
         pd.testing.assert_frame_equal(summary, summarize(count_outcomes(path), read_points(path),
                                                          fixed=fixed_outcome(config)))
+
+
+def test_the_printed_summary_is_the_table_as_text():
+    # common practice: the count columns and the fraction over the resolved replicates
+    # (capped ones left out) by hand: point 0 fixed 3 of 4 resolved, point 1 none resolved
+    import math
+
+    from sim.outcomes import summary_of
+
+    summary = summary_of({(0, "mutant-fixed"): 3, (0, "mutant-lost"): 1, (1, "capped"): 2},
+                         {0: {"k": 1.0}, 1: {"k": 2.0}})
+    frame = summary.frame()
+    assert frame["fixed_fraction"][0] == 0.75 and math.isnan(frame["fixed_fraction"][1])
+    lines = summary.text().splitlines()
+    assert lines[0].split() == list(frame.columns)
+    assert lines[1].split() == ["0", "1.000", "4", "3", "1", "0", "4", "0.750"]
+    assert lines[2].split() == ["1", "2.000", "2", "0", "0", "2", "0", "nan"]
+    assert len({len(line) for line in lines}) == 1  # right-aligned columns

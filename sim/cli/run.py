@@ -134,7 +134,7 @@ def _resume_command(config_path, out) -> str:
 def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=1, in_process=True,
                           cluster=None, resume=False, batch_size=None, budget=True, config_path=None):
     """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint;
-    returns the summary (a pandas DataFrame)."""
+    returns the summary (a ``sim.outcomes.Summary``)."""
     from ..experiment import ExperimentInterrupted, run_experiment
     from ..parallel.start import default_workers
 
@@ -150,22 +150,19 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
     try:
         summary = run_experiment(config, out, overwrite=overwrite, resume=resume, workers=workers,
                                  in_process=in_process, cluster=cluster, progress=not quiet,
-                                 batch_size=batch_size, budget=budget)
+                                 batch_size=batch_size, budget=budget, as_frame=False)
     except ExperimentInterrupted as stop:
         print(f"\nStopped: {stop}. To finish the experiment, run:\n"
               f"  {_resume_command(config_path, out)}", file=sys.stderr)
         raise
     print(f"\nResults: {out}")
-    import pandas as pd
-
-    with pd.option_context("display.width", 120, "display.max_columns", 20,
-                           "display.float_format", "{:.3f}".format):
-        print(summary.to_string(index=False))
-    if "capped" in summary and summary["capped"].sum():
-        capped = summary[summary["capped"] > 0]
-        print(f"\nwarning: {int(capped['capped'].sum())} replicates passed experiment.max_population "
+    print(summary.text())
+    capped = summary.columns.get("capped", [])
+    if sum(capped):
+        points = [p for p, n in zip(summary.columns["point"], capped, strict=True) if n]
+        print(f"\nwarning: {sum(capped)} replicates passed experiment.max_population "
               f"= {config.experiment.max_population} and were stopped there, marked capped "
-              f"(points {', '.join(map(str, capped['point']))}): the population grows without "
+              f"(points {', '.join(map(str, points))}): the population grows without "
               "bound there; add density dependence or raise max_population", file=sys.stderr)
     return summary
 

@@ -96,6 +96,7 @@ __all__ = [
     "replicate_rows",
     "replicate_column",
     "is_complete",
+    "swept_column",
 ]
 
 FORMAT_VERSION = 3  # 3: the outcome as fixed-length text (2: variable-length)
@@ -148,6 +149,16 @@ class ConfigMismatchError(ResultsError):
     def __init__(self, message: str, differences: list[str]):
         super().__init__(message)
         self.differences = differences
+
+
+def swept_column(values: list) -> np.ndarray | None:
+    """A swept key's values, one per point, as ``/points`` stores them: float64 where every
+    value is a number (or a list of numbers), else None (stored as JSON text, read back as the
+    values themselves)."""
+    try:
+        return np.asarray(values, dtype=float)
+    except (TypeError, ValueError):
+        return None
 
 
 def parts_dir(path) -> Path:

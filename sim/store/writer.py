@@ -38,6 +38,7 @@ from .layout import (
     parts_dir,
     replicate_rows,
     software_version,
+    swept_column,
 )
 from .shards import ShardRows, ShardTarget, shard_rows
 
@@ -589,9 +590,10 @@ def fill_header(f, config, points, *, created: str | None = None, extra: dict | 
                                        for p in points], dtype=_STR)
     for key in points[0].values:
         values = [p.values[key] for p in points]
-        try:
-            pts.create_dataset(key, data=np.asarray(values, dtype=float))
-        except (TypeError, ValueError):
+        column = swept_column(values)
+        if column is not None:
+            pts.create_dataset(key, data=column)
+        else:
             pts.create_dataset(key, data=[json.dumps(v) for v in values], dtype=_STR)
     if config.trait is not None:  # each allele's effort: turns counts by allele into the trait
         f.attrs["trait_efforts"] = json.dumps(config.efforts())
