@@ -166,7 +166,8 @@ def test_refused_before_the_run(changes, message):
 EXPLODING = [
     dict(allele1__fecundity=1e12),
     dict(allele1__fecundity=1e300),
-    dict(allele0__fecundity=1e12, density__form="none", invasion__resident_count=10),
+    dict(allele0__fecundity=1e12, density__form="none", density__acts_on=None,
+         density__capacity=None, invasion__resident_count=10),
     dict(allele1__fecundity=1e300, offspring={"distribution": "fixed"}),
     dict(allele1__fecundity=1e12, offspring={"distribution": "negative-binomial", "dispersion": 1.0}),
     dict(allele1__fecundity=1e300, experiment__engine="counts"),
@@ -187,8 +188,10 @@ def test_an_exploding_population_ends_capped_without_sizing_its_arrays(changes):
 
 
 @pytest.mark.parametrize("changes", [
-    dict(allele1__fecundity=1e5, density__form="none", invasion__resident_count=10),
-    dict(allele1__fecundity=1e300, density__form="none", invasion__resident_count=10),
+    dict(allele1__fecundity=1e5, density__form="none", density__acts_on=None,
+         density__capacity=None, invasion__resident_count=10),
+    dict(allele1__fecundity=1e300, density__form="none", density__acts_on=None,
+         density__capacity=None, invasion__resident_count=10),
     dict(allele1__fecundity=1e5, density__form="ceiling", density__acts_on="recruitment"),
 ])
 def test_the_agents_engine_stops_building_an_exploding_population(changes):
