@@ -16,6 +16,7 @@ from scipy.stats import chi2, norm
 __all__ = [
     "FixationEstimate",
     "wilson_interval",
+    "round_to_interval",
     "ObservedThreshold",
     "LINKS",
     "fit_binomial_glm",
@@ -520,7 +521,7 @@ def observed_threshold(
         width = (high if np.isfinite(high) else x[-1]) - (low if np.isfinite(low) else x[0])
         message = (
             f"observed fixation crosses the neutral expectation at {parameter} = "
-            f"{_round(value, width)} ({level:.0%} interval {_bound(low, width)} to "
+            f"{round_to_interval(value, width)} ({level:.0%} interval {_bound(low, width)} to "
             f"{_bound(high, width)}){fit}"
         )
         if gap > width:
@@ -566,7 +567,7 @@ def observed_threshold(
     )
 
 
-def _round(v: float, width: float) -> str:
+def round_to_interval(v: float, width: float) -> str:
     """A value to the digits its interval's width supports (two significant digits of the width)."""
     if not np.isfinite(width) or width <= 0:
         return f"{v:.4g}"
@@ -575,4 +576,4 @@ def _round(v: float, width: float) -> str:
 
 
 def _bound(v: float, width: float = float("nan")) -> str:
-    return _round(v, width) if np.isfinite(v) else "beyond the range"
+    return round_to_interval(v, width) if np.isfinite(v) else "beyond the range"

@@ -41,6 +41,7 @@ from .comparison import (  # noqa: E402
     compare_thresholds,
     experiment_config,
 )
+from .estimates import round_to_interval  # noqa: E402
 from .finite_plots import draw_finite_curve  # noqa: E402
 from .sweep import factor_of, numeric_sweep_paths, other_swept_paths  # noqa: E402
 from .thresholds import establishment_along, fitness_along, with_values  # noqa: E402
@@ -288,8 +289,9 @@ def fixation_figure(table: pd.DataFrame, thresholds: pd.DataFrame, config):
     for row, colour, suffix in spans:  # after the data, so open bounds reach the axis ends
         lo = row["observed_low"] if np.isfinite(row["observed_low"]) else ax.get_xlim()[0]
         hi = row["observed_high"] if np.isfinite(row["observed_high"]) else ax.get_xlim()[1]
-        what = (f"observed threshold {row['observed']:.3g}" if np.isfinite(row["observed"])
-                else "observed threshold")
+        # to the digits its interval supports, as compare's text gives it
+        what = (f"observed threshold {round_to_interval(row['observed'], hi - lo)}"
+                if np.isfinite(row["observed"]) else "observed threshold")
         ax.axvspan(lo, hi, color=colour, alpha=0.15, label=f"{what}, 95% interval{suffix}")
     neutral = table["neutral_expectation"].to_numpy(float)
     if np.isfinite(neutral).any() and len(groups) == 1:

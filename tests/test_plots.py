@@ -93,6 +93,15 @@ def test_fixation_figure_content(results):
     assert any("establishment" in t for t in labels)
     assert any("neutral" in t for t in labels)
     assert any("analytic threshold 4" in t for t in labels)
+    # the observed threshold is given to the digits compare's text gives it
+    observed = next(t for t in labels if t.startswith("observed threshold"))
+    value = observed.removeprefix("observed threshold ").split(",")[0]
+    assert f"= {value} (" in thresholds["observed_message"].iloc[0]
+    narrow = thresholds.copy()  # an interval 0.07 wide supports three decimals (the demo's case)
+    narrow.loc[narrow.index[0], ["observed", "observed_low", "observed_high"]] = [3.99412, 3.959, 4.029]
+    drawn = fixation_figure(table, narrow, config)
+    assert "observed threshold 3.994, 95% interval" in [t.get_text() for t in drawn.axes[0].get_legend().get_texts()]
+    plt.close(drawn)
     # the neutral line (1/31) stands clear of the axis: the axis starts below 0
     assert ax.get_ylim()[0] < 0
     # the legend sits below the axes, not over the data
