@@ -96,8 +96,10 @@ class Summary:
         return pd.DataFrame(self.columns)
 
     def text(self) -> str:
-        """The table as the command line prints it: right-aligned, fractions to 3 decimals."""
-        cells = {name: [_cell(v) for v in values] for name, values in self.columns.items()}
+        """The table as the command line prints it: right-aligned, the fraction to 3 decimals,
+        swept values as given (to 6 significant digits)."""
+        cells = {name: [_cell(v, "{:.3f}" if name == "fixed_fraction" else "{:.6g}") for v in values]
+                 for name, values in self.columns.items()}
         widths = {name: max(len(name), *map(len, column)) for name, column in cells.items()}
         n = len(self.columns["point"])
         rows = [[name.rjust(widths[name]) for name in cells]]
@@ -105,9 +107,9 @@ class Summary:
         return "\n".join("  ".join(row) for row in rows)
 
 
-def _cell(value) -> str:
+def _cell(value, float_format: str) -> str:
     if isinstance(value, float | np.floating):
-        return f"{value:.3f}"
+        return float_format.format(value)
     return str(value)
 
 

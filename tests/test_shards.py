@@ -154,11 +154,11 @@ def test_the_printed_summary_is_the_table_as_text():
     from sim.outcomes import summary_of
 
     summary = summary_of({(0, "mutant-fixed"): 3, (0, "mutant-lost"): 1, (1, "capped"): 2},
-                         {0: {"k": 1.0}, 1: {"k": 2.0}})
+                         {0: {"k": 1.0}, 1: {"k": 2.5}})
     frame = summary.frame()
     assert frame["fixed_fraction"][0] == 0.75 and math.isnan(frame["fixed_fraction"][1])
     lines = summary.text().splitlines()
     assert lines[0].split() == list(frame.columns)
-    assert lines[1].split() == ["0", "1.000", "4", "3", "1", "0", "4", "0.750"]
-    assert lines[2].split() == ["1", "2.000", "2", "0", "0", "2", "0", "nan"]
+    assert lines[1].split() == ["0", "1", "4", "3", "1", "0", "4", "0.750"]
+    assert lines[2].split() == ["1", "2.5", "2", "0", "0", "2", "0", "nan"]
     assert len({len(line) for line in lines}) == 1  # right-aligned columns
