@@ -174,7 +174,7 @@ def test_an_emptied_box_shows_the_default_now_in_force(page):
     selector = "#ctl-invasion-mutant_count"
     page.fill(selector, "3")
     page.press(selector, "Enter")
-    page.wait_for_function(f"document.querySelector('{selector}').value === '3'")
+    page.wait_for_function("view.settings['invasion.mutant_count'] === 3")  # the server holds it
     page.fill(selector, "")
     page.press(selector, "Enter")
     # the schema's default mutant count (sim.config.InvasionSection) is 1

@@ -12,7 +12,6 @@ let lines = [];         // frequency lines of the last finished replicates (view
 let seen = 0;           // replicates whose lines have been asked for
 let generation = null;
 let polling = false;
-let changed = null;     // the control whose change was just sent: its box shows the answer even with focus
 
 const $ = (id) => document.getElementById(id);
 const idOf = (key) => "ctl-" + key.replace(".", "-");
@@ -28,8 +27,10 @@ async function call(method, path, body) {
   return answer;
 }
 
-function post(path, body = {}) {
-  return call("POST", path, { ...body, since: seen, generation }).then(receive, refused);
+// ``changed``: the control whose change this request sends; its box shows the answer even
+// while it has the focus (an emptied box then shows the default now in force)
+function post(path, body = {}, changed = null) {
+  return call("POST", path, { ...body, since: seen, generation }).then((v) => receive(v, changed), refused);
 }
 
 // a request the server refused or failed: say why, and show its state as it now is
@@ -63,10 +64,7 @@ async function buildControls() {
     }
     input.id = idOf(c.key);
     input.dataset.key = c.key;
-    input.addEventListener("change", () => {
-      changed = c.key;  // an emptied box then shows the default now in force
-      post("/api/update", { changes: { [c.key]: input.value } });
-    });
+    input.addEventListener("change", () => post("/api/update", { changes: { [c.key]: input.value } }, c.key));
     const msg = document.createElement("span");
     msg.className = "msg";
     row.append(name, input, msg);
@@ -74,7 +72,7 @@ async function buildControls() {
   }
 }
 
-function showControls(v) {
+function showControls(v, changed = null) {
   $("name-resident").textContent = v.resident;
   $("name-mutant").textContent = v.mutant;
   for (const [key, value] of Object.entries(v.settings)) {
@@ -83,7 +81,6 @@ function showControls(v) {
     const row = $("row-" + idOf(key));
     if (row) { row.classList.remove("bad"); row.querySelector(".msg").textContent = ""; }
   }
-  changed = null;
   const loose = [];
   for (const p of v.problems) {
     const row = p.control && $("row-" + idOf(p.control));
@@ -244,12 +241,12 @@ function drawTheory(v) {
 }
 
 // -- updates ------------------------------------------------------------------------------
-function receive(v) {
+function receive(v, changed = null) {
   if (v.generation !== generation) { lines = []; seen = 0; generation = v.generation; }
   if (v.since === seen) { lines.push(...v.lines); seen = v.replicates; }
   if (lines.length > v.lines_kept) lines = lines.slice(-v.lines_kept);
   view = v;
-  showControls(v);
+  showControls(v, changed);
   $("status").textContent = v.running ? v.activity : `idle, ${v.replicates} replicates`;
   $("status").dataset.running = v.running;
   $("error").textContent = v.error;
