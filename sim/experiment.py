@@ -31,7 +31,7 @@ from .vocabulary import DECIDED
 
 log = logging.getLogger(__name__)
 
-__all__ = ["ExperimentInterrupted", "RunTimings", "request_stop", "run_experiment"]
+__all__ = ["ExperimentInterrupted", "RunTimings", "request_stop", "run_experiment", "refuse_locate_file"]
 
 
 _STOP = threading.Event()
@@ -158,9 +158,10 @@ def _swept_values(points) -> dict[int, dict]:
     return values
 
 
-def _refuse_locate_file(out) -> None:
+def refuse_locate_file(out, config_path=None) -> None:
     """Refuse to resume, as an experiment, a file that ``broodline locate`` wrote (its
-    stages are sweeps of their own): the message gives the command that finishes it."""
+    stages are sweeps of their own): the message gives the command that finishes it, with
+    ``config_path`` (default ``CONFIG``)."""
     from .store import ResultsError, resumable_attrs
 
     if not Path(out).is_file():
@@ -173,7 +174,7 @@ def _refuse_locate_file(out) -> None:
         from .status import resume_command
 
         raise ResultsError(f"cannot resume {str(out)!r} with run: broodline locate wrote it; "
-                           f"finish it with\n  {resume_command(out, attrs)}")
+                           f"finish it with\n  {resume_command(out, attrs, config=config_path)}")
 
 
 def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, resume: bool = False,
@@ -240,7 +241,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
     try:
         points = preflight(config, budget=budget)
         if resume:
-            _refuse_locate_file(out)
+            refuse_locate_file(out)
         clock.checked = time.perf_counter()
         writer = ResultsWriter(out, config, points, overwrite=overwrite, resume=resume)
         clock.file_ready = time.perf_counter()

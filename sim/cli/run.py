@@ -135,7 +135,7 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
                           cluster=None, resume=False, batch_size=None, budget=True, config_path=None):
     """Run an experiment as ``broodline run`` does: log lines, the summary, the resume hint;
     returns the summary (a ``sim.outcomes.Summary``)."""
-    from ..experiment import ExperimentInterrupted, run_experiment
+    from ..experiment import ExperimentInterrupted, refuse_locate_file, run_experiment
     from ..parallel.start import default_workers
 
     _log_to_stderr()
@@ -147,6 +147,8 @@ def run_from_command_line(config, out, *, overwrite=False, quiet=False, workers=
         logging.getLogger("sim.experiment").warning(
             "warning: --workers %d is more than the %d cores this process may use: the workers "
             "share them, which is no faster and holds %d batches in memory", workers, cores, workers)
+    if resume:  # here too, to name the config in the command it gives
+        refuse_locate_file(out, config_path)
     try:
         summary = run_experiment(config, out, overwrite=overwrite, resume=resume, workers=workers,
                                  in_process=in_process, cluster=cluster, progress=not quiet,
