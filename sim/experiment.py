@@ -151,9 +151,9 @@ def _swept_values(points) -> dict[int, dict]:
     """Each point's swept values as the results file's /points holds them (``swept_column``)."""
     values: dict[int, dict] = {p.index: {} for p in points}
     for key in points[0].values:
-        column = swept_column([p.values[key] for p in points])
-        for p, value in zip(points, column.tolist() if column is not None else
-                            [p.values[key] for p in points], strict=True):
+        given = [p.values[key] for p in points]
+        column = swept_column(given)
+        for p, value in zip(points, given if column is None else column.tolist(), strict=True):
             values[p.index][key] = value
     return values
 
