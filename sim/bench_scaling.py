@@ -42,7 +42,13 @@ From one run's ``RunTimings`` (``sim.experiment``) and the workers'
   and finishes after the last batch); ``saver_saturates_at_workers`` is the
   writer's limit were it to save every batch itself (a dask cluster's
   workers send results back);
-- ``identical``: the results datasets hash the same as on 1 worker.
+- ``identical``: the results datasets hash the same as on 1 worker;
+- the machine's own efficiency for the same work (``sim.bench_machine``): in
+  each round, the experiment's batches simulated by one process alone and by
+  as many processes as workers at once, loaded beforehand, with nothing of a
+  run's start-up, writer or merge; ``share_of_machine`` is the median over
+  rounds of a round's efficiency divided by the machine's in that round, the
+  part of a shortfall that is the program's and not the machine's.
 """
 
 from __future__ import annotations
@@ -140,6 +146,14 @@ SCALING_KEYS = {
     "round_efficiencies": "each round's efficiency: that round's 1-worker wall time / (its wall "
                           "time here x workers), one per round, in order (1 on 1 worker)",
     "median_efficiency": "the median of round_efficiencies",
+    "machine_round_efficiencies": "each round's efficiency of the machine itself for this work: the "
+                                  "batches simulated by one process alone / (by as many processes "
+                                  "as workers at once x workers), engines loaded beforehand, no "
+                                  "writer (1 on 1 worker)",
+    "machine_efficiency": "the median of machine_round_efficiencies: the efficiency this machine "
+                          "gives the work, the ceiling for a run's",
+    "share_of_machine": "the median over rounds of round efficiency / machine efficiency: the "
+                        "share of the machine's efficiency the program keeps (1 on 1 worker)",
 }
 
 
@@ -182,6 +196,9 @@ class ScalingRecord:
     rounds: int = 1
     round_efficiencies: list[float] | None = None
     median_efficiency: float | None = None
+    machine_round_efficiencies: list[float] | None = None
+    machine_efficiency: float | None = None
+    share_of_machine: float | None = None
 
 
 @dataclass
@@ -283,7 +300,8 @@ def _cli_startup() -> float:
 
 def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, base: dict | None,
             digest: str, load: float, rounds: int = 1,
-            round_efficiencies: list[float] | None = None) -> ScalingRecord:
+            round_efficiencies: list[float] | None = None,
+            machine_efficiencies: list[float] | None = None) -> ScalingRecord:
     t = run["timings"]
     clocks = t.batches
     wall = t.finished - run["spawned"]
@@ -330,6 +348,11 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         results_hash=digest[:16], identical=base is None or digest[:16] == base["results_hash"],
         load=load, rounds=rounds, round_efficiencies=round_efficiencies,
         median_efficiency=statistics.median(round_efficiencies) if round_efficiencies else None,
+        machine_round_efficiencies=machine_efficiencies,
+        machine_efficiency=statistics.median(machine_efficiencies) if machine_efficiencies else None,
+        share_of_machine=(statistics.median(e / m for e, m in zip(round_efficiencies, machine_efficiencies,
+                                                                  strict=True))
+                          if round_efficiencies and machine_efficiencies else None),
     )
 
 
@@ -354,6 +377,7 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
     progress : callable, optional
         Called with a line before each run.
     """
+    from .bench_machine import machine_round
     from .parallel import default_workers
 
     if replicates < 1:
@@ -373,9 +397,10 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
             fastest: dict[int, tuple] = {}  # workers -> (its fastest run, that file's hash, load)
             fastest_one: dict[int, dict] = {}  # workers -> its fastest one-replicate run
             walls: dict[int, list[float]] = {n: [] for n in counts}  # workers -> each round's wall
+            machine: list[float] = []  # each round's machine efficiency on `most` processes
             for round_ in range(1, rounds + 1):
+                of = f" (round {round_} of {rounds})" if rounds > 1 else ""
                 for n in (counts if round_ % 2 else counts[::-1]):
-                    of = f" (round {round_} of {rounds})" if rounds > 1 else ""
                     say(f"{engine}, {replicates} replicates at K = {capacity:g} on {n} "
                         f"worker{'s' * (n > 1)}{of}")
                     load = os.getloadavg()[0]
@@ -389,12 +414,17 @@ def run_scaling(*, replicates: int = DEFAULT_REPLICATES, workers: int | None = N
                         fastest_one[n] = one
                     out.unlink()
                     one_out.unlink()
+                if most > 1:  # after the runs, in the order opposite to this round's runs
+                    say(f"{engine}: the machine's own efficiency, the same batches alone and on "
+                        f"{most} processes at once{of}")
+                    machine.append(machine_round(raw, most, fastest[most][0]["timings"].batch_size,
+                                                 alone_first=round_ % 2 == 0).efficiency)
             base = None
             for n in counts:
                 run, digest, load = fastest[n]
                 paired = [w1 / (w * n) for w1, w in zip(walls[1], walls[n], strict=True)]
                 record = _record(engine, n, replicates, run, fastest_one[n], base, digest, load,
-                                 rounds, paired)
+                                 rounds, paired, machine if n > 1 else [1.0] * rounds)
                 if base is None:
                     base = asdict(record)
                 records.append(record)
@@ -428,6 +458,17 @@ def format_scaling(report: ScalingReport) -> str:
             each = " ".join(f"{e:.2f}" for e in r.round_efficiencies)
             lines.append(f"{r.engine:<11}{r.workers:>8}{r.median_efficiency:>8.2f}"
                          f"{min(r.round_efficiencies):>8.2f}{max(r.round_efficiencies):>8.2f}  {each}")
+    measured = [r for r in report.records if r.workers > 1 and r.machine_round_efficiencies]
+    if measured:
+        lines += ["", "The machine's own efficiency for this work (the same batches alone and on as many "
+                  "processes at once, engines loaded first, no writer), and the share of it a run keeps:",
+                  f"{'engine':<11}{'workers':>8}{'machine':>8}{'lowest':>8}{'highest':>8}{'share':>7}"
+                  "  each round"]
+        for r in measured:
+            each = " ".join(f"{e:.2f}" for e in r.machine_round_efficiencies)
+            lines.append(f"{r.engine:<11}{r.workers:>8}{r.machine_efficiency:>8.2f}"
+                         f"{min(r.machine_round_efficiencies):>8.2f}"
+                         f"{max(r.machine_round_efficiencies):>8.2f}{r.share_of_machine:>7.2f}  {each}")
     lines += ["", "Fixed cost by phase (seconds; CPU seconds where marked):",
               f"{'engine':<11}{'workers':>8}{'start-up':>9}{'(CPU)':>7}{'to 1st batch':>13}"
               f"{'worker start (CPU)':>19}{'1st batch extra':>16}{'tail':>7}{'merge':>7}"]

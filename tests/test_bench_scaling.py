@@ -66,7 +66,8 @@ def test_results_hash_sees_any_changed_value(tmp_path):
 def test_rounds_alternate_worker_counts_and_keep_the_fastest_run_of_each(monkeypatch, tmp_path):
     # The runs are faked (their walls chosen here), so this checks the bookkeeping of
     # --rounds: alternation, and the fastest run of each worker count being the one reported.
-    from sim import bench_scaling
+    from sim import bench_machine, bench_scaling
+    from sim.bench_machine import MachineRound
     from sim.experiment import RunTimings
 
     # 3 rounds: (1 worker, 2 workers), then (2, 1), then (1, 2): who goes first alternates
@@ -85,11 +86,22 @@ def test_rounds_alternate_worker_counts_and_keep_the_fastest_run_of_each(monkeyp
         return {"spawned": 0.0, "imported": 0.1, "startup_cpu": 0.1, "process_cpu": 1.0,
                 "workers_cpu": 1.0, "timings": timings}
 
+    # the machine's own rounds, also faked: alone 9, 8, 10 s; together 5, 4, 5 s
+    machine = iter([(9.0, 5.0), (8.0, 4.0), (10.0, 5.0)])
+    firsts = []
+
+    def fake_machine(raw, workers, batch_size, *, alone_first):
+        order.append("machine")
+        firsts.append(alone_first)
+        return MachineRound(workers, *next(machine))
+
     monkeypatch.setattr(bench_scaling, "_measured_run", fake_run)
     monkeypatch.setattr(bench_scaling, "results_hash", lambda path: "0" * 64)
     monkeypatch.setattr(bench_scaling, "_cli_startup", lambda: 0.1)
+    monkeypatch.setattr(bench_machine, "machine_round", fake_machine)
     report = bench_scaling.run_scaling(replicates=10, workers=2, engines=["counts"], rounds=3)
-    assert order == [1, 2, 2, 1, 1, 2]
+    assert order == [1, 2, "machine", 2, 1, "machine", 1, 2, "machine"]
+    assert firsts == [False, True, False]  # the opposite of the round's runs (1 worker first in odd rounds)
     one, two = report.records
     assert (one.wall_s, two.wall_s) == (8.0, 4.0) and one.rounds == two.rounds == 3
     assert two.speedup == pytest.approx(2.0) and two.efficiency == pytest.approx(1.0)
@@ -97,10 +109,17 @@ def test_rounds_alternate_worker_counts_and_keep_the_fastest_run_of_each(monkeyp
     assert two.round_efficiencies == pytest.approx([0.75, 8 / 14, 1.25])
     assert two.median_efficiency == pytest.approx(0.75)
     assert one.round_efficiencies == [1.0, 1.0, 1.0] and one.median_efficiency == 1.0
+    # the machine: 9 / (5 x 2), 8 / (4 x 2), 10 / (5 x 2); the run's share of it per round:
+    # 0.75 / 0.9, (8 / 14) / 1, 1.25 / 1, whose median is the middle one, 0.833
+    assert two.machine_round_efficiencies == pytest.approx([0.9, 1.0, 1.0])
+    assert two.machine_efficiency == pytest.approx(1.0)
+    assert two.share_of_machine == pytest.approx(0.75 / 0.9)
+    assert one.machine_efficiency == 1.0 and one.share_of_machine == 1.0
     text = bench_scaling.format_scaling(report)
     assert "the fastest of 3 runs each" in text
     rows = [line.split() for line in text.splitlines()]
     assert ["counts", "2", "0.75", "0.57", "1.25", "0.75", "0.57", "1.25"] in rows
+    assert ["counts", "2", "1.00", "0.90", "1.00", "0.83", "0.90", "1.00", "1.00"] in rows
 
 
 def test_rounds_must_be_at_least_one():
@@ -108,3 +127,17 @@ def test_rounds_must_be_at_least_one():
 
     with pytest.raises(ValueError, match="rounds must be >= 1"):
         run_scaling(replicates=1, rounds=0)
+
+
+def test_machine_reference_simulates_every_replicate_once_alone_and_together():
+    # Three processes take 7 batches (5 replicates a batch, the last ones tapered) of a
+    # 31-replicate experiment from one shared counter: each replicate is simulated once in
+    # each span, however the processes interleave.
+    from sim.bench_machine import machine_round
+    from sim.bench_scaling import scaling_config
+
+    measured = machine_round(scaling_config("counts", 31), 3, 5)
+    assert measured.workers == 3
+    assert measured.replicates_alone == measured.replicates_together == 31
+    assert measured.alone_s > 0 and measured.together_s > 0
+    assert measured.efficiency == pytest.approx(measured.alone_s / (3 * measured.together_s))
