@@ -50,13 +50,13 @@ def _simulate(raw: dict, batches: list[tuple[int, int]], next_batch, barrier, co
     """One process: load the engines and the point, wait for the others, then simulate
     batches taken from the shared counter until none is left; send the timed span."""
     from .config import parse_config, sweep_points
+    from .parallel import run_kept_replicates
     from .point_run import PointRun
-    from .replicates import run_replicates
 
     config = parse_config(raw)
     run = PointRun.of(sweep_points(config)[0])
     seed = config.experiment.seed
-    run_replicates(run, range(WARM_REPLICATES), seed + 1)
+    run_kept_replicates(run, range(WARM_REPLICATES), seed + 1, run.trajectory)
     barrier.wait()
     started, simulated = time.perf_counter(), 0
     while True:
@@ -66,7 +66,7 @@ def _simulate(raw: dict, batches: list[tuple[int, int]], next_batch, barrier, co
         if index >= len(batches):
             break
         first, last = batches[index]
-        run_replicates(run, range(first, last + 1), seed)
+        run_kept_replicates(run, range(first, last + 1), seed, run.trajectory)  # as a worker does
         simulated += last - first + 1
     conn.send((started, time.perf_counter(), simulated))
     conn.close()

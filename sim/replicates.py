@@ -111,6 +111,23 @@ class _Records:
         return [(steps[a:b], census[a:b]) for a, b in pairwise(bounds)]
 
 
+class _NoRecords:
+    """No census records (``trajectory = "none"``): every replicate is given the same empty
+    ones, made read-only since they are shared, instead of records kept, split and dropped."""
+
+    def __init__(self, census_shape: tuple[int, ...]):
+        steps, census = np.zeros(0, dtype=np.int32), np.zeros((0, *census_shape), dtype=np.uint32)
+        steps.flags.writeable = census.flags.writeable = False
+        self.empty = (steps, census)
+
+    def add(self, replicates: np.ndarray, season: int, census: np.ndarray) -> None:
+        pass
+
+    def by_replicate(self, n: int):
+        """(steps, censuses) of each replicate 0..n-1: none."""
+        return [self.empty] * n
+
+
 class _YearRecords:
     """The year type of every season of a batch's replicates, split by replicate at the end."""
 
@@ -151,7 +168,7 @@ def _cycle_collection_paused():
 
 
 def run_replicates(point: SweepPoint | PointRun, replicates, seed: int, *,
-                   start: np.ndarray | None = None) -> list[ReplicateResult]:
+                   start: np.ndarray | None = None, records: bool = True) -> list[ReplicateResult]:
     """Run replicates of one sweep point to the stop rule (the unit of work a worker takes).
 
     Engines that hold replicates as an array dimension (``individual``,
@@ -170,6 +187,10 @@ def run_replicates(point: SweepPoint | PointRun, replicates, seed: int, *,
     start : ndarray, optional
         The point's starting census, ``initial_census(point.config)``, where the caller
         has it already and passes a ``SweepPoint`` (a ``PointRun`` holds its own).
+    records : bool
+        Keep the census records (default); ``False`` keeps none, as ``trajectory = "none"``
+        stores them: each result's ``record_steps`` and ``trajectory`` are then empty
+        (read-only, shared), and nothing else changes.
 
     Returns
     -------
@@ -179,8 +200,8 @@ def run_replicates(point: SweepPoint | PointRun, replicates, seed: int, *,
     reps = [int(r) for r in replicates]
     with _cycle_collection_paused():
         if hasattr(ENGINES[run.engine], "populations"):
-            return _run_batch(run, reps, seed)
-        return [result for rep in reps for result in _run_batch(run, [rep], seed)]
+            return _run_batch(run, reps, seed, records)
+        return [result for rep in reps for result in _run_batch(run, [rep], seed, records)]
 
 
 def run_replicate(point: SweepPoint, replicate: int, seed: int) -> ReplicateResult:
@@ -188,11 +209,12 @@ def run_replicate(point: SweepPoint, replicate: int, seed: int) -> ReplicateResu
     return run_replicates(point, [replicate], seed)[0]
 
 
-def _run_batch(run: PointRun, reps: list[int], seed: int) -> list[ReplicateResult]:
+def _run_batch(run: PointRun, reps: list[int], seed: int, keep_records: bool = True
+               ) -> list[ReplicateResult]:
     """The stop rule, applied to a batch: stop a replicate when its outcome is decided
     (``stop = "fixation"``; extinction always stops), at ``max_steps``, or when its
     census passes ``max_population`` (capped); record every ``record_every`` seasons
-    and at the end."""
+    and at the end (with ``keep_records``)."""
     n = len(reps)
     if n == 0:
         return []
@@ -211,10 +233,9 @@ def _run_batch(run: PointRun, reps: list[int], seed: int) -> list[ReplicateResul
 
     outcome = np.full(n, -1)  # codes into OUTCOMES
     steps, since_final, winner_final, final_census = (np.zeros(n, dtype=np.int64) for _ in range(4))
-    records = _Records()
-
     active = np.arange(n)
     census = batch.census()
+    records = _Records() if keep_records else _NoRecords(census.shape[1:])
     mutant = run.mutant
     totals = census.sum(axis=2)
     # a census's state and winner depend only on which alleles are present (``census_states``):

@@ -68,3 +68,26 @@ def test_unpickling_a_point_run_imports_no_config_schema(tmp_path):
     done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, cwd=ROOT,
                           check=True, timeout=120)
     assert done.stdout.split() == ["counts", "2", "False"]
+
+
+@pytest.mark.parametrize("engine", ["individual", "counts", "agents"])
+def test_without_records_every_replicate_is_the_same_but_its_empty_records(engine):
+    # `trajectory = "none"` makes no census records (sim.parallel.run_kept_replicates); the
+    # reference is the records kept and then dropped (reduce_trajectory), as before: every
+    # outcome, step, census and year type must be equal
+    from sim.parallel import reduce_trajectory, run_kept_replicates
+
+    config = _config(engine)
+    point = sweep_points(config)[0]
+    seed = config.experiment.seed
+    kept = run_replicates(point, range(6), seed)
+    assert all(r.record_steps.size for r in kept)  # (so that something is left out below)
+    expected = [reduce_trajectory(r, "none") for r in kept]
+    without = run_replicates(PointRun.of(point), range(6), seed, records=False)
+    _same(without, expected)
+    _same(run_kept_replicates(point, range(6), seed, "none"), expected)
+    for r in without:
+        assert r.record_steps.dtype == np.int32 and r.trajectory.dtype == np.uint32
+        assert r.trajectory.shape == (0, *kept[0].trajectory.shape[1:])
+        assert not r.trajectory.flags.writeable  # shared by the batch's replicates
+    assert any(r.years is not None and r.years.size for r in without)

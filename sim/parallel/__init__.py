@@ -22,7 +22,7 @@ _WHERE = {
     **dict.fromkeys(["default_workers", "start_soon"], "start"),
     **dict.fromkeys(["BATCH_INDIVIDUALS", "BATCH_REPLICATES", "Batch", "BatchClock", "BatchOutput", "Job",
                      "ClusterError", "PoolError", "default_batch_size", "plan_batches", "iter_batches",
-                     "reduce_trajectory", "run_batch", "run_job"], "work"),
+                     "reduce_trajectory", "run_batch", "run_job", "run_kept_replicates"], "work"),
 }
 __all__ = [*_WHERE, "make_pool"]
 __getattr__, __dir__ = lazy_exports(__name__, _WHERE, globals())
