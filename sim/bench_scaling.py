@@ -442,11 +442,11 @@ def format_scaling(report: ScalingReport) -> str:
     lines = [f"broodline bench --scaling: K = {CAPACITY} invasion (Beverton-Holt on recruitment, one "
              f"mutant, to fixation, no trajectories); {report.cores} cores available; each run in a "
              f"fresh process{fastest}.", ""]
-    head = (f"{'engine':<11}{'workers':>8}{'reps':>9}{'wall s':>9}{'speed-up':>10}{'effic.':>8}"
+    head = (f"{'engine':<11}{'workers':>8}{'reps':>11}{'wall s':>9}{'speed-up':>10}{'effic.':>8}"
             f"{'CPU s':>8}{'CPU eff.':>9}{'fixed s':>9}{'1-rep s':>9}{'writer busy':>12}{'load':>6}")
     lines.append(head)
     for r in report.records:
-        lines.append(f"{r.engine:<11}{r.workers:>8}{r.replicates:>9,}{r.wall_s:>9.2f}{r.speedup:>10.2f}"
+        lines.append(f"{r.engine:<11}{r.workers:>8}{r.replicates:>11,}{r.wall_s:>9.2f}{r.speedup:>10.2f}"
                      f"{r.efficiency:>8.2f}{r.total_cpu_s:>8.1f}{r.cpu_efficiency:>9.2f}"
                      f"{r.fixed_cost_s:>9.2f}{r.one_replicate_s:>9.2f}{r.writer_busy_fraction:>12.3f}"
                      f"{r.load:>6.1f}")
