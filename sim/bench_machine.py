@@ -49,14 +49,18 @@ class MachineRound:
 def _simulate(raw: dict, batches: list[tuple[int, int]], next_batch, barrier, conn) -> None:
     """One process: load the engines and the point, wait for the others, then simulate
     batches taken from the shared counter until none is left; send the timed span."""
-    from .config import parse_config, sweep_points
-    from .parallel import run_kept_replicates
-    from .point_run import PointRun
+    try:
+        from .config import parse_config, sweep_points
+        from .parallel import run_kept_replicates
+        from .point_run import PointRun
 
-    config = parse_config(raw)
-    run = PointRun.of(sweep_points(config)[0])
-    seed = config.experiment.seed
-    run_kept_replicates(run, range(WARM_REPLICATES), seed + 1, run.trajectory)
+        config = parse_config(raw)
+        run = PointRun.of(sweep_points(config)[0])
+        seed = config.experiment.seed
+        run_kept_replicates(run, range(WARM_REPLICATES), seed + 1, run.trajectory)
+    except BaseException:
+        barrier.abort()  # the others stop waiting (BrokenBarrierError), and the caller hears of it
+        raise
     barrier.wait()
     started, simulated = time.perf_counter(), 0
     while True:

@@ -141,3 +141,15 @@ def test_machine_reference_simulates_every_replicate_once_alone_and_together():
     assert measured.replicates_alone == measured.replicates_together == 31
     assert measured.alone_s > 0 and measured.together_s > 0
     assert measured.efficiency == pytest.approx(measured.alone_s / (3 * measured.together_s))
+
+
+def test_machine_reference_whose_processes_cannot_start_raises():
+    # processes that fail before the barrier (here: a config the schema refuses) end the
+    # measurement with an error naming it, on N processes (first here) as on one
+    from sim.bench_machine import machine_round
+    from sim.bench_scaling import scaling_config
+
+    raw = scaling_config("counts", 10)
+    raw["density"]["capacity"] = -1.0
+    with pytest.raises(RuntimeError, match="machine reference failed"):
+        machine_round(raw, 2, 5, alone_first=False)
