@@ -111,12 +111,18 @@ class _Records:
         return [(steps[a:b], census[a:b]) for a, b in pairwise(bounds)]
 
 
+def empty_records(census_shape: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray]:
+    """A replicate's census records when none is kept: (record_steps, trajectory), both empty,
+    the trajectory's census shape (alleles, ages) ``census_shape``."""
+    return np.zeros(0, dtype=np.int32), np.zeros((0, *census_shape), dtype=np.uint32)
+
+
 class _NoRecords:
     """No census records (``trajectory = "none"``): every replicate is given the same empty
     ones, made read-only since they are shared, instead of records kept, split and dropped."""
 
     def __init__(self, census_shape: tuple[int, ...]):
-        steps, census = np.zeros(0, dtype=np.int32), np.zeros((0, *census_shape), dtype=np.uint32)
+        steps, census = empty_records(census_shape)
         steps.flags.writeable = census.flags.writeable = False
         self.empty = (steps, census)
 

@@ -136,8 +136,10 @@ def reduce_trajectory(result: ReplicateResult, mode: str) -> ReplicateResult:
         return replace(result, trajectory=result.trajectory.sum(axis=2, dtype=np.uint64)
                        .astype(np.uint32))
     if mode == "none":
-        return replace(result, record_steps=np.zeros(0, np.int32),
-                       trajectory=np.zeros((0, *result.trajectory.shape[1:]), np.uint32))
+        from ..replicates import empty_records
+
+        steps, trajectory = empty_records(result.trajectory.shape[1:])
+        return replace(result, record_steps=steps, trajectory=trajectory)
     raise ValueError(f"trajectory must be 'by-age', 'by-allele' or 'none'; got {mode!r}")
 
 
