@@ -36,10 +36,11 @@ From one run's ``RunTimings`` (``sim.experiment``) and the workers'
 - the writer: the share of the run during which the writing process records
   batches (``writer_busy_fraction``), its cost per replicate, and the worker
   count at which one writer would be busy all the time
-  (``writer_saturates_at_workers`` = a worker's wall time per replicate / the
+  (``writer_saturates_at_workers`` = a worker's CPU time per replicate / the
   writer's per replicate); ``merge_saturates_at_workers`` the same for the
-  merge, done while the writer waits for workers (past it the merge lags
-  and finishes after the last batch); ``saver_saturates_at_workers`` is the
+  merge, done while the writer waits for workers, by its thread and the
+  threads that compress the file's chunks, whichever saturates first (past
+  it the merge lags and finishes after the last batch); ``saver_saturates_at_workers`` is the
   writer's limit were it to save every batch itself (a dask cluster's
   workers send results back);
 - ``identical``: the results datasets hash the same as on 1 worker;
@@ -125,16 +126,21 @@ SCALING_KEYS = {
     "writer_busy_fraction": "share of wall_s during which the writing process records batches "
                             "or merges shards",
     "writer_per_replicate_s": "CPU seconds the writing process spends recording one replicate's batch",
-    "merge_per_replicate_s": "CPU seconds the writing process spends merging one replicate into the "
+    "merge_per_replicate_s": "CPU seconds the writing thread spends merging one replicate into the "
                              "results file (while it waits for workers, and at the end, creating "
                              "and committing the file included)",
-    "merge_saturates_at_workers": "worker_per_replicate_s / merge_per_replicate_s: past this many "
+    "compress_per_replicate_s": "CPU seconds the merge's compressing threads spend on one "
+                                "replicate's rows (there are COMPRESS_THREADS of them, in "
+                                "sim.store.chunks)",
+    "merge_saturates_at_workers": "worker_per_replicate_s / the larger of merge_per_replicate_s and "
+                                  "compress_per_replicate_s / COMPRESS_THREADS: past this many "
                                   "workers the merge falls behind and finishes after the last batch",
     "save_per_replicate_s": "CPU seconds a worker spends saving one replicate to its shard",
     "worker_per_replicate_s": "a worker's CPU seconds per replicate (its batches' CPU time / replicates)",
     "writer_saturates_at_workers": "worker_per_replicate_s / writer_per_replicate_s: workers at "
                                    "which the one writer would be busy all the time (null: never)",
-    "saver_saturates_at_workers": "worker_per_replicate_s / (writer + saving + merge per replicate): "
+    "saver_saturates_at_workers": "worker_per_replicate_s / (writer + saving + merge per replicate, "
+                                  "or the compressing threads' share if larger): "
                                   "workers at which the writer would be busy all the time if it "
                                   "saved every batch itself, as it does for dask workers that "
                                   "cannot see its disk",
@@ -185,6 +191,7 @@ class ScalingRecord:
     writer_busy_fraction: float
     writer_per_replicate_s: float
     merge_per_replicate_s: float
+    compress_per_replicate_s: float
     merge_saturates_at_workers: float | None
     save_per_replicate_s: float
     worker_per_replicate_s: float
@@ -327,6 +334,11 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
     save = sum(c.save_cpu for c in clocks) / max(t.replicates, 1)
     busy = (t.writer_s + t.merge_run_s + t.merge_s) / wall
     merge = (t.merge_run_cpu_s + t.merge_cpu_s) / max(t.replicates, 1)
+    from .store.chunks import COMPRESS_THREADS  # (h5py: not when the command line registers)
+
+    compress = t.compress_cpu_s / max(t.replicates, 1)
+    merging = max(merge, compress / COMPRESS_THREADS)  # the writing thread's, or its threads'
+    saving = max(writer + save + merge, compress / COMPRESS_THREADS)
     return ScalingRecord(
         kind="scaling", engine=engine, workers=workers, replicates=replicates,
         batch_size=t.batch_size, batches=len(clocks),
@@ -340,11 +352,11 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         one_replicate_s=one["timings"].finished - one["spawned"],
         fixed_cost_s=wall - (batch_wall - sum(extra)) / workers,
         writer_busy_fraction=busy, writer_per_replicate_s=writer, merge_per_replicate_s=merge,
-        merge_saturates_at_workers=worker / merge if merge > 0 else None, save_per_replicate_s=save,
+        compress_per_replicate_s=compress,
+        merge_saturates_at_workers=worker / merging if merging > 0 else None, save_per_replicate_s=save,
         worker_per_replicate_s=worker,
         writer_saturates_at_workers=worker / writer if writer > 0 else None,
-        saver_saturates_at_workers=(worker / (writer + save + merge) if writer + save + merge > 0
-                                    else None),
+        saver_saturates_at_workers=worker / saving if saving > 0 else None,
         results_hash=digest[:16], identical=base is None or digest[:16] == base["results_hash"],
         load=load, rounds=rounds, round_efficiencies=round_efficiencies,
         median_efficiency=statistics.median(round_efficiencies) if round_efficiencies else None,
@@ -437,6 +449,8 @@ def _wall(run: dict) -> float:
 
 def format_scaling(report: ScalingReport) -> str:
     """The report as a table, with the verdict on identical results and the writer's limit."""
+    from .store.chunks import COMPRESS_THREADS
+
     rounds = max((r.rounds for r in report.records), default=1)
     fastest = f"; the fastest of {rounds} runs each, alternating" if rounds > 1 else ""
     lines = [f"broodline bench --scaling: K = {CAPACITY} invasion (Beverton-Holt on recruitment, one "
@@ -478,7 +492,7 @@ def format_scaling(report: ScalingReport) -> str:
                      f"{r.to_first_batch_s:>13.2f}{worker_start:>19}{r.first_batch_extra_s:>16.3f}"
                      f"{r.tail_s:>7.2f}{r.merge_s:>7.2f}")
     lines += ["", "The writer (CPU microseconds per replicate; saturation in workers):",
-              f"{'engine':<11}{'workers':>8}{'worker':>8}{'writer':>8}{'merge':>8}{'saving':>8}"
+              f"{'engine':<11}{'workers':>8}{'worker':>8}{'writer':>8}{'merge':>8}{'compress':>9}{'saving':>8}"
               f"{'writer sat.':>12}{'merge sat.':>11}{'if it saved':>12}"]
 
     def at(value):
@@ -487,6 +501,7 @@ def format_scaling(report: ScalingReport) -> str:
     for r in report.records:
         lines.append(f"{r.engine:<11}{r.workers:>8}{r.worker_per_replicate_s * 1e6:>8.1f}"
                      f"{r.writer_per_replicate_s * 1e6:>8.1f}{r.merge_per_replicate_s * 1e6:>8.1f}"
+                     f"{r.compress_per_replicate_s * 1e6:>9.1f}"
                      f"{r.save_per_replicate_s * 1e6:>8.1f}{at(r.writer_saturates_at_workers):>12}"
                      f"{at(r.merge_saturates_at_workers):>11}{at(r.saver_saturates_at_workers):>12}")
     same = all(r.identical for r in report.records)
@@ -496,7 +511,8 @@ def format_scaling(report: ScalingReport) -> str:
               "wall s: writer process start to merged file; effic. = speed-up / workers; CPU eff. = "
               "CPU s on 1 worker / CPU s here (load does not hide it); fixed s = wall - (batch time - "
               "first batches' extra) / "
-              "workers; writer sat.: workers at which recording batches would keep the writer busy; merge "
+              "workers; writer sat.: workers at which recording batches would keep the writer busy; merge: "
+              f"the writing thread's, compress: its {COMPRESS_THREADS} threads' together; merge "
               "sat.: past it the merge finishes after the last batch; if it saved: the writer's limit "
               "(recording, merging) were it also to save every batch, as for dask workers that cannot "
               "see its disk."]

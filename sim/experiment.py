@@ -125,7 +125,8 @@ class RunTimings:
     ``writer_s`` / ``writer_cpu_s`` are the wall and CPU seconds this process spent
     recording batches (saving them, where the workers do not); ``merge_run_s`` /
     ``merge_run_cpu_s`` merging shards while waiting for workers during the run;
-    ``merge_s`` / ``merge_cpu_s`` the final merge's. ``batches`` holds every batch's
+    ``merge_s`` / ``merge_cpu_s`` the final merge's (CPU: the writing thread's);
+    ``compress_cpu_s`` the CPU of the merge's threads that compress the file's chunks. ``batches`` holds every batch's
     ``BatchClock``; ``workers`` each started worker's (pid, ready at, start-up CPU).
     """
 
@@ -141,6 +142,7 @@ class RunTimings:
     merge_cpu_s: float = 0.0
     merge_run_s: float = 0.0
     merge_run_cpu_s: float = 0.0
+    compress_cpu_s: float = 0.0
     replicates: int = 0
     batch_size: int = 0
     batches: list[BatchClock] = field(default_factory=list)
@@ -281,14 +283,14 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         batches = iter_batches(writer.missing(), size, taper=taper)
         jobs = (Job(batch, runs[batch.point], seed, writer.shard_target(batch.point)) for batch in batches)
         def merge_one() -> bool:  # while the writer waits for workers: merge a shard, if one is next
-            wall, cpu = time.perf_counter(), time.process_time()
+            wall, cpu = time.perf_counter(), time.thread_time()
             merged = writer.merge_ready(limit=1)
             clock.merge_run_s += time.perf_counter() - wall
-            clock.merge_run_cpu_s += time.process_time() - cpu
+            clock.merge_run_cpu_s += time.thread_time() - cpu
             return merged
 
         for batch, output in _saving_errors(writer, pool.run_jobs(jobs, idle=merge_one)):
-            wall, cpu = time.perf_counter(), time.process_time()
+            wall, cpu = time.perf_counter(), time.thread_time()
             if output.shard is not None:
                 writer.add_shard(output.shard, output.rows)
             elif output.rows is not None:  # (a worker that cannot reach this disk)
@@ -297,7 +299,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
                 writer.write(output.results)
             tracker.update(batch, output.outcomes)
             clock.writer_s += time.perf_counter() - wall
-            clock.writer_cpu_s += time.process_time() - cpu
+            clock.writer_cpu_s += time.thread_time() - cpu
             clock.replicates += len(batch)
             if timings is not None:
                 clock.batches.append(output.clock)
@@ -307,9 +309,10 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         if timings is not None and hasattr(pool, "workers_ready"):
             timings.workers = pool.workers_ready()
         pool.shutdown(wait=False)  # idle workers exit while the last shards are merged
-        cpu = time.process_time()
+        cpu = time.thread_time()
         writer.finalize()
-        clock.merge_s, clock.merge_cpu_s = time.perf_counter() - wall, time.process_time() - cpu
+        clock.merge_s, clock.merge_cpu_s = time.perf_counter() - wall, time.thread_time() - cpu
+        clock.compress_cpu_s = writer.compress_cpu_s
     except BaseException as err:
         try:
             pool.shutdown(cancel=True)

@@ -17,6 +17,7 @@ from ..config import config_differences, config_hash
 from ..vocabulary import outcome_name
 from . import durable
 from . import shards as shard_files  # saved and read through the module: one place to patch
+from .chunks import ChunkAppender
 from .layout import (
     _FORMAT,
     _STR,
@@ -29,7 +30,6 @@ from .layout import (
     ResultsError,
     Shard,
     YearsHeader,
-    _append,
     _column,
     _counts_shape,
     _years_group,
@@ -102,6 +102,7 @@ class ResultsWriter:
         self._lock_fd = None
         self._held: dict[tuple[int, int], ShardRows] = {}  # rows of shards not yet merged
         self._held_bytes = 0
+        self.compress_cpu_s = 0.0  # CPU seconds the merge's threads spent compressing
         self._check_target(overwrite=overwrite, resume=resume)
         if resume and self._resumable():
             self._checked_attrs()  # a file that cannot be resumed is refused before the lock's folder is made
@@ -452,6 +453,11 @@ class ResultsWriter:
             self.release()
 
 
+# each buffered column of the merge and the dataset it is appended to
+_MERGED_PATHS = {**{name: f"replicates/{name}" for name in REPLICATE_COLUMNS},
+                 "step": "trajectories/step", "counts": "trajectories/counts", YEARS: f"{YEARS}/type"}
+
+
 class _MergedFile:
     """The finished results file under construction, as ``NAME.tmp`` beside the running one.
 
@@ -473,6 +479,7 @@ class _MergedFile:
         self.next = (0, 0)  # the (point, first replicate) of the shard needed next
         self.buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
         self.rows = self.records = self.offset = 0
+        self.chunks = ChunkAppender()
 
     def _header(self, out) -> None:
         w = self.writer
@@ -517,24 +524,21 @@ class _MergedFile:
 
     def _write(self, *, complete: bool = False) -> None:
         """Append the buffered rows to the ``.tmp`` file (created with the header the first
-        time); with ``complete``, mark it complete."""
+        time): whole chunks as the threads compress them, the rest when more come; with
+        ``complete``, every row, and mark it complete."""
         buffer = self.buffer
         with durable.h5_write_errors(), h5py.File(self.tmp, "a" if self.started else "w") as out:
             if not self.started:
                 self._header(out)
                 self.started = True
-            for name in REPLICATE_COLUMNS:
+            for name, path in _MERGED_PATHS.items():
                 if buffer[name]:
-                    _append(out["replicates"][name], np.concatenate(buffer[name]))
-            for name in ("step", "counts"):
-                if buffer[name]:
-                    _append(out["trajectories"][name], np.concatenate(buffer[name]))
-            if buffer[YEARS]:
-                _append(out[YEARS]["type"], np.concatenate(buffer[YEARS]))
+                    self.chunks.append(out, path, buffer[name])
             for values in buffer.values():
                 values.clear()
             self.rows = self.records = 0
             if complete:
+                self.chunks.finish(out)
                 out.attrs["complete"] = True
             out.flush()
 
@@ -542,6 +546,7 @@ class _MergedFile:
         """Every shard is in: mark the file complete, make it durable, rename it into place."""
         try:
             self._write(complete=True)
+            self.writer.compress_cpu_s += self.chunks.cpu_s
             durable.commit_file(self.tmp, self.writer.path)
         except BaseException:
             self.abandon()
@@ -550,6 +555,7 @@ class _MergedFile:
     def abandon(self) -> None:
         """Stop without a file: delete the ``.tmp`` (the shards hold every row)."""
         self.started = False
+        self.chunks.close()
         self.tmp.unlink(missing_ok=True)
 
 
