@@ -41,8 +41,8 @@ From one run's ``RunTimings`` (``sim.experiment``) and the workers'
   merge, done while the writer waits for workers, by its thread and the
   threads that compress the file's chunks, whichever saturates first (past
   it the merge lags and finishes after the last batch); ``saver_saturates_at_workers`` is the
-  writer's limit were it to save every batch itself (a dask cluster's
-  workers send results back);
+  writer's limit were it to write every shard (a dask cluster's workers
+  that cannot see its disk send each shard's file, which its threads write);
 - ``identical``: the results datasets hash the same as on 1 worker;
 - the machine's own efficiency for the same work (``sim.bench_machine``): in
   each round, the experiment's batches simulated by one process alone and by
@@ -135,15 +135,19 @@ SCALING_KEYS = {
     "merge_saturates_at_workers": "worker_per_replicate_s / the larger of merge_per_replicate_s and "
                                   "compress_per_replicate_s / COMPRESS_THREADS: past this many "
                                   "workers the merge falls behind and finishes after the last batch",
-    "save_per_replicate_s": "CPU seconds a worker spends saving one replicate to its shard",
+    "save_per_replicate_s": "CPU seconds a worker spends saving one replicate to its shard (building "
+                            "the shard's file and writing it)",
+    "write_per_replicate_s": "of which writing the built file: what the writer's threads do for a "
+                             "worker that cannot see its disk (SAVE_THREADS of them, in "
+                             "sim.store.writer)",
     "worker_per_replicate_s": "a worker's CPU seconds per replicate (its batches' CPU time / replicates)",
     "writer_saturates_at_workers": "worker_per_replicate_s / writer_per_replicate_s: workers at "
                                    "which the one writer would be busy all the time (null: never)",
-    "saver_saturates_at_workers": "worker_per_replicate_s / (writer + saving + merge per replicate, "
-                                  "or the compressing threads' share if larger): "
-                                  "workers at which the writer would be busy all the time if it "
-                                  "saved every batch itself, as it does for dask workers that "
-                                  "cannot see its disk",
+    "saver_saturates_at_workers": "worker_per_replicate_s / the largest of writer + merge per "
+                                  "replicate, write_per_replicate_s / SAVE_THREADS and "
+                                  "compress_per_replicate_s / COMPRESS_THREADS: workers at which "
+                                  "the writer would be busy all the time if it wrote every shard, "
+                                  "as it does for dask workers that cannot see its disk",
     "results_hash": "SHA-256 (first 16 hex digits) of every dataset of the results file",
     "identical": "true when results_hash equals the 1-worker run's",
     "load": "the 1-minute load average when the run started (os.getloadavg)",
@@ -194,6 +198,7 @@ class ScalingRecord:
     compress_per_replicate_s: float
     merge_saturates_at_workers: float | None
     save_per_replicate_s: float
+    write_per_replicate_s: float
     worker_per_replicate_s: float
     writer_saturates_at_workers: float | None
     saver_saturates_at_workers: float | None
@@ -335,10 +340,12 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
     busy = (t.writer_s + t.merge_run_s + t.merge_s) / wall
     merge = (t.merge_run_cpu_s + t.merge_cpu_s) / max(t.replicates, 1)
     from .store.chunks import COMPRESS_THREADS  # (h5py: not when the command line registers)
+    from .store.writer import SAVE_THREADS
 
     compress = t.compress_cpu_s / max(t.replicates, 1)
     merging = max(merge, compress / COMPRESS_THREADS)  # the writing thread's, or its threads'
-    saving = max(writer + save + merge, compress / COMPRESS_THREADS)
+    write = sum(c.write_cpu for c in clocks) / max(t.replicates, 1)
+    saving = max(writer + merge, write / SAVE_THREADS, compress / COMPRESS_THREADS)
     return ScalingRecord(
         kind="scaling", engine=engine, workers=workers, replicates=replicates,
         batch_size=t.batch_size, batches=len(clocks),
@@ -354,6 +361,7 @@ def _record(engine: str, workers: int, replicates: int, run: dict, one: dict, ba
         writer_busy_fraction=busy, writer_per_replicate_s=writer, merge_per_replicate_s=merge,
         compress_per_replicate_s=compress,
         merge_saturates_at_workers=worker / merging if merging > 0 else None, save_per_replicate_s=save,
+        write_per_replicate_s=write,
         worker_per_replicate_s=worker,
         writer_saturates_at_workers=worker / writer if writer > 0 else None,
         saver_saturates_at_workers=worker / saving if saving > 0 else None,
@@ -492,7 +500,7 @@ def format_scaling(report: ScalingReport) -> str:
                      f"{r.to_first_batch_s:>13.2f}{worker_start:>19}{r.first_batch_extra_s:>16.3f}"
                      f"{r.tail_s:>7.2f}{r.merge_s:>7.2f}")
     lines += ["", "The writer (CPU microseconds per replicate; saturation in workers):",
-              f"{'engine':<11}{'workers':>8}{'worker':>8}{'writer':>8}{'merge':>8}{'compress':>9}{'saving':>8}"
+              f"{'engine':<11}{'workers':>8}{'worker':>8}{'writer':>8}{'merge':>8}{'compress':>9}{'saving':>8}{'(write)':>8}"
               f"{'writer sat.':>12}{'merge sat.':>11}{'if it saved':>12}"]
 
     def at(value):
@@ -502,7 +510,8 @@ def format_scaling(report: ScalingReport) -> str:
         lines.append(f"{r.engine:<11}{r.workers:>8}{r.worker_per_replicate_s * 1e6:>8.1f}"
                      f"{r.writer_per_replicate_s * 1e6:>8.1f}{r.merge_per_replicate_s * 1e6:>8.1f}"
                      f"{r.compress_per_replicate_s * 1e6:>9.1f}"
-                     f"{r.save_per_replicate_s * 1e6:>8.1f}{at(r.writer_saturates_at_workers):>12}"
+                     f"{r.save_per_replicate_s * 1e6:>8.1f}{r.write_per_replicate_s * 1e6:>8.1f}"
+                     f"{at(r.writer_saturates_at_workers):>12}"
                      f"{at(r.merge_saturates_at_workers):>11}{at(r.saver_saturates_at_workers):>12}")
     same = all(r.identical for r in report.records)
     lines += ["", "results datasets identical across worker counts: " + ("yes" if same else
@@ -514,6 +523,6 @@ def format_scaling(report: ScalingReport) -> str:
               "workers; writer sat.: workers at which recording batches would keep the writer busy; merge: "
               f"the writing thread's, compress: its {COMPRESS_THREADS} threads' together; merge "
               "sat.: past it the merge finishes after the last batch; if it saved: the writer's limit "
-              "(recording, merging) were it also to save every batch, as for dask workers that cannot "
-              "see its disk."]
+              "were it also to write every shard, as for dask workers that cannot see its disk (they "
+              "build the shard's file; its threads write it)."]
     return "\n".join(lines)

@@ -294,7 +294,7 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
             if output.shard is not None:
                 writer.add_shard(output.shard, output.rows)
             elif output.rows is not None:  # (a worker that cannot reach this disk)
-                writer.write_rows(output.rows)
+                writer.write_rows(output.rows, output.image)
             else:
                 writer.write(output.results)
             tracker.update(batch, output.outcomes)

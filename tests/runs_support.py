@@ -142,7 +142,7 @@ def nth():
 W = store.ResultsWriter
 if where == "before-any-shard":
     import sim.store.shards as shards
-    def patched(target, rows):
+    def patched(target, rows, image=None):
         stop_here()
     shards.save_shard = patched
 elif where == "mid-shard-write":  # the .tmp shard half written to disk

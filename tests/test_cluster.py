@@ -32,6 +32,31 @@ def test_local_cluster_gives_the_datasets_of_one_process(tmp_path, monkeypatch):
     assert_same_datasets(reference, out)
 
 
+def test_workers_that_cannot_see_the_disk_send_shard_files_the_writer_writes(tmp_path, monkeypatch):
+    # a dask worker on another machine: no probe file in sight, so it sends its rows and the
+    # shard file built from them; the writer writes the bytes and merges the same datasets
+    from sim.store import ShardTarget
+
+    config = small_config(replicates=10)
+    reference = tmp_path / "one.h5"
+    run_experiment(config, reference, workers=1, progress=False)
+    images = []
+    original = ResultsWriter.write_rows
+
+    def counted(self, rows, image=None):
+        images.append(image)
+        original(self, rows, image)
+
+    monkeypatch.setattr(ShardTarget, "reachable", lambda self: False)
+    monkeypatch.setattr(ResultsWriter, "write_rows", counted)
+    out = tmp_path / "dask.h5"
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                                  dashboard_address=None) as cluster:
+        run_experiment(config, out, cluster=cluster.scheduler_address, batch_size=3, progress=False)
+    assert images and all(isinstance(image, bytes) for image in images)
+    assert_same_datasets(reference, out)
+
+
 def _free_port() -> int:
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))

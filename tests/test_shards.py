@@ -86,6 +86,55 @@ def test_writer_refuses_a_replicate_twice(tmp_path):
     assert len(read_replicates(tmp_path / "x.h5")) == 4
 
 
+def test_the_overlap_check_agrees_with_comparing_every_pair(tmp_path):
+    # the writer bisects its index of shards; the reference is the plain definition, two
+    # spans [a, b] and [c, d] overlap when a <= d and c <= b (common practice)
+    import numpy as np
+
+    from sim.store import Shard
+
+    config = small_config(replicates=200)
+    writer = ResultsWriter(tmp_path / "x.h5", config, sweep_points(config))
+    rng = np.random.default_rng(3)
+    kept: list[Shard] = []
+    for _ in range(400):
+        first = int(rng.integers(0, 190))
+        shard = Shard(int(rng.integers(0, 2)), first, first + int(rng.integers(0, 10)))
+        clash = any(s.point == shard.point and s.first <= shard.last and shard.first <= s.last
+                    for s in kept)
+        if clash:
+            with pytest.raises(ResultsError, match="overlap shard"):
+                writer._claim(shard)
+        else:
+            writer._claim(shard)
+            writer.shards[(shard.point, shard.first)] = shard
+            kept.append(shard)
+    assert 20 < len(kept) < 400  # both answers were tried
+    writer.release()
+
+
+def test_a_full_disk_while_the_writer_saves_a_shard_on_a_thread_is_a_clear_error(tmp_path, monkeypatch):
+    import errno
+
+    from sim.store.shards import shard_image
+
+    config = small_config(replicates=6)
+    points = sweep_points(config)
+    writer = ResultsWriter(tmp_path / "x.h5", config, points)
+    writer.write(run_batch(points[0], 0, 2, config.experiment.seed))
+    rows = store.shard_rows(writer.shard_target(0), run_batch(points[0], 3, 5, config.experiment.seed))
+
+    def full_disk(path, data):
+        raise OSError(errno.ENOSPC, "No space left on device")
+
+    monkeypatch.setattr(store.writer.durable, "write_bytes_atomic", full_disk)
+    with pytest.raises(ResultsError, match="No space left on device. The 3 replicates already saved are intact"):
+        writer.write_rows(rows, shard_image(writer.shard_target(0), rows))  # (raised here or at
+        writer.collect(wait=True)  # the next look at the threads, whichever sees it first)
+    writer.release()
+    assert len(read_replicates(tmp_path / "x.h5")) == 3
+
+
 def test_a_corrupt_shard_is_redone_on_resume(tmp_path):
     proc, config, out = start_stopped_run(tmp_path, "between-shards", n=3)
     kill9(proc)
@@ -115,9 +164,10 @@ def test_a_worker_saves_its_shard_only_where_it_sees_the_writers_folder(tmp_path
     (tmp_path / "another-machine").mkdir()
     unseen = run_job(Job(Batch(0, 3, 5), point, config.experiment.seed, target=elsewhere))
     assert unseen.shard is None and unseen.results is None and len(unseen.rows.table) == 3
+    assert unseen.image is not None  # the shard's file, built where the batch ran
     assert not list((tmp_path / "another-machine").iterdir())  # nothing written where unseen
     writer.add_shard(seen.shard, seen.rows)
-    writer.write_rows(unseen.rows)
+    writer.write_rows(unseen.rows, unseen.image)  # the writer writes the bytes, on a thread
     writer.release()
     assert not list(target.parts.glob("*.probe"))  # the probe goes with the writer
     reference = tmp_path / "one.h5"

@@ -199,8 +199,9 @@ class BatchClock:
     ``started``/``finished`` are ``time.perf_counter()`` readings (CLOCK_MONOTONIC on
     Linux: one clock for every process of the machine); ``cpu`` is the process CPU time
     the batch took (``time.process_time``: not stretched by other programs' load), of
-    which ``save_cpu`` writing its shard; ``process_cpu`` the worker process's CPU time
-    before its first batch (interpreter start-up and imports)."""
+    which ``save_cpu`` building and writing its shard, and ``write_cpu`` writing the built
+    file (what the writer does for a worker that cannot see its disk); ``process_cpu`` the
+    worker process's CPU time before its first batch (interpreter start-up and imports)."""
 
     pid: int
     started: float
@@ -208,6 +209,7 @@ class BatchClock:
     cpu: float
     save_cpu: float
     process_cpu: float
+    write_cpu: float = 0.0
 
 
 @dataclass
@@ -215,14 +217,16 @@ class BatchOutput:
     """What a pool yields for a finished ``Job``: the batch saved by the worker as ``shard``
     (with its ``rows`` when they are small, ``SEND_ROWS_BYTES``, so that the writer merges
     them without reading the shard back), or, from a worker that cannot reach the writer's
-    disk, only the ``rows`` for the writer to save; each outcome's count, and the batch's
-    ``BatchClock``. ``results`` are sent instead of rows for a job without a target."""
+    disk, the ``rows`` and their shard file's bytes (``image``) for the writer to write; each
+    outcome's count, and the batch's ``BatchClock``. ``results`` are sent instead of rows
+    for a job without a target."""
 
     results: list[ReplicateResult] | None
     shard: object  # sim.store.Shard, or None
     outcomes: Counter = field(default_factory=Counter)
     clock: BatchClock | None = None
     rows: object = None  # sim.store.ShardRows, or None
+    image: bytes | None = None
 
 
 _FIRST_BATCH_CPU: list[float] = []  # this process's CPU time when its first job started
@@ -238,17 +242,20 @@ def run_job(job: Job) -> BatchOutput:
     batch = job.batch
     results = run_kept_replicates(job.point, batch.replicates, job.seed, job.point.trajectory)
     outcomes = Counter(r.outcome for r in results)
-    shard = rows = None
+    shard = rows = image = None
     if job.target is not None:  # the rows made here: the writer's work per replicate is a copy
-        from ..store.shards import SEND_ROWS_BYTES, save_shard, shard_rows
+        from ..store.shards import SEND_ROWS_BYTES, save_shard, shard_image, shard_rows
 
         rows, results = shard_rows(job.target, results), None
-    cpu1 = time.process_time()  # saving, from here: what the writer does for a worker that cannot
-    if rows is not None and job.target.reachable():
-        shard = save_shard(job.target, rows)
+    cpu1 = time.process_time()  # saving, from here
+    if rows is not None:  # the shard's file, built here: for a worker that cannot see the
+        image = shard_image(job.target, rows)  # writer's disk, the writer writes only its bytes
+    cpu2 = time.process_time()
+    if image is not None and job.target.reachable():
+        shard, image = save_shard(job.target, rows, image), None
         if rows.nbytes > SEND_ROWS_BYTES:
             rows = None
-    cpu2 = time.process_time()
-    clock = BatchClock(os.getpid(), wall0, time.perf_counter(), cpu2 - cpu0, cpu2 - cpu1,
-                       _FIRST_BATCH_CPU[0])
-    return BatchOutput(results, shard, outcomes, clock, rows)
+    cpu3 = time.process_time()
+    clock = BatchClock(os.getpid(), wall0, time.perf_counter(), cpu3 - cpu0, cpu3 - cpu1,
+                       _FIRST_BATCH_CPU[0], cpu3 - cpu2)
+    return BatchOutput(results, shard, outcomes, clock, rows, image)

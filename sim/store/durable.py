@@ -14,7 +14,7 @@ from pathlib import Path
 
 import h5py
 
-__all__ = ["write_atomic", "commit_file", "h5_write_errors"]
+__all__ = ["write_atomic", "write_bytes_atomic", "file_image", "commit_file", "h5_write_errors"]
 
 
 def _fsync_path(path: Path, *, directory: bool = False) -> None:
@@ -37,19 +37,35 @@ def write_atomic(path: Path, fill, *, in_memory: bool = True) -> None:
     (for files of a batch's size): a full disk is then a plain OSError,
     never a half-closed HDF5 file.
     """
+    if in_memory:
+        write_bytes_atomic(path, file_image(path.name, fill))
+        return
     tmp = path.with_name(path.name + ".tmp")
     try:
-        if in_memory:
-            with h5py.File(tmp.name, "w", driver="core", backing_store=False) as f:
-                fill(f)
-                f.flush()
-                image = f.id.get_file_image()
-            _write_file(tmp, image)
-        else:
-            with h5_write_errors(), h5py.File(tmp, "w") as f:
-                fill(f)
-                f.flush()
-            _fsync_path(tmp)
+        with h5_write_errors(), h5py.File(tmp, "w") as f:
+            fill(f)
+            f.flush()
+        _fsync_path(tmp)
+        _commit(tmp, path)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+
+
+def file_image(name: str, fill) -> bytes:
+    """The bytes of an HDF5 file built in memory by ``fill(file)`` (``name``: its name there)."""
+    with h5py.File(name, "w", driver="core", backing_store=False) as f:
+        fill(f)
+        f.flush()
+        return f.id.get_file_image()
+
+
+def write_bytes_atomic(path: Path, data: bytes) -> None:
+    """Write ``data`` as ``path.tmp``, make it durable, rename it to ``path`` (whole or not
+    at all, as ``write_atomic``)."""
+    tmp = path.with_name(path.name + ".tmp")
+    try:
+        _write_file(tmp, data)
         _commit(tmp, path)
     except BaseException:
         tmp.unlink(missing_ok=True)

@@ -20,7 +20,8 @@ from ..outcomes import CODES, OUTCOMES
 from . import durable
 from .layout import SHARD_ROW, YEARS, Shard, YearsHeader, _column, _counts_shape, _pad_ages, _years_group
 
-__all__ = ["ShardTarget", "ShardRows", "shard_rows", "save_shard", "read_shard", "SEND_ROWS_BYTES"]
+__all__ = ["ShardTarget", "ShardRows", "shard_rows", "shard_image", "save_shard", "read_shard",
+           "SEND_ROWS_BYTES"]
 
 # A worker that saves its shard sends the shard's rows along (``ShardRows``) when they are at
 # most SEND_ROWS_BYTES (the writer then merges them without reading the shard back).
@@ -93,16 +94,23 @@ def shard_rows(target: ShardTarget, results) -> ShardRows:
     return ShardRows(table, OUTCOMES, steps, counts, years)
 
 
-def save_shard(target: ShardTarget, rows: ShardRows) -> Shard:
-    """Save one batch's rows as a durable shard.
+def shard_image(target: ShardTarget, rows: ShardRows) -> bytes:
+    """The shard file of one batch's rows, as bytes (built in memory): what a worker that
+    cannot see the writer's disk sends, so that the writer only writes the bytes."""
+    return durable.file_image(rows.shard.name, lambda f: _fill_shard(f, target, rows))
+
+
+def save_shard(target: ShardTarget, rows: ShardRows, image: bytes | None = None) -> Shard:
+    """Save one batch's rows (``image``: their ``shard_image``, if made already) as a durable shard.
 
     The shard is written as ``.tmp``, fsynced and renamed into place
-    (``durable.write_atomic``), so it exists whole or not at all; a worker
-    process that sees the writer's disk calls this for its own batch, and the
-    writer only records it.
+    (``durable.write_bytes_atomic``), so it exists whole or not at all; a
+    worker process that sees the writer's disk calls this for its own batch,
+    and the writer only records it.
     """
     shard = rows.shard
-    durable.write_atomic(target.parts / shard.name, lambda f: _fill_shard(f, target, rows))
+    durable.write_bytes_atomic(target.parts / shard.name,
+                               shard_image(target, rows) if image is None else image)
     return shard
 
 

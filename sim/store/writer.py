@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import bisect
 import json
 import logging
 import os
 import shutil
 import socket
+from concurrent.futures import Future, ThreadPoolExecutor
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -61,6 +63,9 @@ _MERGE_RECORDS = 1 << 16
 # read back from disk by the merge (which reading cost about 0.7 microseconds a replicate, most
 # of the merge's cost per replicate).
 HELD_ROWS_BYTES = 64 << 20
+# threads that write the shards of workers that cannot see this disk (each a file written,
+# fsynced and renamed: mostly waiting for the disk, which a thread does without the GIL)
+SAVE_THREADS = 4
 
 
 class ResultsWriter:
@@ -120,6 +125,13 @@ class ResultsWriter:
                 self._remove_lock_folder()
             self._unlock()
             raise
+        # per point, the first replicates of its shards, sorted: the overlap check's index
+        self._firsts: dict[int, list[int]] = {}
+        for point, first in sorted(self.shards):
+            self._firsts.setdefault(point, []).append(first)
+        # shards being saved on threads (from workers that cannot see this disk), by key
+        self._saving: dict[tuple[int, int], tuple[Shard, ShardRows, Future]] = {}
+        self._savers: ThreadPoolExecutor | None = None
 
     # -- setting up ------------------------------------------------------------------
     def _check_target(self, *, overwrite: bool, resume: bool) -> None:
@@ -295,15 +307,38 @@ class ResultsWriter:
     def _write_shard(self, results) -> None:
         self.write_rows(shard_rows(self.shard_target(results[0].point), results))
 
-    def write_rows(self, rows: ShardRows) -> None:
-        """Save one batch's rows (``shard_rows``, made where the batch ran) as a durable shard."""
+    def write_rows(self, rows: ShardRows, image: bytes | None = None) -> None:
+        """Save one batch's rows (``shard_rows``, made where the batch ran) as a durable shard.
+
+        With ``image`` (the shard's file, ``shard_image``, built where the batch ran) the
+        file is written on a thread and the shard counts in once it is durable (``collect``);
+        without, the shard is built and saved here, at once."""
         shard = rows.shard
-        self._check_overlap(shard)
-        try:
-            shard_files.save_shard(self.shard_target(shard.point), rows)
-        except OSError as err:
-            raise ResultsError(self._write_failure(err)) from None
-        self._record(shard, rows)
+        self._claim(shard)
+        if image is None:
+            try:
+                shard_files.save_shard(self.shard_target(shard.point), rows)
+            except OSError as err:
+                raise ResultsError(self._write_failure(err)) from None
+            self._record(shard, rows)
+            return
+        if self._savers is None:
+            self._savers = ThreadPoolExecutor(SAVE_THREADS, thread_name_prefix="broodline-save")
+        self._saving[(shard.point, shard.first)] = (
+            shard, rows, self._savers.submit(durable.write_bytes_atomic, self.parts / shard.name, image))
+        self.collect()
+
+    def collect(self, *, wait: bool = False) -> None:
+        """Count in the shards whose files the threads have made durable (with ``wait``: every
+        one, waiting for them)."""
+        for key, (shard, rows, future) in list(self._saving.items()):
+            if wait or future.done():
+                del self._saving[key]
+                try:
+                    future.result()
+                except OSError as err:
+                    raise ResultsError(self._write_failure(err)) from None
+                self._record(shard, rows)
 
     def _record(self, shard: Shard, rows: ShardRows | None) -> None:
         """Count ``shard`` in, holding its ``rows`` for the merge while they fit."""
@@ -321,11 +356,20 @@ class ResultsWriter:
         self._held_bytes -= rows.nbytes
         return rows
 
-    def _check_overlap(self, shard: Shard) -> None:
-        for s in self.shards.values():
-            if s.point == shard.point and s.first <= shard.last and shard.first <= s.last:
+    def _claim(self, shard: Shard) -> None:
+        """Refuse ``shard`` if it overlaps one recorded or being saved; else index it.
+
+        The shards of a point do not overlap, so the one that starts last at or before
+        ``shard.last`` is the only one that can (a bisection, however many shards)."""
+        firsts = self._firsts.setdefault(shard.point, [])
+        i = bisect.bisect_right(firsts, shard.last)
+        if i:
+            key = (shard.point, firsts[i - 1])
+            s = self.shards[key] if key in self.shards else self._saving[key][0]
+            if s.last >= shard.first:
                 raise ResultsError(f"replicates {shard.first}-{shard.last} of point {shard.point} "
                                    f"overlap shard {s.name}, already written")
+        firsts.insert(i, shard.first)
 
     def shard_target(self, point: int) -> ShardTarget:
         """Where and how a batch of sweep point ``point`` is saved: what a worker process needs
@@ -351,7 +395,7 @@ class ResultsWriter:
     def add_shard(self, shard: Shard, rows: ShardRows | None = None) -> None:
         """Record a shard a worker wrote itself (``save_shard`` with ``shard_target``), with
         its rows if the worker sent them (then the merge need not read the shard back)."""
-        self._check_overlap(shard)
+        self._claim(shard)
         self._record(shard, rows)
 
     def _point_hash(self, point: int) -> str:
@@ -385,6 +429,7 @@ class ResultsWriter:
         only the last shards are left for ``finalize`` (which merges whatever is left)."""
         if self.complete:
             return False
+        self.collect()
         merge = self.__dict__.get("_merging")
         if merge is None:
             merge = self._merging = _MergedFile(self)
@@ -405,6 +450,7 @@ class ResultsWriter:
         if self.complete:
             self._remove_parts()
             return True
+        self.collect(wait=True)
         if self.done < self.expected:
             return False
         self.merge_ready()
@@ -428,13 +474,22 @@ class ResultsWriter:
     def close(self) -> None:
         """Merge if every replicate is in, else leave the shards for a resume; release the lock."""
         try:
-            if not self.complete and self._lock_fd is not None and self.done == self.expected:
-                self.finalize()
+            if not self.complete and self._lock_fd is not None:
+                self.collect(wait=True)
+                if self.done == self.expected:
+                    self.finalize()
         finally:
+            self._stop_savers()
             self._unlock()
 
     def release(self) -> None:
-        """Release the lock without merging (after an interruption or a failure)."""
+        """Release the lock without merging (after an interruption or a failure); shards
+        being saved are finished first (they are whole, or a ``.tmp`` deleted here)."""
+        self._stop_savers()
+        try:
+            self.collect()  # (counted in, for the message of how much is saved)
+        except ResultsError:
+            pass
         merge = self.__dict__.pop("_merging", None)
         if merge is not None:
             merge.abandon()
@@ -442,6 +497,11 @@ class ResultsWriter:
             for leftover in [*self.parts.glob("*.tmp"), *self.parts.glob("*.probe")]:
                 leftover.unlink(missing_ok=True)
         self._unlock()
+
+    def _stop_savers(self) -> None:
+        if self._savers is not None:
+            self._savers.shutdown(wait=True)
+            self._savers = None
 
     def __enter__(self):
         return self
