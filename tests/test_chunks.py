@@ -53,10 +53,10 @@ def test_the_shuffle_is_hdf5s_byte_order():
     assert zlib.decompress(encode_chunk(data, 1)) == bytes([1, 5, 2, 6, 3, 7, 4, 8])
 
 
-@pytest.mark.parametrize("pending", [1, 256])
+@pytest.mark.parametrize("pending", [0, 32 << 20])
 def test_appends_of_any_size_across_reopenings_hold_exactly_the_rows(tmp_path, monkeypatch, pending):
-    # pending = 1: the writer waits for the threads at every chunk (the memory bound's path)
-    monkeypatch.setattr(chunks, "_MAX_PENDING", pending)
+    # pending = 0: the writer waits for the threads at every chunk (the memory bound's path)
+    monkeypatch.setattr(chunks, "_MAX_PENDING_BYTES", pending)
     rng = np.random.default_rng(4)
     sizes = [0, 1, 511, 1, 1024, 300, 2000, 7, 5]
     parts = {name: [_rows(dtype, shape, n, seed=i) for i, n in enumerate(sizes)]

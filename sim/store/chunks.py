@@ -24,8 +24,9 @@ __all__ = ["COMPRESS_THREADS", "ChunkAppender", "encode_chunk"]
 # threads that compress; each keeps up with some 3 million replicates a second of the K = 500
 # invasion's replicate table (0.3 microseconds a replicate, measured by `broodline bench --scaling`)
 COMPRESS_THREADS = 4
-# chunks compressed but not yet written, at most: bounds the memory when the threads lag
-_MAX_PENDING = 256
+# bytes of rows queued to the threads and not yet written, at most: bounds the memory when
+# the threads lag (as the merge's buffer, ``writer._MERGE_ROWS``, bounds it before them)
+_MAX_PENDING_BYTES = 16 << 20
 
 
 def encode_chunk(rows: np.ndarray, level: int) -> bytes:
@@ -71,7 +72,8 @@ class ChunkAppender:
         self.pool: ThreadPoolExecutor | None = None
         self.tails: dict[str, list[np.ndarray]] = {}  # rows short of a whole chunk, by dataset
         self.queued: dict[str, int] = {}  # rows given to the threads, by dataset
-        self.pending: deque[tuple[str, tuple, Future]] = deque()  # (dataset, chunk's corner, chunk)
+        self.pending: deque[tuple[str, tuple, Future, int]] = deque()  # (dataset, corner, chunk, bytes)
+        self.pending_bytes = 0
         self.cpu_s = 0.0
 
     def append(self, f, name: str, parts: list[np.ndarray]) -> None:
@@ -94,7 +96,9 @@ class ChunkAppender:
             for part in rest:
                 while len(part) >= need:
                     pieces.append(part[:need])
-                    self.pending.append((name, (first, *corner), self.pool.submit(_encode, pieces, level)))
+                    size = sum(piece.nbytes for piece in pieces)
+                    self.pending.append((name, (first, *corner), self.pool.submit(_encode, pieces, level), size))
+                    self.pending_bytes += size
                     part, first, pieces, need = part[need:], first + chunk, [], chunk
                 if len(part):
                     pieces.append(part)
@@ -102,26 +106,27 @@ class ChunkAppender:
             self.tails[name] = pieces
             self.queued[name] = first
             ds.resize(first, axis=0)  # its chunks are written as they come
-        self._write(f, wait=len(self.pending) - _MAX_PENDING)
+        self._write(f, limit=_MAX_PENDING_BYTES)
 
-    def _write(self, f, *, wait: int = 0) -> None:
-        """Write the compressed chunks, in the order queued: the first ``wait`` even if the
-        threads must finish them first, then those finished."""
+    def _write(self, f, *, limit: int | None = None) -> None:
+        """Write the compressed chunks, in the order queued: those finished, and, waiting for
+        the threads, as many more as leave at most ``limit`` bytes of rows queued (None: all)."""
         datasets = {}
-        while self.pending and (wait > 0 or self.pending[0][2].done()):
-            name, offset, future = self.pending.popleft()
+        while self.pending and (self.pending[0][2].done() or limit is None
+                                or self.pending_bytes > limit):
+            name, offset, future, size = self.pending.popleft()
             data, cpu = future.result()
             self.cpu_s += cpu
+            self.pending_bytes -= size
             ds = datasets.get(name)
             if ds is None:
                 ds = datasets[name] = f[name].id
             ds.write_direct_chunk(offset, data)
-            wait -= 1
 
     def finish(self, f) -> None:
         """Write every queued chunk, then the rows short of a whole chunk (through HDF5's
         filters), so that each dataset holds exactly the rows appended."""
-        self._write(f, wait=len(self.pending))
+        self._write(f)
         for name, rest in self.tails.items():
             if rest:
                 ds = f[name]
@@ -138,3 +143,4 @@ class ChunkAppender:
             self.pool.shutdown(wait=False, cancel_futures=True)
             self.pool = None
         self.pending.clear()
+        self.pending_bytes = 0
