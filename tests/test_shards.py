@@ -131,8 +131,12 @@ def test_a_full_disk_while_the_writer_saves_a_shard_on_a_thread_is_a_clear_error
     with pytest.raises(ResultsError, match="No space left on device. The 3 replicates already saved are intact"):
         writer.write_rows(rows, shard_image(writer.shard_target(0), rows))  # (raised here or at
         writer.collect(wait=True)  # the next look at the threads, whichever sees it first)
+    monkeypatch.undo()  # the disk has room again: the same batch is saved, once
+    writer.write_rows(rows, shard_image(writer.shard_target(0), rows))
+    with pytest.raises(ResultsError, match="overlap"):
+        writer.write_rows(rows, shard_image(writer.shard_target(0), rows))
     writer.release()
-    assert len(read_replicates(tmp_path / "x.h5")) == 3
+    assert len(read_replicates(tmp_path / "x.h5")) == 6
 
 
 def test_a_corrupt_shard_is_redone_on_resume(tmp_path):

@@ -33,8 +33,9 @@ def encode_chunk(rows: np.ndarray, level: int) -> bytes:
     """One chunk's rows as HDF5 stores them after its shuffle and deflate filters.
 
     HDF5's shuffle filter puts the first byte of every element first, then
-    every second byte, and so on (the element: the dataset's type, e.g. 8
-    bytes for int64, 13 for 13-byte text); deflate is a zlib stream at ``level``.
+    the second byte of every element, and so on (the element: the dataset's
+    type, e.g. 8 bytes for int64, 13 for 13-byte text); deflate is a zlib
+    stream at ``level``.
     """
     size = rows.dtype.itemsize
     data = np.ascontiguousarray(rows).view(np.uint8).reshape(-1, size)

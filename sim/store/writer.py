@@ -319,6 +319,7 @@ class ResultsWriter:
             try:
                 shard_files.save_shard(self.shard_target(shard.point), rows)
             except OSError as err:
+                self._unclaim(shard)
                 raise ResultsError(self._write_failure(err)) from None
             self._record(shard, rows)
             return
@@ -337,6 +338,7 @@ class ResultsWriter:
                 try:
                     future.result()
                 except OSError as err:
+                    self._unclaim(shard)
                     raise ResultsError(self._write_failure(err)) from None
                 self._record(shard, rows)
 
@@ -370,6 +372,11 @@ class ResultsWriter:
                 raise ResultsError(f"replicates {shard.first}-{shard.last} of point {shard.point} "
                                    f"overlap shard {s.name}, already written")
         firsts.insert(i, shard.first)
+
+    def _unclaim(self, shard: Shard) -> None:
+        """Drop ``shard`` from the index (its save failed: it may be saved again)."""
+        firsts = self._firsts[shard.point]
+        del firsts[bisect.bisect_left(firsts, shard.first)]
 
     def shard_target(self, point: int) -> ShardTarget:
         """Where and how a batch of sweep point ``point`` is saved: what a worker process needs
