@@ -126,8 +126,9 @@ class RunTimings:
     recording batches (saving them, where the workers do not); ``merge_run_s`` /
     ``merge_run_cpu_s`` merging shards while waiting for workers during the run;
     ``merge_s`` / ``merge_cpu_s`` the final merge's (CPU: the writing thread's);
-    ``compress_cpu_s`` the CPU of the merge's threads that compress the file's chunks. ``batches`` holds every batch's
-    ``BatchClock``; ``workers`` each started worker's (pid, ready at, start-up CPU).
+    ``compress_cpu_s`` the CPU of the merge's threads that compress the file's chunks.
+    ``batches`` holds every batch's ``BatchClock``; ``workers`` each started worker's
+    (pid, ready at, start-up CPU).
     """
 
     started: float = 0.0

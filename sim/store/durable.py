@@ -28,28 +28,16 @@ def _fsync_path(path: Path, *, directory: bool = False) -> None:
         os.close(fd)
 
 
-def write_atomic(path: Path, fill, *, in_memory: bool = True) -> None:
+def write_atomic(path: Path, fill) -> None:
     """Write an HDF5 file as ``path.tmp`` with ``fill(file)``, make it durable, rename it to ``path``.
 
     After a crash at any moment ``path`` is either absent, or its old
     version, or the complete new one; a leftover ``.tmp`` is never read.
-    ``in_memory`` builds the file in memory and writes its bytes in one go
-    (for files of a batch's size): a full disk is then a plain OSError,
-    never a half-closed HDF5 file.
+    The file is built in memory and its bytes written in one go (files of a
+    batch's or a header's size): a full disk is then a plain OSError, never a
+    half-closed HDF5 file.
     """
-    if in_memory:
-        write_bytes_atomic(path, file_image(path.name, fill))
-        return
-    tmp = path.with_name(path.name + ".tmp")
-    try:
-        with h5_write_errors(), h5py.File(tmp, "w") as f:
-            fill(f)
-            f.flush()
-        _fsync_path(tmp)
-        _commit(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+    write_bytes_atomic(path, file_image(path.name, fill))
 
 
 def file_image(name: str, fill) -> bytes:
