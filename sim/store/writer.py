@@ -544,7 +544,7 @@ class _MergedFile:
         self.tmp = writer.path.with_name(writer.path.name + ".tmp")
         self.started = False  # the .tmp file holds the header and the rows written so far
         self.next = (0, 0)  # the (point, first replicate) of the shard needed next
-        self.buffer: dict[str, list] = {name: [] for name in (*REPLICATE_COLUMNS, "step", "counts", YEARS)}
+        self.buffer: dict[str, list] = {name: [] for name in _MERGED_PATHS}  # rows not yet appended
         self.rows = self.records = self.offset = 0
         self.chunks = ChunkAppender()
 
