@@ -137,6 +137,13 @@ MISLEADING_ONCE = [
                           "year": ENVIRONMENT["year"]}),
       (("environment", "year", 0, "probability"), KeyError), (("environment", "year", 1, "probability"), KeyError)],
      r"^environment\.transitions: the chain has no unique stationary law"),
+    # `[allele.tall]` where `[[allele]]` was meant: TOML reads one table, not a list of them
+    ([(("allele",), {"tall": {"breeding": "iteroparous", "fecundity": 2.0}})],
+     r"^allele must be a list of tables, each begun by a line \[\[allele\]\]; got one table "
+     r"\[allele\.tall\] holding"),
+    ([(("environment",), {"switching": "iid", "year": {"wet": {"probability": 1.0}}})],
+     r"^environment\.year must be a list of tables, each begun by a line \[\[environment\.year\]\]; "
+     r"got one table \[environment\.year\.wet\]"),
 ]
 
 
@@ -146,3 +153,10 @@ def test_messages_that_once_misled(changes, message):
         parse_config(_with(copy.deepcopy(changes)))  # (changes share ENVIRONMENT)
     assert len(err.value.problems) == 1
     assert re.match(message, err.value.problems[0]), err.value.problems[0]
+
+
+def test_a_missing_list_of_tables_says_how_it_is_written():
+    raw = {key: value for key, value in copy.deepcopy(BASE).items() if key not in ("allele", "invasion", "sweep")}
+    with pytest.raises(ConfigError) as err:
+        parse_config(raw)
+    assert err.value.problems == ["allele is required: one or more tables, each begun by a line [[allele]]"]

@@ -89,8 +89,14 @@ def _worded(errors) -> list[str]:
                 msg = f"{path} must be {what}, not true or false; got {got!r}"
             else:  # a list or a table where one value belongs (e.g. a list inside a list by age)
                 msg = f"{path} must be {what}, not a {'list' if isinstance(got, list) else 'table'}; got {got!r}"
+        elif kind == "list_type" and isinstance(got, dict) and _tables_at(path):
+            # `[allele.tall]` for `[[allele]]`: TOML makes one table of it, not a list of them
+            msg = (f"{path} must be a list of tables, each begun by a line [[{path}]]; got one "
+                   f"table{' [' + path + '.' + next(iter(got)) + ']' if len(got) == 1 else ''} "
+                   f"holding {got!r}")
         elif kind == "missing":
-            msg = f"{path} is required"
+            msg = f"{path} is required" + (f": one or more tables, each begun by a line [[{path}]]"
+                                           if _tables_at(path) else "")
         elif kind == "literal_error":
             msg = f"{path} must be {e['msg'].removeprefix('Input should be ')}; got {got!r}"
         elif kind in ("greater_than_equal", "greater_than", "less_than_equal", "less_than"):
@@ -116,6 +122,17 @@ def _model_at(path: str):
         if model is None:
             return None
     return model
+
+
+def _tables_at(path: str) -> bool:
+    """True where ``path`` is a list of config sections (``allele``, ``environment.year``),
+    which TOML writes as an array of tables, ``[[path]]``."""
+    parent, _, key = path.rpartition(".")
+    model = _model_at(parent) if parent else Config
+    field = None if model is None else model.model_fields.get(key)
+    if field is None:
+        return False
+    return typing.get_origin(field.annotation) is list and _section_in(field.annotation) is not None
 
 
 def _section_in(annotation):
