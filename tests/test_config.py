@@ -141,6 +141,9 @@ MISLEADING_ONCE = [
     ([(("allele",), {"tall": {"breeding": "iteroparous", "fecundity": 2.0}})],
      r"^allele must be a list of tables, each begun by a line \[\[allele\]\]; got one table "
      r"\[allele\.tall\] holding"),
+    # a single value where the sweep wants the list of them
+    ([(("sweep",), {"density.capacity": 50})],
+     r"^sweep\.'density\.capacity' must be a list of the values to sweep, e\.g\. \[50\]; got 50$"),
     ([(("environment",), {"switching": "iid", "year": {"wet": {"probability": 1.0}}})],
      r"^environment\.year must be a list of tables, each begun by a line \[\[environment\.year\]\]; "
      r"got one table \[environment\.year\.wet\]"),

@@ -20,6 +20,8 @@ def _loc(loc: tuple) -> str:
         elif part in ("float", "list[float]", "int", "list[constrained-float]", "constrained-float") \
                 or part.startswith(("list[", "function-after", "literal[", "constrained-int")):
             continue  # pydantic's union-branch labels, not keys
+        elif out == "sweep" and "." in part:  # a sweep path is one key: quoted, as its own checks say it
+            out += f".'{part}'"
         else:
             out += f".{part}" if out else str(part)
     return out
@@ -89,6 +91,8 @@ def _worded(errors) -> list[str]:
                 msg = f"{path} must be {what}, not true or false; got {got!r}"
             else:  # a list or a table where one value belongs (e.g. a list inside a list by age)
                 msg = f"{path} must be {what}, not a {'list' if isinstance(got, list) else 'table'}; got {got!r}"
+        elif kind == "list_type" and path.startswith("sweep.") and not isinstance(got, (list, dict)):
+            msg = f"{path} must be a list of the values to sweep, e.g. [{got!r}]; got {got!r}"
         elif kind == "list_type" and isinstance(got, dict) and _tables_at(path):
             # `[allele.tall]` for `[[allele]]`: TOML makes one table of it, not a list of them
             msg = (f"{path} must be a list of tables, each begun by a line [[{path}]]; got one "
