@@ -179,6 +179,10 @@ _ENVIRONMENT_POINT_KEYS = {
     "environment": "the year types, their probabilities and how years are drawn, in words",
     "resident_invades_back": "true where the resident, rare, invades the mutant's environment back "
     "(then the two coexist)",
+    "resident_return_fitness": "the resident's invasion fitness in the mutant's fluctuating "
+    "environment (the same years), where the mutant invades; null elsewhere",
+    "resident_return_census": "the mutant's mean census as resident, where the mutant invades: "
+    "with resident_return_fitness w, N |log w| < 1 puts the resident's return within drift",
     "invasion_fitness_se": "standard error of invasion_fitness (delta method)",
     "log_invasion_fitness_se": "batch-means standard error of log(invasion_fitness)",
     "establishment_probability_se": "standard error of establishment_probability",

@@ -54,6 +54,8 @@ __all__ = [
     "SideOfNeutral",
     "PredictedFixation",
     "Judgement",
+    "DRIFT_BAND",
+    "drift_note",
     "judge",
     "agreement",
     "outcome_name",
@@ -273,6 +275,31 @@ FINITE_NOT_VALID = (
 )
 
 
+# Selection of strength s in a population of N is effectively neutral where N |s| < 1: drift
+# then decides the fate of an allele (Kimura 1983, The Neutral Theory of Molecular Evolution;
+# Ohta 1973 for the nearly neutral; from memory; the bound 1 is common practice)
+DRIFT_BAND = 1.0
+
+
+def drift_note(row: dict) -> str:
+    """Why a point of a random-years sweep may disagree although the theory holds: just past
+    the replacement threshold the resident's return is within drift (N |log w| below
+    ``DRIFT_BAND``, w the resident's invasion fitness against the mutant and N the mutant's
+    census as resident), so a finite population need not fix the mutant more often than a
+    neutral allele, as a large one would. Empty elsewhere."""
+    back = row.get("resident_return_fitness", float("nan"))
+    census = row.get("resident_return_census", float("nan"))
+    if not (np.isfinite(back) and np.isfinite(census) and 0 < back <= 1):
+        return ""
+    drift = census * abs(np.log(back))
+    if drift >= DRIFT_BAND:
+        return ""
+    return (f"just past the replacement threshold: the resident's invasion fitness against the "
+            f"mutant, {back:.4g}, is within drift of 1 at the mutant's census of {census:.3g} "
+            f"(N |log w| = {drift:.2g} < {DRIFT_BAND:g}), so this population need not fix the "
+            f"mutant more often than a neutral allele, as a large one would")
+
+
 def _default_prediction(row: dict):
     """The finite-N fixation probability where it is valid (so a point at the threshold is
     judged against the variance-corrected value, Gillespie 1974, not the neutral share);
@@ -345,6 +372,9 @@ def compare(path, *, level: float = 0.95, prediction=None) -> pd.DataFrame:
         j = judge(established, counted, make({"point": int(point), **swept, **t}), left_out=left_out,
                   left_out_kinds=kinds + (" with the mutant's share not rising" if c[CAPPED] - up else ""),
                   level=level)
+        reason = j.reason
+        if j.agreement == "disagrees" and (note := drift_note(t)):
+            reason = f"{reason}; {note}"
         rows.append(
             {
                 "point": int(point),
@@ -360,7 +390,7 @@ def compare(path, *, level: float = 0.95, prediction=None) -> pd.DataFrame:
                 "fixed_high": j.high,
                 **t,
                 "agreement": j.agreement,
-                "reason": j.reason,
+                "reason": reason,
                 "prediction": j.prediction,
             }
         )

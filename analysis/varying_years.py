@@ -47,8 +47,8 @@ STOCHASTIC_COLUMNS = (
     "invasion_fitness_se", "log_invasion_fitness_se", "stochastic_growth_rate",
     "stochastic_growth_rate_se", "small_noise_approximation", "resident_stochastic_growth_rate",
     "resident_stochastic_growth_rate_se", "resident_small_noise_approximation",
-    "establishment_probability_se", "neutral_expectation_se", "resident_invades_back", "prediction",
-    "environment",
+    "establishment_probability_se", "neutral_expectation_se", "resident_invades_back",
+    "resident_return_fitness", "resident_return_census", "prediction", "environment",
 )
 YEAR_DRAWS = {"n_batches": 20, "batch_length": 1000, "burn_in": 200}
 THEORY_STREAM = 3  # SeedSequence(seed, spawn_key=(3,)): the theory's years, apart from any run's
@@ -124,7 +124,12 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
         (``neutral_in_years``), with ``neutral_expectation_se``;
         ``resident_invades_back`` is true where the mutant invades and the
         resident, rare, would invade the mutant back (each invades the other:
-        between the invasion and the replacement thresholds).
+        between the invasion and the replacement thresholds), from
+        ``resident_return_fitness`` (the resident's invasion fitness in the
+        mutant's fluctuating environment, where the mutant invades; else nan)
+        and ``resident_return_census``, the mutant's mean census as resident
+        (with it, ``analysis.comparison.drift_note`` tells when that return is
+        within drift).
     """
     s = _setting_of(config)
     draws = year_draws(config)
@@ -139,7 +144,7 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
         neutral = neutral_se = float("nan")
     growth = inv.as_dict()
     fitness = inv.invasion_fitness
-    back = _invades_back(s, draws) if fitness > 1 else False
+    back, back_census = _return_of(s, draws) if fitness > 1 else (math.nan, math.nan)
     return {
         "density_index": float("nan"),
         "census_size": inv.mean_census_size,
@@ -155,22 +160,26 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
                                                         "invasion_fitness", "mean_census_size")},
         "establishment_probability_se": est.standard_error,
         "neutral_expectation_se": neutral_se,
-        "resident_invades_back": back,
+        "resident_invades_back": bool(back > 1),
+        "resident_return_fitness": back,
+        "resident_return_census": back_census,
         "prediction": "stochastic",
         "environment": describe_environment(config),
     }
 
 
-def _invades_back(s: InvasionSetting, draws: YearSequences) -> bool:
-    """True when the resident, rare, invades the mutant as resident (the same years): then each
-    invades the other and fixation of the mutant is not what the invasion fitness predicts."""
-    if s.density is None:  # density-free: the reverse fitness is the inverse
-        return False
+def _return_of(s: InvasionSetting, draws: YearSequences) -> tuple[float, float]:
+    """The resident's invasion fitness when rare in the mutant's fluctuating environment (the
+    same years), and the mutant's mean census there; nan for both where there is none (no
+    density dependence: the reverse fitness is then the inverse). Above 1 each invades the
+    other, and fixation of the mutant is not what its invasion fitness predicts."""
+    if s.density is None:
+        return math.nan, math.nan
     try:
         back = stochastic_invasion(s.mutant, s.resident, s.years, s.density, draws)
     except (NoEquilibriumError, ValueError, ArithmeticError):
-        return False
-    return bool(back.invasion_fitness > 1)
+        return math.nan, math.nan
+    return float(back.invasion_fitness), float(back.mean_census_size)
 
 
 def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,

@@ -348,3 +348,36 @@ def test_between_the_invasion_and_replacement_thresholds_compare_makes_no_fixati
     assert verdicts[5.2] == ("does not invade", False, "agrees")
     assert verdicts[5.41] == ("invades", True, "no prediction")
     assert verdicts[5.7] == ("invades", False, "disagrees")
+
+
+def test_just_past_the_replacement_threshold_a_disagreement_names_the_drift_of_the_return(tmp_path):
+    # Issue 13's two-year case at K = 60 (the shipped configs/fenmarrow-hopper.toml): the
+    # replacement threshold is B_s = 5.48 (the slow test above), so at 5.5 the resident's
+    # invasion fitness against the mutant is just below 1, and at the mutant's census of some
+    # 44 N |log w| is far below 1: the resident's return is effectively neutral (N |s| < 1,
+    # Kimura 1983; common practice), and a small population there fixes the mutant less often
+    # than a neutral allele (docs/environments.md, "End to end"). compare keeps its verdict
+    # (the interval lies below the neutral expectation) and says that this is why. At 6.5 the
+    # return is no longer within drift, and nothing is added.
+    # 400 replicates, seed fixed: 2 of 400 fixed at 5.5 (0.005), against a neutral expectation
+    # of 0.04, which the 95% Wilson interval reaches from 9 fixed on; were 0.005 the true
+    # fraction, 9 or more of 400 would have binomial probability 2.2e-4 (scipy.stats.binom).
+    from analysis.comparison import DRIFT_BAND, compare, drift_note
+    from analysis.varying_years import stochastic_prediction
+    from sim.experiment import run_experiment
+
+    near, past = (stochastic_prediction(_invasion(b, True, capacity=60, replicates=10)) for b in (5.5, 6.5))
+    assert 0.99 < near["resident_return_fitness"] < 1 and not near["resident_invades_back"]
+    assert near["resident_return_census"] * abs(np.log(near["resident_return_fitness"])) < DRIFT_BAND
+    assert past["resident_return_census"] * abs(np.log(past["resident_return_fitness"])) > DRIFT_BAND
+    assert drift_note(near) and not drift_note(past)
+
+    raw = _invasion(5.5, True, capacity=60, replicates=400, seed=1313).model_dump(mode="json", exclude_none=True)
+    raw["sweep"] = {"allele.se.fecundity": [5.5, 6.5]}
+    out = tmp_path / "edge.h5"
+    run_experiment(parse_config(raw), out, workers=1, progress=False)
+    table = compare(out).set_index("allele.se.fecundity")
+    assert table.loc[5.5, "agreement"] == "disagrees"
+    assert table.loc[5.5, "reason"].startswith("the interval lies below the neutral expectation; just "
+                                              "past the replacement threshold: the resident's invasion")
+    assert "within drift" not in table.loc[6.5, "reason"]
