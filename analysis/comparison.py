@@ -282,11 +282,11 @@ DRIFT_BAND = 1.0
 
 
 def drift_note(row: dict) -> str:
-    """Why a point of a random-years sweep may disagree although the theory holds: just past
-    the replacement threshold the resident's return is within drift (N |log w| below
-    ``DRIFT_BAND``, w the resident's invasion fitness against the mutant and N the mutant's
-    census as resident), so a finite population need not fix the mutant more often than a
-    neutral allele, as a large one would. Empty elsewhere."""
+    """Why a point of a random-years sweep may disagree although the large-population theory
+    holds: just past the replacement threshold the resident's return is within drift (N |log w|
+    below ``DRIFT_BAND``, w the resident's invasion fitness against the mutant and N the
+    mutant's census as resident), so a finite population need not fix the mutant more often
+    than a neutral allele, as a large one would. Empty elsewhere."""
     back = row.get("resident_return_fitness", float("nan"))
     census = row.get("resident_return_census", float("nan"))
     if not (np.isfinite(back) and np.isfinite(census) and 0 < back <= 1):
