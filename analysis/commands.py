@@ -249,6 +249,34 @@ def threshold_report(config, *, parameters=None, bracket=None, sensitivities=Fal
     return out
 
 
+# The random-years theory's columns in `threshold`'s table, in short (every column is in --json)
+_YEARS_SHOWN = {"invasion_fitness_se": "fitness SE", "resident_invades_back": "resident returns",
+                "resident_return_fitness": "return fitness"}
+YEARS_LEGEND = (
+    "fitness SE: the invasion fitness's standard error; resident returns: whether the resident, "
+    "rare, invades the mutant back, with its invasion fitness there (return fitness). The other "
+    "standard errors, the stochastic growth rates and their small-noise approximations: --json."
+)
+
+
+def _years_columns_shown(points):
+    """``threshold``'s table with year types: the columns of ``_YEARS_SHOWN`` in words, the
+    rest of the random-years theory's left to --json; and the legend for them."""
+    import textwrap
+
+    from .varying_years import STOCHASTIC_COLUMNS
+
+    hidden = [c for c in STOCHASTIC_COLUMNS if c in points and c not in _YEARS_SHOWN]
+    if points["density_index"].isna().all():  # no equilibrium density index when years vary
+        hidden.append("density_index")
+    shown = points.drop(columns=hidden)
+    shown["invasion_fitness_se"] = shown["invasion_fitness_se"].map(lambda v: f"{v:.2g}")
+    shown["resident_invades_back"] = shown["resident_invades_back"].map(lambda v: "yes" if v else "no")
+    shown["resident_return_fitness"] = shown["resident_return_fitness"].map(
+        lambda v: f"{v:.4g}" if v == v else "-")
+    return shown.rename(columns=_YEARS_SHOWN), "\n".join(textwrap.wrap(YEARS_LEGEND, width=100))
+
+
 def cmd_threshold(args) -> int:
     from sim.config import load_config
 
@@ -288,10 +316,14 @@ def cmd_threshold(args) -> int:
         print("prediction: stochastic theory (invasion fitness = exp of the mutant's long-run "
               "growth rate in the resident's fluctuating environment; SE from batch means)")
         points = points.drop(columns=["environment", "prediction"])
+        points, years_note = _years_columns_shown(points)
+    else:
+        years_note = ""
     points, notes = shown_finite_columns(points)
     print(theory_table_text(points))
-    if notes:
-        print(notes)
+    for note in (years_note, notes):
+        if note:
+            print(note)
     if result["thresholds"]:
         print("\nthresholds:")
         for line in threshold_lines(config, result["thresholds"]):

@@ -627,7 +627,9 @@ def theory_table_text(points: pd.DataFrame, *, width: int = 100) -> str:
     swept = [c for c in points.columns[1:] if c not in _THEORY_HEADERS and c != "problem"]
     for c in swept:
         shown[c] = shown[c].map(lambda v: f"{v:g}" if isinstance(v, float) else str(v))
-    return "\n".join([shown.to_string(index=False), *textwrap.wrap(THEORY_LEGEND, width=width)])
+    legend = THEORY_LEGEND if "D*" in shown else (  # years vary: no equilibrium, a mean census
+        "census: the resident's mean census size; " + THEORY_LEGEND.split("census size; ", 1)[1])
+    return "\n".join([shown.to_string(index=False), *textwrap.wrap(legend, width=width)])
 
 
 def threshold_lines(config: Config, results) -> list[str]:

@@ -91,6 +91,10 @@ def test_threshold_json_has_the_stochastic_keys(tmp_path, capsys):
     assert main(["threshold", str(path)]) == 0
     text = capsys.readouterr().out
     assert "environment: 2 year types" in text and "prediction: stochastic theory" in text
+    # the table shows the theory in short (the resident's return in words), the rest in --json
+    header = next(line for line in text.splitlines() if "invasion fitness" in line and "point" in line)
+    assert "fitness SE" in header and "resident returns" in header and "return fitness" in header
+    assert "small_noise" not in text and "D*" not in text
 
 
 def test_a_constant_config_keeps_its_columns():
