@@ -274,8 +274,10 @@ def describe_experiment(config: Config, *, budget: bool = True) -> str:
         lines.append(f"trait: {grid.size} effort alleles from {grid[0]:g} to {grid[-1]:g}, each offspring "
                      f"mutating to a neighbouring value with probability {config.mutation.rate:g}")
     factors = sweep_factors(config)
-    sizes = [f"{f.levels} ({' with '.join(f.paths)})" for f in factors]
-    lines.append(f"sweep points: {len(points)}" + (f" = {' x '.join(sizes)}" if factors else ""))
+    named = [f"({' with '.join(f.paths)})" for f in factors]
+    if len(factors) > 1:  # "12 = 3 (path) x 4 (path)"; one factor: "4 (path)"
+        named = ["= " + " x ".join(f"{f.levels} {n}" for f, n in zip(factors, named, strict=True))]
+    lines.append(" ".join([f"sweep points: {len(points)}", *named]))
     for p in points:
         if p.values:
             lines.append(f"  {p.index}: " + ", ".join(f"{k} = {v!r}" for k, v in p.values.items()))

@@ -2,6 +2,7 @@
 
 import math
 import tomllib
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -12,6 +13,8 @@ from sim.config import ConfigError, parse_config, sweep_points, swept_paths
 from sim.experiment import run_experiment
 from sim.store import read_points, read_replicates, read_trajectories
 from tests.runs_support import small_text
+
+ROOT = Path(__file__).resolve().parent.parent
 
 
 def _config(sweep_toml: str, base: str | None = None):
@@ -93,6 +96,11 @@ def test_check_prints_points_and_total_work(tmp_path, capsys):
     assert "  3: density.capacity = 25, allele.one-shot.fecundity = 6.0, " \
            "allele.one-shot.juvenile_survival = 0.45" in out
     assert "replicates: 30 per point, 120 in all (at most 36,000 seasons; trajectories by-age)" in out
+
+
+def test_check_names_a_single_swept_key_without_a_product(capsys):
+    assert main(["check", str(ROOT / "configs" / "demo.toml")]) == 0
+    assert "sweep points: 8 (allele.one-shot.fecundity)\n" in capsys.readouterr().out
 
 
 def test_sweep_reaches_resident_and_density_in_the_runs(tmp_path):
