@@ -652,11 +652,16 @@ def stochastic_threshold(
         return float(increments(v).mean())
 
     lo, hi = map(float, bracket)
-    g_lo, g_hi = g(lo), g(hi)
+    # an end where the mutant cannot grow at all (a fecundity of 0: log fitness -inf) is moved
+    # inward until g is finite there, so that a bracket from 0 finds the threshold
+    lo, g_lo = _finite_end(g, lo, hi)
+    hi, g_hi = _finite_end(g, hi, lo)
     if not (np.isfinite(g_lo) and np.isfinite(g_hi)) or g_lo * g_hi > 0:
+        why = ("has the same sign at both ends" if np.isfinite(g_lo) and np.isfinite(g_hi)
+               else "is not finite at an end")
         return StochasticThreshold(
             float("nan"), float("nan"), False, (lo, hi), (g_lo, g_hi), float("nan"),
-            f"log invasion fitness has the same sign at both ends: {g_lo:.6g}, {g_hi:.6g}",
+            f"log invasion fitness {why}: {g_lo:.6g}, {g_hi:.6g}",
         )
     root = brentq(g, lo, hi, xtol=xtol, rtol=1e-12, maxiter=200)
     _, se = _batch_estimate(increments(root))
@@ -671,6 +676,18 @@ def stochastic_threshold(
         f"invades {side} {root:.6g} (SE {err:.2g}; {sequences.n_batches} batches of "
         f"{sequences.batch_length} seasons)",
     )
+
+
+def _finite_end(g, end: float, other: float) -> tuple[float, float]:
+    """``end`` of a bracket and g there, moved toward ``other`` (by 1e-9 of the bracket, then
+    1e-6, 1e-3, 1e-2) while g is infinite there; as given where it is finite or nan."""
+    value = g(end)
+    for step in (1e-9, 1e-6, 1e-3, 1e-2):
+        if not np.isinf(value):
+            break
+        end += (other - end) * step
+        value = g(end)
+    return end, value
 
 
 # --------------------------------------------------------------------------- neutral expectation

@@ -23,6 +23,8 @@ from .thresholds import ThresholdResult, threshold, with_values
 
 __all__ = [
     "PREDICTION_COLUMNS",
+    "predict_point",
+    "threshold_at",
     "predict_configs",
     "predict_sweep",
     "numeric_sweep_paths",
@@ -43,7 +45,13 @@ PREDICTION_COLUMNS = [
 ]
 
 
-def _row(config: Config, point: int | None = None) -> dict:
+def predict_point(config: Config, point: int | None = None) -> dict:
+    """The theory of one (sweep point) config, whichever applies: the stochastic theory where
+    years vary (``analysis.varying_years``), else the constant environment's prediction with
+    its finite-N columns. ``PREDICTION_COLUMNS`` and the theory's own keys, and ``problem``
+    (where the resident has no equilibrium: nan values and verdict "undefined"). ``point``
+    is the config's index in its sweep (a ``shared_years`` point's neutral expectation is
+    read under its own years)."""
     if config.environment is not None:  # year types: the stochastic theory
         from .varying_years import stochastic_prediction
 
@@ -72,7 +80,7 @@ def predict_configs(configs) -> pd.DataFrame:
     the sweep points in order (a ``shared_years`` point's neutral expectation
     is read under its own years, found by its index).
     """
-    rows = [_row(c, i) for i, c in enumerate(configs)]
+    rows = [predict_point(c, i) for i, c in enumerate(configs)]
     extra = list(dict.fromkeys(k for r in rows for k in r if k not in PREDICTION_COLUMNS and k != "problem"))
     return pd.DataFrame(rows, columns=[*PREDICTION_COLUMNS, *extra, "problem"])
 
@@ -141,11 +149,17 @@ def sweep_thresholds(config: Config, *, parameters=None, bracket=None) -> list[T
                 values = [float(v) for v in own.values[path]]
                 this = (min(values), max(values))
             group = own if own is not None and own.linked else None
-            if base.environment is not None:  # year types: the stochastic threshold
-                from .varying_years import stochastic_threshold_result
-
-                result = stochastic_threshold_result(base, path, bracket=this, group=group)
-            else:
-                result = threshold(base, path, bracket=this, group=group)
+            result = threshold_at(base, path, bracket=this, group=group)
             out.append(ThresholdResult(**{**result.__dict__, "at": at}))
     return out
+
+
+def threshold_at(config: Config, path: str, *, bracket=None, group=None) -> ThresholdResult:
+    """The analytic threshold along ``path`` for one config, whichever theory applies: the
+    stochastic one where years vary (``analysis.varying_years.stochastic_threshold_result``),
+    else ``analysis.threshold`` (same parameters)."""
+    if config.environment is not None:
+        from .varying_years import stochastic_threshold_result
+
+        return stochastic_threshold_result(config, path, bracket=bracket, group=group)
+    return threshold(config, path, bracket=bracket, group=group)

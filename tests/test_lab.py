@@ -464,3 +464,22 @@ def test_stop_takes_effect_within_one_batch(session):
         session._stop.set()
     session.stop()
     assert not session.running and session.tally().n - asked <= BATCH
+
+
+def test_with_year_types_the_page_shows_the_stochastic_theory():
+    # configs/fenmarrow-hopper.toml: the constant-environment closed form says B_s = 4 and so
+    # "invades" at B_s = 4.7 (Mylius & Diekmann 1995), but with juvenile survival 0.8 or 0.1 in
+    # equally likely years the mutant invades only above B_s = 5.34 (the stochastic theory;
+    # Lewontin & Cohen 1969 for the density-free case; tests/test_year_draws.py). The page
+    # states what `broodline threshold` does for the same config, and no closed form.
+    from analysis.lab.theory import page_theory
+    from analysis.sweep import predict_point, threshold_at
+
+    config = LabSession(load_config("configs/fenmarrow-hopper.toml")).config
+    theory = page_theory(config)
+    assert theory.prediction["verdict"] == "does not invade" and theory.prediction["invasion_fitness"] < 1
+    assert theory.prediction["invasion_fitness"] == predict_point(config)["invasion_fitness"]
+    assert theory.threshold == pytest.approx(5.34, abs=0.02)
+    assert theory.threshold == threshold_at(config, "allele.one-shot.fecundity").value
+    assert theory.closed_form is None and "2 year types" in theory.environment
+    assert not theory.finite_n.valid and "random years" in theory.finite_n.note

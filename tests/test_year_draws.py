@@ -381,3 +381,17 @@ def test_just_past_the_replacement_threshold_a_disagreement_names_the_drift_of_t
     assert table.loc[5.5, "reason"].startswith("the interval lies below the neutral expectation; just "
                                               "past the replacement threshold: the resident's invasion")
     assert "within drift" not in table.loc[6.5, "reason"]
+
+
+def test_a_bracket_from_a_fecundity_of_zero_finds_the_stochastic_threshold():
+    # At a fecundity of 0 the mutant's log invasion fitness is -inf (it never breeds): the
+    # search moves that end inward instead of reporting "the same sign at both ends". With
+    # the same years for every trial value, the threshold is the one found from a bracket
+    # that starts where the fitness is finite (5.34: the slow end-to-end test above).
+    from analysis.varying_years import stochastic_threshold_result
+
+    config = _invasion(4.7, True, capacity=60, replicates=10)
+    from_zero = stochastic_threshold_result(config, "allele.se.fecundity", bracket=(0.0, 9.4))
+    inside = stochastic_threshold_result(config, "allele.se.fecundity", bracket=(3.0, 9.4))
+    assert from_zero.value == pytest.approx(inside.value, abs=1e-8)
+    assert from_zero.value == pytest.approx(5.34, abs=0.02)

@@ -14,8 +14,7 @@ from dataclasses import asdict, dataclass
 from sim.config import Config, ConfigError
 from sim.meanfield import NoEquilibriumError
 
-from ..invasion import predict
-from ..thresholds import threshold
+from ..sweep import predict_point, threshold_at
 
 __all__ = ["ClosedForm", "FiniteN", "Theory", "closed_form_threshold", "finite_n_prediction", "page_theory"]
 
@@ -52,7 +51,7 @@ def closed_form_threshold(config: Config) -> ClosedForm | None:
       density factor; the resident needs B_i c < 1 for an equilibrium).
     """
     inv = config.invasion
-    if inv is None:
+    if inv is None or config.environment is not None:  # year types: no closed form
         return None
     res = config.allele[config.allele_index(inv.resident)]
     mut = config.allele[config.allele_index(inv.mutant)]
@@ -90,6 +89,9 @@ def finite_n_prediction(config: Config) -> FiniteN | None:
     (its ``fixation_probability``, ``valid`` and ``fixation_probability_note``).
     None where the module is absent (the page then says "not available").
     """
+    if config.environment is not None:
+        return FiniteN(math.nan, False, "no finite-population prediction exists yet for random years "
+                       "(the stochastic theory above is that of a large population)")
     try:
         from ..fixation import finite_population_prediction
     except ImportError:
@@ -112,6 +114,7 @@ class Theory:
     closed_form: ClosedForm | None
     finite_n: FiniteN | None
     problem: str = ""
+    environment: str = ""  # where years vary, the year types in words (the theory is then stochastic)
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -122,12 +125,15 @@ def page_theory(config: Config) -> Theory:
     parameter = f"allele.{config.invasion.mutant}.fecundity"
     closed = closed_form_threshold(config)
     try:
-        prediction = predict(config).as_dict()
+        prediction = predict_point(config)  # where years vary, the stochastic theory
     except (NoEquilibriumError, ValueError) as err:
         return Theory(None, parameter, math.nan, "", closed, None, problem=str(err))
+    if prediction["verdict"] == "undefined":
+        return Theory(None, parameter, math.nan, "", closed, None, problem=prediction["problem"])
     try:
-        found = threshold(config, parameter)
+        found = threshold_at(config, parameter)
         value, message = found.value, found.message
     except (ConfigError, NoEquilibriumError, ValueError) as err:
         value, message = math.nan, str(err)
-    return Theory(prediction, parameter, value, message, closed, finite_n_prediction(config))
+    return Theory(prediction, parameter, value, message, closed, finite_n_prediction(config),
+                  environment=prediction.get("environment", ""))

@@ -225,6 +225,10 @@ function drawTheory(v) {
     box.innerHTML = `<div class="error" id="theory-problem">${esc(th.problem)}</div>`;
     return;
   }
+  if (th.environment) {  // years vary: the stochastic theory, said before its numbers
+    cells.push(`<div style="grid-column: 1 / 4" id="th-environment">years vary (${esc(th.environment)}): `
+               + "the stochastic theory, a large population's</div>");
+  }
   add("invasion fitness", "th-fitness", fmt(p.invasion_fitness, 4));
   add("verdict", "th-verdict", esc(p.verdict));
   add("threshold " + th.parameter.split(".").pop(), "th-threshold", fmt(th.threshold, 4));
