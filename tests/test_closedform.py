@@ -60,3 +60,30 @@ def test_no_textbook_formula_with_parental_care_or_a_brood_effect(care, who):
     if care == {"orphan_survival": 0.1} and who == 0:  # the resident cares: the worked example
         raw["allele"][1]["orphan_survival"] = 0.1
         assert threshold(parse_config(raw), PATH, bracket=(1.0, 20.0)).value == pytest.approx(11.0, rel=1e-8)
+
+
+@pytest.mark.parametrize("kw, text, value", [
+    # a ceiling on recruits: the rare mutant meets the resident's factor f, B_i c f = 1 - P
+    # (Mylius & Diekmann 1995, as for any form acting on recruitment)
+    ({"form": "ceiling", "acts_on": "recruitment"}, "B_s = B_i / (1 - P) = 2 / (1 - 0.5) = 4", 4.0),
+    # on adult survival the mutant meets no density factor: B_s c = 1 (the resident needs
+    # B_i c < 1 for an equilibrium: B_i = 1.5)
+    ({"acts_on": "adult-survival", "fecundity": 1.5}, "B_s = 1 / c = 1 / 0.5 = 2", 2.0),
+])
+def test_the_ceiling_on_recruits_and_adult_survival_cases_match_the_solver(kw, text, value):
+    config = invasion_config(**kw)
+    assert closed_form(config, PATH) == text
+    assert threshold(config, PATH, bracket=(1.0, 8.0)).value == pytest.approx(value, rel=1e-8)
+
+
+def test_the_lab_shows_the_closed_form_the_command_line_prints():
+    # one statement of the closed forms: the lab's theory panel reads analysis.closedform
+    from analysis.lab.theory import page_theory
+
+    config = invasion_config(acts_on="recruitment")
+    assert page_theory(config).closed_form.text() == closed_form(config, PATH)
+    from sim.config import parse_config
+
+    raw = config.model_dump(exclude_none=True)
+    raw["allele"][0]["orphan_survival"] = 0.1  # the resident cares: not the textbook case
+    assert page_theory(parse_config(raw)).closed_form is None

@@ -79,7 +79,7 @@ def test_the_page_runs_replicates_and_saves_what_broodline_runs(page, lab, tmp_p
     assert text(page, "#th-fitness") == f"{theory.invasion_fitness:.4f}"
     assert text(page, "#th-verdict") == theory.verdict == "invades"
     assert text(page, "#th-establishment") == f"{theory.establishment_probability:.4f}"
-    assert text(page, "#th-closed").startswith("B_s* = B_i / (1 − P) = 2 / (1 − 0.5) = 4.0000")
+    assert text(page, "#th-closed").startswith("B_s = B_i / (1 - P) = 2 / (1 - 0.5) = 4.0000")
 
     # a refused value shows the schema's message beside its control and blocks the buttons
     set_control(page, "mutant.juvenile_survival", "1.3")

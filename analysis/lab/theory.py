@@ -1,9 +1,10 @@
 """What theory says about the page's config: invasion fitness, verdict, threshold, predictions.
 
-Recomputed whenever a control moves. The numbers come from the analysis layer
-(``analysis.predict``, ``analysis.threshold``); this module only adds the
-closed form of the threshold where one applies, and the hook through which a
-finite-population prediction reaches the page.
+Recomputed whenever a control moves. Everything comes from the analysis layer,
+as ``broodline threshold`` gives it for the same config: the prediction and the
+threshold (``analysis.sweep.predict_point`` and ``threshold_at``: the stochastic
+theory where years vary), the closed form where one applies
+(``analysis.closedform``), and the finite-population prediction through a hook.
 """
 
 from __future__ import annotations
@@ -14,63 +15,10 @@ from dataclasses import asdict, dataclass
 from sim.config import Config, ConfigError
 from sim.meanfield import NoEquilibriumError
 
+from ..closedform import ClosedForm, closed_form_threshold
 from ..sweep import predict_point, threshold_at
 
 __all__ = ["ClosedForm", "FiniteN", "Theory", "closed_form_threshold", "finite_n_prediction", "page_theory"]
-
-
-@dataclass(frozen=True)
-class ClosedForm:
-    """A threshold of the mutant's fecundity written out: formula, its numbers, value, source."""
-
-    formula: str
-    worked: str
-    value: float
-    source: str
-
-
-def closed_form_threshold(config: Config) -> ClosedForm | None:
-    """The semelparous mutant's threshold fecundity B_s* in closed form, where one applies.
-
-    Applies to an iteroparous resident (fecundity B_i, adult survival P,
-    juvenile survival c, maturity at 1) against a semelparous mutant maturing
-    at 1 with the same c; None otherwise.
-
-    Notes
-    -----
-    At the resident's equilibrium its growth rate is 1; the mutant's is
-    B_s c times the density factors it meets there. Setting it to 1:
-
-    - no density dependence: B_s* = B_i + P / c (Charnov & Schaffer 1973;
-      Cole 1954 with c = P = 1), from lambda_m / lambda_r = B_s c / (P + B_i c);
-    - acting on recruitment or fecundity (any form, a ceiling on recruits
-      included): B_s* = B_i / (1 - P) (Mylius & Diekmann 1995);
-    - acting on all survival (or a ceiling on everyone): B_s* = B_i + P / c
-      (Mylius & Diekmann 1995);
-    - acting on adult survival only: B_s* = 1 / c (the mutant meets no
-      density factor; the resident needs B_i c < 1 for an equilibrium).
-    """
-    inv = config.invasion
-    if inv is None or config.environment is not None:  # year types: no closed form
-        return None
-    res = config.allele[config.allele_index(inv.resident)]
-    mut = config.allele[config.allele_index(inv.mutant)]
-    if not (res.breeding == "iteroparous" and mut.breeding == "semelparous" and res.maturity_age == 1
-            and mut.maturity_age == 1 and res.juvenile_survival == mut.juvenile_survival):
-        return None
-    b, p, c = float(res.fecundity), float(res.adult_survival), float(res.juvenile_survival)
-    d = config.density
-    where = "none" if d.form == "none" else d.placement
-    if where in ("recruitment", "fecundity"):
-        if p >= 1:
-            return None
-        return ClosedForm("B_s* = B_i / (1 − P)", f"{b:g} / (1 − {p:g})", b / (1 - p), "Mylius & Diekmann 1995")
-    if c == 0:
-        return None
-    if where == "adult-survival":
-        return ClosedForm("B_s* = 1 / c", f"1 / {c:g}", 1 / c, "the mutant meets no density factor")
-    source = "Charnov & Schaffer 1973" if where == "none" else "Mylius & Diekmann 1995"
-    return ClosedForm("B_s* = B_i + P / c", f"{b:g} + {p:g} / {c:g}", b + p / c, source)
 
 
 @dataclass(frozen=True)
