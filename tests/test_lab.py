@@ -483,3 +483,12 @@ def test_with_year_types_the_page_shows_the_stochastic_theory():
     assert theory.threshold == threshold_at(config, "allele.one-shot.fecundity").value
     assert theory.closed_form is None and "2 year types" in theory.environment
     assert not theory.finite_n.valid and "random years" in theory.finite_n.note
+
+
+def test_views_are_numbered_in_the_order_taken(session):
+    # the page drops an answer older than the one it shows (requests run on concurrent threads)
+    first = session.view()
+    session.update({"experiment.replicates": 30})
+    later = session.view()
+    assert later["view"] > first["view"] and later["session"] == first["session"]
+    assert later["settings"]["experiment.replicates"] == 30

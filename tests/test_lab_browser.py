@@ -180,3 +180,19 @@ def test_an_emptied_box_shows_the_default_now_in_force(page):
     # the schema's default mutant count (sim.config.InvasionSection) is 1
     page.wait_for_function(f"document.querySelector('{selector}').value === '1'")
     assert page.evaluate("view.settings['invasion.mutant_count']") == 1
+
+
+def test_an_answer_that_arrives_late_does_not_undo_a_newer_one(page):
+    # the server answers on concurrent threads, so two quick changes may be answered out of
+    # order (seen once: the replicates count fell back to its old value after a K change);
+    # the page keeps the newest view by its number
+    set_control(page, "experiment.replicates", "40")
+    page.wait_for_function("document.querySelector('#btn-replicates').textContent === '40 replicates'")
+    page.evaluate("""() => {
+        const stale = structuredClone(view);
+        stale.view -= 1;
+        stale.settings["experiment.replicates"] = 7;
+        receive(stale);
+    }""")
+    assert text(page, "#btn-replicates") == "40 replicates"
+    assert page.input_value("#ctl-experiment-replicates") == "40"

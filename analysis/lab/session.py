@@ -210,6 +210,10 @@ class LabSession:
         self.config = parse_config(self.raw)
         self.problems: list[str] = _cannot_start(self.config)
         self.generation = 0  # bumped when the replicates are discarded (reset, new settings)
+        # each view's number, in the order they were taken: requests run on concurrent threads
+        # and their answers may reach the page out of order, so the page keeps only the newest
+        self._views = 0
+        self._token = os.urandom(8).hex()  # this session's: a page left open over a restart starts again
         self._spool = _Spool()  # every finished replicate, on disk
         self.outcomes: list[str] = []  # each finished replicate's outcome, in order
         self.lines: deque[dict] = deque(maxlen=LINES_KEPT)  # the last replicates' frequency lines
@@ -504,13 +508,17 @@ class LabSession:
 
         ``lines`` holds the frequency lines of replicates ``since`` onwards
         (from 0 when ``generation`` differs from the session's), of the last
-        ``LINES_KEPT`` replicates only.
+        ``LINES_KEPT`` replicates only; ``view`` numbers the views in the order
+        they were taken (a later one shows every change made before it).
         """
         with self._lock:
             if generation != self.generation:
                 since = 0
             tally = self.tally()
+            self._views += 1
             return {
+                "view": self._views,
+                "session": self._token,
                 "generation": self.generation,
                 "settings": {c.key: control_value(self.raw, c.key) for c in controls()},
                 "problems": [{"control": control_of(p, self.raw), "message": p} for p in self.problems],

@@ -246,6 +246,8 @@ function drawTheory(v) {
 
 // -- updates ------------------------------------------------------------------------------
 function receive(v, changed = null) {
+  // an older answer that arrived late (requests run on concurrent threads): the page shows newer
+  if (view && v.session === view.session && v.view < view.view) return;
   if (v.generation !== generation) { lines = []; seen = 0; generation = v.generation; }
   if (v.since === seen) { lines.push(...v.lines); seen = v.replicates; }
   if (lines.length > v.lines_kept) lines = lines.slice(-v.lines_kept);
