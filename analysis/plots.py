@@ -364,7 +364,7 @@ def year_shades(config) -> dict:
         return {}
     names = [a.name for a in config.allele]
     schedule = config.schedules()[names.index(config.invasion.resident if config.invasion else names[0])]
-    rates = [growth_rate(scaled_schedule(schedule, y)) for y in years.types]
+    rates = [growth_rate(scaled_schedule(schedule, y), offspring=config.offspring_distribution()) for y in years.types]
     ranked = [years.names[i] for i in np.argsort(rates, kind="stable")[::-1]]  # best first
     return {name: rank / (len(ranked) - 1) for rank, name in enumerate(ranked) if rank > 0}
 

@@ -4,8 +4,8 @@ The mutants' lineage meets, season by season, the year's scaled rates
 (``sim.years.scaled_schedule``) and the density factors of the resident's
 path through the same years (``analysis.stochastic.resident_path``). Given
 those, its extinction probability is a composition of the seasons' offspring
-generating functions, the same G as ``analysis.branching.offspring_pgf``
-evaluated for many environments at once.
+generating functions, the season kernel's G (``SeasonKernel.offspring_pgf``,
+parental care and brood size included) evaluated for many environments at once.
 """
 
 from __future__ import annotations
@@ -14,7 +14,8 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from sim.density import DensityDependence
+from sim.density import DensityDependence, Factors
+from sim.kernel import SeasonKernel
 from sim.schedules import Schedule
 from sim.years import YearTypes, scaled_schedule
 
@@ -51,26 +52,15 @@ class StochasticEstablishment:
         return _plain(asdict(self))
 
 
-def _pgf_batch(s, fecundity, survival, juvenile, f_fec, f_adult, f_rec, offspring):
-    """``analysis.branching.offspring_pgf`` for many environments at once (rows of ``s``)."""
-    n = s.shape[1]
-    nxt = np.minimum(np.arange(n) + 1, n - 1)
-    sigma = survival * f_adult[:, None]
-    p = (juvenile * f_rec)[:, None]
-    births = offspring.pgf(1.0 - p + p * s[:, :1], fecundity * f_fec[:, None])
-    return (1.0 - sigma + sigma * s[:, nxt]) * births
-
-
 def _quenched_extinction(mutant, years, seq, f_fec, f_adult, f_rec, offspring, start, stop):
     """P(lineage of one mutant of each age, born at season ``start``, is gone by ``stop`` | years)."""
-    scaled = [scaled_schedule(mutant, y) for y in years.types]
-    m = np.array([s.fecundity for s in scaled])
-    sv = np.array([s.survival for s in scaled])
-    c = np.array([s.juvenile_survival for s in scaled])
+    kernels = [SeasonKernel.for_schedule(scaled_schedule(mutant, y), offspring=offspring) for y in years.types]
     q = np.zeros((seq.shape[0], mutant.n_ages))
     for t in range(stop - 1, start - 1, -1):
         y = seq[:, t]
-        q = _pgf_batch(q, m[y], sv[y], c[y], f_fec[:, t], f_adult[:, t], f_rec[:, t], offspring)
+        for k in np.unique(y):
+            at = y == k
+            q[at] = kernels[k].offspring_pgf(q[at], Factors(f_fec[at, t], f_adult[at, t], f_rec[at, t]))
     return q
 
 
@@ -115,7 +105,7 @@ def establishment_in_years(
     sequences = sequences.for_years(years)
     seq = sequences.indices
     if regulated(density):
-        f_fec, f_adult, f_rec = resident_path(resident, years, density, sequences).factors
+        f_fec, f_adult, f_rec = resident_path(resident, years, density, sequences, offspring=offspring).factors
     else:
         f_fec = f_adult = f_rec = np.ones(seq.shape)
     start, stop = sequences.burn_in, seq.shape[1]

@@ -23,20 +23,20 @@ makes comparisons and thresholds use common random numbers.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 from scipy.optimize import brentq
 
 from sim.density import Ceiling, DensityDependence, Factors, NoDensity
+from sim.kernel import SeasonKernel
 from sim.meanfield import (
     NoEquilibriumError,
-    mean_field_step,
     projection_matrix,
     solve_equilibrium,
     stable_age_distribution,
 )
-from sim.schedules import Schedule, stack_schedules
+from sim.schedules import Schedule
 from sim.years import YearType, YearTypes, scaled_schedule
 
 from .demography import dominant_eigen
@@ -146,38 +146,72 @@ def draw_year_sequences(
 # --------------------------------------------------------------------------- matrices by year
 
 
-def _parts(schedule: Schedule, years: YearTypes) -> tuple[np.ndarray, np.ndarray]:
-    """Fertility and survival parts of each year type's matrix, each (n_types, n, n)."""
+@dataclass(frozen=True)
+class _YearProjections:
+    """One schedule's projection matrix in each year type, as a function of the density factors.
+
+    Without parental effects the matrix is linear in f_fec f_rec and in f_adult, so it is kept
+    as two parts per year type, A = F f_fec f_rec + T f_adult (``fert``, ``surv``). With them
+    the fertility row is the season kernel's expected recruits per parent, f_rec P'(x; m f_fec)
+    (sigma c_care + (1 - sigma) c_orphan) with sigma = s f_adult (``SeasonKernel.
+    recruits_per_parent``), which is neither: it is computed from the year's kernel at each
+    season's factors (``kernels``), and T stays the survival part.
+    """
+
+    fert: np.ndarray  # (n_types, n, n), at Factors(1, 0, 1)
+    surv: np.ndarray  # (n_types, n, n), at Factors(0, 1, 1)
+    kernels: tuple | None  # each year type's SeasonKernel where parental effects act, else None
+
+    @property
+    def n_ages(self) -> int:
+        return self.fert.shape[1]
+
+    def matrices(self, y: np.ndarray, f_fec=1.0, f_adult=1.0, f_rec=1.0) -> np.ndarray:
+        """A(year, f) for each entry of the year-type indices ``y`` (shape (n_b,)) at its factors
+        (numbers, or arrays of shape (n_b,)), shape (n_b, n, n)."""
+        f_fec, f_adult, f_rec = (np.broadcast_to(np.asarray(f, dtype=float), y.shape) for f in (f_fec, f_adult, f_rec))
+        if self.kernels is None:
+            return self.fert[y] * (f_fec * f_rec)[:, None, None] + self.surv[y] * f_adult[:, None, None]
+        a = self.surv[y] * f_adult[:, None, None]
+        for k in np.unique(y):
+            at = y == k
+            a[at, 0, :] += self.kernels[k].recruits_per_parent(Factors(f_fec[at], f_adult[at], f_rec[at]))
+        return a
+
+
+def _projections(schedule: Schedule, years: YearTypes, offspring=None) -> _YearProjections:
+    """The year types' projection matrices of ``schedule`` (``offspring``: the offspring law,
+    default Poisson; it matters only under a brood effect)."""
     scaled = [scaled_schedule(schedule, y) for y in years.types]
-    fert = np.array([projection_matrix(s, Factors(1.0, 0.0, 1.0)) for s in scaled])
-    surv = np.array([projection_matrix(s, Factors(0.0, 1.0, 1.0)) for s in scaled])
-    return fert, surv
+    fert = np.array([projection_matrix(s, Factors(1.0, 0.0, 1.0), offspring=offspring) for s in scaled])
+    surv = np.array([projection_matrix(s, Factors(0.0, 1.0, 1.0), offspring=offspring) for s in scaled])
+    kernels = [SeasonKernel.for_schedule(s, offspring=offspring) for s in scaled]
+    return _YearProjections(fert, surv, tuple(kernels) if kernels[0].parental else None)
 
 
-def year_matrices(schedule: Schedule, years: YearTypes, factors: Factors = Factors()) -> np.ndarray:
+def year_matrices(schedule: Schedule, years: YearTypes, factors: Factors = Factors(), *,
+                  offspring=None) -> np.ndarray:
     """Projection matrix of each year type at fixed density factors, shape (n_types, n, n)."""
-    fert, surv = _parts(schedule, years)
-    return fert * (factors.fecundity * factors.recruitment) + surv * factors.adult
+    return _projections(schedule, years, offspring).matrices(np.arange(len(years.types)), *factors)
 
 
-def _log_increments(fert, surv, seq, f_fert=None, f_surv=None, weights=None) -> np.ndarray:
+def _log_increments(proj: _YearProjections, seq, factors: Factors | None = None, weights=None) -> np.ndarray:
     """log(size after / size before) of each season of a normalised matrix product.
 
-    ``f_fert`` and ``f_surv`` (shape of ``seq``) are density factors per season
-    (f_fec f_rec and f_adult); all 1 when omitted. Size is ``x @ weights``
+    ``factors`` holds the density factors of each season (arrays of the shape
+    of ``seq``); all 1 when omitted. Size is ``x @ weights``
     (default: the total); any positive weights give the same long-run mean,
     since the sums telescope to log(size at the end / size at the start).
     """
     n_b, n_t = seq.shape
-    w = np.ones(fert.shape[1]) if weights is None else np.asarray(weights, dtype=float)
-    x = np.zeros((n_b, fert.shape[1]))
+    w = np.ones(proj.n_ages) if weights is None else np.asarray(weights, dtype=float)
+    x = np.zeros((n_b, proj.n_ages))
     x[:, 0] = 1.0 / w[0]  # one recruit (age 1) of size 1: see the notes of stochastic_growth_rate
     out = np.empty((n_b, n_t))
     with np.errstate(divide="ignore", invalid="ignore"):
         for t in range(n_t):
             y = seq[:, t]
-            a = fert[y] if f_fert is None else fert[y] * f_fert[:, t, None, None]
-            a = a + (surv[y] if f_surv is None else surv[y] * f_surv[:, t, None, None])
+            a = proj.matrices(y) if factors is None else proj.matrices(y, *(f[:, t] for f in factors))
             x = np.einsum("bij,bj->bi", a, x)
             size = x @ w
             out[:, t] = np.log(size)
@@ -226,7 +260,8 @@ class StochasticGrowth:
         return _plain(asdict(self))
 
 
-def small_noise_approximation(schedule: Schedule, years: YearTypes, factors: Factors = Factors()) -> float:
+def small_noise_approximation(schedule: Schedule, years: YearTypes, factors: Factors = Factors(), *,
+                              offspring=None) -> float:
     """Tuljapurkar's small-noise approximation of log lambda_s for iid years (nan for Markov).
 
     Notes
@@ -244,7 +279,7 @@ def small_noise_approximation(schedule: Schedule, years: YearTypes, factors: Fac
     """
     if years.switching != "iid":
         return float("nan")
-    mats = year_matrices(schedule, years, factors)
+    mats = year_matrices(schedule, years, factors, offspring=offspring)
     p = np.asarray(years.probabilities)
     mean = np.tensordot(p, mats, axes=1)
     lam, w, v = dominant_eigen(mean)
@@ -256,14 +291,14 @@ def small_noise_approximation(schedule: Schedule, years: YearTypes, factors: Fac
     return float(np.log(lam) - tau2 / (2.0 * lam**2))
 
 
-def _linear_term(schedule: Schedule, years: YearTypes, factors: Factors):
+def _linear_term(schedule: Schedule, years: YearTypes, factors: Factors, offspring=None):
     """Z_k = S : (A_k - A_bar) / lambda_1 for each year type (mean 0 under the law), and weights.
 
     The weights are the reproductive values v of A_bar where all are positive
     (else None: the total): measured by v, a season's log growth is Z_t plus
     terms of second order in the noise.
     """
-    mats = year_matrices(schedule, years, factors)
+    mats = year_matrices(schedule, years, factors, offspring=offspring)
     mean = np.tensordot(years.stationary_law(), mats, axes=1)
     lam, w, v = dominant_eigen(mean)
     if lam <= 0 or float(v @ w) <= 0 or np.any(v <= 0):
@@ -273,7 +308,8 @@ def _linear_term(schedule: Schedule, years: YearTypes, factors: Factors):
 
 
 def stochastic_growth_rate(
-    schedule: Schedule, years: YearTypes, sequences: YearSequences, *, factors: Factors = Factors()
+    schedule: Schedule, years: YearTypes, sequences: YearSequences, *, factors: Factors = Factors(),
+    offspring=None,
 ) -> StochasticGrowth:
     """log lambda_s of one schedule by simulating the random matrix product.
 
@@ -285,6 +321,8 @@ def stochastic_growth_rate(
         The seasons lived through (the same object for every allele compared).
     factors : Factors, optional
         Fixed density factors (all 1: the density-free growth rate).
+    offspring : optional
+        The offspring law (default Poisson); it matters only under a brood effect.
 
     Notes
     -----
@@ -307,17 +345,16 @@ def stochastic_growth_rate(
     the noise sigma (control variates: Asmussen & Glynn 2007, ch. V, from memory).
     """
     sequences = sequences.for_years(years)
-    fert, surv = _parts(schedule, years)
-    linear, values = _linear_term(schedule, years, factors) if years.switching == "iid" else (None, None)
-    inc = _log_increments(
-        fert * (factors.fecundity * factors.recruitment), surv * factors.adult, sequences.indices,
-        weights=values,
-    )[:, sequences.burn_in :]
+    proj = _projections(schedule, years, offspring)
+    linear, values = (_linear_term(schedule, years, factors, offspring) if years.switching == "iid"
+                      else (None, None))
+    fixed = Factors(*(np.full(sequences.indices.shape, float(f)) for f in factors))
+    inc = _log_increments(proj, sequences.indices, fixed, weights=values)[:, sequences.burn_in :]
     if linear is not None and np.all(np.isfinite(inc)):
         inc = inc - linear[sequences.recorded]
     est, se = _batch_estimate(inc)
     return StochasticGrowth(
-        schedule.name, est, se, small_noise_approximation(schedule, years, factors),
+        schedule.name, est, se, small_noise_approximation(schedule, years, factors, offspring=offspring),
         sequences.n_batches, sequences.batch_length, sequences.burn_in,
     )
 
@@ -341,28 +378,24 @@ class ResidentPath:
     factors: Factors
     census_size: np.ndarray
 
-    @property
-    def fertility_factor(self) -> np.ndarray:
-        """f_fec f_rec of each season (the factor on the fertility row)."""
-        return self.factors.fecundity * self.factors.recruitment
 
-
-def _starting_census(resident: Schedule, years: YearTypes, density: DensityDependence) -> np.ndarray:
+def _starting_census(resident: Schedule, years: YearTypes, density: DensityDependence,
+                     offspring=None) -> np.ndarray:
     """The resident's equilibrium in the average year (a start for the burn-in)."""
     mean = YearType("mean", *(years.start_law() @ years.multipliers()))
     try:
-        return solve_equilibrium(scaled_schedule(resident, mean), density).census
+        return solve_equilibrium(scaled_schedule(resident, mean), density, offspring=offspring).census
     except (NoEquilibriumError, ValueError):
-        return density.form.capacity * stable_age_distribution(resident)
+        return density.form.capacity * stable_age_distribution(resident, offspring=offspring)
 
 
 def resident_path(
     resident: Schedule, years: YearTypes, density: DensityDependence, sequences: YearSequences, *,
-    start: np.ndarray | None = None,
+    start: np.ndarray | None = None, offspring=None,
 ) -> ResidentPath:
     """Run the resident's deterministic season map through each batch's years.
 
-    Each season is the mean-field step of ``sim.meanfield.mean_field_step``
+    Each season is the season kernel's mean-field step (``SeasonKernel.mean_step``)
     with the year's scaled rates: D from the census (weights
     ``density.index_weights`` of the year's fecundities), factors f(D), then
     the projection ``A(year, f)``. Batches start from the resident's
@@ -370,7 +403,7 @@ def resident_path(
     the burn-in lets them forget it.
 
     A ceiling's removal is not a factor of D: there each season is
-    ``mean_field_step`` itself (one batch at a time, so slower), and the
+    ``mean_step`` itself (one batch at a time, so slower), and the
     removal fraction phi is read off as the ratio of the census it leaves to
     the census without removal, placed like the ceiling (recruits only, or
     everyone).
@@ -383,10 +416,11 @@ def resident_path(
     if isinstance(density.form, NoDensity):
         raise NoEquilibriumError(f"resident {resident.name!r}: no density dependence, so no regulated path")
     sequences = sequences.for_years(years)
-    start = _starting_census(resident, years, density) if start is None else np.asarray(start, float)
+    start = (_starting_census(resident, years, density, offspring) if start is None
+             else np.asarray(start, float))
     if isinstance(density.form, Ceiling):
-        return _ceiling_path(resident, years, density, sequences, start)
-    fert, surv = _parts(resident, years)
+        return _ceiling_path(resident, years, density, sequences, start, offspring)
+    proj = _projections(resident, years, offspring)
     scaled_m = np.array([scaled_schedule(resident, y).fecundity for y in years.types])
     weights = density.index_weights(scaled_m)  # (n_types, n_ages)
     seq = sequences.indices
@@ -399,16 +433,22 @@ def resident_path(
         d = np.einsum("bj,bj->b", weights[y], x)
         f[0, :, t], f[1, :, t], f[2, :, t] = density.placed(density.form.factor(d))
         size[:, t] = x.sum(axis=1)
-        a = fert[y] * (f[0, :, t] * f[2, :, t])[:, None, None] + surv[y] * f[1, :, t, None, None]
+        a = proj.matrices(y, f[0, :, t], f[1, :, t], f[2, :, t])
         x = np.einsum("bij,bj->bi", a, x)
     if not np.all(size[:, -1] > 1e-200):
         raise NoEquilibriumError(f"resident {resident.name!r}: dies out in the variable environment")
     return ResidentPath(Factors(*f), size)
 
 
-def _ceiling_path(resident, years, density, sequences, start) -> ResidentPath:
-    rates = [stack_schedules([scaled_schedule(resident, y)]) for y in years.types]
+def _ceiling_path(resident, years, density, sequences, start, offspring=None) -> ResidentPath:
     free = DensityDependence(NoDensity(), density.acts_on, density.counted)
+    scaled = [scaled_schedule(resident, y) for y in years.types]
+    # each year's season: with the ceiling, without it, and (recruits only) its survivors alone
+    kept_step = [SeasonKernel.for_schedule(s, density, offspring).mean_step for s in scaled]
+    free_step = [SeasonKernel.for_schedule(s, free, offspring).mean_step for s in scaled]
+    no_young = [replace(s, juvenile_survival=0.0, orphan_survival=None if s.orphan_survival is None else 0.0)
+                for s in scaled]
+    survivor_step = [SeasonKernel.for_schedule(s, free, offspring).mean_step for s in no_young]
     recruits_only = density.acts_on == "recruitment"
     seq = sequences.indices
     n_b, n_t = seq.shape
@@ -419,11 +459,11 @@ def _ceiling_path(resident, years, density, sequences, start) -> ResidentPath:
         x = start
         for t in range(n_t):
             size[b, t] = x.sum()
-            m, s, c = rates[seq[b, t]]
-            kept = mean_field_step(x, m, s, c, density)
-            unchecked = mean_field_step(x, m, s, c, free)
+            y = seq[b, t]
+            kept = kept_step[y](x)
+            unchecked = free_step[y](x)
             if recruits_only:  # recruits share age 1 with survivors when there is one class
-                survivors = mean_field_step(x, m, s, 0.0 * c, free)[0, 0]
+                survivors = survivor_step[y](x)[0, 0]
                 room, need = kept[0, 0] - survivors, unchecked[0, 0] - survivors
             else:
                 room, need = kept.sum(), unchecked.sum()
@@ -499,38 +539,39 @@ def regulated(density: DensityDependence | None) -> bool:
 
 def _same_schedule(a: Schedule, b: Schedule) -> bool:
     return (a.juvenile_survival == b.juvenile_survival and np.array_equal(a.fecundity, b.fecundity)
-            and np.array_equal(a.survival, b.survival))
+            and np.array_equal(a.survival, b.survival) and a.orphan_survival == b.orphan_survival
+            and a.brood_scale == b.brood_scale)
 
 
-def _log_fitness_increments(resident, mutant, years, density, sequences, cache=None):
+def _log_fitness_increments(resident, mutant, years, density, sequences, cache=None, offspring=None):
     """Per-season log growth of the mutant minus the resident's (recorded seasons) and the path.
 
     ``cache`` (a dict) keeps the resident's path or increments between calls
     with the same resident (a threshold along a mutant's parameter).
     """
     sequences = sequences.for_years(years)
-    fert_m, surv_m = _parts(mutant, years)
+    mutant_proj = _projections(mutant, years, offspring)
     cache = {} if cache is None else cache
-    key = (years, density, id(sequences.indices))
+    key = (years, density, offspring, id(sequences.indices))
     if cache.get("key") == key and _same_schedule(cache["resident"], resident):
         resident_part = cache["part"]
     else:
         if regulated(density):
-            resident_part = resident_path(resident, years, density, sequences)
+            resident_part = resident_path(resident, years, density, sequences, offspring=offspring)
         else:
-            resident_part = _log_increments(*_parts(resident, years), sequences.indices)
+            resident_part = _log_increments(_projections(resident, years, offspring), sequences.indices)
         cache.update(key=key, resident=resident, part=resident_part)
     if not regulated(density):
-        inc = _log_increments(fert_m, surv_m, sequences.indices) - resident_part
+        inc = _log_increments(mutant_proj, sequences.indices) - resident_part
         return inc[:, sequences.burn_in :], None
     path = resident_part
-    inc = _log_increments(fert_m, surv_m, sequences.indices, path.fertility_factor, path.factors.adult)
+    inc = _log_increments(mutant_proj, sequences.indices, path.factors)
     return inc[:, sequences.burn_in :], path
 
 
 def stochastic_invasion(
     resident: Schedule, mutant: Schedule, years: YearTypes, density: DensityDependence | None,
-    sequences: YearSequences,
+    sequences: YearSequences, *, offspring=None,
 ) -> StochasticInvasion:
     """The mutant's invasion fitness in the resident's fluctuating environment.
 
@@ -542,6 +583,8 @@ def stochastic_invasion(
         None or a ``NoDensity`` form: density-free.
     sequences : YearSequences
         The seasons (common random numbers for both alleles).
+    offspring : optional
+        The offspring law (default Poisson); it matters only under a brood effect.
 
     Notes
     -----
@@ -554,14 +597,14 @@ def stochastic_invasion(
     "above 1" still means the mutant's share grows; its standard error comes
     from the paired batch means of the difference (common random numbers).
     """
-    inc, path = _log_fitness_increments(resident, mutant, years, density, sequences)
+    inc, path = _log_fitness_increments(resident, mutant, years, density, sequences, offspring=offspring)
     log_fit, se = _batch_estimate(inc)
     fitness = float(np.exp(log_fit))
     mean_size = float(path.census_size[:, sequences.burn_in :].mean()) if path is not None else float("nan")
     return StochasticInvasion(
         resident.name, mutant.name, path is not None, fitness, se, fitness * se,
-        stochastic_growth_rate(resident, years, sequences),
-        stochastic_growth_rate(mutant, years, sequences),
+        stochastic_growth_rate(resident, years, sequences, offspring=offspring),
+        stochastic_growth_rate(mutant, years, sequences, offspring=offspring),
         mean_size,
     )
 
@@ -577,6 +620,7 @@ class InvasionSetting:
     mutant: Schedule
     years: YearTypes
     density: DensityDependence | None = None
+    offspring: object = None  # the offspring law (default Poisson; it matters under a brood effect)
 
 
 @dataclass(frozen=True)
@@ -646,7 +690,8 @@ def stochastic_threshold(
 
     def increments(v):
         s = setting(float(v))
-        return _log_fitness_increments(s.resident, s.mutant, s.years, s.density, sequences, cache)[0]
+        return _log_fitness_increments(s.resident, s.mutant, s.years, s.density, sequences, cache,
+                                       s.offspring)[0]
 
     def g(v):
         return float(increments(v).mean())
@@ -723,7 +768,7 @@ class NeutralShare:
 
 def neutral_share_in_years(
     resident: Schedule, years: YearTypes, density: DensityDependence | None, sequences: YearSequences,
-    census: np.ndarray, mutant_count: int,
+    census: np.ndarray, mutant_count: int, *, offspring=None,
 ) -> NeutralShare:
     """Fixation probability of ``mutant_count`` neutral mutants of age 1 among ``census`` residents.
 
@@ -739,6 +784,8 @@ def neutral_share_in_years(
     census : ndarray
         The residents' starting census by age (the mutants come on top).
     mutant_count : int
+    offspring : optional
+        The offspring law (default Poisson); it matters only under a brood effect.
 
     Notes
     -----
@@ -767,27 +814,26 @@ def neutral_share_in_years(
     start = census.copy()
     start[0] += mutant_count
     seq = sequences.indices
-    fert, surv = _parts(schedule, years)
+    proj = _projections(schedule, years, offspring)
     if regulated(density):
-        path = resident_path(schedule, years, density, sequences, start=start)
-        f_fert, f_surv = path.fertility_factor, path.factors.adult
+        factors = resident_path(schedule, years, density, sequences, start=start, offspring=offspring).factors
     else:
-        f_fert = f_surv = np.ones(seq.shape)
+        factors = Factors(*(np.ones(seq.shape),) * 3)
     v = np.ones((seq.shape[0], n))
     for t in range(seq.shape[1] - 1, -1, -1):
-        y = seq[:, t]
-        a = fert[y] * f_fert[:, t, None, None] + surv[y] * f_surv[:, t, None, None]
+        a = proj.matrices(seq[:, t], *(f[:, t] for f in factors))
         v = np.einsum("bi,bij->bj", v, a)
         v /= v.sum(axis=1, keepdims=True)
     share = mutant_count * v[:, 0] / (v @ start)
     mean = YearType("mean", *(years.start_law() @ years.multipliers()))
     if regulated(density):
         try:
-            factors = solve_equilibrium(scaled_schedule(schedule, mean), density).factors
+            factors = solve_equilibrium(scaled_schedule(schedule, mean), density, offspring=offspring).factors
         except (NoEquilibriumError, ValueError):
             factors = Factors()
     else:
         factors = Factors()
-    _, _, v_mean = dominant_eigen(projection_matrix(scaled_schedule(schedule, mean), factors))
+    _, _, v_mean = dominant_eigen(projection_matrix(scaled_schedule(schedule, mean), factors,
+                                                    offspring=offspring))
     return NeutralShare(float(share.mean()), float(share.std(ddof=1) / np.sqrt(share.size)),
                         float(mutant_count * v_mean[0] / (v_mean @ start)), int(share.size), int(seq.shape[1]), share)

@@ -13,6 +13,7 @@ values of a threshold see common random numbers.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pandas as pd
@@ -91,7 +92,7 @@ def neutral_in_years(config: Config, *, point: int | None = None) -> NeutralShar
         futures = draw_year_sequences(years, rng, **(CEILING_NEUTRAL_DRAWS if isinstance(density.form, Ceiling)
                                                     else NEUTRAL_DRAWS))
     return neutral_share_in_years(config.schedules()[r], years, density if regulated(density) else None,
-                                  futures, census, count)
+                                  futures, census, count, offspring=config.offspring_distribution())
 
 
 def _setting_of(config: Config) -> InvasionSetting:
@@ -99,7 +100,7 @@ def _setting_of(config: Config) -> InvasionSetting:
     schedules = config.schedules()
     density = config.density_dependence()
     return InvasionSetting(schedules[r], schedules[m], config.year_types(),
-                           density if regulated(density) else None)
+                           density if regulated(density) else None, config.offspring_distribution())
 
 
 def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
@@ -133,9 +134,8 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
     """
     s = _setting_of(config)
     draws = year_draws(config)
-    inv = stochastic_invasion(s.resident, s.mutant, s.years, s.density, draws)
-    est = establishment_in_years(s.resident, s.mutant, s.years, s.density,
-                                 config.offspring_distribution(), draws,
+    inv = stochastic_invasion(s.resident, s.mutant, s.years, s.density, draws, offspring=s.offspring)
+    est = establishment_in_years(s.resident, s.mutant, s.years, s.density, s.offspring, draws,
                                  count=config.invasion.mutant_count)
     try:
         neutral = neutral_in_years(config, point=point)
@@ -176,7 +176,7 @@ def _return_of(s: InvasionSetting, draws: YearSequences) -> tuple[float, float]:
     if s.density is None:
         return math.nan, math.nan
     try:
-        back = stochastic_invasion(s.mutant, s.resident, s.years, s.density, draws)
+        back = stochastic_invasion(s.mutant, s.resident, s.years, s.density, draws, offspring=s.offspring)
     except (NoEquilibriumError, ValueError, ArithmeticError):
         return math.nan, math.nan
     return float(back.invasion_fitness), float(back.mean_census_size)
@@ -244,7 +244,7 @@ def _replacement(at, draws: YearSequences, t, lo: float, hi: float):
 
     def swapped(value: float) -> InvasionSetting:
         s = at(value)
-        return InvasionSetting(s.mutant, s.resident, s.years, s.density)
+        return replace(s, resident=s.mutant, mutant=s.resident)
 
     try:
         back = stochastic_threshold(swapped, draws, bracket=(t.value, hi) if above else (lo, t.value))

@@ -424,6 +424,9 @@ class SeasonKernel:
     def offspring_pgf(self, s, factors: Factors, allele: int = 0) -> np.ndarray:
         """G(s): generating function of next season's numbers by age, one entry per parent age.
 
+        ``s`` (n_ages,) with factors that are numbers; or (..., n_ages), one row per environment,
+        with factors of shape (...).
+
         Notes
         -----
         An individual of class a draws N offspring (pgf P, mean m(a) f_fec);
@@ -456,23 +459,28 @@ class SeasonKernel:
         s = np.asarray(s, dtype=float)
         rates = self.rates(factors)
         ages = slice(allele * self.n_ages, (allele + 1) * self.n_ages)
-        sigma, p = rates.survival[ages], rates.recruitment[ages]
+        sigma, p = rates.survival[..., ages], rates.recruitment[..., ages]
         nxt = self.aged[ages] - allele * self.n_ages
+        s1 = s[..., :1]
         if self.parental:
-            orphan = self.recruitment(factors, parent_survived=False)[ages]
-            cared = self._brood_pgf(s[0], p, rates.breeding[ages], self.decay[ages])
-            orphaned = self._brood_pgf(s[0], orphan, rates.breeding[ages], self.decay[ages])
-            return sigma * s[nxt] * cared + (1.0 - sigma) * orphaned
-        births = self.offspring.pgf(1.0 - p + p * s[0], rates.breeding[ages])
-        return (1.0 - sigma + sigma * s[nxt]) * births
+            orphan = self.recruitment(factors, parent_survived=False)[..., ages]
+            mean, decay = rates.breeding[..., ages], self.decay[ages]
+            cared = self._brood_pgf(s1, p, mean, decay)
+            orphaned = self._brood_pgf(s1, orphan, mean, decay)
+            return sigma * s[..., nxt] * cared + (1.0 - sigma) * orphaned
+        births = self.offspring.pgf(1.0 - p + p * s1, rates.breeding[..., ages])
+        return (1.0 - sigma + sigma * s[..., nxt]) * births
 
     def _brood_pgf(self, s1, q, mean, decay) -> np.ndarray:
-        """H_q(s_1) = E[(1 - q x^(B - 1) (1 - s_1))^B] for each class (``offspring_pgf``)."""
-        out = np.empty(mean.size)
-        for i, (q_i, m_i, x_i) in enumerate(zip(q, mean, decay)):
-            if x_i == 1.0:
-                out[i] = self.offspring.pgf(1.0 - q_i + q_i * s1, m_i)
-                continue
-            b, pmf = self.offspring.pmf_table(m_i)
-            out[i] = pmf @ (1.0 - q_i * x_i ** (b - 1.0) * (1.0 - s1)) ** b
+        """H_q(s_1) = E[(1 - q x^(B - 1) (1 - s_1))^B] for each class (``offspring_pgf``);
+        ``s1``, ``q`` and ``mean`` broadcast against the class axis (the last)."""
+        s1, q, mean, decay = np.broadcast_arrays(s1, q, mean, decay)
+        out = np.asarray(self.offspring.pgf(1.0 - q + q * s1, mean), dtype=float)  # where x = 1
+        tables = {}  # a brood law's table, by its mean (one per class and year at fixed density)
+        for i in zip(*np.nonzero(decay != 1.0)):
+            q_i, m_i, x_i, s_i = q[i], mean[i], decay[i], s1[i]
+            if m_i not in tables:
+                tables[m_i] = self.offspring.pmf_table(m_i)
+            b, pmf = tables[m_i]
+            out[i] = pmf @ (1.0 - q_i * x_i ** (b - 1.0) * (1.0 - s_i)) ** b
         return out

@@ -53,6 +53,9 @@ class YearType:
 def scaled_schedule(schedule: Schedule, year: YearType) -> Schedule:
     """The schedule's rates in a year of this type: m(a), s(a) and c times the year's multipliers.
 
+    The juvenile multiplier scales c_orphan as it does c (``SeasonKernel.multipliers`` puts it on
+    f_rec, which both share); the brood effect's scale h is the allele's in every year.
+
     Raises
     ------
     ValueError
@@ -70,7 +73,15 @@ def scaled_schedule(schedule: Schedule, year: YearType) -> Schedule:
             f"allele {schedule.name!r}, year {year.name!r}: juvenile_survival x multiplier "
             f"= {c:.6g} > 1"
         )
-    return Schedule(schedule.name, schedule.fecundity * year.fecundity, s, c)
+    orphan = schedule.orphan_survival
+    if orphan is not None:
+        orphan = orphan * year.juvenile_survival
+        if orphan > 1.0:
+            raise ValueError(
+                f"allele {schedule.name!r}, year {year.name!r}: orphan_survival x juvenile_survival "
+                f"multiplier = {orphan:.6g} > 1"
+            )
+    return Schedule(schedule.name, schedule.fecundity * year.fecundity, s, c, orphan, schedule.brood_scale)
 
 
 @dataclass(frozen=True)

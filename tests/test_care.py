@@ -1,6 +1,7 @@
 """Parental care and brood size: schema, theory (kernel, pgf), engines against formulas."""
 
 import copy
+import tomllib
 from dataclasses import replace
 
 import numpy as np
@@ -17,6 +18,7 @@ from sim.kernel import SeasonKernel
 from sim.lifecycle import LifeCycle
 from sim.offspring import Fixed, NegativeBinomial, Poisson
 from sim.schedules import Schedule, iteroparous
+from sim.years import YearType, YearTypes
 from tests.conftest import BASE
 
 Z_MAX = 4.5  # two-sided normal tail 6.8e-6 per check
@@ -254,3 +256,73 @@ def test_one_season_with_care_and_broods_matches_the_formula(engine):
     expected = 500 * (0.6 + (0.6 * 0.5 + 0.4 * 0.1) * (0.6 * 2 * x + 0.4 * 3 * x**2))
     after = batch.census()[:, 0, 0]
     assert abs(after.mean() - expected) < Z_MAX * after.std(ddof=1) / np.sqrt(reps), (after.mean(), expected)
+
+
+# --- care and brood size in random years -------------------------------------------------------
+WET_DRY = YearTypes((YearType("wet", juvenile_survival=1.6), YearType("dry", juvenile_survival=0.3)),
+                    "iid", (0.5, 0.5))
+
+
+def test_random_years_growth_rate_with_care_is_the_mean_log_of_the_years():
+    # One class (breeding from age 1): each year's matrix is the number lambda_k = P + P'(x)
+    # (P c_k + (1 - P) o_k), Poisson P'(x) = B exp(-B (1 - x)), x = exp(-1/h) (the mean of
+    # B x^(B - 1), from the Poisson pgf; docs/care.md), the year's juvenile multiplier on both
+    # c and o. Then log lambda_s = sum_k p_k log lambda_k (Lewontin & Cohen 1969), and the
+    # small-noise formula is log E(lambda) - Var(lambda) / (2 E(lambda)^2) exactly for a
+    # number (Tuljapurkar 1982). Without the care and brood terms in the year's matrix (as
+    # before this was fixed) lambda_k = 0.5 + 2 x 0.5 k and both checks fail.
+    from analysis.stochastic import draw_year_sequences, small_noise_approximation, stochastic_growth_rate
+
+    schedule = replace(iteroparous("tending", 2.0, 0.5, 0.5), orphan_survival=0.2, brood_scale=3.0)
+    young = 2.0 * np.exp(-2.0 * (1.0 - np.exp(-1.0 / 3.0)))
+    lam = np.array([0.5 + young * (0.5 * 0.5 * k + 0.5 * 0.2 * k) for k in (1.6, 0.3)])
+    draws = draw_year_sequences(WET_DRY, np.random.default_rng(31), n_batches=40, batch_length=1000, burn_in=100)
+    g = stochastic_growth_rate(schedule, WET_DRY, draws)
+    # 4 batch-means SE: a correct estimator misses with probability about 6e-5 (normal tails)
+    assert abs(g.stochastic_growth_rate - np.log(lam).mean()) < 4 * g.stochastic_growth_rate_se
+    assert g.stochastic_growth_rate_se < 0.01
+    expected = np.log(lam.mean()) - lam.var() / (2 * lam.mean() ** 2)
+    assert small_noise_approximation(schedule, WET_DRY) == pytest.approx(expected, abs=1e-12)
+
+
+def test_an_orphan_survival_a_year_pushes_above_1_is_refused():
+    raw = _raw(a1={"orphan_survival": 0.7})
+    raw["environment"] = {"year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.6},
+                                   {"name": "dry", "probability": 0.5}]}
+    with pytest.raises(ConfigError, match=r"environment\.year\.wet: allele '.*', year 'wet': orphan_survival "
+                                          r"x juvenile_survival multiplier = 1\.12 > 1"):
+        parse_config(raw)
+
+
+@pytest.mark.parametrize("law, form, acts_on", [
+    ({"distribution": "poisson"}, "beverton-holt", "recruitment"),
+    ({"distribution": "negative-binomial", "dispersion": 2.0}, "beverton-holt", "fecundity"),
+    ({"distribution": "fixed"}, "ricker", "adult-survival"),
+    ({"distribution": "poisson"}, "beverton-holt", "all-survival"),
+    pytest.param({"distribution": "poisson"}, "ceiling", "recruitment", marks=pytest.mark.slow),
+])
+def test_random_years_that_are_all_alike_give_the_constant_theory_with_care(law, form, acts_on):
+    # Years that do not differ make every season's matrix and generating function the
+    # constant environment's, so the stochastic theory (Lyapunov exponent in the resident's
+    # path, establishment over year sequences, neutral share of reproductive value) must give
+    # the constant theory's numbers (Tuljapurkar 1990, ch. 2: log lambda_s = log lambda for a
+    # constant matrix; from memory); that theory is checked against Charnov & Schaffer and
+    # the care formulas above. Tolerances: rounding (1e-10 relative) and the establishment's
+    # finite horizon of 1000 seasons (its horizon_gap; measured 2e-12). Before the fix the
+    # random-years theory dropped care and brood size: invasion fitness 1.0 against 0.54 for
+    # configs/duskmote-care.toml.
+    from analysis.sweep import predict_point
+
+    raw = tomllib.loads(open("configs/duskmote-care.toml").read())
+    raw.pop("sweep")
+    raw["allele"][1]["orphan_survival"] = 0.6
+    raw["offspring"] = law
+    raw["density"].update(form=form, acts_on=acts_on)
+    constant = predict_point(parse_config(raw))
+    raw["environment"] = {"year": [{"name": "a", "probability": 0.5}, {"name": "b", "probability": 0.5}]}
+    years = predict_point(parse_config(raw))
+    assert years["prediction"] == "stochastic"
+    assert 0.1 < constant["establishment_probability"] < 1  # the mutant invades: a real check
+    assert years["invasion_fitness"] == pytest.approx(constant["invasion_fitness"], rel=1e-10)
+    assert years["establishment_probability"] == pytest.approx(constant["establishment_probability"], abs=1e-9)
+    assert years["neutral_expectation"] == pytest.approx(constant["neutral_expectation"], abs=1e-12)

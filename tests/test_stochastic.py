@@ -5,12 +5,14 @@ target within 4 standard errors (batch means or binomial), which a correct
 estimator misses with probability about 6e-5 (normal tails; common practice).
 """
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 
 from analysis.branching import establishment_probability, offspring_pgf
 from analysis.invasion import invasion_fitness
-from analysis.random_branching import _pgf_batch, establishment_in_years
+from analysis.random_branching import establishment_in_years
 from analysis.stochastic import (
     InvasionSetting,
     _starting_census,
@@ -22,6 +24,7 @@ from analysis.stochastic import (
     stochastic_threshold,
 )
 from sim.density import DensityDependence, Factors
+from sim.kernel import SeasonKernel
 from sim.meanfield import growth_rate, mean_field_step, solve_equilibrium
 from sim.offspring import NegativeBinomial, Poisson
 from sim.schedules import iteroparous, semelparous, stack_schedules, table
@@ -302,13 +305,18 @@ def test_beverton_holt_threshold_in_two_year_types():
 # --------------------------------------------------------------------------- establishment
 
 
-def test_batched_generating_function_is_the_branching_modules():
+@pytest.mark.parametrize("schedule", [TABLE, replace(TABLE, orphan_survival=0.2, brood_scale=3.0)],
+                         ids=["plain", "care-and-brood"])
+def test_batched_generating_function_is_the_branching_modules(schedule):
+    # the season kernel's G for many environments at once (rows), as the random-years
+    # establishment uses it, is the one-environment G of analysis.branching, row by row
     rng = np.random.default_rng(12)
-    s = rng.random((5, TABLE.n_ages))
+    s = rng.random((5, schedule.n_ages))
     f = rng.uniform(0.3, 1.0, (3, 5))
-    got = _pgf_batch(s, TABLE.fecundity, TABLE.survival, TABLE.juvenile_survival, *f, NegativeBinomial(2.0))
+    kernel = SeasonKernel.for_schedule(schedule, offspring=NegativeBinomial(2.0))
+    got = kernel.offspring_pgf(s, Factors(*f))
     for b in range(5):
-        want = offspring_pgf(s[b], TABLE, Factors(*f[:, b]), NegativeBinomial(2.0))
+        want = offspring_pgf(s[b], schedule, Factors(*f[:, b]), NegativeBinomial(2.0))
         np.testing.assert_allclose(got[b], want, rtol=1e-13)
 
 
