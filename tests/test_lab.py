@@ -9,7 +9,7 @@ from conftest import BASE, make_config
 from runs_support import assert_same_datasets
 
 from analysis import predict, threshold, wilson_interval
-from analysis.lab.controls import control_of, controls
+from analysis.lab.controls import control_of, controls, page_raw
 from analysis.lab.session import BATCH, LabSession, mutant_frequency
 from analysis.lab.theory import closed_form_threshold
 from analysis.lab.toml_text import toml_text
@@ -18,12 +18,15 @@ from sim.config import (
     AlleleSection,
     ConfigError,
     DensitySection,
+    EnvironmentSection,
     ExperimentSection,
     InvasionSection,
+    YearSection,
     load_config,
     parse_config,
     sweep_points,
 )
+from analysis.sweep import threshold_at
 from sim.replicates import run_replicate, run_replicates
 
 
@@ -235,11 +238,81 @@ def test_closed_form_on_adult_survival_and_where_none_applies():
 
 
 def test_every_control_names_a_schema_key():
-    for c in controls():
-        section, name = c.key.split(".")
-        model = {"density": DensitySection, "experiment": ExperimentSection,
-                 "invasion": InvasionSection}.get(section, AlleleSection)
-        assert name in model.model_fields, c.key
+    markov = page_raw(load_config("configs/fenmarrow-hopper.toml"))
+    markov["environment"].update(switching="markov", transitions=[[0.7, 0.3], [0.4, 0.6]])
+    for year in markov["environment"]["year"]:
+        year.pop("probability")
+    parse_config(markov)  # a valid config
+    for raw in (None, page_raw(load_config("configs/fenmarrow-hopper.toml")), markov):
+        for c in controls(raw):
+            if c.key.startswith("environment.year."):
+                name = c.key.split(".")[-1]
+                model = YearSection
+            elif c.key.startswith("environment.transitions."):
+                name, model = "transitions", EnvironmentSection
+            else:
+                section, name = c.key.split(".")
+                model = {"density": DensitySection, "experiment": ExperimentSection,
+                         "invasion": InvasionSection}.get(section, AlleleSection)
+            assert name in model.model_fields, c.key
+    assert {c.key for c in controls(markov)} - {c.key for c in controls()} == {
+        f"environment.{k}" for k in ("transitions.wet", "transitions.dry", "year.wet.juvenile_survival",
+                                     "year.wet.fecundity", "year.wet.adult_survival", "year.dry.juvenile_survival",
+                                     "year.dry.fecundity", "year.dry.adult_survival")}
+
+
+def test_care_controls_set_the_allele_keys_and_the_theory_reads_them():
+    # configs/duskmote-care.toml: B_s = 6 for the one-brood mutant, orphaned young survive 0.3;
+    # the controls give the config a TOML file with the same keys gives (same theory), and a
+    # brood effect without its scale is refused beside the scale, as the schema words it
+    s = LabSession(load_config("configs/duskmote-care.toml"))
+    settings = s.view()["settings"]
+    assert (settings["mutant.orphan_survival"], settings["resident.brood_effect"]) == (0.3, "exponential")
+    assert s.update({"mutant.orphan_survival": "0.6"}) == []
+    raw = tomllib.loads(open("configs/duskmote-care.toml").read())
+    raw.pop("sweep")
+    raw["allele"][1]["orphan_survival"] = 0.6
+    assert s.config == parse_config(raw)
+    assert s.theory.prediction["invasion_fitness"] == predict(parse_config(raw)).invasion_fitness
+    assert s.update({"mutant.brood_effect": ""}) == [
+        "allele[1].brood_scale: only used by brood_effect 'exponential', not 'none'"]
+    assert control_of(s.problems[0], s.raw) == "mutant.brood_scale"
+    assert s.update({"mutant.brood_scale": ""}) == [] and s.config.allele[1].brood_effect == "none"
+    assert s.view()["settings"]["mutant.brood_effect"] is None  # shown as the default, "none"
+
+
+def test_year_type_controls_set_the_environment_and_the_theory_reads_them():
+    # configs/fenmarrow-hopper.toml: juvenile survival x 16/9 in wet years, x 2/9 in dry ones
+    s = LabSession(load_config("configs/fenmarrow-hopper.toml"))
+    key = "environment.year.wet.juvenile_survival"
+    assert s.view()["settings"][key] == pytest.approx(16 / 9)
+    assert s.update({key: "-1"}) == ["environment.year[0].juvenile_survival must be >= 0; got -1"]
+    assert control_of(s.problems[0], s.raw) == key
+    assert s.update({key: "1.5"}) == []
+    raw = tomllib.loads(open("configs/fenmarrow-hopper.toml").read())
+    raw.pop("sweep")
+    raw["environment"]["year"][0]["juvenile_survival"] = 1.5
+    assert s.config == parse_config(raw)
+    assert s.theory.threshold == threshold_at(parse_config(raw), "allele.one-shot.fecundity").value
+    # probabilities are set one at a time: the sum is refused until both are changed
+    problems = s.update({"environment.year.wet.probability": "0.7"})
+    assert problems == ["environment.year.probability: the probabilities must sum to 1; got 1.2"]
+    assert s.update({"environment.year.dry.probability": "0.3"}) == []
+    assert s.config.environment.year[0].probability == 0.7
+
+
+def test_a_markov_row_is_typed_as_comma_separated_numbers():
+    raw = page_raw(load_config("configs/fenmarrow-hopper.toml"))
+    raw["environment"].update(switching="markov", transitions=[[0.7, 0.3], [0.4, 0.6]])
+    for year in raw["environment"]["year"]:
+        year.pop("probability")
+    s = LabSession(parse_config(raw))
+    assert s.view()["settings"]["environment.transitions.dry"] == [0.4, 0.6]
+    assert s.update({"environment.transitions.dry": "0.5, 0.6"}) == [
+        "environment.transitions[1]: row must sum to 1; got 1.1"]
+    assert control_of(s.problems[0], s.raw) == "environment.transitions.dry"
+    assert s.update({"environment.transitions.dry": "0.5, 0.5"}) == []
+    assert s.config.environment.transitions == [[0.7, 0.3], [0.5, 0.5]]
 
 
 def test_lab_command_refuses_bad_input(tmp_path, capsys):

@@ -196,3 +196,36 @@ def test_an_answer_that_arrives_late_does_not_undo_a_newer_one(page):
     }""")
     assert text(page, "#btn-replicates") == "40 replicates"
     assert page.input_value("#ctl-experiment-replicates") == "40"
+
+
+def test_year_types_and_care_have_controls_and_move_the_theory(browser, tmp_path):
+    # configs/fenmarrow-hopper.toml: the year types' box lists each year's multipliers, and
+    # moving one gives the theory `broodline threshold` gives for the same config
+    from analysis.sweep import threshold_at
+
+    server = LabServer(LabSession(load_config("configs/fenmarrow-hopper.toml")), port=0, output=tmp_path).start()
+    page = browser.new_page(viewport={"width": 1300, "height": 1200})
+    errors = []
+    page.on("pageerror", lambda err: errors.append(err))
+    try:
+        page.goto(server.url)
+        page.wait_for_selector("#th-fitness")
+        assert page.is_visible("#ctl-environment-year-wet-juvenile_survival")
+        assert float(page.input_value("#ctl-environment-year-dry-probability")) == 0.5
+        assert page.inner_text("#ctl-mutant-brood_effect option[value='']") == "none"
+        before = text(page, "#th-threshold")
+        set_control(page, "environment.year.wet.juvenile_survival", "1.5")
+        page.wait_for_function(f"document.querySelector('#th-threshold').textContent !== '{before}'")
+        raw = server.session.raw
+        assert raw["environment"]["year"][0]["juvenile_survival"] == 1.5
+        want = threshold_at(parse_config(raw), "allele.one-shot.fecundity").value
+        assert float(text(page, "#th-threshold")) == pytest.approx(want, abs=5e-5)  # 4 decimals shown
+        set_control(page, "mutant.brood_effect", "exponential")  # refused until its scale is given
+        page.wait_for_selector("#row-ctl-mutant-brood_scale.bad")
+        set_control(page, "mutant.brood_scale", "4")
+        page.wait_for_function("!document.querySelector('#row-ctl-mutant-brood_scale').classList.contains('bad')")
+        assert server.session.config.allele[1].brood_scale == 4.0
+    finally:
+        page.close()
+        server.close()
+    assert errors == []

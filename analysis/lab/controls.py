@@ -4,11 +4,17 @@ Every control names a key of the TOML config. A value typed on the page is
 set in the config's raw dict and the whole dict is validated by
 ``sim.config.parse_config``, so a refusal reads exactly as it would for a
 TOML file (``allele[1].adult_survival must be in [0, 1]; got 1.3``).
+
+Keys: ``resident.KEY`` and ``mutant.KEY`` (the invasion's two alleles),
+``SECTION.KEY``, and, for a config with year types, ``environment.year.NAME.KEY``
+(the sweep's path of a year's key) and ``environment.transitions.NAME`` (that
+year type's row of a Markov chain, typed as comma-separated numbers).
 """
 
 from __future__ import annotations
 
 import copy
+import re
 from dataclasses import dataclass
 
 from sim.config import Config
@@ -23,32 +29,44 @@ class Control:
     Attributes
     ----------
     key : str
-        ``resident.KEY``, ``mutant.KEY`` (the invasion's two alleles) or ``SECTION.KEY``.
+        ``resident.KEY``, ``mutant.KEY``, ``SECTION.KEY``, ``environment.year.NAME.KEY`` or
+        ``environment.transitions.NAME`` (see the module's docstring).
     label : str
     kind : str
-        ``"number"``, ``"integer"`` or ``"choice"``.
+        ``"number"``, ``"integer"``, ``"numbers"`` (comma-separated) or ``"choice"``.
     choices : tuple of str
         The allowed values of a choice ("" stands for "not set").
+    unset : str
+        What the page calls the choice "" (the schema's default then applies).
     """
 
     key: str
     label: str
     kind: str
     choices: tuple = ()
+    unset: str = "(default)"
 
 
 _BREEDING = ("iteroparous", "semelparous", "table")
 _SCHEDULE = [("breeding", "breeding", "choice", _BREEDING), ("fecundity", "fecundity", "number", ()),
              ("adult_survival", "adult survival", "number", ()),
              ("juvenile_survival", "juvenile survival", "number", ()),
-             ("maturity_age", "maturity age", "integer", ())]
+             ("maturity_age", "maturity age", "integer", ()),
+             # parental care and brood size; an empty orphan survival is the juvenile survival
+             ("orphan_survival", "orphan survival", "number", ()),
+             ("brood_effect", "brood effect", "choice", ("", "exponential")),
+             ("brood_scale", "brood scale", "number", ())]
+_UNSET = {"brood_effect": "none"}  # a choice whose default has a name
+_YEAR = [("juvenile_survival", "x juvenile survival"), ("fecundity", "x fecundity"),
+         ("adult_survival", "x adult survival")]
 
 
-def controls() -> list[Control]:
-    """Every control of the page, in page order."""
-    out = [Control(f"{who}.{key}", label, kind, choices)
+def controls(raw: dict | None = None) -> list[Control]:
+    """Every control of the page, in page order; with ``raw`` (a config's raw dict) those of
+    its year types too, each year's probability (or its row of transitions) and multipliers."""
+    out = [Control(f"{who}.{key}", label, kind, choices, _UNSET.get(key, "(default)"))
            for who in ("resident", "mutant") for key, label, kind, choices in _SCHEDULE]
-    return out + [
+    out += [
         Control("density.form", "form", "choice", ("none", "beverton-holt", "ricker", "ceiling")),
         Control("density.acts_on", "acts on", "choice",
                 ("", "recruitment", "fecundity", "adult-survival", "all-survival")),
@@ -57,9 +75,19 @@ def controls() -> list[Control]:
         Control("experiment.replicates", "replicates", "integer"),
         Control("experiment.seed", "seed", "integer"),
     ]
+    environment = (raw or {}).get("environment")
+    for year in environment["year"] if environment else ():
+        name = year["name"]
+        if environment.get("switching", "iid") == "iid":
+            out.append(Control(f"environment.year.{name}.probability", f"{name}: probability", "number"))
+        else:
+            out.append(Control(f"environment.transitions.{name}", f"{name}: next year", "numbers"))
+        out += [Control(f"environment.year.{name}.{key}", f"{name}: {label}", "number") for key, label in _YEAR]
+    return out
 
 
-_KEYS = {c.key for c in controls()}
+def _keys(raw: dict) -> set[str]:
+    return {c.key for c in controls(raw)}
 
 
 def page_raw(config: Config) -> dict:
@@ -80,6 +108,23 @@ def page_raw(config: Config) -> dict:
 def _allele(raw: dict, who: str) -> dict:
     name = raw["invasion"][who]
     return next(a for a in raw["allele"] if a.get("name") == name)
+
+
+def _place(raw: dict, key: str) -> tuple[dict | list, str | int]:
+    """The table (or list) that holds a control's value in ``raw``, and its name (or index) there
+    (an absent section is an empty table, not added to ``raw``)."""
+    parts = key.split(".")
+    if parts[0] in ("resident", "mutant"):
+        return _allele(raw, parts[0]), parts[1]
+    if parts[0] == "environment":
+        # a year name may itself hold dots: it is everything between the fixed parts
+        environment = raw["environment"]
+        names = [y["name"] for y in environment["year"]]
+        if parts[1] == "transitions":
+            return environment["transitions"], names.index(".".join(parts[2:]))
+        name = ".".join(parts[2:-1])
+        return environment["year"][names.index(name)], parts[-1]
+    return raw.get(parts[0], {}), parts[1]
 
 
 def typed(text):
@@ -108,13 +153,16 @@ def set_control(raw: dict, key: str, value) -> dict:
     KeyError
         For a key that is not one of ``controls()``.
     """
-    if key not in _KEYS:
+    if key not in _keys(raw):
         raise KeyError(f"the lab has no control {key!r}")
     raw = copy.deepcopy(raw)
-    section, name = key.split(".")
-    table = _allele(raw, section) if section in ("resident", "mutant") else raw.setdefault(section, {})
+    if key.split(".")[0] not in ("resident", "mutant", "environment"):
+        raw.setdefault(key.split(".")[0], {})
+    table, name = _place(raw, key)
     value = typed(value)
-    if value is None:
+    if isinstance(table, list):  # a row of transitions: always a list, one value or many
+        table[name] = value if isinstance(value, list) else [value]
+    elif value is None:
         table.pop(name, None)
     else:
         table[name] = value
@@ -123,18 +171,23 @@ def set_control(raw: dict, key: str, value) -> dict:
 
 def control_value(raw: dict, key: str):
     """The value a control shows (None where the key is not set)."""
-    section, name = key.split(".")
-    table = _allele(raw, section) if section in ("resident", "mutant") else raw.get(section, {})
-    return table.get(name)
+    table, name = _place(raw, key)
+    return table[name] if isinstance(table, list) else table.get(name)
 
 
 def control_of(problem: str, raw: dict) -> str | None:
     """The control a schema message is about (by its leading path), or None."""
     path = problem.split(" ", 1)[0].rstrip(":")
+    keys = _keys(raw)
     names = [a.get("name") for a in raw["allele"]]
     for who in ("resident", "mutant"):
         prefix = f"allele[{names.index(raw['invasion'][who])}]."
         if path.startswith(prefix):
             key = f"{who}.{path[len(prefix):].split('.')[0]}"
-            return key if key in _KEYS else None
-    return path if path in _KEYS else None
+            return key if key in keys else None
+    year = re.match(r"environment\.(year|transitions)\[(\d+)\](?:\.(\w+))?", path)
+    if year and "environment" in raw and int(year[2]) < len(raw["environment"].get("year", [])):
+        name = raw["environment"]["year"][int(year[2])]["name"]
+        key = f"environment.year.{name}.{year[3]}" if year[1] == "year" else f"environment.transitions.{name}"
+        return key if key in keys else None
+    return path if path in keys else None

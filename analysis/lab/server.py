@@ -89,7 +89,7 @@ class LabServer:
             gen = query.get("generation", [None])[0]
             return s.view(since, None if gen is None else int(gen))
         if method == "GET" and path == "/api/controls":
-            return [asdict(c) for c in controls()]
+            return [asdict(c) for c in controls(s.raw)]
         if method != "POST":
             return None
         if path == "/api/update":

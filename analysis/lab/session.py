@@ -520,7 +520,7 @@ class LabSession:
                 "view": self._views,
                 "session": self._token,
                 "generation": self.generation,
-                "settings": {c.key: control_value(self.raw, c.key) for c in controls()},
+                "settings": {c.key: control_value(self.raw, c.key) for c in controls(self.raw)},
                 "problems": [{"control": control_of(p, self.raw), "message": p} for p in self.problems],
                 "alleles": self.config.allele_names,
                 "resident": self.config.invasion.resident,

@@ -4,7 +4,7 @@
 const COLOURS = { "mutant-fixed": "#1a9850", "mutant-lost": "#9a9a9a", other: "#e07b00" };
 const ALLELE_COLOURS = ["#4e79a7", "#e15759", "#59a14f", "#b07aa1"];
 const GROUPS = { resident: "group-resident", mutant: "group-mutant", density: "group-density",
-                 invasion: "group-experiment", experiment: "group-experiment" };
+                 invasion: "group-experiment", experiment: "group-experiment", environment: "group-environment" };
 const SVGNS = "http://www.w3.org/2000/svg";
 
 let view = null;        // the last answer of the server
@@ -14,7 +14,7 @@ let generation = null;
 let polling = false;
 
 const $ = (id) => document.getElementById(id);
-const idOf = (key) => "ctl-" + key.replace(".", "-");
+const idOf = (key) => "ctl-" + key.replaceAll(".", "-");
 const esc = (text) => String(text).replace(/[&<>"]/g, (c) => ({ "&": "&amp;", "<": "&lt;", ">": "&gt;", '"': "&quot;" })[c]);
 const fmt = (x, d = 3) => (x === null || x === undefined || Number.isNaN(x)) ? "–" : Number(x).toFixed(d);
 
@@ -54,7 +54,7 @@ async function buildControls() {
       for (const choice of c.choices) {
         const option = document.createElement("option");
         option.value = choice;
-        option.textContent = choice === "" ? "(default)" : choice;
+        option.textContent = choice === "" ? c.unset : choice;
         input.appendChild(option);
       }
     } else {
@@ -68,7 +68,9 @@ async function buildControls() {
     const msg = document.createElement("span");
     msg.className = "msg";
     row.append(name, input, msg);
-    $(GROUPS[c.key.split(".")[0]]).appendChild(row);
+    const group = $(GROUPS[c.key.split(".")[0]]);
+    group.appendChild(row);
+    group.closest("fieldset").hidden = false;  // the year types' box shows only where there are some
   }
 }
 
