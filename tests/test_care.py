@@ -326,3 +326,68 @@ def test_random_years_that_are_all_alike_give_the_constant_theory_with_care(law,
     assert years["invasion_fitness"] == pytest.approx(constant["invasion_fitness"], rel=1e-10)
     assert years["establishment_probability"] == pytest.approx(constant["establishment_probability"], abs=1e-9)
     assert years["neutral_expectation"] == pytest.approx(constant["neutral_expectation"], abs=1e-12)
+
+
+@pytest.mark.parametrize("engine", ["individual", "counts"])
+def test_one_season_with_care_in_a_year_scales_orphans_as_the_theory_does(engine):
+    # The engines put a year's multipliers on the density factors (SeasonKernel.multipliers), so
+    # the juvenile multiplier reaches orphaned young too; the theory's scaled schedule says the
+    # same (c_orphan x multiplier). A lean year (fecundity x1.5, adult survival x0.8, juvenile
+    # x0.5) every season (Markov, identity rows, started in it): P' = 0.48, c' = 0.25,
+    # c_o' = 0.05, fixed broods of mean 3.6 (3 young with probability 0.4, 4 with 0.6), so per
+    # parent, written out from the model: P' + (P' c' + (1 - P') c_o') (0.4 * 3 x^2 + 0.6 * 4 x^3),
+    # x = e^(-1/2). Tolerance 4.5 standard errors of the mean over replicates.
+    from sim.year_draws import SeasonYears
+    from sim.years import scaled_schedule
+
+    raw = {"experiment": {"engine": engine}, "offspring": {"distribution": "fixed"},
+           "allele": [{"name": "p", "breeding": "iteroparous", "fecundity": 2.4, "adult_survival": 0.6,
+                       "juvenile_survival": 0.5, "orphan_survival": 0.1, "brood_effect": "exponential",
+                       "brood_scale": 2.0, "initial_count": 500}],
+           "environment": {"switching": "markov", "start": "lean", "transitions": [[1.0, 0.0], [0.0, 1.0]],
+                           "year": [{"name": "lean", "fecundity": 1.5, "adult_survival": 0.8,
+                                     "juvenile_survival": 0.5}, {"name": "plain"}]}}
+    config = parse_config(raw)
+    life = LifeCycle.from_config(config)
+    reps = 400
+    rngs = [np.random.default_rng(np.random.SeedSequence(3, spawn_key=(r,))) for r in range(reps)]
+    batch = ENGINES[engine].populations(life, np.full((reps, 1, 1), 500), rngs)
+    batch.years = SeasonYears(config.year_types(), [np.random.default_rng(r) for r in range(reps)])
+    batch.step()
+    assert np.all(batch.years.current == 0)  # every replicate lived through a lean year
+    x = np.exp(-0.5)
+    per_parent = 0.48 + (0.48 * 0.25 + 0.52 * 0.05) * (0.4 * 3 * x**2 + 0.6 * 4 * x**3)
+    after = batch.census()[:, 0, 0]
+    assert abs(after.mean() - 500 * per_parent) < Z_MAX * after.std(ddof=1) / np.sqrt(reps), after.mean()
+    # the theory's matrix of that year is the same number
+    lean = scaled_schedule(config.schedules()[0], config.year_types().types[0])
+    matrix = SeasonKernel.for_schedule(lean, offspring=Fixed()).projection_matrix()
+    assert matrix[0, 0] == pytest.approx(per_parent, rel=1e-12)
+
+
+def test_care_in_random_years_end_to_end_the_verdicts_agree(tmp_path):
+    # A caring resident (B = 2, P = 0.5, c = 0.5, c_o = 0.1) against a one-shot breeder (B = 6)
+    # whose orphaned young survive c_o, in wet and dry years (juvenile survival x1.6 or x0.4),
+    # Beverton-Holt on recruitment, K = 250: the stochastic theory puts the orphan-survival
+    # threshold at about 0.226. Points far from it (invasion fitness below 0.8 or above 1.4)
+    # must agree with 400 replicates each: there the fixed fraction is near 0 or near 0.8, the
+    # neutral expectation 0.09, many binomial standard errors (at most 0.025) away. The theory
+    # before the fix ignored care in random years and said "invades" (fitness 1.31) at every
+    # point, so the low points disagreed.
+    from analysis import compare
+    from sim.experiment import run_experiment
+
+    raw = _raw(a0={"orphan_survival": 0.1}, a1={"fecundity": 6.0, "orphan_survival": 0.2})
+    raw["experiment"] = {"engine": "counts", "replicates": 400, "seed": 31, "max_steps": 5000,
+                         "record_every": 1000}
+    raw["density"]["capacity"] = 250
+    raw["invasion"]["mutant_count"] = 5
+    raw["environment"] = {"year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.6},
+                                   {"name": "dry", "probability": 0.5, "juvenile_survival": 0.4}]}
+    raw["sweep"] = {"allele.one-shot.orphan_survival": [0.12, 0.16, 0.32, 0.36]}
+    path = tmp_path / "care-years.h5"
+    run_experiment(parse_config(raw), path, progress=False)
+    table = compare(path)
+    assert list(table["invasion_fitness"] < 0.8) == [True, True, False, False]
+    assert list(table["invasion_fitness"] > 1.4) == [False, False, True, True]
+    assert list(table["agreement"]) == ["agrees"] * 4, table.to_string()

@@ -13,6 +13,7 @@ from analysis.lab.controls import control_of, controls, page_raw
 from analysis.lab.session import BATCH, LabSession, mutant_frequency
 from analysis.lab.theory import closed_form_threshold
 from analysis.lab.toml_text import toml_text
+from analysis.sweep import threshold_at
 from sim.cli import main
 from sim.config import (
     AlleleSection,
@@ -26,7 +27,6 @@ from sim.config import (
     parse_config,
     sweep_points,
 )
-from analysis.sweep import threshold_at
 from sim.replicates import run_replicate, run_replicates
 
 
