@@ -18,6 +18,7 @@ import numpy as np
 
 from sim.config import Config
 from sim.density import Ceiling, Factors
+from sim.kernel import SeasonKernel
 from sim.schedules import Schedule
 
 from .demography import schedule_demography
@@ -51,26 +52,49 @@ _RECRUITMENT_FINDING = (
 _MIN_SIZE = 10.0  # a regulated census below this is too small for a diffusion
 
 
-def _recruit_moments(schedule: Schedule, factors: Factors, offspring) -> tuple[np.ndarray, np.ndarray]:
-    """Mean and variance of an individual's recruits (age 1 next season), by census age.
+def next_season_covariance(schedule: Schedule, factors: Factors, offspring) -> np.ndarray:
+    """Covariance of the numbers by census age that one individual leaves a season later.
 
-    The births (pgf P, mean m f_fec) are thinned by the recruitment probability
-    p = c f_rec, so the recruits have pgf G(z) = P(1 - p + p z); mean G'(1),
-    variance G''(1) + G'(1) - G'(1)^2, by central differences of the pgf (the
-    offspring law is stated once, by its pgf).
+    Returns C of shape (n_ages, n_ages, n_ages): C[a] is the covariance matrix of
+    next season's numbers (its recruits at age 1 and itself, one age older, if it
+    survives) left by one individual of census age a.
+
+    Notes
+    -----
+    From the season kernel's joint generating function G_a(s)
+    (``SeasonKernel.offspring_pgf``; parental care and brood size included,
+    where the parent's fate and its recruits are not independent):
+    Cov(N_i, N_j) = d2G/ds_i ds_j + delta_ij dG/ds_i - dG/ds_i dG/ds_j at s = 1
+    (factorial moments of a pgf; e.g. Harris 1963, from memory). The first
+    derivatives are the projection matrix's column a, the second central
+    differences of G (step 1e-3; the offspring law is stated once, by its pgf).
     """
-    m = schedule.fecundity * factors.fecundity
-    p = schedule.juvenile_survival * factors.recruitment
+    kernel = SeasonKernel.for_schedule(schedule, offspring=offspring)
+    n = schedule.n_ages
+    first = kernel.projection_matrix(factors).T  # [a, i] = dG_a / ds_i at s = 1
     h = 1e-3
-
-    def g(z):
-        return offspring.pgf(1.0 - p + p * z, m)
-
-    g_minus, g_one, g_plus = g(1.0 - h), g(1.0), g(1.0 + h)
-    mean = m * p  # exact; the difference quotient only serves the second derivative
-    second = (g_plus - 2.0 * g_one + g_minus) / h**2
-    var = np.maximum(second + mean - mean**2, 0.0)
-    return mean, np.where(m * p > 0, var, 0.0)
+    unit = np.eye(n) * h
+    # rows 1 + h (e_i + e_j) and the like, for every pair i <= j: G of every parent age at once
+    pairs = [(i, j) for i in range(n) for j in range(i, n)]
+    points = np.ones((len(pairs), 4, n))
+    for k, (i, j) in enumerate(pairs):
+        if i == j:
+            points[k] += [unit[i], -unit[i], 0 * unit[i], 0 * unit[i]]
+        else:
+            points[k] += [unit[i] + unit[j], unit[i] - unit[j], unit[j] - unit[i], -unit[i] - unit[j]]
+    g = kernel.offspring_pgf(points.reshape(-1, n), factors).reshape(len(pairs), 4, n)
+    second = np.empty((n, n, n))
+    for k, (i, j) in enumerate(pairs):
+        if i == j:
+            d2 = (g[k, 0] - 2.0 * g[k, 2] + g[k, 1]) / h**2
+        else:
+            d2 = (g[k, 0] - g[k, 1] - g[k, 2] + g[k, 3]) / (4.0 * h**2)
+        second[:, i, j] = second[:, j, i] = d2
+    cov = second - first[:, :, None] * first[:, None, :]
+    cov[:, np.arange(n), np.arange(n)] += first
+    # an individual that cannot contribute to an age has no variance there (not rounding noise)
+    cov[(first[:, :, None] == 0) | (first[:, None, :] == 0)] = 0.0
+    return cov
 
 
 @dataclass(frozen=True)
@@ -117,8 +141,10 @@ def demographic_variance(
     -----
     An individual of census age a contributes W = v(1) R + v(a + 1) S to the
     next season's total reproductive value: R recruits (births thinned by
-    recruitment) and S = 1 if it survives (probability s(a) f_adult),
-    independent of its brood. So Var(W | a) = v(1)^2 Var R + v(a+1)^2 S(1-S).
+    recruitment) and S = 1 if it survives (probability s(a) f_adult). So
+    Var(W | a) = v' C_a v, C_a the covariance of next season's numbers it
+    leaves (``next_season_covariance``): v(1)^2 Var R + v(a+1)^2 S(1-S) where R
+    and S are independent, plus 2 v(1) v(a+1) Cov(R, S) under parental care.
     The demographic variance is sum_a u(a) Var(W | a) / sum_a u(a) v(a), u
     the type's stable age distribution (Engen, Lande & Saether 2005, Genetics
     170: 941, per unit of reproductive value rather than per individual).
@@ -128,21 +154,28 @@ def demographic_variance(
     if v.size < n:
         v = np.concatenate([v, np.repeat(v[-1], n - v.size)])
     v = v[:n]
-    nxt = np.minimum(np.arange(n) + 1, n - 1)
-    _, var_r = _recruit_moments(schedule, factors, offspring)
-    sigma = schedule.survival * factors.adult
-    by_age = v[0] ** 2 * var_r + v[nxt] ** 2 * sigma * (1.0 - sigma)
-    demo = schedule_demography(schedule, factors)
+    by_age = np.einsum("i,aij,j->a", v, next_season_covariance(schedule, factors, offspring), v)
+    demo = schedule_demography(schedule, factors, offspring=offspring)
     u = demo.stable_age_distribution
     weight = float(u @ v)
     variance = float(u @ by_age) / weight if weight > 0 else float("nan")
     return DemographicVariance(variance, by_age, u, demo.growth_rate)
 
 
-def _placement_derivative(schedule: Schedule, density) -> np.ndarray:
-    """dA/df: the projection matrix is linear in the density factor f at its placement."""
+def _placement_derivative(schedule: Schedule, density, factor: float, offspring) -> np.ndarray:
+    """dA/df at the factor f = ``factor`` at its placement.
+
+    Without parental effects A is linear in f, and this is A(1) - A(0). With
+    them the fertility row f_rec P'(x; m f_fec) (sigma c_care + (1 - sigma)
+    c_orphan), sigma = s f_adult, is not linear where f reaches two of its
+    factors or the brood's mean: a central difference at f (step 1e-6).
+    """
     from sim.meanfield import projection_matrix
 
+    if SeasonKernel.for_schedule(schedule).parental:
+        h = 1e-6
+        up, down = (projection_matrix(schedule, density.placed(factor + d), offspring=offspring) for d in (h, -h))
+        return (up - down) / (2 * h)
     return projection_matrix(schedule, density.placed(1.0)) - projection_matrix(schedule, density.placed(0.0))
 
 
@@ -194,15 +227,19 @@ def density_fluctuation(
     from scipy.linalg import solve_discrete_lyapunov
 
     density = config.density_dependence()
-    if density.acts_on == "all-survival":  # A(f) = f A(1) for both: the ratio does not move
-        return DensityFluctuation(0.0, 0.0, 0.0, float("nan"))
     r, m = invasion_pair(config)
     schedules = config.schedules()
     res, mut = schedules[r], schedules[m]
+    parental = SeasonKernel.for_schedule(res).parental or SeasonKernel.for_schedule(mut).parental
+    if density.acts_on == "all-survival" and not parental:  # A(f) = f A(1) for both: the ratio does not move
+        return DensityFluctuation(0.0, 0.0, 0.0, float("nan"))
+    offspring = config.offspring_distribution()
     n_star = env.equilibrium.census
     v = values[: res.n_ages]
-    d_res = _placement_derivative(res, density)
-    d_mut = _placement_derivative(mut, density)
+    # the factor f* at its placement (the equilibrium's factors are 1 elsewhere)
+    factor = next(f for f, placed in zip(env.factors, density.placed(0.0)) if placed == 0.0)
+    d_res = _placement_derivative(res, density, factor, offspring)
+    d_mut = _placement_derivative(mut, density, factor, offspring)
     u_r = env.demography.stable_age_distribution
     vm = np.concatenate([values, np.repeat(values[-1], max(mut.n_ages - values.size, 0))])[: mut.n_ages]
     kappa = float(vm @ d_mut @ mutant_ages) / float(vm @ mutant_ages) - float(v @ d_res @ u_r) / float(v @ u_r)
@@ -217,13 +254,7 @@ def density_fluctuation(
     jac = env.demography.matrix + np.outer(d_res @ n_star, slope * w)
     if np.max(np.abs(np.linalg.eigvals(jac))) >= 1.0:
         return None
-    n = res.n_ages
-    nxt = np.minimum(np.arange(n) + 1, n - 1)
-    _, var_r = _recruit_moments(res, env.factors, config.offspring_distribution())
-    sigma = res.survival * env.factors.adult
-    q = np.zeros((n, n))
-    q[0, 0] += float(n_star @ var_r)
-    np.add.at(q, (nxt, nxt), n_star * sigma * (1 - sigma))
+    q = np.einsum("a,aij->ij", n_star, next_season_covariance(res, env.factors, offspring))
     cov = solve_discrete_lyapunov(jac, q)
     a = d_res.T @ v
     shift = -slope * float(w @ cov @ a) / float(a @ n_star)

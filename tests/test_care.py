@@ -17,7 +17,7 @@ from sim.engines import ENGINES
 from sim.kernel import SeasonKernel
 from sim.lifecycle import LifeCycle
 from sim.offspring import Fixed, NegativeBinomial, Poisson
-from sim.schedules import Schedule, iteroparous
+from sim.schedules import Schedule, iteroparous, table
 from sim.years import YearType, YearTypes
 from tests.conftest import BASE
 
@@ -391,3 +391,51 @@ def test_care_in_random_years_end_to_end_the_verdicts_agree(tmp_path):
     assert list(table["invasion_fitness"] < 0.8) == [True, True, False, False]
     assert list(table["invasion_fitness"] > 1.4) == [False, False, True, True]
     assert list(table["agreement"]) == ["agrees"] * 4, table.to_string()
+
+
+# --- finite-population theory with care ---------------------------------------------------------
+def test_next_season_covariance_with_care_closed_form():
+    # One class, Poisson births of mean m f_fec, parent survives with sigma = P f_adult; each young
+    # recruits with c f_rec if it does, c_o f_rec if not (no brood effect). Given the fate, the
+    # recruits are Poisson (thinning), so by the law of total variance (common practice):
+    # Var R = sigma mu_c + (1 - sigma) mu_o + sigma (1 - sigma) (mu_c - mu_o)^2, with
+    # mu = m f_fec c f_rec, and Cov(R, S) = sigma (1 - sigma) (mu_c - mu_o). One class: R and S
+    # both land at age 1, so the kernel's covariance is Var(R + S).
+    from analysis.fixation import next_season_covariance
+
+    schedule = replace(iteroparous("tending", 2.5, 0.6, 0.5), orphan_survival=0.1)
+    f = Factors(0.9, 0.8, 0.7)
+    sigma, mu_c, mu_o = 0.6 * 0.8, 2.5 * 0.9 * 0.5 * 0.7, 2.5 * 0.9 * 0.1 * 0.7
+    var_r = sigma * mu_c + (1 - sigma) * mu_o + sigma * (1 - sigma) * (mu_c - mu_o) ** 2
+    cov_rs = sigma * (1 - sigma) * (mu_c - mu_o)
+    want = var_r + sigma * (1 - sigma) + 2 * cov_rs
+    got = next_season_covariance(schedule, f, Poisson())
+    assert got.shape == (1, 1, 1) and got[0, 0, 0] == pytest.approx(want, rel=1e-6)
+
+
+@pytest.mark.parametrize("law", [Poisson(), NegativeBinomial(2.0)], ids=["poisson", "negative-binomial"])
+def test_demographic_variance_with_care_and_broods_against_a_monte_carlo(law):
+    # A table schedule of two ages (age 1 and the plus-group 2+):
+    # W = v(1) R + v(a+1) S for a parent of age a. Drawn here from the model's rules (brood B from
+    # the law, fate S ~ Bernoulli(sigma), recruits Binomial(B, c_fate f_rec x^(B-1))), not from
+    # the kernel; tolerance 4.5 standard errors of the sample variance (its SE from the sample's
+    # fourth moment), with 400,000 parents of each age.
+    from analysis.fixation import demographic_variance
+
+    schedule = replace(table("aged", [1.5, 3.0], [0.5, 0.7], 0.6), orphan_survival=0.15, brood_scale=2.5)
+    f = Factors(1.0, 0.9, 0.8)
+    v = np.array([1.0, 1.6])
+    got = demographic_variance(schedule, f, law, v).by_age
+    rng = np.random.default_rng(5)
+    n, x = 400_000, np.exp(-1 / 2.5)
+    for a in range(2):
+        mean = schedule.fecundity[a] * f.fecundity
+        if isinstance(law, Poisson):
+            brood = rng.poisson(mean, n)
+        else:  # numpy's (k, p) with p = k / (k + m): mean m, variance m + m^2 / k
+            brood = rng.negative_binomial(2.0, 2.0 / (2.0 + mean), n)
+        survives = rng.random(n) < schedule.survival[a] * f.adult
+        c = np.where(survives, 0.6, 0.15) * f.recruitment * x ** np.maximum(brood - 1, 0)
+        w = v[0] * rng.binomial(brood, c) + v[1] * survives  # age 1 -> 2, age 2+ stays 2+
+        dev = (w - w.mean()) ** 2
+        assert abs(got[a] - dev.mean()) < 4.5 * dev.std() / np.sqrt(n), (a, got[a], dev.mean())
