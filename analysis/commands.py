@@ -100,9 +100,10 @@ JSON_KEYS = {
         "sensitivities": {
             "point": "index of the sweep point",
             SWEPT: "the point's value of that swept path",
-            "rate": "the mutant's vital rate: m(a) or s(a) at census age a, or c",
-            "kind": "fecundity, survival or juvenile_survival",
-            "age": "the census age (null for c)",
+            "rate": "the mutant's vital rate: m(a) or s(a) at census age a, c, or c_o (orphan survival, "
+                    "where the mutant has one)",
+            "kind": "fecundity, survival, juvenile_survival or orphan_survival",
+            "age": "the census age (null for c and c_o)",
             "value": "the rate's value in the schedule (before density factors)",
             "sensitivity": "d(invasion fitness) / d(rate) (Caswell 2001, ch. 9)",
             "elasticity": "d ln(invasion fitness) / d ln(rate)",

@@ -9,13 +9,14 @@ the vital rates m(a), s(a) and c through the matrix of ``sim.meanfield``.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 
 import numpy as np
 import pandas as pd
 
 from sim.config import Config
 from sim.density import Factors
+from sim.kernel import SeasonKernel
 from sim.schedules import Schedule
 
 from .demography import dominant_eigen
@@ -39,11 +40,12 @@ class VitalRateSensitivity:
     Attributes
     ----------
     rate : str
-        ``m(a)``, ``s(a)`` (census age a) or ``c``.
+        ``m(a)``, ``s(a)`` (census age a), ``c`` or, for an allele with
+        ``orphan_survival``, ``c_o``.
     kind : str
-        ``fecundity``, ``survival`` or ``juvenile_survival``.
+        ``fecundity``, ``survival``, ``juvenile_survival`` or ``orphan_survival``.
     age : int or None
-        Census age (None for c).
+        Census age (None for c and c_o).
     value : float
         The rate's value in the schedule (before density factors).
     sensitivity : float
@@ -66,8 +68,16 @@ class VitalRateSensitivity:
         return asdict(self)
 
 
-def _rate_derivatives(schedule: Schedule, factors: Factors):
-    """(name, kind, age, value, dA/d rate) for every vital rate; A is linear in each one."""
+def _rate_derivatives(schedule: Schedule, factors: Factors, offspring=None):
+    """(name, kind, age, value, dA/d rate) for every vital rate (and c_o where the allele cares).
+
+    Without parental effects A is linear in each rate and the derivatives are
+    exact. With them the fertility row f_rec P'(x; m f_fec) (sigma c + (1 - sigma)
+    c_o), sigma = s f_adult (``SeasonKernel.recruits_per_parent``) is not, and
+    each derivative is a central difference of the kernel's matrix (step 1e-6).
+    """
+    if SeasonKernel.for_schedule(schedule).parental:
+        return _kernel_rate_derivatives(schedule, factors, offspring)
     n = schedule.n_ages
     nxt = np.minimum(np.arange(n) + 1, n - 1)
     birth = factors.fecundity * factors.recruitment
@@ -86,8 +96,38 @@ def _rate_derivatives(schedule: Schedule, factors: Factors):
     return out
 
 
+def _kernel_rate_derivatives(schedule: Schedule, factors: Factors, offspring):
+    from sim.meanfield import projection_matrix
+
+    h = 1e-6
+
+    def derivative(change) -> np.ndarray:
+        up, down = (projection_matrix(change(d), factors, offspring=offspring) for d in (h, -h))
+        return (up - down) / (2 * h)
+
+    def at_age(field: str, a: int, d: float) -> Schedule:
+        values = getattr(schedule, field).copy()
+        values[a] += d
+        return replace(schedule, **{field: values})
+
+    n = schedule.n_ages
+    out = [(f"m({a + 1})", "fecundity", a + 1, float(schedule.fecundity[a]),
+            derivative(lambda d, a=a: at_age("fecundity", a, d))) for a in range(n)]
+    out += [(f"s({a + 1})", "survival", a + 1, float(schedule.survival[a]),
+             derivative(lambda d, a=a: at_age("survival", a, d))) for a in range(n)]
+    c, c_o = schedule.juvenile_survival, schedule.orphan_survival
+    # c: the young's survival while the parent lives (all young's, where orphans have no rate
+    # of their own); c_o: that of orphaned young
+    out.append(("c", "juvenile_survival", None, float(c),
+                derivative(lambda d: replace(schedule, juvenile_survival=c + d))))
+    if c_o is not None:
+        out.append(("c_o", "orphan_survival", None, float(c_o),
+                    derivative(lambda d: replace(schedule, orphan_survival=c_o + d))))
+    return out
+
+
 def vital_rate_sensitivities(
-    schedule: Schedule, factors: Factors, *, scale: float = 1.0
+    schedule: Schedule, factors: Factors, *, scale: float = 1.0, offspring=None
 ) -> list[VitalRateSensitivity]:
     """Sensitivity, elasticity and selection gradient of lambda to each vital rate.
 
@@ -100,6 +140,8 @@ def vital_rate_sensitivities(
     scale : float, optional
         Invasion fitness = scale x lambda (1 at an equilibrium; 1 / lambda_resident
         without density dependence).
+    offspring : optional
+        The offspring law (default Poisson; it matters under a brood effect).
 
     Notes
     -----
@@ -112,13 +154,13 @@ def vital_rate_sensitivities(
     """
     from sim.meanfield import projection_matrix
 
-    a = projection_matrix(schedule, factors)
+    a = projection_matrix(schedule, factors, offspring=offspring)
     lam, w, v = dominant_eigen(a)
     vw = float(v @ w)
     sens = np.outer(v, w) / vw if vw > 0 else np.zeros_like(a)
     fitness = scale * lam
     rows = []
-    for name, kind, age, value, d in _rate_derivatives(schedule, factors):
+    for name, kind, age, value, d in _rate_derivatives(schedule, factors, offspring):
         s = scale * float(np.sum(sens * d))
         rows.append(
             VitalRateSensitivity(
@@ -144,7 +186,8 @@ def sensitivities(config: Config, env: ResidentEnvironment | None = None) -> pd.
     env = env or resident_environment(config)
     _, m = invasion_pair(config)
     scale = 1.0 if env.regulated else 1.0 / env.demography.growth_rate
-    rows = vital_rate_sensitivities(config.schedules()[m], env.factors, scale=scale)
+    rows = vital_rate_sensitivities(config.schedules()[m], env.factors, scale=scale,
+                                    offspring=config.offspring_distribution())
     return pd.DataFrame([r.as_dict() for r in rows], columns=SENSITIVITY_COLUMNS)
 
 

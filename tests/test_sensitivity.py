@@ -90,3 +90,45 @@ def test_config_sensitivities_match_invasion_fitness_differences():
     lam_r = 0.5 + 2.0 * 0.5
     assert t.loc["m(1)", "sensitivity"] == pytest.approx(0.5 / lam_r)
     assert np.isfinite(t["elasticity"]).all()
+
+
+def test_one_class_closed_forms_with_parental_care():
+    # One class with care (docs/care.md): lambda = sigma + B f_fec f_rec (sigma c + (1 - sigma) c_o),
+    # sigma = P f_a, so (derived from the model, common practice) d/dP = f_a (1 + B f_fec f_rec
+    # (c - c_o)), d/dB = f_fec f_rec (sigma c + (1 - sigma) c_o), d/dc = B f_fec f_rec sigma and
+    # d/dc_o = B f_fec f_rec (1 - sigma). With a Poisson brood effect the young per parent are
+    # B f_fec e^(-B f_fec (1 - x)) (Poisson pgf), so a semelparous parent (sigma = 0) has
+    # lambda = c_o f_rec B f e^(-B f (1 - x)) and d/dB = c_o f_rec f e^(-B f (1 - x)) (1 - B f (1 - x)).
+    from dataclasses import replace
+
+    f = Factors(0.9, 0.8, 0.6)
+    it = _by_rate(vital_rate_sensitivities(replace(iteroparous("i", 2.0, 0.5, 0.5), orphan_survival=0.2), f))
+    sigma, bf = 0.5 * 0.8, 2.0 * 0.9 * 0.6
+    assert it["s(1)"].sensitivity == pytest.approx(0.8 * (1 + bf * (0.5 - 0.2)), rel=1e-8)
+    assert it["m(1)"].sensitivity == pytest.approx(0.9 * 0.6 * (sigma * 0.5 + (1 - sigma) * 0.2), rel=1e-8)
+    assert it["c"].sensitivity == pytest.approx(bf * sigma, rel=1e-8)
+    assert it["c_o"].sensitivity == pytest.approx(bf * (1 - sigma), rel=1e-8)
+    assert it["c_o"].kind == "orphan_survival" and it["c_o"].age is None
+    x = np.exp(-1 / 3.0)
+    semi = replace(semelparous("s", 4.0, 0.5), orphan_survival=0.3, brood_scale=3.0)
+    rows = _by_rate(vital_rate_sensitivities(semi, f))
+    b_f = 4.0 * 0.9
+    want = 0.3 * 0.6 * 0.9 * np.exp(-b_f * (1 - x)) * (1 - b_f * (1 - x))
+    assert rows["m(1)"].sensitivity == pytest.approx(want, rel=1e-7)
+    assert rows["c"].sensitivity == pytest.approx(0.0, abs=1e-9)  # no young is ever cared for
+
+
+def test_config_sensitivities_with_care_match_invasion_fitness_differences():
+    # configs/duskmote-care.toml's second point: the sensitivity to the mutant's orphan survival
+    # and fecundity is the derivative of the invasion fitness along that parameter (central
+    # differences, error O(h^2); common practice), negative-binomial broods with a brood effect
+    from sim.config import load_config, sweep_points
+
+    config = sweep_points(load_config("configs/duskmote-care.toml"))[1].config
+    config = with_values(config, {"offspring.distribution": "negative-binomial", "offspring.dispersion": 2.0})
+    table_ = sensitivities(config).set_index("rate")
+    h = 1e-5
+    for rate, path in (("c_o", "allele.one-brood.orphan_survival"), ("m(1)", "allele.one-brood.fecundity")):
+        value = table_.loc[rate, "value"]
+        up, down = (invasion_fitness(with_values(config, {path: value + d})) for d in (h, -h))
+        assert table_.loc[rate, "sensitivity"] == pytest.approx((up - down) / (2 * h), rel=1e-6), rate
