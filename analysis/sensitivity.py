@@ -9,6 +9,7 @@ the vital rates m(a), s(a) and c through the matrix of ``sim.meanfield``.
 
 from __future__ import annotations
 
+import math
 from dataclasses import asdict, dataclass, replace
 
 import numpy as np
@@ -21,12 +22,17 @@ from sim.schedules import Schedule
 
 from .demography import dominant_eigen
 from .environment import ResidentEnvironment, invasion_pair, resident_environment
+from .stochastic import log_invasion_fitness
+from .varying_years import invasion_setting, year_draws
 
 __all__ = [
     "SENSITIVITY_COLUMNS",
     "VitalRateSensitivity",
     "sensitivities",
     "sweep_sensitivities",
+    "stochastic_sensitivities",
+    "vital_rates",
+    "derivative",
     "vital_rate_sensitivities",
 ]
 
@@ -74,7 +80,7 @@ def _rate_derivatives(schedule: Schedule, factors: Factors, offspring=None):
     Without parental effects A is linear in each rate and the derivatives are
     exact. With them the fertility row f_rec P'(x; m f_fec) (sigma c + (1 - sigma)
     c_o), sigma = s f_adult (``SeasonKernel.recruits_per_parent``) is not, and
-    each derivative is a central difference of the kernel's matrix (step 1e-6).
+    each derivative is a difference of the kernel's matrix (``derivative``, step 1e-6).
     """
     if SeasonKernel.for_schedule(schedule).parental:
         return _kernel_rate_derivatives(schedule, factors, offspring)
@@ -96,34 +102,45 @@ def _rate_derivatives(schedule: Schedule, factors: Factors, offspring=None):
     return out
 
 
+def vital_rates(schedule: Schedule) -> list[tuple]:
+    """(name, kind, age, value, with_rate) for each vital rate of ``schedule``: m(a), s(a), c and,
+    where the allele has one, c_o; ``with_rate(x)`` is the schedule with that rate set to x."""
+    def at_age(field: str, a: int):
+        def with_rate(x: float) -> Schedule:
+            values = getattr(schedule, field).copy()
+            values[a] = x
+            return replace(schedule, **{field: values})
+        return with_rate
+
+    n = schedule.n_ages
+    out = [(f"m({a + 1})", "fecundity", a + 1, float(schedule.fecundity[a]), at_age("fecundity", a))
+           for a in range(n)]
+    out += [(f"s({a + 1})", "survival", a + 1, float(schedule.survival[a]), at_age("survival", a))
+            for a in range(n)]
+    # c: the young's survival while the parent lives (all young's, where orphans have no rate of
+    # their own); c_o: that of orphaned young
+    out.append(("c", "juvenile_survival", None, float(schedule.juvenile_survival),
+                lambda x: replace(schedule, juvenile_survival=x)))
+    if schedule.orphan_survival is not None:
+        out.append(("c_o", "orphan_survival", None, float(schedule.orphan_survival),
+                    lambda x: replace(schedule, orphan_survival=x)))
+    return out
+
+
+def derivative(fn, x: float, h: float):
+    """d fn / dx at x: a central difference, or at a rate below h (which cannot go negative) the
+    second-order forward one; both with error O(h^2) (common practice)."""
+    if x >= h:
+        return (fn(x + h) - fn(x - h)) / (2 * h)
+    return (-3 * fn(x) + 4 * fn(x + h) - fn(x + 2 * h)) / (2 * h)
+
+
 def _kernel_rate_derivatives(schedule: Schedule, factors: Factors, offspring):
     from sim.meanfield import projection_matrix
 
-    h = 1e-6
-
-    def derivative(change) -> np.ndarray:
-        up, down = (projection_matrix(change(d), factors, offspring=offspring) for d in (h, -h))
-        return (up - down) / (2 * h)
-
-    def at_age(field: str, a: int, d: float) -> Schedule:
-        values = getattr(schedule, field).copy()
-        values[a] += d
-        return replace(schedule, **{field: values})
-
-    n = schedule.n_ages
-    out = [(f"m({a + 1})", "fecundity", a + 1, float(schedule.fecundity[a]),
-            derivative(lambda d, a=a: at_age("fecundity", a, d))) for a in range(n)]
-    out += [(f"s({a + 1})", "survival", a + 1, float(schedule.survival[a]),
-             derivative(lambda d, a=a: at_age("survival", a, d))) for a in range(n)]
-    c, c_o = schedule.juvenile_survival, schedule.orphan_survival
-    # c: the young's survival while the parent lives (all young's, where orphans have no rate
-    # of their own); c_o: that of orphaned young
-    out.append(("c", "juvenile_survival", None, float(c),
-                derivative(lambda d: replace(schedule, juvenile_survival=c + d))))
-    if c_o is not None:
-        out.append(("c_o", "orphan_survival", None, float(c_o),
-                    derivative(lambda d: replace(schedule, orphan_survival=c_o + d))))
-    return out
+    return [(name, kind, age, value,
+             derivative(lambda x, w=with_rate: projection_matrix(w(x), factors, offspring=offspring), value, 1e-6))
+            for name, kind, age, value, with_rate in vital_rates(schedule)]
 
 
 def vital_rate_sensitivities(
@@ -176,13 +193,50 @@ def vital_rate_sensitivities(
     return rows
 
 
+SENSITIVITY_STEP = 1e-5  # the rate step of the differences (the log fitness is smooth in rates on fixed draws)
+
+
+def stochastic_sensitivities(config: Config) -> list[VitalRateSensitivity]:
+    """The mutant's sensitivities (``VitalRateSensitivity``) of its stochastic
+    invasion fitness: differences along each vital rate on the theory's year draws.
+
+    The draws are the same for every trial value (common random numbers), so the estimated
+    invasion fitness is a smooth function of the rates and its differences have no sampling
+    noise of their own; they estimate the derivative of the large-draw limit within the
+    invasion fitness's own sampling error (Caswell 2001, ch. 14, on the stochastic
+    sensitivities this estimates; from memory). A rate at which a year pushes a survival
+    above 1 gives nan.
+    """
+    s = invasion_setting(config)
+    draws = year_draws(config)
+    cache: dict = {}
+
+    def fitness(mutant) -> float:
+        return math.exp(log_invasion_fitness(replace(s, mutant=mutant), draws, cache))
+
+    base = fitness(s.mutant)
+    rows = []
+    for name, kind, age, value, with_rate in vital_rates(s.mutant):
+        try:
+            sens = float(derivative(lambda x, w=with_rate: fitness(w(x)), value, SENSITIVITY_STEP))
+        except ValueError:  # scaled_schedule: a survival above 1 in some year
+            sens = math.nan
+        rows.append(VitalRateSensitivity(name, kind, age, value, sens, value * sens / base, sens / base))
+    return rows
+
+
 def sensitivities(config: Config, env: ResidentEnvironment | None = None) -> pd.DataFrame:
     """The mutant's sensitivities for one (sweep point) invasion config, one row per vital rate.
 
     Columns ``SENSITIVITY_COLUMNS``. The environment is the resident's
     equilibrium (without density dependence, the density-free one, and the
-    invasion fitness is lambda_m / lambda_r, see ``analysis.invasion_fitness``).
+    invasion fitness is lambda_m / lambda_r, see ``analysis.invasion_fitness``);
+    with year types, those of the stochastic invasion fitness
+    (``stochastic_sensitivities``).
     """
+    if config.environment is not None:
+        rows = stochastic_sensitivities(config)
+        return pd.DataFrame([r.as_dict() for r in rows], columns=SENSITIVITY_COLUMNS)
     env = env or resident_environment(config)
     _, m = invasion_pair(config)
     scale = 1.0 if env.regulated else 1.0 / env.demography.growth_rate

@@ -53,6 +53,7 @@ __all__ = [
     "resident_path",
     "StochasticInvasion",
     "stochastic_invasion",
+    "log_invasion_fitness",
     "InvasionSetting",
     "StochasticThreshold",
     "stochastic_threshold",
@@ -621,6 +622,18 @@ class InvasionSetting:
     years: YearTypes
     density: DensityDependence | None = None
     offspring: object = None  # the offspring law (default Poisson; it matters under a brood effect)
+
+
+def log_invasion_fitness(setting: InvasionSetting, sequences: YearSequences, cache: dict | None = None) -> float:
+    """log of the mutant's stochastic invasion fitness at ``setting`` on these year draws (the
+    mean of its seasons' log growth, less the resident's without density dependence).
+
+    ``cache`` (a dict kept between calls) reuses the resident's path while the resident stays
+    the same: derivatives along the mutant's rates on common random numbers.
+    """
+    s = setting
+    inc, _ = _log_fitness_increments(s.resident, s.mutant, s.years, s.density, sequences, cache, s.offspring)
+    return float(inc.mean())
 
 
 @dataclass(frozen=True)

@@ -41,7 +41,7 @@ from .stochastic import (
 from .thresholds import ThresholdResult, _default_bracket, _setting, with_values
 
 __all__ = ["STOCHASTIC_COLUMNS", "YEAR_DRAWS", "THEORY_STREAM", "NEUTRAL_DRAWS", "NEUTRAL_STREAM", "year_draws",
-           "neutral_in_years", "stochastic_prediction", "stochastic_threshold_result", "year_spans"]
+           "neutral_in_years", "invasion_setting", "stochastic_prediction", "stochastic_threshold_result", "year_spans"]
 
 # what a prediction adds to analysis.sweep.PREDICTION_COLUMNS in a variable environment
 STOCHASTIC_COLUMNS = (
@@ -95,7 +95,8 @@ def neutral_in_years(config: Config, *, point: int | None = None) -> NeutralShar
                                   futures, census, count, offspring=config.offspring_distribution())
 
 
-def _setting_of(config: Config) -> InvasionSetting:
+def invasion_setting(config: Config) -> InvasionSetting:
+    """The resident, mutant, year types, density and offspring law the stochastic theory reads."""
     r, m = invasion_pair(config)
     schedules = config.schedules()
     density = config.density_dependence()
@@ -132,7 +133,7 @@ def stochastic_prediction(config: Config, *, point: int | None = None) -> dict:
         (with it, ``analysis.comparison.drift_note`` tells when that return is
         within drift).
     """
-    s = _setting_of(config)
+    s = invasion_setting(config)
     draws = year_draws(config)
     inv = stochastic_invasion(s.resident, s.mutant, s.years, s.density, draws, offspring=s.offspring)
     est = establishment_in_years(s.resident, s.mutant, s.years, s.density, s.offspring, draws,
@@ -202,7 +203,7 @@ def stochastic_threshold_result(config: Config, parameter: str, *, bracket=None,
 
     def at(value: float) -> InvasionSetting:
         sweep = {path: [v] for path, v in setting(value).items()}
-        return _setting_of(sweep_points(base.model_copy(update={"sweep": sweep}))[0].config)
+        return invasion_setting(sweep_points(base.model_copy(update={"sweep": sweep}))[0].config)
 
     t = stochastic_threshold(at, draws, bracket=(lo, hi))
     g_lo, g_hi = t.log_fitness_at_bracket

@@ -132,3 +132,46 @@ def test_config_sensitivities_with_care_match_invasion_fitness_differences():
         value = table_.loc[rate, "value"]
         up, down = (invasion_fitness(with_values(config, {path: value + d})) for d in (h, -h))
         assert table_.loc[rate, "sensitivity"] == pytest.approx((up - down) / (2 * h), rel=1e-6), rate
+
+
+def test_with_year_types_the_sensitivities_are_of_the_stochastic_invasion_fitness():
+    # configs/fenmarrow-hopper.toml (Beverton-Holt on recruitment): a one-class semelparous
+    # mutant grows by B c y_t f_t in season t, f_t the resident's factor, so its stochastic
+    # invasion fitness exp(mean log(B c y_t f_t)) has elasticity exactly 1 to B and to c
+    # (Lewontin & Cohen 1969 on the realised seasons); the constant environment's sensitivities
+    # (what --sensitivities printed before) differ (0.25 against 0.187 for m(1)).
+    from sim.config import load_config, sweep_points
+
+    config = sweep_points(load_config("configs/fenmarrow-hopper.toml"))[2].config
+    rows = sensitivities(config).set_index("rate")
+    assert rows.loc["m(1)", "elasticity"] == pytest.approx(1.0, rel=1e-7)
+    assert rows.loc["c", "elasticity"] == pytest.approx(1.0, rel=1e-7)
+    assert rows.loc["m(1)", "sensitivity"] != pytest.approx(0.25, rel=1e-3)
+
+
+def test_stochastic_sensitivities_with_care_against_the_realised_seasons():
+    # Density-free, one class, care: the mutant's growth in a year of juvenile multiplier y is
+    # lambda_y = sigma + B y (sigma c + (1 - sigma) c_o) (docs/care.md), and without density
+    # dependence the stochastic invasion fitness is exp(mean_t log lambda_m(y_t) - mean_t log
+    # lambda_r(y_t)) over the theory's realised seasons (Lewontin & Cohen 1969), so
+    # d log fitness / dP = mean_t (1 + B y_t (c - c_o)) / lambda_m(y_t) and
+    # d log fitness / dc_o = mean_t B y_t (1 - P) / lambda_m(y_t). Differences of step 1e-5:
+    # error O(h^2), tolerance 1e-6 relative.
+    from analysis.varying_years import year_draws
+    from sim.config import parse_config
+    from tests.conftest import BASE
+
+    raw = {**BASE, "density": {"form": "none"}}
+    raw["allele"] = [dict(BASE["allele"][0]),
+                     {"name": "careful", "breeding": "iteroparous", "fecundity": 1.5, "adult_survival": 0.6,
+                      "juvenile_survival": 0.5, "orphan_survival": 0.2}]
+    raw["invasion"] = {**BASE["invasion"], "mutant": "careful", "resident_count": 50}
+    raw["environment"] = {"year": [{"name": "wet", "probability": 0.5, "juvenile_survival": 1.6},
+                                   {"name": "dry", "probability": 0.5, "juvenile_survival": 0.4}]}
+    config = parse_config(raw)
+    draws = year_draws(config)
+    y = np.array([1.6, 0.4])[draws.indices[:, draws.burn_in:]]
+    lam = 0.6 + 1.5 * y * (0.6 * 0.5 + 0.4 * 0.2)
+    rows = sensitivities(config).set_index("rate")
+    assert rows.loc["s(1)", "selection_gradient"] == pytest.approx(np.mean((1 + 1.5 * y * 0.3) / lam), rel=1e-6)
+    assert rows.loc["c_o", "selection_gradient"] == pytest.approx(np.mean(1.5 * y * 0.4 / lam), rel=1e-6)
