@@ -33,12 +33,33 @@ def effort_model(config: Config) -> EffortModel:
     ConfigError
         Where no allele has ``breeding = "effort"``, or where effort alleles
         differ in ``juvenile_survival`` or ``maturity_age`` (the theory puts
-        every effort on one life cycle), naming the allele.
+        every effort on one life cycle), naming the allele; and where the
+        config has what the effort theory does not include: parental care or
+        a brood effect on an effort allele, or year types.
     """
     alleles = [a for a in config.alleles if a.breeding == "effort"]
     if not alleles:
         raise ConfigError("allele: no allele has breeding = 'effort' (the invasibility analysis "
                           "compares efforts on the [tradeoff] curve)")
+    # the adaptive-dynamics derivatives (analysis.adaptive) use a matrix linear in m(a) and s(a)
+    # in a constant environment: with care, a brood effect or random years it is not
+    problems = []
+    cared = [a for a in alleles if a.orphan_survival is not None or a.brood_effect != "none"]
+    if cared:  # a [trait]'s grid copies one template: one message, not one per grid value
+        keys = [k for k in ("orphan_survival", "brood_effect")
+                if any(getattr(a, k) not in (None, "none") for a in cared)]
+        if config.trait is not None:
+            where = f"allele {config.trait.allele!r} (the [trait] template of {len(cared)} effort alleles)"
+        else:
+            where = f"allele {cared[0].name!r}" + (f" (and {len(cared) - 1} more)" if len(cared) > 1 else "")
+        problems.append(f"{where}: {', '.join(keys)}: the effort analysis does "
+                        "not include parental care or brood size (it takes the matrix as linear in the "
+                        "effort's m and s, which they are only without them)")
+    if config.environment is not None:
+        problems.append("environment: the effort analysis is of a constant environment; it has no "
+                        "theory for year types")
+    if problems:
+        raise ConfigError(problems)
     first = alleles[0]
     for a in alleles[1:]:
         for key in ("juvenile_survival", "maturity_age"):

@@ -148,6 +148,43 @@ def test_effort_model_refuses_effort_alleles_on_different_life_cycles():
         effort_model(config)
 
 
+def test_effort_model_refuses_care_and_year_types_it_has_no_theory_for():
+    # analysis.adaptive differentiates a matrix linear in the effort's m and s, in a constant
+    # environment: care and brood size make the fertility row non-linear (docs/care.md), and
+    # random years need the stochastic theory. The grid's copies give one message, not one each.
+    raw = trait_raw()
+    raw["allele"][0].update(orphan_survival=0.2, brood_effect="exponential", brood_scale=3.0)
+    with pytest.raises(ConfigError) as err:
+        effort_model(parse_config(raw))
+    assert err.value.problems == [
+        "allele 'tmpl' (the [trait] template of 10 effort alleles): orphan_survival, brood_effect: the "
+        "effort analysis does "
+        "not include parental care or brood size (it takes the matrix as linear in the effort's m and s, "
+        "which they are only without them)"]
+    raw = trait_raw()
+    raw["environment"] = {"year": [{"name": "wet", "probability": 0.5}, {"name": "dry", "probability": 0.5,
+                                                                          "juvenile_survival": 0.5}]}
+    with pytest.raises(ConfigError, match="environment: the effort analysis is of a constant environment"):
+        effort_model(parse_config(raw))
+
+
+def test_a_trait_run_the_theory_does_not_cover_still_plots_and_reports(tmp_path, capsys):
+    # the runs are drawn without singular efforts; the report says why there is no prediction;
+    # compare, whose job is the theory, refuses with that reason (status 2)
+    raw = trait_raw(steps=100, replicates=2)
+    raw["allele"][0]["orphan_survival"] = 0.3
+    out = tmp_path / "care.h5"
+    run_experiment(parse_config(raw), out, progress=False)
+    assert main(["plot", str(out), "-o", str(tmp_path / "fig")]) == 0
+    assert (tmp_path / "fig" / "trait.png").is_file()
+    assert main(["report", str(out), "-o", str(tmp_path / "r.html")]) == 0
+    page = (tmp_path / "r.html").read_text()
+    assert "No adaptive-dynamics prediction" in page and "orphan_survival" in page and "No verdict" in page
+    capsys.readouterr()
+    assert main(["compare", str(out)]) == 2
+    assert "does not include parental care" in capsys.readouterr().err
+
+
 @pytest.mark.parametrize("shape, placement, max_fecundity, expected", [
     # concave, regulated recruitment: maximise B / (1 - P) (Mylius & Diekmann 1995):
     # d/dE [sqrt(E) / (1 - p + p E)] = 0 gives E* = (1 - p) / p (derived)
