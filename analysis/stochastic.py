@@ -3,13 +3,16 @@
 Years follow one another by the law of a ``sim.years.YearTypes``; a year
 multiplies every allele's rates (``sim.years.scaled_schedule``) before the
 density factors apply, and the year's projection matrix is then
-``sim.meanfield.projection_matrix`` of the scaled schedule. Since that matrix
-is linear in each factor, it is split once per year type into its fertility
-part F (first row) and survival part T::
+``sim.meanfield.projection_matrix`` of the scaled schedule. Without parental
+effects that matrix is linear in each factor, so it is split once per year
+type into its fertility part F (first row) and survival part T::
 
     A(year, f) = F_year f_fec f_rec + T_year f_adult
 
 so many seasons and batches are advanced at once without restating the model.
+With parental care or a brood effect the fertility row is not linear in the
+factors; it is the year's season kernel's expected recruits per parent at
+each season's factors (``_YearProjections``).
 
 Every estimate here is a time average over seasons drawn in ``n_batches``
 independent batches (``YearSequences``): each batch lives through its own
