@@ -16,7 +16,7 @@ from sim.meanfield import Equilibrium, solve_equilibrium
 
 from .demography import Demography, schedule_demography
 
-__all__ = ["ResidentEnvironment", "resident_environment", "invasion_pair", "check_theory_covers"]
+__all__ = ["ResidentEnvironment", "resident_environment", "invasion_pair"]
 
 
 @dataclass(frozen=True)
@@ -69,31 +69,6 @@ def invasion_pair(config: Config) -> tuple[int, int]:
     )
 
 
-def check_theory_covers(config: Config) -> None:
-    """Refuse a config the invasion theory reads wrongly, naming the keys and the reason.
-
-    The theory takes a ceiling's cull as a survival factor phi (``solve_equilibrium``). On
-    all-survival that factor would also count as the parent's death in the season, which with
-    parental care orphans its young; in the model the cull comes after the young's fate is
-    set (``SeasonKernel.ceiling_excess``). Not derived yet: refused. (A ceiling on recruitment
-    alone leaves the parents, and is read correctly.)
-
-    Raises
-    ------
-    ConfigError
-    """
-    density = config.density
-    if density.form != "ceiling" or density.placement != "all-survival":
-        return
-    cared = [a.name for a in config.alleles if a.orphan_survival is not None]
-    if cared:
-        raise ConfigError(
-            f"density.acts_on = 'all-survival' with form = 'ceiling' and orphan_survival (allele "
-            f"{cared[0]!r}): the theory has no derivation yet of a ceiling that culls parents after "
-            "their young's care is set; use acts_on = 'recruitment' for the ceiling (the simulation "
-            "itself runs either way)")
-
-
 def resident_environment(config: Config) -> ResidentEnvironment:
     """The resident's equilibrium and the factors it sets, for one (sweep point) config.
 
@@ -111,7 +86,6 @@ def resident_environment(config: Config) -> ResidentEnvironment:
     the resident grows at its own rate.
     """
     r, _ = invasion_pair(config)
-    check_theory_covers(config)
     schedule = config.schedules()[r]
     density, law = config.density_dependence(), config.offspring_distribution()
     if isinstance(density.form, NoDensity):

@@ -52,15 +52,19 @@ class StochasticEstablishment:
         return _plain(asdict(self))
 
 
-def _quenched_extinction(mutant, years, seq, f_fec, f_adult, f_rec, offspring, start, stop):
-    """P(lineage of one mutant of each age, born at season ``start``, is gone by ``stop`` | years)."""
+def _quenched_extinction(mutant, years, seq, factors, offspring, start, stop):
+    """P(lineage of one mutant of each age, born at season ``start``, is gone by ``stop`` | years).
+
+    ``factors``: each season's density factors (arrays of the shape of ``seq``; a ``Cull`` for a
+    ceiling's removal)."""
+    kind, (f_fec, f_adult, f_rec) = type(factors), factors
     kernels = [SeasonKernel.for_schedule(scaled_schedule(mutant, y), offspring=offspring) for y in years.types]
     q = np.zeros((seq.shape[0], mutant.n_ages))
     for t in range(stop - 1, start - 1, -1):
         y = seq[:, t]
         for k in np.unique(y):
             at = y == k
-            q[at] = kernels[k].offspring_pgf(q[at], Factors(f_fec[at, t], f_adult[at, t], f_rec[at, t]))
+            q[at] = kernels[k].offspring_pgf(q[at], kind(f_fec[at, t], f_adult[at, t], f_rec[at, t]))
     return q
 
 
@@ -105,12 +109,12 @@ def establishment_in_years(
     sequences = sequences.for_years(years)
     seq = sequences.indices
     if regulated(density):
-        f_fec, f_adult, f_rec = resident_path(resident, years, density, sequences, offspring=offspring).factors
+        factors = resident_path(resident, years, density, sequences, offspring=offspring).factors
     else:
-        f_fec = f_adult = f_rec = np.ones(seq.shape)
+        factors = Factors(*(np.ones(seq.shape),) * 3)
     start, stop = sequences.burn_in, seq.shape[1]
     half = start + (stop - start) // 2
-    args = (mutant, years, seq, f_fec, f_adult, f_rec, offspring)
+    args = (mutant, years, seq, factors, offspring)
     q = _quenched_extinction(*args, start, stop)
     q_half = _quenched_extinction(*args, start, half)
     col = min(age, mutant.n_ages) - 1

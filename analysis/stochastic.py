@@ -170,16 +170,17 @@ class _YearProjections:
     def n_ages(self) -> int:
         return self.fert.shape[1]
 
-    def matrices(self, y: np.ndarray, f_fec=1.0, f_adult=1.0, f_rec=1.0) -> np.ndarray:
+    def matrices(self, y: np.ndarray, f_fec=1.0, f_adult=1.0, f_rec=1.0, *, kind=Factors) -> np.ndarray:
         """A(year, f) for each entry of the year-type indices ``y`` (shape (n_b,)) at its factors
-        (numbers, or arrays of shape (n_b,)), shape (n_b, n, n)."""
+        (numbers, or arrays of shape (n_b,)), shape (n_b, n, n); ``kind`` ``Cull`` where the
+        factors are a ceiling's removal (``sim.density.Cull``)."""
         f_fec, f_adult, f_rec = (np.broadcast_to(np.asarray(f, dtype=float), y.shape) for f in (f_fec, f_adult, f_rec))
         if self.kernels is None:
             return self.fert[y] * (f_fec * f_rec)[:, None, None] + self.surv[y] * f_adult[:, None, None]
         a = self.surv[y] * f_adult[:, None, None]
         for k in np.unique(y):
             at = y == k
-            a[at, 0, :] += self.kernels[k].recruits_per_parent(Factors(f_fec[at], f_adult[at], f_rec[at]))
+            a[at, 0, :] += self.kernels[k].recruits_per_parent(kind(f_fec[at], f_adult[at], f_rec[at]))
         return a
 
 
@@ -196,7 +197,8 @@ def _projections(schedule: Schedule, years: YearTypes, offspring=None) -> _YearP
 def year_matrices(schedule: Schedule, years: YearTypes, factors: Factors = Factors(), *,
                   offspring=None) -> np.ndarray:
     """Projection matrix of each year type at fixed density factors, shape (n_types, n, n)."""
-    return _projections(schedule, years, offspring).matrices(np.arange(len(years.types)), *factors)
+    return _projections(schedule, years, offspring).matrices(np.arange(len(years.types)), *factors,
+                                                             kind=type(factors))
 
 
 def _log_increments(proj: _YearProjections, seq, factors: Factors | None = None, weights=None) -> np.ndarray:
@@ -215,7 +217,8 @@ def _log_increments(proj: _YearProjections, seq, factors: Factors | None = None,
     with np.errstate(divide="ignore", invalid="ignore"):
         for t in range(n_t):
             y = seq[:, t]
-            a = proj.matrices(y) if factors is None else proj.matrices(y, *(f[:, t] for f in factors))
+            a = proj.matrices(y) if factors is None else proj.matrices(y, *(f[:, t] for f in factors),
+                                                                          kind=type(factors))
             x = np.einsum("bij,bj->bi", a, x)
             size = x @ w
             out[:, t] = np.log(size)
@@ -352,7 +355,7 @@ def stochastic_growth_rate(
     proj = _projections(schedule, years, offspring)
     linear, values = (_linear_term(schedule, years, factors, offspring) if years.switching == "iid"
                       else (None, None))
-    fixed = Factors(*(np.full(sequences.indices.shape, float(f)) for f in factors))
+    fixed = type(factors)(*(np.full(sequences.indices.shape, float(f)) for f in factors))
     inc = _log_increments(proj, sequences.indices, fixed, weights=values)[:, sequences.burn_in :]
     if linear is not None and np.all(np.isfinite(inc)):
         inc = inc - linear[sequences.recorded]
@@ -475,8 +478,8 @@ def _ceiling_path(resident, years, density, sequences, start, offspring=None) ->
             x = kept
     if not np.all(size[:, -1] > 1e-200):
         raise NoEquilibriumError(f"resident {resident.name!r}: dies out in the variable environment")
-    fec, adult, rec = density.placed(phi)
-    return ResidentPath(Factors(*(np.broadcast_to(v, phi.shape) for v in (fec, adult, rec))), size)
+    culled = density.placed(phi)  # a Cull: the removal comes after the season
+    return ResidentPath(type(culled)(*(np.broadcast_to(v, phi.shape) for v in culled)), size)
 
 
 @dataclass(frozen=True)
@@ -837,7 +840,7 @@ def neutral_share_in_years(
         factors = Factors(*(np.ones(seq.shape),) * 3)
     v = np.ones((seq.shape[0], n))
     for t in range(seq.shape[1] - 1, -1, -1):
-        a = proj.matrices(seq[:, t], *(f[:, t] for f in factors))
+        a = proj.matrices(seq[:, t], *(f[:, t] for f in factors), kind=type(factors))
         v = np.einsum("bi,bij->bj", v, a)
         v /= v.sum(axis=1, keepdims=True)
     share = mutant_count * v[:, 0] / (v @ start)

@@ -25,7 +25,7 @@ from sim.lifecycle import initial_census
 from sim.meanfield import NoEquilibriumError
 from sim.year_draws import year_sequence
 
-from .environment import check_theory_covers, invasion_pair
+from .environment import invasion_pair
 from .random_branching import establishment_in_years
 from .stochastic import (
     InvasionSetting,
@@ -96,9 +96,7 @@ def neutral_in_years(config: Config, *, point: int | None = None) -> NeutralShar
 
 
 def invasion_setting(config: Config) -> InvasionSetting:
-    """The resident, mutant, year types, density and offspring law the stochastic theory reads
-    (refused where it would read them wrongly: ``analysis.environment.check_theory_covers``)."""
-    check_theory_covers(config)
+    """The resident, mutant, year types, density and offspring law the stochastic theory reads."""
     r, m = invasion_pair(config)
     schedules = config.schedules()
     density = config.density_dependence()

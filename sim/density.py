@@ -30,6 +30,7 @@ from .vocabulary import COUNTED, PLACEMENTS
 
 __all__ = [
     "Factors",
+    "Cull",
     "NoDensity",
     "BevertonHolt",
     "Ricker",
@@ -47,6 +48,18 @@ class Factors(NamedTuple):
     fecundity: float = 1.0
     adult: float = 1.0
     recruitment: float = 1.0
+
+
+class Cull(Factors):
+    """A ceiling's removal stated as factors: after the season, each individual at the placement
+    is kept with this probability (``DensityDependence.placed`` of a ceiling).
+
+    It acts like survival factors, except that it comes after the young's fate is set: under
+    parental care a parent culled at the ceiling has already raised its young
+    (``SeasonKernel.recruits_per_parent`` and ``offspring_pgf`` read it so).
+    """
+
+    __slots__ = ()
 
 
 @dataclass(frozen=True)
@@ -145,9 +158,11 @@ class DensityDependence:
         return M.astype(float)
 
     def placed(self, f: float) -> Factors:
-        """Place a factor f on the vital rates this density dependence acts on."""
+        """Place a factor f on the vital rates this density dependence acts on (a ``Cull`` for a
+        ceiling: its removal fraction)."""
         fecundity, adult, recruitment = _PLACED[self.acts_on]
-        return Factors(f if fecundity else 1.0, f if adult else 1.0, f if recruitment else 1.0)
+        kind = Cull if self.ceiling is not None else Factors
+        return kind(f if fecundity else 1.0, f if adult else 1.0, f if recruitment else 1.0)
 
     def factors(self, d) -> Factors:
         """The season's factors at density index ``d``, a number or an array (all 1 for a ceiling).

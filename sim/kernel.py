@@ -36,7 +36,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .care import ParentalCare
-from .density import DensityDependence, Factors, NoDensity
+from .density import Cull, DensityDependence, Factors, NoDensity
 from .mutation import Mutation
 from .offspring import Poisson
 
@@ -300,9 +300,17 @@ class SeasonKernel:
         if not self.parental:
             return rates.breeding * rates.recruitment
         young = self.offspring.pgf_derivative(self.decay, rates.breeding)
-        sigma = rates.survival
+        sigma = self._season_survival(factors, rates)
         care = sigma * self.juvenile + (1.0 - sigma) * self.orphan
         return young * care * np.asarray(factors.recruitment, dtype=float)[..., None]
+
+    def _season_survival(self, factors: Factors, rates: SeasonRates) -> np.ndarray:
+        """sigma, each class's chance to live through the season, which decides its young's care:
+        s f_adult, or s where f_adult is a ceiling's cull (``sim.density.Cull``), which comes
+        after the young's fate is set."""
+        if isinstance(factors, Cull):
+            return np.broadcast_to(self.survival, rates.survival.shape)
+        return rates.survival
 
     def rates(self, factors: Factors) -> SeasonRates:
         """Every class's vital rates at these factors (numbers, or one row per replicate)."""
@@ -455,6 +463,12 @@ class SeasonKernel:
         above. Its Jacobian at s = 1: dG_a/ds_next = sigma and dG_a/ds_1 =
         E[B x^(B - 1)] (sigma q_care + (1 - sigma) q_orphan), the projection
         matrix's entries (``recruits_per_parent``).
+
+        A ceiling's cull (``sim.density.Cull``, kept with probability k after
+        the season) comes after the young's fate: the parent lives through the
+        season with probability s(a) and is then kept with k, so
+        G_a(s) = s(a) (1 - k + k s_next(a)) H_care(s_1) + (1 - s(a)) H_orphan(s_1),
+        which is G_free(1 - k + k s) (thinning after the season).
         """
         s = np.asarray(s, dtype=float)
         rates = self.rates(factors)
@@ -467,6 +481,10 @@ class SeasonKernel:
             mean, decay = rates.breeding[..., ages], self.decay[ages]
             cared = self._brood_pgf(s1, p, mean, decay)
             orphaned = self._brood_pgf(s1, orphan, mean, decay)
+            if isinstance(factors, Cull):  # lives through the season (s), then is kept (the cull)
+                season = self._season_survival(factors, rates)[..., ages]
+                kept = np.asarray(factors.adult, dtype=float)[..., None]
+                return season * (1.0 - kept + kept * s[..., nxt]) * cared + (1.0 - season) * orphaned
             return sigma * s[..., nxt] * cared + (1.0 - sigma) * orphaned
         births = self.offspring.pgf(1.0 - p + p * s1, rates.breeding[..., ages])
         return (1.0 - sigma + sigma * s[..., nxt]) * births

@@ -300,6 +300,7 @@ def test_an_orphan_survival_a_year_pushes_above_1_is_refused():
     ({"distribution": "fixed"}, "ricker", "adult-survival"),
     ({"distribution": "poisson"}, "beverton-holt", "all-survival"),
     pytest.param({"distribution": "poisson"}, "ceiling", "recruitment", marks=pytest.mark.slow),
+    pytest.param({"distribution": "poisson"}, "ceiling", "all-survival", marks=pytest.mark.slow),
 ])
 def test_random_years_that_are_all_alike_give_the_constant_theory_with_care(law, form, acts_on):
     # Years that do not differ make every season's matrix and generating function the
@@ -463,18 +464,30 @@ def test_a_ceiling_on_recruits_with_care_closed_form():
         r_mut * (1 - 0.5) / r_res, rel=1e-9)
 
 
-def test_a_ceiling_culling_parents_with_care_is_refused_by_the_theory(tmp_path, capsys):
-    # the theory takes the cull as a survival factor, which care would read as orphaning (the
-    # model culls after the young's fate is set): it says so rather than answer wrongly
-    from sim.cli import main
+def test_a_ceiling_culling_parents_with_care_closed_form():
+    # A ceiling on all-survival culls survivors and recruits alike after the season, when the
+    # young's care is already set by their parent's fate in the season (SeasonKernel.
+    # ceiling_excess comes after the recruits): the resident at K keeps phi (P + R) = 1, and the
+    # mutant grows by phi R_m, with R as above (derived from the model). Reading the cull as
+    # survival would orphan the culled parents' young: 1.268 instead of 1.233.
+    x = np.exp(-1 / 6)
+    r_res = 3 * np.exp(-3 * (1 - x)) * (0.5 * 0.5 + 0.5 * 0.2)
+    r_mut = 6 * np.exp(-6 * (1 - x)) * 0.6
+    got = predict(parse_config(_ceiling_care_raw("all-survival"))).invasion_fitness
+    assert got == pytest.approx(r_mut / (0.5 + r_res), rel=1e-9)
 
-    raw = _ceiling_care_raw("all-survival")
-    with pytest.raises(ConfigError, match="no derivation yet of a ceiling that culls parents"):
-        predict(parse_config(raw))
-    path = tmp_path / "c.toml"
-    text = open("configs/duskmote-care.toml").read().replace('form = "beverton-holt"', 'form = "ceiling"')
-    path.write_text(text.replace('acts_on = "recruitment"', 'acts_on = "all-survival"'))
-    assert main(["threshold", str(path)]) == 2
-    err = capsys.readouterr().err
-    assert "density.acts_on = 'all-survival' with form = 'ceiling' and orphan_survival" in err
-    assert main(["check", str(path)]) == 0  # the simulation itself runs
+
+@pytest.mark.parametrize("law", [Poisson(), NegativeBinomial(2.0)], ids=["poisson", "negative-binomial"])
+def test_a_cull_is_thinning_after_the_season(law):
+    # A removal after the season keeps each individual with probability k, independently, so the
+    # numbers it leaves have pgf G_free(1 - k + k s) (thinning composes; common practice), with
+    # care and broods whatever the parent's fate in the season was.
+    from sim.density import Cull
+
+    schedule = replace(iteroparous("tending", 2.5, 0.6, 0.5), orphan_survival=0.1, brood_scale=3.0)
+    kernel = SeasonKernel.for_schedule(schedule, offspring=law)
+    s = np.random.default_rng(7).random((6, 1))
+    for k in (0.3, 0.8):
+        got = kernel.offspring_pgf(s, Cull(1.0, k, k))
+        want = kernel.offspring_pgf(1.0 - k + k * s, Factors())
+        np.testing.assert_allclose(got, want, rtol=1e-12)
