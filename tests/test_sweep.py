@@ -86,6 +86,18 @@ def test_bad_sweeps_are_refused_with_the_path(sweep, message):
         _config(sweep)
 
 
+def test_a_problem_of_every_point_is_said_once():
+    # a year type pushes the unswept juvenile survival above 1 at every point: one message for
+    # it, not one per point (a point's own problem keeps its point and value: the test above)
+    raw = tomllib.loads(open("configs/fenmarrow-hopper.toml").read())
+    raw["environment"]["year"][0]["juvenile_survival"] = 2.5
+    with pytest.raises(ConfigError) as err:
+        sweep_points(parse_config(raw))
+    wet = "environment.year.wet: allele '{}', year 'wet': juvenile_survival x multiplier = 1.125 > 1"
+    assert [p.split("; a survival")[0] for p in err.value.problems] == [
+        "every sweep point: " + wet.format("perennial"), "every sweep point: " + wet.format("one-shot")]
+
+
 def test_check_prints_points_and_total_work(tmp_path, capsys):
     path = tmp_path / "sweep.toml"
     path.write_text(small_text(replicates=30))

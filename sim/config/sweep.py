@@ -14,6 +14,7 @@ from __future__ import annotations
 import copy
 import itertools
 import math
+from collections import Counter
 from dataclasses import dataclass
 from typing import Any
 
@@ -173,8 +174,9 @@ def sweep_points(config: Config) -> list[SweepPoint]:
     factors = sweep_factors(config)
     if not factors:
         return [SweepPoint(index=0, values={}, config=Config.model_validate(base))]
-    points, problems = [], []
-    for i, combo in enumerate(itertools.product(*(range(f.levels) for f in factors))):
+    points, problems = [], []  # problems: (point, where, message)
+    combos = list(itertools.product(*(range(f.levels) for f in factors)))
+    for i, combo in enumerate(combos):
         raw = copy.deepcopy(base)
         values = {p: v for factor, k in zip(factors, combo) for p, v in factor.level(k).items()}
         for path, value in values.items():
@@ -183,9 +185,13 @@ def sweep_points(config: Config) -> list[SweepPoint]:
             points.append(SweepPoint(index=i, values=values, config=Config.model_validate(raw)))
         except ValidationError as err:
             where = ", ".join(f"{p} = {v!r}" for p, v in values.items())
-            problems += [f"sweep point {i} ({where}): {m}" for m in messages(err)]
+            problems += [(i, where, m) for m in messages(err)]
     if problems:
-        raise ConfigError(problems)
+        # a problem of every point is the unswept keys': said once, not once a point
+        counts = Counter(m for _, _, m in problems)
+        everywhere = {m for m, n in counts.items() if n == len(combos) > 1}
+        raise ConfigError([f"every sweep point: {m}" for m in counts if m in everywhere]
+                          + [f"sweep point {i} ({where}): {m}" for i, where, m in problems if m not in everywhere])
     return points
 
 
