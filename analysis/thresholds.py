@@ -268,16 +268,19 @@ def threshold(
     def excess(v):
         return _at(base, setting, v) - 1.0
 
+    scanned = []  # every grid's values: a widened grid is coarser, and may step over a peak
     while True:
         grid = np.linspace(lo, hi, _GRID + 1)
         ex = np.array([excess(v) for v in grid])
+        scanned.append(ex)
         crossings = _crossings(ex)
         if crossings or not open_ended or hi >= _MAX_UPPER:
             break
         hi = min(hi * 4.0, _MAX_UPPER)
     ends = (float(ex[0] + 1.0), float(ex[-1] + 1.0))
     if not crossings:
-        f = ex[np.isfinite(ex)] + 1.0
+        every = np.concatenate(scanned)
+        f = every[np.isfinite(every)] + 1.0
         signed = np.abs(f - 1.0) > _ROUNDING
         if f.size == 0:
             why = "the resident has no equilibrium anywhere in the range"

@@ -491,3 +491,20 @@ def test_a_cull_is_thinning_after_the_season(law):
         got = kernel.offspring_pgf(s, Cull(1.0, k, k))
         want = kernel.offspring_pgf(1.0 - k + k * s, Factors())
         np.testing.assert_allclose(got, want, rtol=1e-12)
+
+
+def test_no_fecundity_threshold_under_a_brood_effect_reports_the_peak():
+    # With a Poisson brood effect the young per parent B e^(-B (1 - x)) peak at B = 1 / (1 - x)
+    # (Lack 1947; derived above), so the one-brood mutant of configs/duskmote-care.toml (orphan
+    # survival 0.3) stays below invasion fitness 1 at every B. The search widens its bracket to
+    # 1e6, whose coarse grid steps over the peak: the reason must still give the largest value
+    # seen (at least the configured B's 0.54), not "from 0 to 0".
+    import re
+
+    from sim.config import load_config, sweep_points
+
+    config = sweep_points(load_config("configs/duskmote-care.toml"))[0].config
+    found = threshold(config, "allele.one-brood.fecundity")
+    assert not found.converged
+    top = float(re.search(r"stays below 1 \(from \S+ to (\S+)\)", found.message)[1])
+    assert predict(config).invasion_fitness <= top < 1
