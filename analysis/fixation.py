@@ -79,7 +79,7 @@ def next_season_covariance(schedule: Schedule, factors: Factors, offspring) -> n
     points = np.ones((len(pairs), 4, n))
     for k, (i, j) in enumerate(pairs):
         if i == j:
-            points[k] += [unit[i], -unit[i], 0 * unit[i], 0 * unit[i]]
+            points[k] += [unit[i], -unit[i], np.zeros(n), np.zeros(n)]
         else:
             points[k] += [unit[i] + unit[j], unit[i] - unit[j], unit[j] - unit[i], -unit[i] - unit[j]]
     g = kernel.offspring_pgf(points.reshape(-1, n), factors).reshape(len(pairs), 4, n)

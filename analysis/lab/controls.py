@@ -110,9 +110,9 @@ def _allele(raw: dict, who: str) -> dict:
     return next(a for a in raw["allele"] if a.get("name") == name)
 
 
-def _place(raw: dict, key: str) -> tuple[dict | list, str | int]:
+def _place(raw: dict, key: str, *, create: bool = False) -> tuple[dict | list, str | int]:
     """The table (or list) that holds a control's value in ``raw``, and its name (or index) there
-    (an absent section is an empty table, not added to ``raw``)."""
+    (an absent section: an empty table, added to ``raw`` only with ``create``)."""
     parts = key.split(".")
     if parts[0] in ("resident", "mutant"):
         return _allele(raw, parts[0]), parts[1]
@@ -124,7 +124,7 @@ def _place(raw: dict, key: str) -> tuple[dict | list, str | int]:
             return environment["transitions"], names.index(".".join(parts[2:]))
         name = ".".join(parts[2:-1])
         return environment["year"][names.index(name)], parts[-1]
-    return raw.get(parts[0], {}), parts[1]
+    return (raw.setdefault(parts[0], {}) if create else raw.get(parts[0], {})), parts[1]
 
 
 def typed(text):
@@ -156,9 +156,7 @@ def set_control(raw: dict, key: str, value) -> dict:
     if key not in _keys(raw):
         raise KeyError(f"the lab has no control {key!r}")
     raw = copy.deepcopy(raw)
-    if key.split(".")[0] not in ("resident", "mutant", "environment"):
-        raw.setdefault(key.split(".")[0], {})
-    table, name = _place(raw, key)
+    table, name = _place(raw, key, create=True)
     value = typed(value)
     if isinstance(table, list):  # a row of transitions: always a list, one value or many
         table[name] = value if isinstance(value, list) else [value]
