@@ -179,6 +179,16 @@ def _placement_derivative(schedule: Schedule, density, factor: float, offspring)
     return projection_matrix(schedule, density.placed(1.0)) - projection_matrix(schedule, density.placed(0.0))
 
 
+def _scales_with_factor(schedule: Schedule, derivative: np.ndarray, factors: Factors, factor: float,
+                        offspring) -> bool:
+    """True where A(f) = f A(1): f multiplies every rate of the schedule (all survival without
+    parental care; a ceiling's cull after the season, with or without it)."""
+    from sim.meanfield import projection_matrix
+
+    matrix = projection_matrix(schedule, factors, offspring=offspring)
+    return bool(np.allclose(factor * derivative, matrix, rtol=1e-5, atol=1e-9))
+
+
 @dataclass(frozen=True)
 class DensityFluctuation:
     """The mean shift of the density factor in a finite population, and the selection it adds.
@@ -230,9 +240,6 @@ def density_fluctuation(
     r, m = invasion_pair(config)
     schedules = config.schedules()
     res, mut = schedules[r], schedules[m]
-    parental = SeasonKernel.for_schedule(res).parental or SeasonKernel.for_schedule(mut).parental
-    if density.acts_on == "all-survival" and not parental:  # A(f) = f A(1) for both: the ratio does not move
-        return DensityFluctuation(0.0, 0.0, 0.0, float("nan"))
     offspring = config.offspring_distribution()
     n_star = env.equilibrium.census
     v = values[: res.n_ages]
@@ -240,6 +247,8 @@ def density_fluctuation(
     factor = next(f for f, placed in zip(env.factors, density.placed(0.0)) if placed == 0.0)
     d_res = _placement_derivative(res, density, factor, offspring)
     d_mut = _placement_derivative(mut, density, factor, offspring)
+    if all(_scales_with_factor(s, d, env.factors, factor, offspring) for s, d in ((res, d_res), (mut, d_mut))):
+        return DensityFluctuation(0.0, 0.0, 0.0, float("nan"))  # A(f) = f A(1) for both: the ratio does not move
     u_r = env.demography.stable_age_distribution
     vm = np.concatenate([values, np.repeat(values[-1], max(mut.n_ages - values.size, 0))])[: mut.n_ages]
     kappa = float(vm @ d_mut @ mutant_ages) / float(vm @ mutant_ages) - float(v @ d_res @ u_r) / float(v @ u_r)
@@ -404,26 +413,30 @@ COLUMNS = [
 
 def _placement_note(config: Config, fluct: DensityFluctuation | None) -> str:
     density = config.density_dependence()
+    alike = fluct is not None and fluct.selection == 0.0
     if isinstance(density.form, Ceiling):
         where = "all-survival" if density.acts_on == "all-survival" else "recruits only"
         base = f"ceiling ({where}): the culling's sampling variance is in the demographic variances"
-        if density.acts_on == "all-survival":
+        if alike:
             return base + "; it scales both schedules alike"
         return base + "; fluctuations of the culled fraction act unequally on the schedules (not derived)"
-    if density.acts_on == "all-survival":
-        return "density factor on all survival scales both schedules alike"
+    if alike:
+        if density.acts_on == "all-survival":
+            return "density factor on all survival scales both schedules alike"
+        return f"density factor on {density.acts_on} acts on both schedules alike"
     if fluct is None:
         return (
             f"density factor on {density.acts_on} counted as {density.counted}: its fluctuations "
             f"act unequally on the two schedules, a term not derived here (see {_DOC})"
         )
-    if fluct.selection == 0.0:
-        return f"density factor on {density.acts_on} acts on both schedules alike"
     note = (
         f"density factor on {density.acts_on}: its finite-N mean exceeds the mean-field value "
         f"by {fluct.factor_shift:.3g}, a selection term of about {fluct.selection:.3g} per season "
         f"that acts unequally on the schedules and is not in the diffusion (see {_DOC})"
     )
+    if density.acts_on == "all-survival":  # only parental care makes all survival act unequally
+        note += ("; with parental care a parent's survival sets its young's, so a factor on all "
+                 "survival does not scale the schedules alike")
     if density.acts_on == "recruitment":
         note += f"; {_RECRUITMENT_FINDING}"
     return note

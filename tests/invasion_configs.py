@@ -30,8 +30,12 @@ def invasion_config(
     sweep=None,
     mutant=None,
     maturity_age=1,
+    resident_extra=None,
 ):
-    """A validated Config: resident 'perennial' (iteroparous) and mutant 'one-shot'."""
+    """A validated Config: resident 'perennial' (iteroparous) and mutant 'one-shot'.
+
+    ``resident_extra`` adds keys to the resident's allele (e.g. its ``orphan_survival``).
+    """
     density = {"form": form}
     if form != "none":
         density |= {"acts_on": acts_on, "counted": counted, "capacity": capacity}
@@ -64,7 +68,7 @@ def invasion_config(
                 "adult_survival": adult_survival,
                 "juvenile_survival": juvenile_survival,
                 "maturity_age": maturity_age,
-            },
+            } | (resident_extra or {}),
             mutant,
         ],
         "invasion": {

@@ -292,3 +292,34 @@ def test_a_sterile_mutant_has_no_diffusion_value_and_says_why(sterile):
     cols = finite_population_columns(config)  # what `broodline threshold` prints
     assert cols["fixation_probability_valid"] is False
     assert cols["fixation_probability_note"] == f.fixation_probability_note
+
+
+@pytest.mark.parametrize("mutant_fecundity", [3.98, 4.0, 4.04])
+def test_a_ceiling_on_everyone_scales_caring_schedules_alike(mutant_fecundity):
+    # The model culls after the season (sim.density.Cull), so a caring parent's young keep their care
+    # and A(f) = f A(1) for both schedules, with care as without: no density selection term, and the
+    # diffusion stays valid off the threshold (tests/test_fixation_simulations.py checks it there
+    # against simulated fixation)
+    care = {"resident_extra": {"orphan_survival": 0.2},
+            "mutant": {"name": "one-shot", "breeding": "semelparous", "fecundity": mutant_fecundity,
+                       "juvenile_survival": 0.5, "orphan_survival": 0.3}}
+    f = finite_population_prediction(invasion_config(form="ceiling", acts_on="all-survival",
+                                                     capacity=100, mutant_count=15, **care))
+    assert f.valid, f.fixation_probability_note
+    assert f.density_selection == 0.0
+    assert "it scales both schedules alike" in f.fixation_probability_note
+
+
+def test_with_care_a_factor_on_all_survival_is_flagged_for_the_reason_it_has():
+    # With care the fertility row holds sigma = P f (the parent's survival sets its young's), so a
+    # Beverton-Holt factor on all survival is not a common multiplier: the note must say that it
+    # acts unequally, not that it scales both schedules alike
+    care = {"resident_extra": {"orphan_survival": 0.2},
+            "mutant": {"name": "one-shot", "breeding": "semelparous", "fecundity": 3.86,
+                       "juvenile_survival": 0.5, "orphan_survival": 0.3}}
+    f = finite_population_prediction(invasion_config(form="beverton-holt", acts_on="all-survival",
+                                                     capacity=100, mutant_count=15, **care))
+    assert not f.valid
+    assert "scales both schedules alike" not in f.fixation_probability_note
+    assert "does not scale the schedules alike" in f.fixation_probability_note
+    assert f.density_selection != 0.0
