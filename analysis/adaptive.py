@@ -11,22 +11,28 @@ growth rates lambda(y) / lambda(x), as in ``analysis.invasion``. From s:
 - singular efforts (D = 0) and the ends E = 0, E = 1, classified by
   the second derivatives of s (Geritz, Kisdi, Meszena & Metz 1998).
 
-Derivatives in the mutant's effort are exact: the projection matrix is
-linear in m(a) and s(a), so dA/dE is the projection matrix of the
-differentiated schedule, and the eigenvalue's first and second derivatives
-follow from perturbation theory (Caswell 2001, ch. 9). The derivative of
-D along the diagonal, which needs the resident's equilibrium to move, is a
-central difference of D.
+Derivatives in the mutant's effort: without parental effects the
+projection matrix is linear in m(a) and s(a), so dA/dE is the projection
+matrix of the differentiated schedule (exact). With parental care or a
+brood effect the kernel's fertility row is not (sigma = s f_adult weighs
+the cared and orphaned young; a brood effect bends it in m), so dA/dE comes
+by the chain rule from A's partial derivatives in the breeding class's m
+and s: exact in s (A is linear in it, each young's recruitment being
+sigma c_care + (1 - sigma) c_orphan), by differences in m. The eigenvalue's
+first and second derivatives follow from perturbation theory (Caswell 2001,
+ch. 9). The derivative of D along the diagonal, which needs the resident's
+equilibrium to move, is a central difference of D.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.optimize import brentq
 
 from sim.density import FORMS, DensityDependence, Factors, NoDensity
+from sim.kernel import SeasonKernel
 from sim.meanfield import NoEquilibriumError, growth_rate, projection_matrix, solve_equilibrium
 from sim.schedules import Schedule
 from sim.tradeoff import TradeOff, check_effort
@@ -49,6 +55,7 @@ __all__ = [
 
 DEGENERATE_TOLERANCE = 1e-9  # a second derivative or gradient slope below this is called 0
 DIAGONAL_STEP = 1e-5  # step of the central difference of D along the diagonal
+FECUNDITY_STEP = 1e-4  # relative step of the differences in m under a brood effect (error ~ step^2)
 
 
 @dataclass(frozen=True)
@@ -93,12 +100,18 @@ class MutantSlopes:
     curvature: float
 
 
-def _growth_rates(schedules, env: EffortEnvironment) -> np.ndarray:
+def _growth_rates(schedules, env: EffortEnvironment, offspring=None) -> np.ndarray:
     """Each schedule's dominant eigenvalue in ``env``, divided by ``env.scale`` (NaN if undefined)."""
     if env.factors is None or env.scale == 0:
         return np.full(len(schedules), np.nan)
-    mats = np.array([projection_matrix(s, env.factors) for s in schedules])
+    mats = np.array([projection_matrix(s, env.factors, offspring=offspring) for s in schedules])
     return np.linalg.eigvals(mats).real.max(axis=-1) / env.scale  # the Perron root has the largest real part
+
+
+def _times(matrix: np.ndarray, slope: float) -> np.ndarray:
+    """``matrix`` x ``slope``, 0 where the matrix is 0 (an infinite slope stays off the zeros)."""
+    with np.errstate(invalid="ignore"):
+        return np.where(matrix == 0.0, 0.0, matrix * slope)
 
 
 @dataclass(frozen=True)
@@ -110,17 +123,28 @@ class EffortModel:
     tradeoff : TradeOff
         B(E) and P(E).
     juvenile_survival : float
-        c, in [0, 1].
+        c, in [0, 1] (with parental care: c_care, while the parent lives).
     maturity_age : int, optional
         First breeding age (>= 1).
     density : DensityDependence, optional
         Form and placement (default: none).
+    orphan_survival : float, optional
+        c_orphan, the juvenile survival of young whose parent dies in their
+        season (default: ``juvenile_survival``, no care).
+    brood_scale : float, optional
+        h of the exponential brood effect (default: none).
+    offspring : offspring law, optional
+        ``sim.offspring`` distribution (default Poisson); it matters only
+        under a brood effect.
     """
 
     tradeoff: TradeOff
     juvenile_survival: float
     maturity_age: int = 1
     density: DensityDependence = field(default_factory=lambda: DensityDependence(NoDensity()))
+    orphan_survival: float | None = None
+    brood_scale: float | None = None
+    offspring: object = None
 
     def __post_init__(self):
         if not isinstance(self.tradeoff, TradeOff):
@@ -130,25 +154,80 @@ class EffortModel:
         self.schedule(0.5)  # validates juvenile_survival and maturity_age
 
     def schedule(self, effort: float) -> Schedule:
-        """The schedule of an allele with this effort (``TradeOff.schedule``)."""
-        return self.tradeoff.schedule(effort, self.juvenile_survival, maturity_age=self.maturity_age)
+        """The schedule of an allele with this effort (``TradeOff.schedule``, with its parental effects)."""
+        schedule = self.tradeoff.schedule(effort, self.juvenile_survival, maturity_age=self.maturity_age)
+        if self.orphan_survival is None and self.brood_scale is None:
+            return schedule
+        return replace(schedule, orphan_survival=self.orphan_survival, brood_scale=self.brood_scale)
 
-    def _derivative(self, effort: float, order: int) -> Schedule:
-        return self.tradeoff.schedule_derivative(
-            effort, self.juvenile_survival, maturity_age=self.maturity_age, order=order
-        )
+    @property
+    def parental(self) -> bool:
+        """True with parental care or a brood effect (the kernel's ``parental``)."""
+        return SeasonKernel.for_schedule(self.schedule(0.5), offspring=self.offspring).parental
+
+    def _matrix(self, schedule: Schedule, factors: Factors) -> np.ndarray:
+        return projection_matrix(schedule, factors, offspring=self.offspring)
+
+    def _effort_derivatives(self, effort: float, factors: Factors) -> tuple[np.ndarray, np.ndarray]:
+        """dA/dE and d2A/dE2 in ``factors``.
+
+        Without parental effects A is linear in m(a) and s(a): the projection
+        matrices of the differentiated schedules. With them, the chain rule
+        through the breeding class's m = B(E) and s = P(E)::
+
+            A' = A_m B' + A_s P'
+            A'' = A_mm B'^2 + 2 A_ms B' P' + A_m B'' + A_s P''
+
+        A_s = A(m, 1) - A(m, 0) (A is linear in s; A_ss = 0), and the
+        derivatives in m are central differences (forward ones near m = 0).
+        """
+        if not self.parental:
+            return tuple(self._matrix(self.tradeoff.schedule_derivative(
+                effort, self.juvenile_survival, maturity_age=self.maturity_age, order=n), factors)
+                for n in (1, 2))
+        base = self.schedule(effort)
+        m = float(base.fecundity[-1])
+
+        def at(fecundity: float, survival: float) -> np.ndarray:
+            fec, surv = base.fecundity.copy(), base.survival.copy()
+            fec[-1], surv[-1] = fecundity, survival
+            return self._matrix(replace(base, fecundity=fec, survival=surv), factors)
+
+        def by_survival(fecundity: float) -> np.ndarray:
+            return at(fecundity, 1.0) - at(fecundity, 0.0)
+
+        h = FECUNDITY_STEP * max(m, 1.0)
+        central = m >= h
+        steps = (-h, 0.0, h) if central else (0.0, h, 2 * h)
+
+        def by_fecundity(values):  # first and second differences; an entry m leaves alone gets exact zeros
+            low, mid, high = values
+            first = (high - low) / (2 * h) if central else (4 * (mid - low) - (high - low)) / (2 * h)
+            return first, ((high - mid) - (mid - low)) / h**2
+
+        a = [at(m + d, float(base.survival[-1])) for d in steps]
+        s_slopes = [by_survival(m + d) for d in steps]
+        (a_m, a_mm), (a_ms, _) = by_fecundity(a), by_fecundity(s_slopes)
+        a_s = s_slopes[1] if central else s_slopes[0]
+        b1, b2 = (float(self.tradeoff.fecundity_derivative(effort, n)) for n in (1, 2))
+        p1, p2 = (float(self.tradeoff.adult_survival_derivative(effort, n)) for n in (1, 2))
+        first = _times(a_m, b1) + _times(a_s, p1)
+        with np.errstate(invalid="ignore", over="ignore"):
+            second = (_times(a_mm, b1 * b1) + 2 * _times(a_ms, b1 * p1) + _times(a_m, b2) + _times(a_s, p2))
+        return first, second
 
     def environment(self, resident: float) -> EffortEnvironment:
         """The resident's equilibrium environment (see ``EffortEnvironment.status``)."""
         x = float(check_effort(resident, "resident effort"))
         schedule = self.schedule(x)
         if isinstance(self.density.form, NoDensity):
-            return EffortEnvironment(x, "density-free", Factors(), growth_rate(schedule))
+            return EffortEnvironment(x, "density-free", Factors(), growth_rate(schedule, offspring=self.offspring))
         try:
-            return EffortEnvironment(x, "equilibrium", solve_equilibrium(schedule, self.density).factors)
+            equilibrium = solve_equilibrium(schedule, self.density, offspring=self.offspring)
+            return EffortEnvironment(x, "equilibrium", equilibrium.factors)
         except NoEquilibriumError:
             empty = self.density.placed(1.0)  # every form gives f(0) = 1; a ceiling removes nobody
-            if growth_rate(schedule, empty) <= 1.0:
+            if growth_rate(schedule, empty, offspring=self.offspring) <= 1.0:
                 return EffortEnvironment(x, "extinct", empty)
             return EffortEnvironment(x, "unregulated", None)
 
@@ -159,7 +238,7 @@ class EffortModel:
         """
         y = check_effort(mutants, "mutant effort")
         env = environment or self.environment(resident)
-        return _growth_rates([self.schedule(e) for e in y.ravel()], env).reshape(y.shape)
+        return _growth_rates([self.schedule(e) for e in y.ravel()], env, self.offspring).reshape(y.shape)
 
     def slopes(self, resident: float, *, environment: EffortEnvironment | None = None) -> MutantSlopes:
         """s(x, x), ds/dy and d2s/dy2 at y = x (exact; infinite where B or P has an infinite slope).
@@ -178,9 +257,8 @@ class EffortModel:
         env = environment or self.environment(x)
         if env.factors is None or env.scale == 0:
             return MutantSlopes(x, np.nan, np.nan, np.nan)
-        a = projection_matrix(self.schedule(x), env.factors)
-        d1 = projection_matrix(self._derivative(x, 1), env.factors)
-        d2 = projection_matrix(self._derivative(x, 2), env.factors)
+        a = self._matrix(self.schedule(x), env.factors)
+        d1, d2 = self._effort_derivatives(x, env.factors)
         lam, w, v = dominant_eigen(a)
         vw = float(v @ w)
         with np.errstate(invalid="ignore", over="ignore"):
@@ -208,6 +286,8 @@ class EffortModel:
                 "survival_shape": self.tradeoff.survival_shape,
             },
             "juvenile_survival": float(self.juvenile_survival),
+            "orphan_survival": None if self.orphan_survival is None else float(self.orphan_survival),
+            "brood_scale": None if self.brood_scale is None else float(self.brood_scale),
             "maturity_age": int(self.maturity_age),
             "density": {
                 "form": next((k for k, v in FORMS.items() if isinstance(form, v)), type(form).__name__),
@@ -268,7 +348,7 @@ def pairwise_invasibility(model: EffortModel, *, grid=101) -> PairwiseInvasibili
     e = efforts_grid(grid)
     envs = [model.environment(x) for x in e]
     mutants = [model.schedule(y) for y in e]
-    fitness = np.array([_growth_rates(mutants, env) for env in envs])
+    fitness = np.array([_growth_rates(mutants, env, model.offspring) for env in envs])
     return PairwiseInvasibility(e, fitness, tuple(env.status for env in envs))
 
 

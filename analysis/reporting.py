@@ -602,13 +602,20 @@ def _trait_prediction_text(path, config) -> tuple[str, list]:
     from .trait import trait_analysis
 
     placement = config.density.placement if config.density.form != "none" else None
-    if placement in (None, "all-survival"):
+    effort = next(a for a in config.alleles if a.breeding == "effort")
+    cared, brood = effort.orphan_survival is not None, effort.brood_effect != "none"
+    young = "B(E)"
+    if brood:
+        young = "the expected survivors of a brood of mean B(E), E[b x^(b - 1)]"
+    if cared:
+        young += " (P(E) c_care + (1 - P(E)) c_orphan)"
+    if placement is None or (placement == "all-survival" and (config.density.form == "ceiling" or not cared)):
         maximised = ("the growth rate lambda (no density dependence, or density dependence on all "
-                     "survival)")
+                     "survival" + (" as a ceiling's cull after the season" if cared else "") + ")")
     elif placement in ("recruitment", "fecundity"):
-        maximised = ("R0, proportional to B(E) / (1 - P(E)) (density dependence on recruitment or "
+        maximised = (f"R0, proportional to {young} / (1 - P(E)) (density dependence on recruitment or "
                      "fecundity alone)")
-    else:
+    else:  # with care a factor on all survival weighs cared and orphaned young: not a common factor
         maximised = None
     configs = read_point_configs(path)
     points = read_points(path)

@@ -32,43 +32,32 @@ def effort_model(config: Config) -> EffortModel:
     ------
     ConfigError
         Where no allele has ``breeding = "effort"``, or where effort alleles
-        differ in ``juvenile_survival`` or ``maturity_age`` (the theory puts
-        every effort on one life cycle), naming the allele; and where the
-        config has what the effort theory does not include: parental care or
-        a brood effect on an effort allele, or year types.
+        differ in ``juvenile_survival``, ``maturity_age`` or their parental
+        effects (the theory puts every effort on one life cycle), naming the
+        allele; and where the config has year types, which the effort theory
+        does not include.
     """
     alleles = [a for a in config.alleles if a.breeding == "effort"]
     if not alleles:
         raise ConfigError("allele: no allele has breeding = 'effort' (the invasibility analysis "
                           "compares efforts on the [tradeoff] curve)")
-    # the adaptive-dynamics derivatives (analysis.adaptive) use a matrix linear in m(a) and s(a)
-    # in a constant environment: with care, a brood effect or random years it is not
-    problems = []
-    cared = [a for a in alleles if a.orphan_survival is not None or a.brood_effect != "none"]
-    if cared:  # a [trait]'s grid copies one template: one message, not one per grid value
-        keys = [k for k in ("orphan_survival", "brood_effect")
-                if any(getattr(a, k) not in (None, "none") for a in cared)]
-        if config.trait is not None:
-            where = f"allele {config.trait.allele!r} (the [trait] template of {len(cared)} effort alleles)"
-        else:
-            where = f"allele {cared[0].name!r}" + (f" (and {len(cared) - 1} more)" if len(cared) > 1 else "")
-        problems.append(f"{where}: {', '.join(keys)}: the effort analysis does "
-                        "not include parental care or brood size (it takes the matrix as linear in the "
-                        "effort's m and s, which they are only without them)")
     if config.environment is not None:
-        problems.append("environment: the effort analysis is of a constant environment; it has no "
-                        "theory for year types")
-    if problems:
-        raise ConfigError(problems)
+        raise ConfigError("environment: the effort analysis is of a constant environment; it has no "
+                          "theory for year types")
     first = alleles[0]
     for a in alleles[1:]:
-        for key in ("juvenile_survival", "maturity_age"):
-            if getattr(a, key) != getattr(first, key):
+        for key in ("juvenile_survival", "maturity_age", "orphan_survival", "brood_effect", "brood_scale"):
+            mine, theirs = (getattr(b, key) for b in (a, first))
+            if mine != theirs:
+                shown = "not set" if theirs is None else f"{key} = {theirs!r}"
                 raise ConfigError(
-                    f"allele {a.name!r}: {key} = {getattr(a, key)!r} differs from {first.name!r}'s "
-                    f"{getattr(first, key)!r}; the effort analysis needs one {key} for every effort allele")
-    return EffortModel(config.tradeoff.tradeoff(), first.juvenile_survival, first.maturity_age,
-                       config.density_dependence())
+                    f"allele {a.name!r}: {key} = {mine!r} differs from allele {first.name!r} ({shown}); "
+                    f"the effort analysis needs one {key} for every effort allele")
+    tradeoff = config.tradeoff.tradeoff()
+    schedule = first.schedule(tradeoff)  # its parental effects as the kernel reads them
+    return EffortModel(tradeoff, first.juvenile_survival, first.maturity_age, config.density_dependence(),
+                       orphan_survival=schedule.orphan_survival, brood_scale=schedule.brood_scale,
+                       offspring=config.offspring_distribution())
 
 
 def effort_grid(config: Config):

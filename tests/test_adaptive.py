@@ -341,3 +341,99 @@ def test_what_is_maximised_on_a_fine_grid(form, acts_on, maturity_age):
     got = pip.sign[persists]
     off = np.abs(score[None, :] - score[:, None])[persists] > 1e-9
     np.testing.assert_array_equal(got[off], expected[off])
+
+
+# --- parental care and brood size: the chain rule through the kernel's m and s --------------------
+# The model's rules (DESIGN.md): a young recruits with c_care if its parent survives the season,
+# c_orphan if not, so a one-class breeder with m = B(E) and s = P(E) grows by
+# lambda(E) = P + B (P c_care + (1 - P) c_orphan) a season (pre-breeding census); with the
+# exponential brood effect (each young of a brood of b survives x d^(b - 1), d = exp(-1/h)) and
+# Poisson broods, its expected young are E[b d^(b-1)] = B exp(B (d - 1)) (the Poisson pgf's derivative
+# at d) in place of B. Linear trade-off: B = a E, P = p (1 - E).
+LINEAR = TradeOff(max_fecundity=6.0, fecundity_shape=1.0, max_adult_survival=0.9, survival_shape=1.0)
+ORPHANS = 0.1
+
+
+def cared_growth(effort, *, a=6.0, p=0.9, c=C, orphans=ORPHANS, brood_scale=None):
+    """lambda(E) of the comment above (derived from the model's rules, not from the kernel)."""
+    m, s = a * effort, p * (1.0 - effort)
+    young = m if brood_scale is None else m * np.exp(m * (np.exp(-1.0 / brood_scale) - 1.0))
+    return s + young * (s * c + (1.0 - s) * orphans)
+
+
+@pytest.mark.parametrize("density, maturity_age", [
+    (NO_DENSITY, 1), (dd("beverton-holt", "all-survival"), 1), (dd("ricker", "recruitment"), 2),
+    (dd("beverton-holt", "adult-survival", "offspring"), 3)])
+def test_the_chain_rule_matches_the_exact_derivatives_where_care_changes_nothing(density, maturity_age):
+    # orphan_survival = juvenile_survival takes the parental path (the kernel's care) with the
+    # matrices of the model without care: the chain rule's slopes must equal the exact ones
+    plain = EffortModel(CONCAVE, C, maturity_age, density)
+    cared = EffortModel(CONCAVE, C, maturity_age, density, orphan_survival=C)
+    assert cared.parental and not plain.parental
+    for x in (0.05, 0.3, 0.6, 0.95):
+        a, b = plain.slopes(x), cared.slopes(x)
+        assert b.fitness == pytest.approx(a.fitness, rel=1e-12)
+        assert b.gradient == pytest.approx(a.gradient, rel=1e-9)
+        assert b.curvature == pytest.approx(a.curvature, rel=1e-6)
+    assert cared.slopes(0.0).gradient == plain.slopes(0.0).gradient == np.inf  # B'(0) infinite
+
+
+def test_care_makes_a_linear_tradeoff_stop_short_of_breeding_once():
+    # Without care lambda(E) is linear (Schaffer 1974: an end); with it lambda is quadratic,
+    # lambda'(E) = -p + a c_o + a p (c - c_o)(1 - 2E) = 0 at
+    # E* = 1/2 + (a c_o - p) / (2 a p (c - c_o)) = 0.430556, and lambda'' = -2 a p (c - c_o) < 0: density-free,
+    # fitness is lambda(y) / lambda(x), so E* is an evolutionarily stable attractor (derived)
+    model = EffortModel(LINEAR, C, orphan_survival=ORPHANS)
+    expected = 0.5 + (6.0 * ORPHANS - 0.9) / (2 * 6.0 * 0.9 * (C - ORPHANS))
+    result = analyse_effort(model, grid=41)
+    assert result.attractors == pytest.approx([expected], abs=1e-8)
+    star = next(s for s in result.singular if s.position == "interior")
+    assert star.kind == "evolutionarily stable attractor"
+    assert star.mutant_curvature == pytest.approx(-2 * 6.0 * 0.9 * (C - ORPHANS) / cared_growth(expected),
+                                                  rel=1e-6)
+    for x in (0.2, 0.7):
+        h = 1e-6
+        slope = (cared_growth(x + h) - cared_growth(x - h)) / (2 * h)  # the closed form's own derivative
+        assert model.gradient(x) == pytest.approx(slope / cared_growth(x), rel=1e-6)
+        assert model.invasion_fitness(x, 0.43) == pytest.approx(cared_growth(0.43) / cared_growth(x), rel=1e-12)
+
+
+def test_a_brood_effect_moves_the_optimum_as_its_closed_form_says():
+    # density-free with a brood effect: the attractor maximises lambda(E) of cared_growth with
+    # brood_scale h; its maximiser here is scipy's (bounded Brent), independent of the kernel
+    from scipy.optimize import minimize_scalar
+
+    h = 4.0
+    model = EffortModel(LINEAR, C, orphan_survival=ORPHANS, brood_scale=h)
+    best = minimize_scalar(lambda e: -cared_growth(e, brood_scale=h), bounds=(0.0, 1.0), method="bounded",
+                           options={"xatol": 1e-10}).x
+    result = analyse_effort(model, grid=41)
+    assert result.attractors == pytest.approx([best], abs=1e-6)
+    x, step = 0.2, 1e-5
+    slope = (cared_growth(x + step, brood_scale=h) - cared_growth(x - step, brood_scale=h)) / (2 * step)
+    assert model.gradient(x) == pytest.approx(slope / cared_growth(x, brood_scale=h), rel=1e-6)
+    s_yy, s_xx = finite_difference_curvatures(model, best)
+    star = next(s for s in result.singular if s.position == "interior")
+    assert star.mutant_curvature == pytest.approx(s_yy, rel=1e-4)
+    assert star.resident_curvature == pytest.approx(s_xx, rel=1e-4, abs=1e-6)
+
+
+@pytest.mark.parametrize("density, what", [
+    # a ceiling culls after the season, a common factor on every rate: lambda is maximised
+    (dd("ceiling", "all-survival"), "growth"),
+    # Beverton-Holt on recruitment or fecundity: the mutant invades where P + f* B g > 1, so
+    # evolution maximises B g / (1 - P) (Mylius & Diekmann 1995), g = P c + (1 - P) c_o: with
+    # B = a E, P = p (1 - E), g = a' - b E (a' = p (c - c_o) + c_o, b = p (c - c_o)) the maximiser solves
+    # b p E^2 + 2 b (1 - p) E - a' (1 - p) = 0 (derived)
+    (dd("beverton-holt", "recruitment"), "lifetime"),
+    (dd("beverton-holt", "fecundity"), "lifetime"),
+])
+def test_what_care_makes_density_regulation_maximise(density, what):
+    p, c, o = 0.9, C, ORPHANS
+    if what == "growth":
+        expected = 0.5 + (6.0 * o - p) / (2 * 6.0 * p * (c - o))
+    else:
+        b, a = p * (c - o), p * (c - o) + o
+        expected = (-(1 - p) + np.sqrt((1 - p) ** 2 + p * a * (1 - p) / b)) / p
+    result = analyse_effort(EffortModel(LINEAR, C, 1, density, orphan_survival=ORPHANS), grid=41)
+    assert result.attractors == pytest.approx([expected], abs=1e-7)
