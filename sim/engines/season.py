@@ -34,6 +34,8 @@ from .compiled import DRAW_LIMIT
 
 __all__ = ["ReplicateBatch", "OneReplicate", "DRAW_LIMIT"]
 
+_PMF_TABLES_KEPT = 4096  # a batch's pmf tables kept between seasons (one per mean brood size met)
+
 
 class ReplicateBatch:
     """What the array engines hold alike: each replicate's stream, its census by class
@@ -79,6 +81,7 @@ class ReplicateBatch:
         self.recruits_in_pass = (isinstance(life.offspring, Poisson)
                                  and not kernel.counted_after_breeding and not kernel.parental)
         self._broods = None  # brood-size counts drawn before survival (parental effects)
+        self._pmf_tables = {}  # the offspring law's pmf table by mean brood (parental effects)
 
     def census(self) -> np.ndarray:
         """Counts by (replicate, allele, age index)."""
@@ -122,7 +125,7 @@ class ReplicateBatch:
             self._broods = self.brood_counts(self.kernel.multipliers(
                 self.kernel.census_factors(counts, len(counts))))
             for r, by_class in enumerate(self._broods):
-                for c, (sizes, number) in by_class.items():
+                for c, (sizes, number, _) in by_class.items():
                     out[r, c] = int(sizes @ number)
             return out
         draw = self.life.offspring.draw_total
@@ -166,17 +169,22 @@ class ReplicateBatch:
 
     # -- step 4 with parental effects: recruits by (class, fate, brood size) -------------
     def brood_counts(self, f: Factors) -> list[dict]:
-        """Per replicate, per breeding class present: (brood sizes, number of parents with each),
-        multinomial over the offspring law's probabilities at mean m f_fec."""
-        law, out = self.life.offspring, []
-        fecundity = np.broadcast_to(np.asarray(f.fecundity, dtype=float), (len(self.rngs),))
+        """Per replicate, per breeding class present: (brood sizes, number of parents with each,
+        number of parents), multinomial over the offspring law's probabilities at mean m f_fec."""
+        law, out, tables = self.life.offspring, [], self._pmf_tables
+        if len(tables) > _PMF_TABLES_KEPT:  # means that vary with density: keep the recent ones
+            tables.clear()
+        fecundity = np.broadcast_to(np.asarray(f.fecundity, dtype=float), (len(self.rngs),)).tolist()
         for r, g in enumerate(self.rngs):
             by_class = {}
             for c, _, m, _ in self.kernel.breeders:
                 n = int(self.counts[r, c])
                 if n:
-                    sizes, pmf = law.pmf_table(m * fecundity[r])
-                    by_class[c] = (sizes, g.multinomial(n, pmf))
+                    mean = m * fecundity[r]
+                    if mean not in tables:
+                        tables[mean] = law.pmf_table(mean)
+                    sizes, pmf = tables[mean]
+                    by_class[c] = (sizes, g.multinomial(n, pmf), n)
             out.append(by_class)
         return out
 
@@ -196,13 +204,21 @@ class ReplicateBatch:
         orphaned = kernel.recruitment(f, parent_survived=False)
         cared, orphaned = (np.broadcast_to(p, self.counts.shape) for p in (cared, orphaned))
         out = np.zeros((len(self.rngs), kernel.n_alleles), dtype=np.int64)
+        # Where no parent of a class survives, or all do, the split is known: numpy draws nothing
+        # for a sample of none or of all, nor for Binomial(0, p), so skipping those calls leaves
+        # every stream as it was (the pinned duskmote-care replicates, tests/test_pinned_replicates.py)
         for r, g in enumerate(self.rngs):
-            for c, (sizes, number) in broods[r].items():
-                kept = g.multivariate_hypergeometric(number, int(survivors[r, c]))
+            for c, (sizes, number, parents) in broods[r].items():
+                alive = int(survivors[r, c])
                 shrink = kernel.decay[c] ** np.maximum(sizes - 1.0, 0.0)
-                young = (g.binomial(sizes * kept, np.minimum(cared[r, c] * shrink, 1.0)).sum()
-                         + g.binomial(sizes * (number - kept),
-                                      np.minimum(orphaned[r, c] * shrink, 1.0)).sum())
+                young = 0
+                if alive:
+                    kept = number if alive == parents else g.multivariate_hypergeometric(number, alive)
+                    young += g.binomial(sizes * kept, np.minimum(cared[r, c] * shrink, 1.0)).sum()
+                else:
+                    kept = 0
+                if alive < parents:
+                    young += g.binomial(sizes * (number - kept), np.minimum(orphaned[r, c] * shrink, 1.0)).sum()
                 out[r, kernel.allele_of[c]] += young
         return self.mutated(out)
 
