@@ -78,7 +78,7 @@ def simulate(form, acts_on, fecundity, capacity, *, seed=11, care=False):
 
 
 # K = 100 only with care: the counts engine draws a caring class's recruits brood by brood (about
-# 6 ms a replicate here, against 1 without care), so K = 400 would add some 5 minutes
+# 4 ms a replicate here, against 1 without care), so K = 400 would add some 3 minutes
 POINTS = ([(form, acts_on, threshold, False, capacity) for form, acts_on, threshold in CASES
            for capacity in SIZES]
           + [(form, acts_on, threshold, True, 100) for form, acts_on, threshold in CARE_CASES])
