@@ -26,7 +26,7 @@ makes comparisons and thresholds use common random numbers.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import asdict, dataclass, field
 
 import numpy as np
 from scipy.optimize import brentq
@@ -51,6 +51,7 @@ __all__ = [
     "StochasticGrowth",
     "stochastic_growth_rate",
     "small_noise_approximation",
+    "stacked_log_increments",
     "regulated",
     "ResidentPath",
     "resident_path",
@@ -224,6 +225,31 @@ def _log_increments(proj: _YearProjections, seq, factors: Factors | None = None,
             out[:, t] = np.log(size)
             x = x / np.where(size > 0, size, 1.0)[:, None]
     return out
+
+
+def stacked_log_increments(schedules, years: YearTypes, sequences: YearSequences, factors: Factors | None = None,
+                           *, offspring=None) -> np.ndarray:
+    """Every season's log growth of each of ``schedules`` on the same draws, in one pass.
+
+    ``factors`` (each an array of the draws' shape, or None for all 1) are the density
+    factors every schedule meets, as a resident's path sets them. The schedules must have as
+    many census ages as each other. Returns shape (n_schedules, n_batches, seasons), burn-in
+    included: the schedules' year matrices are stacked on the year-type axis, so the season
+    loop runs once for all of them.
+    """
+    sequences = sequences.for_years(years)
+    parts = [_projections(s, years, offspring) for s in schedules]
+    if len({p.n_ages for p in parts}) != 1:
+        raise ValueError("stacked_log_increments: the schedules differ in their number of census ages")
+    kernels = None if parts[0].kernels is None else tuple(k for p in parts for k in p.kernels)
+    proj = _YearProjections(np.concatenate([p.fert for p in parts]), np.concatenate([p.surv for p in parts]),
+                            kernels)
+    k, n_types = len(parts), len(years.types)
+    seq = sequences.indices
+    stacked = (np.arange(k)[:, None, None] * n_types + seq[None]).reshape(k * seq.shape[0], seq.shape[1])
+    if factors is not None:
+        factors = type(factors)(*(np.tile(np.broadcast_to(f, seq.shape), (k, 1)) for f in factors))
+    return _log_increments(proj, stacked, factors).reshape(k, *seq.shape)
 
 
 def _batch_estimate(increments: np.ndarray) -> tuple[float, float]:
@@ -448,34 +474,26 @@ def resident_path(
 
 
 def _ceiling_path(resident, years, density, sequences, start, offspring=None) -> ResidentPath:
-    free = DensityDependence(NoDensity(), density.acts_on, density.counted)
-    scaled = [scaled_schedule(resident, y) for y in years.types]
-    # each year's season: with the ceiling, without it, and (recruits only) its survivors alone
-    kept_step = [SeasonKernel.for_schedule(s, density, offspring).mean_step for s in scaled]
-    free_step = [SeasonKernel.for_schedule(s, free, offspring).mean_step for s in scaled]
-    no_young = [replace(s, juvenile_survival=0.0, orphan_survival=None if s.orphan_survival is None else 0.0)
-                for s in scaled]
-    survivor_step = [SeasonKernel.for_schedule(s, free, offspring).mean_step for s in no_young]
-    recruits_only = density.acts_on == "recruitment"
+    """The resident's path under a ceiling, all batches at once: each season the kernel's
+    density-free projection (its survival part apart), then the removal the kernel's
+    ``ceiling_excess`` makes of it, in expectation (as ``SeasonKernel.mean_step`` takes it)."""
+    proj = _projections(resident, years, offspring)
+    kernel = SeasonKernel.for_schedule(resident, density, offspring)
     seq = sequences.indices
     n_b, n_t = seq.shape
-    start = start[None, :]
+    x = np.tile(start, (n_b, 1))
     phi = np.ones((n_b, n_t))
     size = np.empty((n_b, n_t))
-    for b in range(n_b):
-        x = start
-        for t in range(n_t):
-            size[b, t] = x.sum()
-            y = seq[b, t]
-            kept = kept_step[y](x)
-            unchecked = free_step[y](x)
-            if recruits_only:  # recruits share age 1 with survivors when there is one class
-                survivors = survivor_step[y](x)[0, 0]
-                room, need = kept[0, 0] - survivors, unchecked[0, 0] - survivors
-            else:
-                room, need = kept.sum(), unchecked.sum()
-            phi[b, t] = room / need if need > 0 else 1.0
-            x = kept
+    for t in range(n_t):
+        y = seq[:, t]
+        size[:, t] = x.sum(axis=1)
+        unchecked = np.einsum("bij,bj->bi", proj.matrices(y), x)
+        survivors = np.einsum("bij,bj->bi", proj.surv[y], x)  # the survival part: no young
+        recruits = unchecked - survivors
+        excess, pool = kernel.ceiling_excess(survivors.sum(axis=1), recruits.sum(axis=1))
+        keep = 1.0 - np.divide(excess, pool, out=np.zeros_like(pool), where=pool > 0)
+        phi[:, t] = keep
+        x = survivors + recruits * keep[:, None] if kernel.ceiling_on_recruits else unchecked * keep[:, None]
     if not np.all(size[:, -1] > 1e-200):
         raise NoEquilibriumError(f"resident {resident.name!r}: dies out in the variable environment")
     culled = density.placed(phi)  # a Cull: the removal comes after the season

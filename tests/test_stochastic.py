@@ -436,3 +436,25 @@ def test_establishment_with_density_against_direct_simulation_on_the_resident_pa
     got = establishment_in_years(RESIDENT, mutant, TWO_YEARS, BH, Poisson(), seqs)
     assert abs(got.establishment_probability - p_direct) < 4 * np.hypot(se_direct, got.standard_error)
     assert 0.05 < p_direct < 0.95
+
+
+def test_stacked_log_increments_are_each_schedules_own():
+    # One pass for several schedules on the same draws gives each its own increments: a one-class
+    # schedule's are exactly log of its year's scalar growth, log(s j_s + m j_m c j_c) (the matrix
+    # is 1x1: Lewontin & Cohen 1969), and a two-age table's equal those of a pass of its own.
+    from analysis.stochastic import stacked_log_increments
+
+    years = YearTypes((YearType("lush", fecundity=1.4, juvenile_survival=1.5),
+                       YearType("lean", adult_survival=0.6, juvenile_survival=0.3)), "iid", probabilities=(0.4, 0.6))
+    draws = draw_year_sequences(years, np.random.default_rng(3), n_batches=3, batch_length=50, burn_in=5)
+    ones = [iteroparous("a", 2.0, 0.5, 0.5), iteroparous("b", 3.0, 0.2, 0.4)]
+    inc = stacked_log_increments(ones, years, draws)
+    mult = np.array([[y.fecundity, y.adult_survival, y.juvenile_survival] for y in years.types])[draws.indices]
+    for got, (m, s, c) in zip(inc, [(2.0, 0.5, 0.5), (3.0, 0.2, 0.4)]):
+        expected = np.log(s * mult[..., 1] + m * mult[..., 0] * c * mult[..., 2])
+        np.testing.assert_allclose(got, expected, rtol=1e-13)
+    two = [table("t1", [0.0, 2.0], [0.6, 0.5], 0.5), table("t2", [0.5, 1.5], [0.7, 0.4], 0.5)]
+    both = stacked_log_increments(two, years, draws)
+    for got, schedule in zip(both, two):
+        alone = stacked_log_increments([schedule], years, draws)[0]
+        np.testing.assert_allclose(got, alone, rtol=1e-13)
