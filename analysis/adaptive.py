@@ -22,6 +22,17 @@ sigma c_care + (1 - sigma) c_orphan), by differences in m. The eigenvalue's
 first and second derivatives follow from perturbation theory (Caswell 2001,
 ch. 9). The derivative of D along the diagonal, which needs the resident's
 equilibrium to move, is a central difference of D.
+
+In random years (``EffortModel.years``) the resident lives through the
+theory's year draws on its mean-field path (``analysis.stochastic.
+resident_path``), and s(x, y) is exp of the mutant's long-run log growth in
+the density factors that path sets (Metz, Nisbet & Geritz 1992; without
+density dependence, less the resident's own: the ratio of stochastic growth
+rates). Every resident and mutant lives through the same draws (common
+random numbers), so s is a smooth function of both efforts and its
+derivatives in the mutant's effort are differences on those draws (step
+``YEARS_STEP``); they estimate the long-run values with the draws' sampling
+error.
 """
 
 from __future__ import annotations
@@ -36,8 +47,10 @@ from sim.kernel import SeasonKernel
 from sim.meanfield import NoEquilibriumError, growth_rate, projection_matrix, solve_equilibrium
 from sim.schedules import Schedule
 from sim.tradeoff import TradeOff, check_effort
+from sim.years import YearTypes
 
 from .demography import dominant_eigen
+from .stochastic import YearSequences, regulated, resident_path, stacked_log_increments
 
 __all__ = [
     "EffortModel",
@@ -56,6 +69,7 @@ __all__ = [
 DEGENERATE_TOLERANCE = 1e-9  # a second derivative or gradient slope below this is called 0
 DIAGONAL_STEP = 1e-5  # step of the central difference of D along the diagonal
 FECUNDITY_STEP = 1e-4  # relative step of the differences in m under a brood effect (error ~ step^2)
+YEARS_STEP = 1e-4  # step in the mutant's effort of the differences of log s in random years
 
 
 @dataclass(frozen=True)
@@ -73,16 +87,24 @@ class EffortEnvironment:
         environment) or "unregulated" (density dependence cannot stop the
         resident's growth: invasion fitness undefined).
     factors : Factors or None
-        Density factors on fecundity, adult survival and recruitment.
+        Density factors on fecundity, adult survival and recruitment (None
+        in random years: see ``year_factors``).
     scale : float
         The mutant's growth rate is divided by this (the resident's own
-        growth rate without density dependence, else 1).
+        growth rate without density dependence, else 1; in random years the
+        resident's own long-run growth on the draws, in the environment it
+        meets).
+    year_factors : Factors or None
+        In random years, the density factors of every season of the draws
+        (the resident's path; arrays of the draws' shape, or numbers); None:
+        all 1.
     """
 
     resident: float
     status: str
     factors: Factors | None
     scale: float = 1.0
+    year_factors: Factors | None = None
 
     @property
     def resident_persists(self) -> bool:
@@ -102,7 +124,7 @@ class MutantSlopes:
 
 def _growth_rates(schedules, env: EffortEnvironment, offspring=None) -> np.ndarray:
     """Each schedule's dominant eigenvalue in ``env``, divided by ``env.scale`` (NaN if undefined)."""
-    if env.factors is None or env.scale == 0:
+    if env.status == "unregulated" or env.scale == 0:
         return np.full(len(schedules), np.nan)
     mats = np.array([projection_matrix(s, env.factors, offspring=offspring) for s in schedules])
     return np.linalg.eigvals(mats).real.max(axis=-1) / env.scale  # the Perron root has the largest real part
@@ -136,6 +158,11 @@ class EffortModel:
     offspring : offspring law, optional
         ``sim.offspring`` distribution (default Poisson); it matters only
         under a brood effect.
+    years : YearTypes, optional
+        Year types (default: a constant environment).
+    year_draws : YearSequences, optional
+        The seasons every resident and mutant lives through; required with
+        ``years``.
     """
 
     tradeoff: TradeOff
@@ -145,8 +172,12 @@ class EffortModel:
     orphan_survival: float | None = None
     brood_scale: float | None = None
     offspring: object = None
+    years: YearTypes | None = None
+    year_draws: YearSequences | None = None
 
     def __post_init__(self):
+        if self.years is not None and not isinstance(self.year_draws, YearSequences):
+            raise TypeError("an EffortModel with years needs year_draws, an analysis.stochastic.YearSequences")
         if not isinstance(self.tradeoff, TradeOff):
             raise TypeError(f"tradeoff must be a sim.tradeoff.TradeOff; got {type(self.tradeoff).__name__}")
         if not isinstance(self.density, DensityDependence):
@@ -220,6 +251,8 @@ class EffortModel:
         """The resident's equilibrium environment (see ``EffortEnvironment.status``)."""
         x = float(check_effort(resident, "resident effort"))
         schedule = self.schedule(x)
+        if self.years is not None:
+            return self._years_environment(x, schedule)
         if isinstance(self.density.form, NoDensity):
             return EffortEnvironment(x, "density-free", Factors(), growth_rate(schedule, offspring=self.offspring))
         try:
@@ -231,6 +264,39 @@ class EffortModel:
                 return EffortEnvironment(x, "extinct", empty)
             return EffortEnvironment(x, "unregulated", None)
 
+    def _years_environment(self, x: float, schedule: Schedule) -> EffortEnvironment:
+        """The resident's environment through the year draws (see ``EffortEnvironment``)."""
+        if not regulated(self.density):
+            scale = float(np.exp(self._log_growth([schedule], None)[0]))
+            return EffortEnvironment(x, "density-free", None, scale)
+        empty = self.density.placed(1.0)  # every form gives f(0) = 1; a ceiling removes nobody
+        if self._log_growth([schedule], empty)[0] <= 0.0:  # it cannot grow when rare: it dies out
+            return EffortEnvironment(x, "extinct", None, 1.0, empty)
+        try:
+            path = resident_path(schedule, self.years, self.density, self.year_draws, offspring=self.offspring)
+        except NoEquilibriumError:  # it dies out all the same: the mutant meets the empty environment
+            return EffortEnvironment(x, "extinct", None, 1.0, empty)
+        if not np.all(np.isfinite(path.census_size)):
+            return EffortEnvironment(x, "unregulated", None)
+        # the resident's own log growth on its path: 0 in the long run, so dividing by it
+        # leaves s's limit alone and makes s(x, x) = 1 on the draws, as in a constant environment
+        scale = float(np.exp(self._log_growth([schedule], path.factors)[0]))
+        return EffortEnvironment(x, "equilibrium", None, scale, path.factors)
+
+    def _log_growth(self, schedules, factors: Factors | None) -> np.ndarray:
+        """Each schedule's mean log growth over the recorded seasons of the draws, at ``factors``."""
+        inc = stacked_log_increments(schedules, self.years, self.year_draws, factors, offspring=self.offspring)
+        return inc[:, :, self.year_draws.burn_in:].mean(axis=(1, 2))
+
+    def _fitnesses(self, schedules, env: EffortEnvironment) -> np.ndarray:
+        """Each mutant schedule's invasion fitness in ``env`` (NaN where undefined)."""
+        if self.years is None:
+            return _growth_rates(schedules, env, self.offspring)
+        if env.status == "unregulated" or env.scale == 0:
+            return np.full(len(schedules), np.nan)
+        with np.errstate(over="ignore"):
+            return np.exp(self._log_growth(schedules, env.year_factors)) / env.scale
+
     def invasion_fitness(self, resident: float, mutants, *, environment: EffortEnvironment | None = None):
         """s(x, y) for one resident x and every mutant y (array of the mutants' shape).
 
@@ -238,10 +304,26 @@ class EffortModel:
         """
         y = check_effort(mutants, "mutant effort")
         env = environment or self.environment(resident)
-        return _growth_rates([self.schedule(e) for e in y.ravel()], env, self.offspring).reshape(y.shape)
+        return self._fitnesses([self.schedule(e) for e in y.ravel()], env).reshape(y.shape)
+
+    def _years_slopes(self, x: float, env: EffortEnvironment) -> MutantSlopes:
+        """s(x, x) and its derivatives in y by differences of log s on the draws (one-sided at
+        an end): s' = s (log s)', s'' = s ((log s)'' + (log s)'^2)."""
+        h = YEARS_STEP
+        at = 0 if x < h else (2 if x > 1.0 - h else 1)  # where x sits among the three efforts
+        efforts = np.array([x - at * h, x + (1 - at) * h, x + (2 - at) * h])
+        with np.errstate(divide="ignore"):
+            log_s = np.log(self._fitnesses([self.schedule(e) for e in efforts], env))
+        second = (log_s[0] - 2 * log_s[1] + log_s[2]) / h**2
+        first = {0: (-3 * log_s[0] + 4 * log_s[1] - log_s[2]) / (2 * h),
+                 1: (log_s[2] - log_s[0]) / (2 * h),
+                 2: (3 * log_s[2] - 4 * log_s[1] + log_s[0]) / (2 * h)}[at]
+        fitness = float(np.exp(log_s[at]))
+        return MutantSlopes(x, fitness, fitness * first, fitness * (second + first * first))
 
     def slopes(self, resident: float, *, environment: EffortEnvironment | None = None) -> MutantSlopes:
-        """s(x, x), ds/dy and d2s/dy2 at y = x (exact; infinite where B or P has an infinite slope).
+        """s(x, x), ds/dy and d2s/dy2 at y = x (exact; infinite where B or P has an infinite slope;
+        in random years, differences of log s on the year draws).
 
         Notes
         -----
@@ -255,8 +337,10 @@ class EffortModel:
         """
         x = float(check_effort(resident, "resident effort"))
         env = environment or self.environment(x)
-        if env.factors is None or env.scale == 0:
+        if env.status == "unregulated" or env.scale == 0:
             return MutantSlopes(x, np.nan, np.nan, np.nan)
+        if self.years is not None:
+            return self._years_slopes(x, env)
         a = self._matrix(self.schedule(x), env.factors)
         d1, d2 = self._effort_derivatives(x, env.factors)
         lam, w, v = dominant_eigen(a)
@@ -289,6 +373,11 @@ class EffortModel:
             "orphan_survival": None if self.orphan_survival is None else float(self.orphan_survival),
             "brood_scale": None if self.brood_scale is None else float(self.brood_scale),
             "maturity_age": int(self.maturity_age),
+            "years": None if self.years is None else {
+                "switching": self.years.switching,
+                "types": [{"name": y.name, "fecundity": y.fecundity, "adult_survival": y.adult_survival,
+                           "juvenile_survival": y.juvenile_survival} for y in self.years.types],
+                "seasons_drawn": int(self.year_draws.n_batches * self.year_draws.batch_length)},
             "density": {
                 "form": next((k for k, v in FORMS.items() if isinstance(form, v)), type(form).__name__),
                 "capacity": getattr(form, "capacity", None),
@@ -348,7 +437,7 @@ def pairwise_invasibility(model: EffortModel, *, grid=101) -> PairwiseInvasibili
     e = efforts_grid(grid)
     envs = [model.environment(x) for x in e]
     mutants = [model.schedule(y) for y in e]
-    fitness = np.array([_growth_rates(mutants, env, model.offspring) for env in envs])
+    fitness = np.array([model._fitnesses(mutants, env) for env in envs])
     return PairwiseInvasibility(e, fitness, tuple(env.status for env in envs))
 
 

@@ -597,6 +597,12 @@ def _singular_words(analysis) -> str:
     return "; ".join(f"E = {s.effort:.4g} ({html.escape(s.position)}): {html.escape(s.kind)}" for s in kinds)
 
 
+def _years_drawn(analyses) -> str:
+    """The number of recorded seasons of the theory's year draws, as words."""
+    draws = analyses[0].model.year_draws
+    return f"{draws.n_batches * draws.batch_length:,}"
+
+
 def _trait_prediction_text(path, config) -> tuple[str, list]:
     """The adaptive-dynamics prediction per sweep point, and each point's analysis."""
     from .trait import trait_analysis
@@ -609,7 +615,9 @@ def _trait_prediction_text(path, config) -> tuple[str, list]:
         young = "the expected survivors of a brood of mean B(E), E[b x^(b - 1)]"
     if cared:
         young += " (P(E) c_care + (1 - P(E)) c_orphan)"
-    if placement is None or (placement == "all-survival" and (config.density.form == "ceiling" or not cared)):
+    if config.environment is not None:  # random years: no simple principle is claimed
+        maximised = None
+    elif placement is None or (placement == "all-survival" and (config.density.form == "ceiling" or not cared)):
         maximised = ("the growth rate lambda (no density dependence, or density dependence on all "
                      "survival" + (" as a ceiling's cull after the season" if cared else "") + ")")
     elif placement in ("recruitment", "fecundity"):
@@ -638,6 +646,10 @@ def _trait_prediction_text(path, config) -> tuple[str, list]:
         "branching point would split the population in two.</p>"
         + (f"<p>Here the winning effort maximises {maximised} (Mylius &amp; Diekmann 1995).</p>"
            if maximised else "")
+        + ("<p>In random years the invasion fitness is the mutant's long-run growth in the environment "
+           "the resident's fluctuating population sets (Metz, Nisbet &amp; Geritz 1992), computed on the "
+           f"theory's year draws ({_years_drawn(analyses)} seasons): the singular efforts carry their "
+           "sampling error.</p>" if config.environment is not None else "")
         + f"<ul>{''.join(items)}</ul>"
         + ("<p>The theory is computed on the run's grid of efforts (<code>broodline "
            "invasibility CONFIG -o DIR</code> draws its pairwise invasibility plot).</p>")

@@ -18,6 +18,7 @@ from sim.config import Config, ConfigError
 from sim.store import read_attrs, read_point_configs, read_points, read_trait
 
 from .adaptive import AdaptiveAnalysis, EffortModel, analyse_effort
+from .varying_years import year_draws
 
 __all__ = ["DEFAULT_GRID", "effort_model", "effort_grid", "trait_analysis", "is_trait_run", "compare_trait"]
 
@@ -34,16 +35,12 @@ def effort_model(config: Config) -> EffortModel:
         Where no allele has ``breeding = "effort"``, or where effort alleles
         differ in ``juvenile_survival``, ``maturity_age`` or their parental
         effects (the theory puts every effort on one life cycle), naming the
-        allele; and where the config has year types, which the effort theory
-        does not include.
+        allele.
     """
     alleles = [a for a in config.alleles if a.breeding == "effort"]
     if not alleles:
         raise ConfigError("allele: no allele has breeding = 'effort' (the invasibility analysis "
                           "compares efforts on the [tradeoff] curve)")
-    if config.environment is not None:
-        raise ConfigError("environment: the effort analysis is of a constant environment; it has no "
-                          "theory for year types")
     first = alleles[0]
     for a in alleles[1:]:
         for key in ("juvenile_survival", "maturity_age", "orphan_survival", "brood_effect", "brood_scale"):
@@ -55,9 +52,12 @@ def effort_model(config: Config) -> EffortModel:
                     f"the effort analysis needs one {key} for every effort allele")
     tradeoff = config.tradeoff.tradeoff()
     schedule = first.schedule(tradeoff)  # its parental effects as the kernel reads them
+    years = {}
+    if config.environment is not None:  # the theory's year draws, as the invasion theory's
+        years = {"years": config.year_types(), "year_draws": year_draws(config)}
     return EffortModel(tradeoff, first.juvenile_survival, first.maturity_age, config.density_dependence(),
                        orphan_survival=schedule.orphan_survival, brood_scale=schedule.brood_scale,
-                       offspring=config.offspring_distribution())
+                       offspring=config.offspring_distribution(), **years)
 
 
 def effort_grid(config: Config):
@@ -67,9 +67,20 @@ def effort_grid(config: Config):
     return DEFAULT_GRID
 
 
+_ANALYSES: dict = {}  # (config, grid) -> its analysis: a report, its figure and compare ask alike
+_ANALYSES_KEPT = 32
+
+
 def trait_analysis(config: Config, *, grid=None) -> AdaptiveAnalysis:
-    """``analyse_effort`` of ``effort_model(config)`` on ``grid`` (default ``effort_grid(config)``)."""
-    return analyse_effort(effort_model(config), grid=effort_grid(config) if grid is None else grid)
+    """``analyse_effort`` of ``effort_model(config)`` on ``grid`` (default ``effort_grid(config)``),
+    kept for the process: in random years one takes seconds."""
+    grid = effort_grid(config) if grid is None else grid
+    key = (config.model_dump_json(), tuple(np.atleast_1d(grid).tolist()))
+    if key not in _ANALYSES:
+        if len(_ANALYSES) >= _ANALYSES_KEPT:
+            _ANALYSES.clear()
+        _ANALYSES[key] = analyse_effort(effort_model(config), grid=grid)
+    return _ANALYSES[key]
 
 
 def is_trait_run(path) -> bool:

@@ -437,3 +437,74 @@ def test_what_care_makes_density_regulation_maximise(density, what):
         expected = (-(1 - p) + np.sqrt((1 - p) ** 2 + p * a * (1 - p) / b)) / p
     result = analyse_effort(EffortModel(LINEAR, C, 1, density, orphan_survival=ORPHANS), grid=41)
     assert result.attractors == pytest.approx([expected], abs=1e-7)
+
+
+# --- random years: bet hedging --------------------------------------------------------------------
+# Linear trade-off B = a E, P = p (1 - E), one class, iid years whose juvenile multiplier is j_k
+# (probability pi_k): lambda_k(E) = p (1 - E) + j_k c a E is a scalar, so the long-run growth is
+# G(E) = sum_k pi_k log lambda_k(E) (Lewontin & Cohen 1969) and, density-free or under a ceiling
+# (a common factor each season), selection maximises G (geometric-mean fitness; Schaffer 1974 in
+# fluctuating environments). With two types, A_k = j_k c a - p of opposite signs:
+# G'(E) = 0 at E* = -p (pi_1 A_1 + pi_2 A_2) / (A_1 A_2) (derived). Here a = 4, c = 0.5,
+# p = 0.98, j = 1 or 0.225 with probability 1/2: E* = 0.444, where the mean year (j = 0.6125, A > 0)
+# would take effort to breeding once.
+BET_HEDGE = TradeOff(max_fecundity=4.0, fecundity_shape=1.0, max_adult_survival=0.98, survival_shape=1.0)
+BET_YEARS_J = (1.0, 0.225)
+
+
+def bet_hedge_years():
+    from sim.years import YearType, YearTypes
+
+    return YearTypes((YearType("kind", juvenile_survival=BET_YEARS_J[0]),
+                      YearType("harsh", juvenile_survival=BET_YEARS_J[1])), "iid", probabilities=(0.5, 0.5))
+
+
+def bet_hedge_optimum(share_kind: float) -> float:
+    p, ca = 0.98, C * 4.0
+    a1, a2 = BET_YEARS_J[0] * ca - p, BET_YEARS_J[1] * ca - p
+    return -p * (share_kind * a1 + (1 - share_kind) * a2) / (a1 * a2)
+
+
+@pytest.mark.parametrize("density", [NO_DENSITY, dd("ceiling", "all-survival")])
+def test_random_years_select_the_geometric_mean_optimum(density):
+    from analysis.stochastic import draw_year_sequences
+
+    years = bet_hedge_years()
+    draws = draw_year_sequences(years, np.random.default_rng(7), n_batches=20, batch_length=1000, burn_in=200)
+    model = EffortModel(BET_HEDGE, C, 1, density, years=years, year_draws=draws)
+    result = analyse_effort(model, grid=21)
+    # on the draws themselves the optimum is exact for their share of kind years
+    share = float((draws.recorded == 0).mean())
+    assert result.attractors == pytest.approx([bet_hedge_optimum(share)], abs=1e-6)
+    # and it estimates the long-run one: dE*/dpi = 2 here, sd(share) = sqrt(1/4 / 20000) = 0.0035,
+    # so the estimate's sd is 0.007; 4 of them is the tolerance
+    assert result.attractors[0] == pytest.approx(bet_hedge_optimum(0.5), abs=4 * 0.007)
+    star = next(s for s in result.singular if s.position == "interior")
+    assert star.kind == "evolutionarily stable attractor"
+    # G'' = -sum pi A_k^2 / lambda_k^2 at E* (the draws' shares), and s = exp(G(y) - G(x))
+    lam = [0.98 * (1 - star.effort) + j * C * 4.0 * star.effort for j in BET_YEARS_J]
+    a = [j * C * 4.0 - 0.98 for j in BET_YEARS_J]
+    curvature = -(share * a[0] ** 2 / lam[0] ** 2 + (1 - share) * a[1] ** 2 / lam[1] ** 2)
+    assert star.mutant_curvature == pytest.approx(curvature, rel=1e-4)
+    # the constant environment of the mean year goes to an end instead (Schaffer 1974)
+    assert analyse_effort(EffortModel(BET_HEDGE, C * 0.6125, 1, density), grid=21).attractors == [1.0]
+
+
+@pytest.mark.parametrize("density", [dd("beverton-holt", "recruitment"), dd("beverton-holt", "all-survival")])
+def test_identical_year_types_give_the_constant_environments_attractor(density):
+    # two year types that change nothing: the random-years path (a resident's mean-field path,
+    # differences of log s on the draws) must find the constant model's exact attractor
+    from analysis.stochastic import draw_year_sequences
+    from sim.years import YearType, YearTypes
+
+    years = YearTypes((YearType("one"), YearType("two")), "iid", probabilities=(0.3, 0.7))
+    # a burn-in long enough for the mean-field path to reach the equilibrium to rounding
+    draws = draw_year_sequences(years, np.random.default_rng(1), n_batches=4, batch_length=300, burn_in=400)
+    constant = analyse_effort(EffortModel(CONCAVE, C, 1, density), grid=21)
+    varying = analyse_effort(EffortModel(CONCAVE, C, 1, density, years=years, year_draws=draws), grid=21)
+    assert varying.attractors == pytest.approx(constant.attractors, abs=1e-6)
+    s0, s1 = (next(s for s in r.singular if s.position == "interior") for r in (constant, varying))
+    assert s1.kind == s0.kind
+    assert s1.mutant_curvature == pytest.approx(s0.mutant_curvature, rel=1e-4)
+    assert s1.resident_curvature == pytest.approx(s0.resident_curvature, rel=1e-3)
+    np.testing.assert_allclose(varying.invasibility.fitness, constant.invasibility.fitness, rtol=1e-9)
