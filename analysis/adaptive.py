@@ -38,6 +38,7 @@ error.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from functools import cached_property
 
 import numpy as np
 from scipy.optimize import brentq
@@ -191,7 +192,7 @@ class EffortModel:
             return schedule
         return replace(schedule, orphan_survival=self.orphan_survival, brood_scale=self.brood_scale)
 
-    @property
+    @cached_property
     def parental(self) -> bool:
         """True with parental care or a brood effect (the kernel's ``parental``)."""
         return SeasonKernel.for_schedule(self.schedule(0.5), offspring=self.offspring).parental
@@ -248,7 +249,8 @@ class EffortModel:
         return first, second
 
     def environment(self, resident: float) -> EffortEnvironment:
-        """The resident's equilibrium environment (see ``EffortEnvironment.status``)."""
+        """The resident's equilibrium environment, or in random years the environment its path
+        through the draws sets (see ``EffortEnvironment.status``)."""
         x = float(check_effort(resident, "resident effort"))
         schedule = self.schedule(x)
         if self.years is not None:
