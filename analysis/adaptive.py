@@ -121,6 +121,7 @@ class MutantSlopes:
     fitness: float
     gradient: float
     curvature: float
+    gradient_se: float = float("nan")  # in random years: from the draws' batch means; else nan
 
 
 def _growth_rates(schedules, env: EffortEnvironment, offspring=None) -> np.ndarray:
@@ -285,10 +286,12 @@ class EffortModel:
         scale = float(np.exp(self._log_growth([schedule], path.factors)[0]))
         return EffortEnvironment(x, "equilibrium", None, scale, path.factors)
 
-    def _log_growth(self, schedules, factors: Factors | None) -> np.ndarray:
-        """Each schedule's mean log growth over the recorded seasons of the draws, at ``factors``."""
+    def _log_growth(self, schedules, factors: Factors | None, *, by_batch: bool = False) -> np.ndarray:
+        """Each schedule's mean log growth over the recorded seasons of the draws, at ``factors``
+        (with ``by_batch``, each batch's: shape (n_schedules, n_batches))."""
         inc = stacked_log_increments(schedules, self.years, self.year_draws, factors, offspring=self.offspring)
-        return inc[:, :, self.year_draws.burn_in:].mean(axis=(1, 2))
+        means = inc[:, :, self.year_draws.burn_in:].mean(axis=2)
+        return means if by_batch else means.mean(axis=1)
 
     def _fitnesses(self, schedules, env: EffortEnvironment) -> np.ndarray:
         """Each mutant schedule's invasion fitness in ``env`` (NaN where undefined)."""
@@ -314,14 +317,19 @@ class EffortModel:
         h = YEARS_STEP
         at = 0 if x < h else (2 if x > 1.0 - h else 1)  # where x sits among the three efforts
         efforts = np.array([x - at * h, x + (1 - at) * h, x + (2 - at) * h])
-        with np.errstate(divide="ignore"):
-            log_s = np.log(self._fitnesses([self.schedule(e) for e in efforts], env))
+        batches = self._log_growth([self.schedule(e) for e in efforts], env.year_factors, by_batch=True)
+        batches = batches - np.log(env.scale)  # log s by batch, shape (3, n_batches)
+
+        def first(v):
+            return {0: (-3 * v[0] + 4 * v[1] - v[2]) / (2 * h), 1: (v[2] - v[0]) / (2 * h),
+                    2: (3 * v[2] - 4 * v[1] + v[0]) / (2 * h)}[at]
+
+        log_s = batches.mean(axis=1)
         second = (log_s[0] - 2 * log_s[1] + log_s[2]) / h**2
-        first = {0: (-3 * log_s[0] + 4 * log_s[1] - log_s[2]) / (2 * h),
-                 1: (log_s[2] - log_s[0]) / (2 * h),
-                 2: (3 * log_s[2] - 4 * log_s[1] + log_s[0]) / (2 * h)}[at]
+        slope = first(log_s)
         fitness = float(np.exp(log_s[at]))
-        return MutantSlopes(x, fitness, fitness * first, fitness * (second + first * first))
+        spread = first(batches).std(ddof=1) / np.sqrt(batches.shape[1])  # the gradient's batch-means SE
+        return MutantSlopes(x, fitness, fitness * slope, fitness * (second + slope * slope), fitness * spread)
 
     def slopes(self, resident: float, *, environment: EffortEnvironment | None = None) -> MutantSlopes:
         """s(x, x), ds/dy and d2s/dy2 at y = x (exact; infinite where B or P has an infinite slope;
@@ -480,6 +488,10 @@ class SingularStrategy:
         See ``classify_singular``; "not viable" where a resident with this
         effort cannot persist, "unregulated" where density dependence cannot
         stop its growth (no equilibrium, so no invasion fitness).
+    effort_se : float
+        In random years, the standard error of an interior singular effort
+        from the year draws: the gradient's batch-means standard error over
+        |dD/dx| (a root moves by the error of D over its slope); else nan.
     """
 
     effort: float
@@ -493,6 +505,7 @@ class SingularStrategy:
     invades_when_rare: bool | None
     mutual_invasibility: bool | None
     kind: str
+    effort_se: float = float("nan")
 
     def as_dict(self) -> dict:
         """Plain values (non-finite numbers as None, for JSON)."""
@@ -560,7 +573,8 @@ def _classified(model: EffortModel, x: float, position: str, gradient: float) ->
     if not env.resident_persists:
         kind = "unregulated" if env.status == "unregulated" else "not viable"
         return SingularStrategy(x, position, gradient, np.nan, np.nan, np.nan, False, False, None, None, kind)
-    curvature = model.slopes(x, environment=env).curvature
+    here = model.slopes(x, environment=env)
+    curvature = here.curvature
     slope = _gradient_slope(model, x)
     resident_curvature = -2.0 * slope + curvature
     outward = {"lower end": -1.0, "upper end": 1.0}.get(position, 0.0) * gradient
@@ -573,7 +587,10 @@ def _classified(model: EffortModel, x: float, position: str, gradient: float) ->
             x, position, gradient, curvature, resident_curvature, slope, stable, stable, None, None, kind
         )
     props = classify_singular(curvature, resident_curvature)
-    return SingularStrategy(x, position, gradient, curvature, resident_curvature, slope, **props)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        effort_se = float(here.gradient_se / abs(slope))
+    return SingularStrategy(x, position, gradient, curvature, resident_curvature, slope, **props,
+                            effort_se=effort_se)
 
 
 def singular_strategies(model: EffortModel, *, grid=101, xtol: float = 1e-12) -> list[SingularStrategy]:

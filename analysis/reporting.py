@@ -594,7 +594,11 @@ def _singular_words(analysis) -> str:
     kinds = [s for s in analysis.singular if s.kind != "not viable"]
     if not kinds:
         return "no singular effort on the grid"
-    return "; ".join(f"E = {s.effort:.4g} ({html.escape(s.position)}): {html.escape(s.kind)}" for s in kinds)
+    def effort(s):
+        se = f" (SE {s.effort_se:.2g})" if np.isfinite(s.effort_se) else ""
+        return f"E = {s.effort:.4g}{se}"
+
+    return "; ".join(f"{effort(s)} ({html.escape(s.position)}): {html.escape(s.kind)}" for s in kinds)
 
 
 def _years_drawn(analyses) -> str:
@@ -682,6 +686,11 @@ def trait_verdict_text(table: pd.DataFrame) -> str:
         "effort over the closing tenth of the run within one grid step of the nearest predicted "
         "evolutionarily stable attractor)."
     )
+    from .trait import pooled_end_efforts, pooled_lines
+
+    pooled = pooled_lines(pooled_end_efforts(table))
+    if pooled:
+        text += " Taken together: " + "; ".join(html.escape(line) for line in pooled) + "."
     away = table.loc[table["verdict"] == "away from attractor", ["point", "replicate"]]
     if len(away):
         text += (

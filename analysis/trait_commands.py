@@ -47,7 +47,8 @@ def cmd_invasibility(args) -> int:
         print(json.dumps(result.as_dict(), indent=2))  # as_dict is JSON-ready (non-finite as null)
         return 0
     for s in result.analysis.singular:
-        print(f"E = {s.effort:.6g} ({s.position}): {s.kind}; gradient {s.gradient:.4g}")
+        se = f" (SE {s.effort_se:.2g}, from the year draws)" if np.isfinite(s.effort_se) else ""
+        print(f"E = {s.effort:.6g}{se} ({s.position}): {s.kind}; gradient {s.gradient:.4g}")
     print(f"attractors: {', '.join(f'{a:.6g}' for a in result.analysis.attractors) or 'none'}")
     for name, path in result.files.items():
         print(f"{name}: {path}")
@@ -75,20 +76,23 @@ def compare_trait_run(args, *, show, records) -> int:
     ``show`` prints a table, ``records`` makes JSON rows
     (``analysis.commands``'s).
     """
-    from .trait import compare_trait
+    from .trait import compare_trait, pooled_end_efforts, pooled_lines
 
     if args.csv:
         free_outputs([args.csv], args.overwrite, inputs=[args.results], option="--csv")
     table = compare_trait(args.results)
+    pooled = pooled_end_efforts(table)
     if args.csv:
         table.to_csv(args.csv, index=False)
     if args.json:
-        print(json.dumps({"replicates": records(table)}, indent=2))
+        print(json.dumps({"replicates": records(table), "points": records(pooled)}, indent=2))
         return 0
     shown = table.assign(attractors=[", ".join(f"{a:.4g}" for a in v) for v in table["attractors"]])
     show(shown)
     counts = table["verdict"].value_counts()
     print("\n" + ", ".join(f"{n} {verdict}" for verdict, n in counts.items()) + f" (of {len(table)} replicates)")
+    for line in pooled_lines(pooled):
+        print(line)
     return 0
 
 

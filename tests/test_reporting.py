@@ -228,7 +228,13 @@ def test_trait_verdict_counts_each_verdict():
     from analysis.reporting import trait_verdict_text
 
     table = pd.DataFrame({"point": [0, 0, 1], "replicate": [0, 1, 0],
-                          "verdict": ["at attractor", "away from attractor", "at attractor"]})
+                          "verdict": ["at attractor", "away from attractor", "at attractor"],
+                          "end_mean_effort": [0.3, 0.5, 0.2], "attractors": [[0.35], [0.35], [0.2]],
+                          "attractor_se": [float("nan")] * 3, "grid_step": [0.1] * 3})
     text = trait_verdict_text(table)
     assert text.startswith("Of 3 replicates: 2 at attractor, 1 away from attractor")
     assert "point 0 replicate 1" in text
+    # point 0's two replicates together (sd 0.1414 / sqrt 2 = 0.1); point 1 has one, so no line
+    assert ("Taken together: point 0: the end effort of its 2 persisting replicates averages 0.4 (SE 0.1); "
+            "predicted attractor 0.35; they differ by 0.05, 0.5 of a grid step (0.1).") in text
+    assert "point 1:" not in text
