@@ -250,13 +250,17 @@ def test_every_control_names_a_schema_key():
                 model = YearSection
             elif c.key.startswith("environment.transitions."):
                 name, model = "transitions", EnvironmentSection
+            elif c.key == "environment.years":  # the year types' names
+                name, model = "name", YearSection
+            elif c.key == "environment.switching":
+                name, model = "switching", EnvironmentSection
             else:
                 section, name = c.key.split(".")
                 model = {"density": DensitySection, "experiment": ExperimentSection,
                          "invasion": InvasionSection}.get(section, AlleleSection)
             assert name in model.model_fields, c.key
     assert {c.key for c in controls(markov)} - {c.key for c in controls()} == {
-        f"environment.{k}" for k in ("transitions.wet", "transitions.dry", "year.wet.juvenile_survival",
+        f"environment.{k}" for k in ("switching", "transitions.wet", "transitions.dry", "year.wet.juvenile_survival",
                                      "year.wet.fecundity", "year.wet.adult_survival", "year.dry.juvenile_survival",
                                      "year.dry.fecundity", "year.dry.adult_survival")}
 
@@ -299,6 +303,34 @@ def test_year_type_controls_set_the_environment_and_the_theory_reads_them():
     assert problems == ["environment.year.probability: the probabilities must sum to 1; got 1.2"]
     assert s.update({"environment.year.dry.probability": "0.3"}) == []
     assert s.config.environment.year[0].probability == 0.7
+
+
+def test_year_types_are_added_renamed_switched_and_removed_by_their_names():
+    # from the demo's constant environment: naming year types adds an [environment] with equal
+    # probabilities, valid at once; a new name renames and keeps the multipliers; another name adds
+    # a type (the law again equal); markov switching repeats the law in every row (an iid chain);
+    # emptying the names removes the [environment], and the theory is the constant one again
+    s = LabSession(load_config("configs/demo.toml"))
+    constant = s.theory.prediction["invasion_fitness"]
+    assert s.view()["settings"]["environment.years"] is None
+    assert s.update({"environment.years": "wet, dry"}) == []
+    assert [(y.name, y.probability) for y in s.config.environment.year] == [("wet", 0.5), ("dry", 0.5)]
+    assert s.theory.prediction["invasion_fitness"] == pytest.approx(constant, rel=1e-9)  # alike years
+    assert s.update({"environment.year.wet.juvenile_survival": "1.8",
+                     "environment.year.dry.juvenile_survival": "0.2"}) == []
+    assert s.theory.environment and s.theory.prediction["invasion_fitness"] < constant  # the same mean
+    assert s.update({"environment.years": "moist, dry"}) == []
+    assert s.config.environment.year[0].name == "moist" and s.config.environment.year[0].juvenile_survival == 1.8
+    assert s.update({"environment.years": "moist, dry, hot"}) == []
+    assert [y.probability for y in s.config.environment.year] == pytest.approx([1 / 3] * 3)
+    assert s.config.environment.year[2].juvenile_survival == 1.0
+    assert s.update({"environment.switching": "markov"}) == []
+    np.testing.assert_allclose(s.config.environment.transitions, np.full((3, 3), 1 / 3))
+    assert "environment.transitions.hot" in s.view()["settings"]
+    assert s.update({"environment.years": "moist, moist"})[0].startswith("environment.year[1].name: 'moist'")
+    assert s.update({"environment.years": ""}) == []
+    assert s.config.environment is None and s.theory.prediction["invasion_fitness"] == constant
+    assert not any(k.startswith("environment.year.") for k in s.view()["settings"])
 
 
 def test_a_markov_row_is_typed_as_comma_separated_numbers():

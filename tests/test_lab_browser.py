@@ -229,3 +229,31 @@ def test_year_types_and_care_have_controls_and_move_the_theory(browser, tmp_path
         page.close()
         server.close()
     assert errors == []
+
+
+def test_year_types_are_named_on_the_page_and_their_rows_follow(page, lab):
+    # from the demo's constant environment: naming two year types adds their rows (and the
+    # switching), the theory then says years vary; emptying the names takes them away again
+    assert page.is_visible("#ctl-environment-years") and not page.query_selector("#ctl-environment-switching")
+    set_control(page, "environment.years", "wet, dry")
+    page.wait_for_selector("#ctl-environment-year-dry-juvenile_survival")
+    assert float(page.input_value("#ctl-environment-year-wet-probability")) == 0.5
+    assert page.input_value("#ctl-environment-switching") == "iid"
+    page.wait_for_selector("#th-environment")  # alike years, but years vary
+    set_control(page, "environment.year.dry.juvenile_survival", "0.2")
+    set_control(page, "environment.year.wet.juvenile_survival", "1.8")
+    # both changes reach the server (their requests run on their own threads), then the page
+    # shows the view of that config: the year rows' values the server holds
+    page.wait_for_function("document.querySelector('#ctl-environment-year-wet-juvenile_survival').value === '1.8'"
+                           " && document.querySelector('#ctl-environment-year-dry-juvenile_survival').value === '0.2'")
+    for _ in range(100):
+        if lab.session.config.environment and [y.juvenile_survival for y in lab.session.config.environment.year] \
+                == [1.8, 0.2]:
+            break
+        page.wait_for_timeout(100)
+    assert [y.juvenile_survival for y in lab.session.config.environment.year] == [1.8, 0.2]
+    assert "years vary" in text(page, "#th-environment")
+    set_control(page, "environment.years", "")
+    page.wait_for_function("!document.querySelector('#ctl-environment-year-dry-juvenile_survival')")
+    page.wait_for_function("!document.querySelector('#th-environment')")
+    assert lab.session.config.environment is None

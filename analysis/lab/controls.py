@@ -6,9 +6,16 @@ set in the config's raw dict and the whole dict is validated by
 TOML file (``allele[1].adult_survival must be in [0, 1]; got 1.3``).
 
 Keys: ``resident.KEY`` and ``mutant.KEY`` (the invasion's two alleles),
-``SECTION.KEY``, and, for a config with year types, ``environment.year.NAME.KEY``
-(the sweep's path of a year's key) and ``environment.transitions.NAME`` (that
-year type's row of a Markov chain, typed as comma-separated numbers).
+``SECTION.KEY``, ``environment.years`` (the year types' names, comma-separated:
+naming some adds an ``[environment]``, emptying it removes it, a new name at
+the end adds a year type and a changed one renames it, keeping its
+multipliers), and, for a config with year types, ``environment.switching``,
+``environment.year.NAME.KEY`` (the sweep's path of a year's key) and
+``environment.transitions.NAME`` (that year type's row of a Markov chain,
+typed as comma-separated numbers). Where the number of year types or the
+switching changes, the law is set to one that is valid at once: equal
+probabilities, or rows of transitions that repeat them (an iid chain), for
+the page to adjust.
 """
 
 from __future__ import annotations
@@ -33,7 +40,8 @@ class Control:
         ``environment.transitions.NAME`` (see the module's docstring).
     label : str
     kind : str
-        ``"number"``, ``"integer"``, ``"numbers"`` (comma-separated) or ``"choice"``.
+        ``"number"``, ``"integer"``, ``"numbers"`` (comma-separated), ``"names"``
+        (comma-separated) or ``"choice"``.
     choices : tuple of str
         The allowed values of a choice ("" stands for "not set").
     unset : str
@@ -76,6 +84,9 @@ def controls(raw: dict | None = None) -> list[Control]:
         Control("experiment.seed", "seed", "integer"),
     ]
     environment = (raw or {}).get("environment")
+    out.append(Control("environment.years", "year types", "names", unset="(constant)"))
+    if environment:
+        out.append(Control("environment.switching", "switching", "choice", ("iid", "markov")))
     for year in environment["year"] if environment else ():
         name = year["name"]
         if environment.get("switching", "iid") == "iid":
@@ -145,6 +156,45 @@ def typed(text):
     return text
 
 
+def _equal_law(environment: dict) -> None:
+    """Give ``environment`` a valid law for its year types: equal probabilities (iid), or
+    transitions whose every row repeats them (markov)."""
+    years = environment["year"]
+    share = 1.0 / len(years)
+    if environment.get("switching", "iid") == "iid":
+        for year in years:
+            year["probability"] = share
+        environment.pop("transitions", None)
+        environment.pop("start", None)
+    else:
+        for year in years:
+            year.pop("probability", None)
+        environment["transitions"] = [[share] * len(years) for _ in years]
+
+
+def _set_year_names(raw: dict, text) -> None:
+    """``environment.years``: add, rename, remove year types, or the whole ``[environment]``."""
+    value = typed(text)
+    names = [] if value is None else [str(n).strip() for n in (value if isinstance(value, list) else [value])]
+    names = [n for n in names if n]
+    if not names:
+        raw.pop("environment", None)
+        return
+    environment = raw.setdefault("environment", {"switching": "iid", "year": []})
+    old = environment["year"]
+    environment["year"] = [dict(old[i], name=n) if i < len(old) else {"name": n} for i, n in enumerate(names)]
+    if len(names) != len(old):
+        _equal_law(environment)
+
+
+def _set_switching(raw: dict, value) -> None:
+    """``environment.switching``: iid or markov, with a law valid for it where it changes."""
+    environment = raw["environment"]
+    if value != environment.get("switching", "iid"):
+        environment["switching"] = value
+        _equal_law(environment)
+
+
 def set_control(raw: dict, key: str, value) -> dict:
     """A copy of ``raw`` with the control ``key`` set (``None`` removes the key).
 
@@ -156,6 +206,12 @@ def set_control(raw: dict, key: str, value) -> dict:
     if key not in _keys(raw):
         raise KeyError(f"the lab has no control {key!r}")
     raw = copy.deepcopy(raw)
+    if key == "environment.years":
+        _set_year_names(raw, value)
+        return raw
+    if key == "environment.switching":
+        _set_switching(raw, typed(value))
+        return raw
     table, name = _place(raw, key, create=True)
     value = typed(value)
     if isinstance(table, list):  # a row of transitions: always a list, one value or many
@@ -169,6 +225,11 @@ def set_control(raw: dict, key: str, value) -> dict:
 
 def control_value(raw: dict, key: str):
     """The value a control shows (None where the key is not set)."""
+    environment = raw.get("environment")
+    if key == "environment.years":
+        return ", ".join(y["name"] for y in environment["year"]) if environment else None
+    if key == "environment.switching":
+        return environment.get("switching", "iid") if environment else None
     table, name = _place(raw, key)
     return table[name] if isinstance(table, list) else table.get(name)
 

@@ -40,38 +40,54 @@ async function refused(err) {
 }
 
 // -- controls -----------------------------------------------------------------------
-async function buildControls() {
-  const list = await call("GET", "/api/controls");
-  for (const c of list) {
-    const row = document.createElement("label");
-    row.className = "ctl";
-    row.id = "row-" + idOf(c.key);
-    const name = document.createElement("span");
-    name.textContent = c.label;
-    let input;
-    if (c.kind === "choice") {
-      input = document.createElement("select");
-      for (const choice of c.choices) {
-        const option = document.createElement("option");
-        option.value = choice;
-        option.textContent = choice === "" ? c.unset : choice;
-        input.appendChild(option);
-      }
-    } else {
-      input = document.createElement("input");
-      input.type = "text";
-      input.inputMode = c.kind === "integer" ? "numeric" : "decimal";
+// the controls whose change adds or removes others (the year types' rows)
+const RESHAPING = ["environment.years", "environment.switching"];
+
+function addControl(c) {
+  const row = document.createElement("label");
+  row.className = "ctl";
+  row.id = "row-" + idOf(c.key);
+  const name = document.createElement("span");
+  name.textContent = c.label;
+  let input;
+  if (c.kind === "choice") {
+    input = document.createElement("select");
+    for (const choice of c.choices) {
+      const option = document.createElement("option");
+      option.value = choice;
+      option.textContent = choice === "" ? c.unset : choice;
+      input.appendChild(option);
     }
-    input.id = idOf(c.key);
-    input.dataset.key = c.key;
-    input.addEventListener("change", () => post("/api/update", { changes: { [c.key]: input.value } }, c.key));
-    const msg = document.createElement("span");
-    msg.className = "msg";
-    row.append(name, input, msg);
-    const group = $(GROUPS[c.key.split(".")[0]]);
-    group.appendChild(row);
-    group.closest("fieldset").hidden = false;  // the year types' box shows only where there are some
+  } else {
+    input = document.createElement("input");
+    input.type = "text";
+    input.inputMode = c.kind === "integer" ? "numeric" : (c.kind === "names" ? "text" : "decimal");
+    if (c.kind === "names") input.placeholder = c.unset;
   }
+  input.id = idOf(c.key);
+  input.dataset.key = c.key;
+  input.addEventListener("change", async () => {
+    await post("/api/update", { changes: { [c.key]: input.value } }, c.key);
+    if (RESHAPING.includes(c.key)) await rebuildYears();
+  });
+  const msg = document.createElement("span");
+  msg.className = "msg";
+  row.append(name, input, msg);
+  $(GROUPS[c.key.split(".")[0]]).appendChild(row);
+}
+
+async function buildControls() {
+  for (const c of await call("GET", "/api/controls")) addControl(c);
+}
+
+// the year types' rows again, from the settings now in force (or being edited)
+async function rebuildYears() {
+  const list = (await call("GET", "/api/controls")).filter((c) => c.key.startsWith("environment."));
+  const keep = document.activeElement && document.activeElement.dataset ? document.activeElement.dataset.key : null;
+  $("group-environment").replaceChildren();
+  for (const c of list) addControl(c);
+  if (view) showControls(view);
+  if (keep && $(idOf(keep))) $(idOf(keep)).focus();
 }
 
 function showControls(v, changed = null) {
