@@ -328,6 +328,7 @@ def test_year_types_are_added_renamed_switched_and_removed_by_their_names():
     np.testing.assert_allclose(s.config.environment.transitions, np.full((3, 3), 1 / 3))
     assert "environment.transitions.hot" in s.view()["settings"]
     assert s.update({"environment.years": "moist, moist"})[0].startswith("environment.year[1].name: 'moist'")
+    assert control_of(s.problems[0], s.raw) == "environment.years"  # shown beside the names
     assert s.update({"environment.years": ""}) == []
     assert s.config.environment is None and s.theory.prediction["invasion_fitness"] == constant
     assert not any(k.startswith("environment.year.") for k in s.view()["settings"])

@@ -248,5 +248,7 @@ def control_of(problem: str, raw: dict) -> str | None:
     if year and "environment" in raw and int(year[2]) < len(raw["environment"].get("year", [])):
         name = raw["environment"]["year"][int(year[2])]["name"]
         key = f"environment.year.{name}.{year[3]}" if year[1] == "year" else f"environment.transitions.{name}"
+        if year[1] == "year" and year[3] == "name":  # names are typed in one box
+            key = "environment.years"
         return key if key in keys else None
     return path if path in keys else None
