@@ -383,6 +383,7 @@ def locate(
     LocateResult
     """
     from sim.parallel import default_batch_size, make_pool, plan_batches
+    from sim.point_run import PointRun
     from sim.store import ResultsError, ResultsWriter, resumable_attrs
 
     if config.invasion is None:
@@ -448,7 +449,8 @@ def locate(
             missing = writer.missing()
             if missing:
                 todo = sum(len(r) for runs in missing.values() for r in runs)
-                size = batch_size or default_batch_size(todo, pool.slots, int(base.density.capacity or 1000))
+                held = max(PointRun.of(point).held for point in points)
+                size = batch_size or default_batch_size(todo, pool.slots, held)
                 tasks = ((b, points[b.point], seed) for b in plan_batches(missing, size))
                 for _, results in pool.run(tasks):
                     writer.write(results)

@@ -213,8 +213,9 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         Show a progress bar.
     batch_size : int, optional
         Replicates per batch (default: ``parallel.default_batch_size``: about 5 x 10^5
-        individuals at the starting census, at most 1024 replicates, both four times
-        larger without trajectories, and about four batches per worker).
+        individuals at the starting census, or classes with ``counts``, at most 1024
+        replicates; without trajectories four times the entries and at most 16,384
+        replicates; and about four batches per worker).
     budget : bool
         Refuse an experiment past ``sim.describe.BUDGET`` individual-seasons
         (``False`` lifts it).
@@ -272,8 +273,8 @@ def run_experiment(config: Config, out: str | Path, *, overwrite: bool = False, 
         # each point's life cycle and starting census, worked out here once: a worker is sent
         # plain data (no config schema to import, no equilibrium to solve)
         runs = {p.index: PointRun.of(p) for p in points}
-        census = max(int(run.start.sum()) for run in runs.values())
-        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, census,
+        held = max(run.held for run in runs.values())
+        size = batch_size or default_batch_size(writer.expected - writer.done, pool.slots, held,
                                                 records=config.experiment.trajectory != "none")
         clock.batch_size = size
         # workers that see the writer's disk save their own shards (the writer indexes them);

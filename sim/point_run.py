@@ -22,6 +22,7 @@ import numpy as np
 
 from .lifecycle import LifeCycle, initial_census
 from .outcomes import mutant_index
+from .vocabulary import COUNTING_ENGINES
 from .years import YearTypes
 
 if TYPE_CHECKING:
@@ -81,6 +82,12 @@ class PointRun:
             record_every=exp.record_every, trajectory=exp.trajectory,
             config_bytes=pickle.dumps(config, protocol=pickle.HIGHEST_PROTOCOL),
         )
+
+    @property
+    def held(self) -> int:
+        """Entries a batch holds for one replicate at its start: a count per class with an
+        engine that counts classes (``COUNTING_ENGINES``), else each individual."""
+        return int(self.start.size if self.engine in COUNTING_ENGINES else self.start.sum())
 
     @cached_property
     def config(self) -> Config:

@@ -9,7 +9,7 @@ This module imports nothing, so any module may import it.
 """
 
 __all__ = [
-    "ENGINES", "STOP_RULES", "TRAJECTORY_MODES", "DENSITY_FORMS", "PLACEMENTS", "COUNTED",
+    "ENGINES", "COUNTING_ENGINES", "STOP_RULES", "TRAJECTORY_MODES", "DENSITY_FORMS", "PLACEMENTS", "COUNTED",
     "DISTRIBUTIONS", "BREEDING", "BROOD_EFFECTS", "OUTCOMES", "DECIDED_WITH_WINNER", "DECIDED", "outcome_name",
     "SWITCHING", "STATIONARY", "YEAR_MULTIPLIERS", "MAX_COUNT",
 ]
@@ -19,6 +19,9 @@ __all__ = [
 MAX_COUNT = 2**32 - 1
 
 ENGINES = ("individual", "agents", "counts")
+# engines that hold a count per class (allele x age), not each individual: a batch's memory
+# and its per-season cost do not grow with the population's size
+COUNTING_ENGINES = ("counts",)
 STOP_RULES = ("fixation", "max-steps")
 TRAJECTORY_MODES = ("by-age", "by-allele", "none")
 DENSITY_FORMS = ("none", "beverton-holt", "ricker", "ceiling")

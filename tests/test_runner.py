@@ -128,18 +128,49 @@ def test_run_batch_reduces_trajectories_in_the_worker():
     assert all(r.trajectory.ndim == 2 and r.trajectory.dtype == np.uint32 for r in results)
 
 
-def test_default_batch_size_scales_with_the_census():
+def test_default_batch_size_scales_with_what_a_replicate_holds():
     from sim.parallel import default_batch_size
 
-    # About 5e5 individuals a batch, at most 1024 replicates, about four batches per slot.
-    assert default_batch_size(100_000, 1, census_size=2000) == 250
-    assert default_batch_size(100_000, 1, census_size=200) == 1024
-    assert default_batch_size(100_000, 1, census_size=10**6) == 1
-    assert default_batch_size(400, 2, census_size=200) == 50
-    # without trajectories (results of a few numbers each), four times larger
-    assert default_batch_size(100_000, 1, census_size=200, records=False) == 4096
-    assert default_batch_size(100_000, 1, census_size=2000, records=False) == 1000
-    assert default_batch_size(400, 2, census_size=200, records=False) == 50
+    # About 5e5 entries a batch, at most 1024 replicates, about four batches per slot.
+    assert default_batch_size(100_000, 1, held=2000) == 250
+    assert default_batch_size(100_000, 1, held=200) == 1024
+    assert default_batch_size(100_000, 1, held=10**6) == 1
+    assert default_batch_size(400, 2, held=200) == 50
+    # without trajectories (results of a few numbers each), four times the entries and at most
+    # 16,384 replicates
+    assert default_batch_size(100_000, 1, held=200, records=False) == 10_000
+    assert default_batch_size(100_000, 1, held=500, records=False) == 4000
+    assert default_batch_size(300_000, 2, held=4, records=False) == 16_384
+    assert default_batch_size(100_000, 1, held=2000, records=False) == 1000
+    assert default_batch_size(400, 2, held=200, records=False) == 50
+
+
+@pytest.mark.parametrize("engine", ["individual", "counts"])
+def test_what_a_replicate_holds_follows_the_engine(engine):
+    """A batched engine in COUNTING_ENGINES holds the same arrays at any census size; the
+    others hold arrays that grow with it (which PointRun.held tells the batch size)."""
+    from sim.config import parse_config
+    from sim.engines import ENGINES
+    from sim.lifecycle import LifeCycle
+    from sim.point_run import PointRun
+    from sim.vocabulary import COUNTING_ENGINES
+
+    def held_bytes(n):
+        raw = {"experiment": {"engine": engine},
+               "allele": [{"name": "p", "breeding": "iteroparous", "fecundity": 1.0,
+                           "adult_survival": 0.5, "juvenile_survival": 0.5, "initial_count": n}]}
+        config = parse_config(raw)
+        life = LifeCycle.from_config(config)
+        rngs = [np.random.default_rng(r) for r in range(4)]
+        batch = ENGINES[engine].populations(life, np.full((4, 1, 1), n), rngs)
+        arrays = [v for v in vars(batch).values() if isinstance(v, np.ndarray)]
+        return sum(a.nbytes for a in arrays), PointRun.of(sweep_points(config)[0]).held
+
+    (small, held_small), (large, held_large) = held_bytes(10), held_bytes(10_000)
+    if engine in COUNTING_ENGINES:
+        assert 0 < large == small and held_small == held_large == 1  # one class
+    else:
+        assert large > 100 * small and (held_small, held_large) == (10, 10_000)
 
 
 def test_summary_counts_fixed_without_invasion(tmp_path):

@@ -29,8 +29,9 @@ def add_run_options(parser) -> None:
     parser.add_argument("--resume", action="store_true",
                         help="finish an unfinished results file (same config), skipping what is done")
     parser.add_argument("--batch-size", type=positive, default=None, metavar="N",
-                        help="replicates per batch of work (default: about 5e5 individuals, at most 1024 "
-                             "replicates, both x4 without trajectories; results do not depend on it)")
+                        help="replicates per batch of work (default: about 5e5 individuals, or classes with "
+                             "counts, at most 1024 replicates; without trajectories 4x the entries, at "
+                             "most 16384 replicates; results do not depend on it)")
     add_budget_option(parser)
 
 

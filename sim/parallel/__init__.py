@@ -20,7 +20,7 @@ _WHERE = {
     **dict.fromkeys(["CLUSTER_INSTALL", "DaskPool"], "cluster"),
     **dict.fromkeys(["ProcessPool", "SerialPool"], "local"),
     **dict.fromkeys(["default_workers", "start_soon"], "start"),
-    **dict.fromkeys(["BATCH_INDIVIDUALS", "BATCH_REPLICATES", "Batch", "BatchClock", "BatchOutput", "Job",
+    **dict.fromkeys(["BATCH_ENTRIES", "BATCH_REPLICATES", "Batch", "BatchClock", "BatchOutput", "Job",
                      "ClusterError", "PoolError", "default_batch_size", "plan_batches", "iter_batches",
                      "reduce_trajectory", "run_batch", "run_job", "run_kept_replicates"], "work"),
 }

@@ -65,30 +65,40 @@ class Batch:
         return self.last - self.first + 1
 
 
-# Individuals a batch holds at once by default: enough that a batch's fixed cost per season
-# (array calls around the compiled pass; numpy calls per replicate for some laws) is spread
-# over many individuals, few enough that a batch finishes (and is saved) quickly. In an
-# invasion most replicates leave early and a few run long: the larger the batch, the more
-# replicates share the long tail's seasons (K = 500, one worker: 1000 replicates a batch ran
-# 20,000 replicates in 4.2 s, 200 a batch in 7.2 s, measured in one run). A batch's results
-# stay in memory until saved, trajectories included; without trajectories (``trajectory =
-# "none"``) they are a few numbers a replicate, so such batches may be four times larger
-# (K = 500, 16,384 replicates on one core: 4096 a batch took 64 microseconds of CPU a
-# replicate against 84 at 1024 with `counts`, 200 against 243 with `individual`).
-BATCH_INDIVIDUALS = 500_000
+# Entries a batch holds at once by default (an individual, for the engines that hold
+# individuals; a count per class, for ``counts``: ``sim.engines.held_per_replicate``): enough
+# that a batch's fixed cost per season (array calls around the compiled pass; numpy calls per
+# replicate for some laws) is spread over many replicates, few enough that a batch finishes
+# (and is saved) quickly. In an invasion most replicates leave early and a few run long: the
+# larger the batch, the more replicates share the long tail's seasons (K = 500, one worker:
+# 1000 replicates a batch ran 20,000 replicates in 4.2 s, 200 a batch in 7.2 s, measured in
+# one run). A batch's results stay in memory until saved, trajectories included, so a batch
+# that keeps them holds at most ``BATCH_REPLICATES``. Without trajectories (``trajectory =
+# "none"``) they are a few numbers a replicate, so such batches hold four times the entries
+# and up to ``UNRECORDED_REPLICATES`` replicates (K = 500, 16,384 replicates on one core: 4096
+# a batch took 64 microseconds of CPU a replicate against 84 at 1024 with `counts`, 200
+# against 243 with `individual`; 300,000 replicates of the same invasion on one worker took
+# 5.05 s in batches of 16,384 against 5.70 s in 4096 with `counts`, and at K = 50 100,000
+# replicates 1.84 s against 2.10 s with `individual`: medians of 3 and single runs, one
+# session; 65,536 was slower again).
+BATCH_ENTRIES = 500_000
 BATCH_REPLICATES = 1024
 UNRECORDED_FACTOR = 4
+UNRECORDED_REPLICATES = 16_384
 
 
-def default_batch_size(n_replicates: int, slots: int, census_size: int = 1, *,
+def default_batch_size(n_replicates: int, slots: int, held: int = 1, *,
                        records: bool = True) -> int:
-    """Replicates per batch: about ``BATCH_INDIVIDUALS`` individuals at the starting census
-    (at most ``BATCH_REPLICATES`` replicates; both ``UNRECORDED_FACTOR`` times larger when
-    no trajectories are kept, ``records=False``), and small enough that every slot gets
-    about four batches."""
-    factor = 1 if records else UNRECORDED_FACTOR
-    cap = max(1, min(factor * BATCH_REPLICATES, factor * BATCH_INDIVIDUALS // max(census_size, 1)))
-    return max(1, min(cap, math.ceil(n_replicates / (4 * max(slots, 1)))))
+    """Replicates per batch: about ``BATCH_ENTRIES`` entries when each replicate holds
+    ``held`` (``sim.engines.held_per_replicate``: its individuals, or its classes), at
+    most ``BATCH_REPLICATES`` replicates; without trajectories (``records=False``)
+    ``UNRECORDED_FACTOR`` times the entries and at most ``UNRECORDED_REPLICATES``; and
+    small enough that every slot gets about four batches."""
+    if records:
+        cap = min(BATCH_REPLICATES, BATCH_ENTRIES // max(held, 1))
+    else:
+        cap = min(UNRECORDED_REPLICATES, UNRECORDED_FACTOR * BATCH_ENTRIES // max(held, 1))
+    return max(1, min(max(cap, 1), math.ceil(n_replicates / (4 * max(slots, 1)))))
 
 
 def plan_batches(missing: dict[int, list[range]], batch_size: int) -> list[Batch]:
