@@ -178,6 +178,19 @@ def test_workers_and_their_fork_server_leave_sigterm_to_the_writer_and_cancel_st
         pytest.fail("a cancelled pool left its worker running")
 
 
+@pytest.mark.skipif(worker_context().get_start_method() != "forkserver", reason="no fork server here")
+def test_start_soon_starts_the_fork_server_before_it_returns_and_does_not_wait_for_its_load():
+    # the server process exists when start_soon returns (not later, from a thread waiting for
+    # the interpreter), while its load (sim.parallel.warm: numba, h5py) goes on in that process
+    probe = ("import sys, threading\nfrom multiprocessing import forkserver\n"
+             "from sim.parallel.start import start_soon\nstart_soon()\n"
+             "pid = forkserver._forkserver._forkserver_pid\n"
+             "print(pid is not None, threading.active_count(), 'numba' in sys.modules)")
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, cwd=ROOT,
+                          check=True, timeout=120)
+    assert done.stdout.split() == ["True", "1", "False"], done.stderr[-2000:]
+
+
 def test_a_failed_load_leaves_the_collector_running():
     # the fork server swallows a preload's ImportError and goes on: the collector it paused
     # for the load must run again
