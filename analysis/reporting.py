@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from sim.config import ConfigError, sweep_factors, swept_paths, swept_values
+from sim.config import sweep_factors, swept_paths, swept_values
 from sim.describe import describe_environment
 from sim.store import read_attrs, read_point_configs, read_points, read_replicates
 
@@ -714,16 +714,11 @@ def _trait_sections(path, config, figures_dir, incomplete) -> dict:
     from .trait import compare_trait
 
     note = f'<p class="caution">{html.escape(incomplete)}</p>' if incomplete else ""
-    try:
-        prediction, _ = _trait_prediction_text(path, config)
-        table = compare_trait(path)
-    except ConfigError as err:  # the effort theory does not cover this config: say so, show the runs
-        why = "".join(f"<li>{html.escape(p)}</li>" for p in err.problems)
-        prediction = f"<p>No adaptive-dynamics prediction for this experiment:</p><ul>{why}</ul>"
-        results = "<p>No comparison with theory (see The prediction); the figure shows the runs.</p>"
-        verdict = "No verdict: the effort theory does not cover this experiment."
-    else:
-        results, verdict = _trait_table_html(table), trait_verdict_text(table)
+    # a trait run's alleles are copies of one effort template ([trait]), which the effort theory
+    # always covers (analysis.trait.effort_model refuses only effort alleles that differ)
+    prediction, _ = _trait_prediction_text(path, config)
+    table = compare_trait(path)
+    results, verdict = _trait_table_html(table), trait_verdict_text(table)
     return {
         "experiment": ("The experiment", _trait_experiment_text(config)),
         "prediction": ("The prediction", prediction),

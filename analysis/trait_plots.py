@@ -13,7 +13,6 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from sim.config import ConfigError  # noqa: E402
 from sim.store import read_point_configs, read_points, read_trait  # noqa: E402
 
 from .trait import trait_analysis  # noqa: E402
@@ -52,13 +51,7 @@ def trait_figure(path, *, max_replicates: int = 8):
             ax.plot(run["step"], mean, color=colour, linewidth=1.0,
                     label="simulated mean effort (band: +- 1 sd)" if k == 0 else None)
         seen = set()
-        try:
-            singular = trait_analysis(config).singular
-        except ConfigError:  # no effort theory for this config: the runs alone
-            singular = []
-            ax.set_title("no singular efforts: the effort theory does not cover this config "
-                         "(broodline compare says why)", fontsize=7, loc="left")
-        for s in singular:
+        for s in trait_analysis(config).singular:  # (a [trait] template: the theory covers it)
             if s.kind not in _LINES:
                 continue
             style, colour = _LINES[s.kind]
