@@ -188,10 +188,9 @@ class _YearProjections:
 def _projections(schedule: Schedule, years: YearTypes, offspring=None) -> _YearProjections:
     """The year types' projection matrices of ``schedule`` (``offspring``: the offspring law,
     default Poisson; it matters only under a brood effect)."""
-    scaled = [scaled_schedule(schedule, y) for y in years.types]
-    fert = np.array([projection_matrix(s, Factors(1.0, 0.0, 1.0), offspring=offspring) for s in scaled])
-    surv = np.array([projection_matrix(s, Factors(0.0, 1.0, 1.0), offspring=offspring) for s in scaled])
-    kernels = [SeasonKernel.for_schedule(s, offspring=offspring) for s in scaled]
+    kernels = [SeasonKernel.for_schedule(scaled_schedule(schedule, y), offspring=offspring) for y in years.types]
+    fert = np.array([k.projection_matrix(Factors(1.0, 0.0, 1.0)) for k in kernels])  # (as projection_matrix)
+    surv = np.array([k.projection_matrix(Factors(0.0, 1.0, 1.0)) for k in kernels])
     return _YearProjections(fert, surv, tuple(kernels) if kernels[0].parental else None)
 
 
@@ -200,6 +199,12 @@ def year_matrices(schedule: Schedule, years: YearTypes, factors: Factors = Facto
     """Projection matrix of each year type at fixed density factors, shape (n_types, n, n)."""
     return _projections(schedule, years, offspring).matrices(np.arange(len(years.types)), *factors,
                                                              kind=type(factors))
+
+
+# a span of seasons whose matrices ``_log_increments`` builds at once: at most this many
+# seasons, and this many matrix entries (32 MB of float64)
+_SPAN_SEASONS = 256
+_SPAN_ENTRIES = 1 << 22
 
 
 def _log_increments(proj: _YearProjections, seq, factors: Factors | None = None, weights=None) -> np.ndarray:
@@ -211,19 +216,30 @@ def _log_increments(proj: _YearProjections, seq, factors: Factors | None = None,
     since the sums telescope to log(size at the end / size at the start).
     """
     n_b, n_t = seq.shape
-    w = np.ones(proj.n_ages) if weights is None else np.asarray(weights, dtype=float)
-    x = np.zeros((n_b, proj.n_ages))
+    n = proj.n_ages
+    w = np.ones(n) if weights is None else np.asarray(weights, dtype=float)
+    x = np.zeros((n_b, n))
     x[:, 0] = 1.0 / w[0]  # one recruit (age 1) of size 1: see the notes of stochastic_growth_rate
     out = np.empty((n_b, n_t))
+    # the matrices of a span of seasons are built at once, season-major (each season's block
+    # contiguous), so that the season loop only multiplies: building them one season at a
+    # time cost more than the products (the same numbers, element by element)
+    span = max(1, min(_SPAN_SEASONS, _SPAN_ENTRIES // (n_b * n * n)))
     with np.errstate(divide="ignore", invalid="ignore"):
-        for t in range(n_t):
-            y = seq[:, t]
-            a = proj.matrices(y) if factors is None else proj.matrices(y, *(f[:, t] for f in factors),
-                                                                          kind=type(factors))
-            x = np.einsum("bij,bj->bi", a, x)
-            size = x @ w
-            out[:, t] = np.log(size)
-            x = x / np.where(size > 0, size, 1.0)[:, None]
+        for t0 in range(0, n_t, span):
+            t1 = min(t0 + span, n_t)
+            y = seq[:, t0:t1].T.ravel()
+            if factors is None:
+                a = proj.matrices(y)
+            else:
+                a = proj.matrices(y, *(np.broadcast_to(f, seq.shape)[:, t0:t1].T.ravel() for f in factors),
+                                  kind=type(factors))
+            a = a.reshape(t1 - t0, n_b, n, n)
+            for t in range(t1 - t0):
+                x = np.einsum("bij,bj->bi", a[t], x)
+                size = x @ w
+                out[:, t0 + t] = np.log(size)
+                x = x / np.where(size > 0, size, 1.0)[:, None]
     return out
 
 
@@ -484,10 +500,11 @@ def _ceiling_path(resident, years, density, sequences, start, offspring=None) ->
     x = np.tile(start, (n_b, 1))
     phi = np.ones((n_b, n_t))
     size = np.empty((n_b, n_t))
+    free = proj.matrices(np.arange(len(years.types)))  # each year type's, density-free
     for t in range(n_t):
         y = seq[:, t]
         size[:, t] = x.sum(axis=1)
-        unchecked = np.einsum("bij,bj->bi", proj.matrices(y), x)
+        unchecked = np.einsum("bij,bj->bi", free[y], x)
         survivors = np.einsum("bij,bj->bi", proj.surv[y], x)  # the survival part: no young
         recruits = unchecked - survivors
         excess, pool = kernel.ceiling_excess(survivors.sum(axis=1), recruits.sum(axis=1))
