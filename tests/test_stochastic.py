@@ -458,3 +458,34 @@ def test_stacked_log_increments_are_each_schedules_own():
     for got, schedule in zip(both, two):
         alone = stacked_log_increments([schedule], years, draws)[0]
         np.testing.assert_allclose(got, alone, rtol=1e-13)
+
+
+# --------------------------------------------------------------------------- the season loop
+@pytest.mark.parametrize("care", [False, True])
+@pytest.mark.parametrize("span_entries", [None, 9 * 8 * 3])
+def test_log_increments_over_spans_equal_the_season_by_season_product(monkeypatch, care, span_entries):
+    # _log_increments builds a span of seasons' matrices at once; the answer must be the plain
+    # normalised product A(y_t, f_t) x_{t-1}, one season at a time (common practice: the
+    # definition of the log increments, Tuljapurkar 1990, chapter from memory), here for spans that do not
+    # divide the seasons, with per-season density factors and with parental care's rows
+    from analysis import stochastic
+
+    if span_entries is not None:  # 3 seasons a span at 8 batches of 3 x 3 matrices
+        monkeypatch.setattr(stochastic, "_SPAN_ENTRIES", span_entries)
+    schedule = replace(TABLE, orphan_survival=0.2) if care else TABLE
+    seqs = _sequences(TWO_YEARS, 11, n_batches=8, batch_length=280, burn_in=20)  # 300: spans of 256
+    seq = seqs.for_years(TWO_YEARS).indices
+    rng = np.random.default_rng(5)
+    factors = Factors(*(rng.uniform(0.3, 1.0, seq.shape) for _ in range(3)))
+    proj = stochastic._projections(schedule, TWO_YEARS)
+    got = stochastic._log_increments(proj, seq, factors)
+    x = np.zeros((seq.shape[0], 3))
+    x[:, 0] = 1.0
+    for t in range(seq.shape[1]):
+        a = np.array([SeasonKernel.for_schedule(scaled_schedule(schedule, TWO_YEARS.types[y]))
+                      .projection_matrix(Factors(*(f[b, t] for f in factors)))
+                      for b, y in enumerate(seq[:, t])])
+        x = np.einsum("bij,bj->bi", a, x)
+        size = x.sum(axis=1)
+        np.testing.assert_allclose(got[:, t], np.log(size), rtol=1e-12, atol=1e-12)
+        x = x / size[:, None]
