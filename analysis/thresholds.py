@@ -19,6 +19,7 @@ from sim.config import (
     ConfigError,
     SweepFactor,
     get_path,
+    is_probability_path,
     parse_config,
     sweep_points,
     swept_values,
@@ -134,13 +135,6 @@ def _check_parameter(config: Config, parameter: str) -> None:
         raise ConfigError(f"{parameter}: is not a number (got {current!r})")
 
 
-def _is_probability(config: Config, parameter: str) -> bool:
-    parts = parameter.split(".")
-    if parts[0] == "allele":
-        return parts[2] in ("adult_survival", "juvenile_survival", "orphan_survival")
-    return parameter == "mutation.rate"
-
-
 def fitness_along(config: Config, parameter: str, values, *, group: SweepFactor | None = None
                   ) -> np.ndarray:
     """Invasion fitness at each value of ``parameter`` (nan: no resident equilibrium).
@@ -189,7 +183,7 @@ def _default_bracket(config: Config, parameter: str) -> tuple[float, float, bool
     if swept:
         values = [float(v) for v in swept]
         return min(values), max(values), False
-    if _is_probability(config, parameter):
+    if is_probability_path(parameter):
         return 0.0, 1.0, False
     current = parameter_value(config, parameter)
     return 0.0, max(2.0 * float(current or 0.0), 1.0), True

@@ -151,3 +151,55 @@ def test_sweep_thresholds_and_predictions_per_point():
     expected = [3 / 4, 3 * 0.5 / 1.5, 5 / 4, 5 * 0.5 / 1.5]
     assert table["invasion_fitness"].to_numpy() == pytest.approx(expected, rel=1e-9)
     assert np.all(table["verdict"] == ["does not invade", "neutral", "invades", "invades"])
+
+
+EFFORT_PAIR = {
+    "experiment": {"name": "effort-pair", "seed": 5, "replicates": 10},
+    "density": {"form": "beverton-holt", "acts_on": "recruitment", "capacity": 200.0},
+    "tradeoff": {"max_fecundity": 6.0, "fecundity_shape": 0.5, "max_adult_survival": 0.9},
+    "allele": [{"name": "low", "breeding": "effort", "effort": 0.3, "juvenile_survival": 0.5},
+               {"name": "high", "breeding": "effort", "effort": 0.6, "juvenile_survival": 0.5}],
+    "invasion": {"resident": "low", "mutant": "high", "mutant_count": 1, "resident_count": "equilibrium"},
+}
+
+
+def test_threshold_along_an_effort_searches_its_share_and_says_when_fitness_crosses_1_again():
+    # An effort is a share in [0, 1] (the schema's Probability), so the default bracket is
+    # [0, 1], not [0, 2 x the current value] (which asked for effort = 1.2 and failed).
+    # Beverton-Holt on recruitment: a mutant invades iff its lifetime offspring
+    # B(E) / (1 - P(E)) beats the resident's (Mylius & Diekmann 1995), which with B = 6 sqrt(E),
+    # P = 0.9 (1 - E) is hump-shaped: fitness crosses 1 at the resident's own effort (a mutant
+    # like the resident neither grows nor shrinks: Metz, Nisbet & Geritz 1992) and at the other
+    # effort of the same ratio, which scipy's brentq finds here.
+    from scipy.optimize import brentq
+
+    from analysis.comparison import threshold_lines
+    from sim.config import parse_config
+
+    config = parse_config(EFFORT_PAIR)
+
+    def ratio(e):
+        return 6.0 * math.sqrt(e) / (1.0 - 0.9 * (1.0 - e))
+
+    other = brentq(lambda e: ratio(e) - ratio(0.3), 1e-9, 0.2)
+    found = threshold(config, "allele.high.effort")
+    assert found.bracket == (0.0, 1.0) and found.crossings == 2 and found.invades_above
+    assert found.value == pytest.approx(other, abs=1e-8)
+    (line,) = threshold_lines(config, [found])
+    assert "invades above it; up to the next crossing: invasion fitness crosses 1 2 times" in line
+    near = threshold(config, "allele.high.effort", bracket=(0.1, 0.9))
+    assert near.value == pytest.approx(0.3, abs=1e-8) and not near.invades_above and near.crossings == 1
+    assert "next crossing" not in threshold_lines(config, [near])[0]
+
+
+@pytest.mark.parametrize("path, share", [
+    ("allele.high.effort", True), ("allele.high.juvenile_survival", True),
+    ("allele.high.orphan_survival", True), ("tradeoff.max_adult_survival", True),
+    ("mutation.rate", True), ("environment.year.lean.probability", True),
+    ("tradeoff.max_fecundity", False), ("density.capacity", False), ("allele.high.fecundity", False),
+    ("environment.year.lean.fecundity", False),
+])
+def test_which_paths_hold_a_share_comes_from_the_schema(path, share):
+    from sim.config import is_probability_path
+
+    assert is_probability_path(path) is share

@@ -14,6 +14,7 @@ from __future__ import annotations
 import copy
 import itertools
 import math
+import typing
 from collections import Counter
 from dataclasses import dataclass
 from typing import Any
@@ -21,7 +22,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, ValidationError
 
 from .messages import messages
-from .schema import LINKED, Config, ConfigError
+from .schema import LINKED, AlleleSection, Config, ConfigError, Probability, YearSection
 
 __all__ = [
     "swept_values",
@@ -31,6 +32,7 @@ __all__ = [
     "sweep_factors",
     "swept_paths",
     "get_path",
+    "is_probability_path",
     "set_path",
     "with_values",
 ]
@@ -203,6 +205,27 @@ def get_path(config: Config, path: str):
     if parts[:2] == ["environment", "year"]:
         return getattr(next(y for y in config.environment.year if y.name == parts[2]), parts[3])
     return getattr(getattr(config, parts[0]), parts[1])
+
+
+def is_probability_path(path: str) -> bool:
+    """Whether the key at a path holds a share in [0, 1] (the schema's ``Probability``: a
+    survival, an effort, a year's probability, the mutation rate...)."""
+    parts = path.split(".")
+    if parts[0] == "allele" and len(parts) == 3:
+        field = AlleleSection.model_fields.get(parts[2])
+    elif parts[:2] == ["environment", "year"] and len(parts) == 4:
+        field = YearSection.model_fields.get(parts[3])
+    elif len(parts) == 2 and parts[0] in Config.model_fields:
+        section = Config.model_fields[parts[0]].annotation
+        section = next((t for t in typing.get_args(section) if isinstance(t, type)), section)  # X | None
+        field = getattr(section, "model_fields", {}).get(parts[1])
+    else:
+        field = None
+    if field is None:
+        return False
+    # pydantic keeps a bare Annotated type's markers in ``metadata``; in a union, the type itself
+    share = typing.get_args(Probability)[-1]  # Probability's validator
+    return share in field.metadata or Probability in typing.get_args(field.annotation)
 
 
 def with_values(config: Config, values: dict) -> Config:
