@@ -46,6 +46,7 @@ from .closedform import closed_form
 from .estimates import ObservedThreshold, observed_threshold, wilson_interval
 from .fixation import note_lines
 from .sweep import predict_configs, sweep_thresholds
+from .thresholds import more_crossings_words
 
 __all__ = [
     "COMPARE_COLUMNS",
@@ -420,11 +421,7 @@ def _analytic_words(res, formula: str) -> str:
         along += (f"; the resident invades back {'below' if res.invades_above else 'above'} "
                   f"{float(f'{back:.4g}'):g}, so in between the two coexist and fixation is expected "
                   "only past that replacement threshold")
-    crossings = getattr(res, "crossings", 1) or 1
-    if crossings > 1:  # fitness - 1 changes sign again beyond it: "above it" holds only up to there
-        lo, hi = res.bracket
-        along += (f"; up to the next crossing: invasion fitness crosses 1 {crossings} times in "
-                  f"[{lo:g}, {hi:g}] and the lowest is shown (--bracket LOW HIGH finds the others)")
+    along += more_crossings_words(getattr(res, "crossings", 1) or 1, res.bracket)
     return f"{res.parameter} = {value}{where}: the mutant invades {side} it{along}"
 
 

@@ -177,6 +177,17 @@ def _at(base: Config, setting, value: float, quantity=invasion_fitness) -> float
         return float("nan")
 
 
+def more_crossings_words(crossings: int, bracket) -> str:
+    """What follows "the mutant invades above (below) it" where invasion fitness crosses 1 more
+    than once in the bracket: the side holds only up to the next crossing ("" for one)."""
+    if crossings <= 1:
+        return ""
+    lo, hi = bracket
+    return (f"; up to the next crossing: invasion fitness passes 1 at {crossings} values in "
+            f"[{lo:g}, {hi:g}], the lowest shown here (broodline threshold --bracket LOW HIGH "
+            "finds the others)")
+
+
 def _default_bracket(config: Config, parameter: str) -> tuple[float, float, bool]:
     """(lo, hi, open_ended): the swept range, [0, 1] for a probability, else [0, extendable]."""
     swept = swept_values(config, parameter)
@@ -309,8 +320,7 @@ def threshold(
     if linked:
         msg += (" (along the linked group, axis " + parameter + ": there "
                 + ", ".join(f"{p} = {v:.10g}" for p, v in linked.items()) + ")")
-    if len(crossings) > 1:
-        msg += f" ({len(crossings)} crossings in [{lo:g}, {hi:g}]; the lowest is reported)"
+    msg += more_crossings_words(len(crossings), (lo, hi))
     return ThresholdResult(
         parameter, float(value), True, (lo, hi), ends, invades_above, len(crossings), msg,
         linked=linked,

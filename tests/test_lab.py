@@ -22,6 +22,7 @@ from sim.config import (
     EnvironmentSection,
     ExperimentSection,
     InvasionSection,
+    TradeOffSection,
     YearSection,
     load_config,
     parse_config,
@@ -243,7 +244,10 @@ def test_every_control_names_a_schema_key():
     for year in markov["environment"]["year"]:
         year.pop("probability")
     parse_config(markov)  # a valid config
-    for raw in (None, page_raw(load_config("configs/fenmarrow-hopper.toml")), markov):
+    effort = page_raw(make_config(tradeoff={"max_fecundity": 4.0, "max_adult_survival": 0.9}, allele=[
+        {"name": "perennial", "breeding": "effort", "effort": 0.3, "juvenile_survival": 0.5},
+        {"name": "one-shot", "breeding": "effort", "effort": 0.6, "juvenile_survival": 0.5}]))
+    for raw in (None, page_raw(load_config("configs/fenmarrow-hopper.toml")), markov, effort):
         for c in controls(raw):
             if c.key.startswith("environment.year."):
                 name = c.key.split(".")[-1]
@@ -257,7 +261,7 @@ def test_every_control_names_a_schema_key():
             else:
                 section, name = c.key.split(".")
                 model = {"density": DensitySection, "experiment": ExperimentSection,
-                         "invasion": InvasionSection}.get(section, AlleleSection)
+                         "invasion": InvasionSection, "tradeoff": TradeOffSection}.get(section, AlleleSection)
             assert name in model.model_fields, c.key
     assert {c.key for c in controls(markov)} - {c.key for c in controls()} == {
         f"environment.{k}" for k in ("switching", "transitions.wet", "transitions.dry", "year.wet.juvenile_survival",
@@ -598,3 +602,49 @@ def test_views_are_numbered_in_the_order_taken(session):
     later = session.view()
     assert later["view"] > first["view"] and later["session"] == first["session"]
     assert later["settings"]["experiment.replicates"] == 30
+
+
+def test_an_allele_turns_to_effort_and_back_valid_at_once_on_a_straight_curve_through_it(session):
+    # The resident (m = 2, s = 0.5) turned to effort gets a straight trade-off through its own
+    # numbers at effort 0.5 (max fecundity 4, max survival 1): B(0.5) = 2, P(0.5) = 0.5 (Schaffer
+    # 1974's linear curve), so the theory is unchanged; the page shows its effort, not the
+    # fecundity and survival the curve gives, and the curve's four keys
+    before = session.theory.prediction["invasion_fitness"]
+    assert session.update({"resident.breeding": "effort"}) == []
+    keys = {c.key for c in controls(session.raw)}
+    assert "resident.effort" in keys and not {"resident.fecundity", "resident.adult_survival"} & keys
+    assert {"tradeoff.max_fecundity", "tradeoff.survival_shape", "mutant.fecundity"} <= keys
+    assert session.config.tradeoff.max_fecundity == 4.0 and session.config.tradeoff.max_adult_survival == 1.0
+    assert session.theory.prediction["invasion_fitness"] == pytest.approx(before, rel=1e-12)
+    # the mutant too: the threshold is then along its effort. On this curve every effort has the
+    # same B(E) / (1 - P(E)) = 4 (neutral under Beverton-Holt on recruitment: Mylius & Diekmann
+    # 1995); with diminishing returns (B = 4 sqrt(E)) the ratio falls with E, so mutants below the
+    # resident's effort invade: fitness is 1 at the resident's own 0.5 (a mutant like the
+    # resident: Metz, Nisbet & Geritz 1992) and at E = 0, an immortal non-breeder (P(0) = 1,
+    # lambda = 1), the lowest crossing, which the page shows with the words for two crossings
+    assert session.update({"mutant.breeding": "effort", "mutant.effort": "0.7"}) == []
+    assert session.theory.parameter == "allele.one-shot.effort"
+    assert session.theory.prediction["invasion_fitness"] == pytest.approx(1.0, abs=1e-9)
+    assert session.update({"tradeoff.fecundity_shape": "0.5"}) == []
+    assert session.theory.threshold == threshold(session.config, "allele.one-shot.effort").value == 0.0
+    assert "up to the next crossing: invasion fitness passes 1 at 2 values" in session.theory.threshold_message
+    inner = threshold(session.config, "allele.one-shot.effort", bracket=(0.05, 0.95))
+    assert inner.value == pytest.approx(0.5, abs=1e-8) and not inner.invades_above
+    # back: the curve's numbers at its effort; the curve goes with the last effort allele
+    assert session.update({"resident.effort": "0.25", "resident.breeding": "iteroparous"}) == []
+    assert (session.config.allele[0].fecundity, session.config.allele[0].adult_survival) == (2.0, 0.75)
+    assert session.config.tradeoff is not None
+    assert session.update({"mutant.breeding": "semelparous"}) == []
+    assert session.config.tradeoff is None
+    assert session.config.allele[1].fecundity == pytest.approx(4 * 0.7 ** 0.5, rel=1e-9)
+    assert session.config.allele[1].adult_survival is None  # maturity 1: no survival used
+    assert "tradeoff.max_fecundity" not in {c.key for c in controls(session.raw)}
+
+
+def test_a_refused_effort_or_curve_value_is_shown_beside_its_control(session):
+    assert session.update({"mutant.breeding": "effort"}) == []
+    problems = session.update({"mutant.effort": "1.4"})
+    assert problems == ["allele[1].effort must be in [0, 1]; got 1.4"]
+    assert control_of(problems[0], session.raw) == "mutant.effort"
+    problems = session.update({"mutant.effort": "0.5", "tradeoff.max_adult_survival": "1.2"})
+    assert len(problems) == 1 and control_of(problems[0], session.raw) == "tradeoff.max_adult_survival"

@@ -257,3 +257,29 @@ def test_year_types_are_named_on_the_page_and_their_rows_follow(page, lab):
     page.wait_for_function("!document.querySelector('#ctl-environment-year-dry-juvenile_survival')")
     page.wait_for_function("!document.querySelector('#th-environment')")
     assert lab.session.config.environment is None
+
+
+def test_an_allele_turned_to_effort_shows_its_effort_and_the_curve_and_back(page, lab):
+    # the demo's mutant (semelparous, m = 4.5) turned to effort: its effort box and the trade-off
+    # curve's appear, its fecundity box goes, the threshold is along its effort (as `broodline
+    # threshold` gives it); turned back, the curve's box is hidden again
+    from analysis import threshold
+
+    assert not page.is_visible("#fieldset-tradeoff") and page.is_visible("#ctl-mutant-fecundity")
+    set_control(page, "mutant.breeding", "effort")
+    page.wait_for_selector("#ctl-mutant-effort")
+    page.wait_for_selector("#fieldset-tradeoff", state="visible")
+    assert not page.query_selector("#ctl-mutant-fecundity")
+    assert float(page.input_value("#ctl-tradeoff-max_fecundity")) == lab.session.config.tradeoff.max_fecundity
+    page.wait_for_selector("#th-fitness")
+    before = text(page, "#th-fitness")
+    set_control(page, "mutant.effort", "0.8")  # moves its invasion fitness, not the threshold
+    page.wait_for_function(f"document.querySelector('#th-fitness').textContent !== '{before}'")
+    assert lab.session.config.allele[1].effort == 0.8
+    want = threshold(lab.session.config, "allele.one-shot.effort").value
+    assert "effort" in page.inner_text("#theory")
+    assert float(text(page, "#th-threshold")) == pytest.approx(want, abs=5e-5)  # 4 decimals shown
+    set_control(page, "mutant.breeding", "semelparous")
+    page.wait_for_selector("#ctl-mutant-fecundity")
+    page.wait_for_selector("#fieldset-tradeoff", state="hidden")
+    assert lab.session.config.tradeoff is None and lab.session.config.allele[1].breeding == "semelparous"

@@ -186,7 +186,7 @@ def test_threshold_along_an_effort_searches_its_share_and_says_when_fitness_cros
     assert found.bracket == (0.0, 1.0) and found.crossings == 2 and found.invades_above
     assert found.value == pytest.approx(other, abs=1e-8)
     (line,) = threshold_lines(config, [found])
-    assert "invades above it; up to the next crossing: invasion fitness crosses 1 2 times" in line
+    assert "invades above it; up to the next crossing: invasion fitness passes 1 at 2 values" in line
     near = threshold(config, "allele.high.effort", bracket=(0.1, 0.9))
     assert near.value == pytest.approx(0.3, abs=1e-8) and not near.invades_above and near.crossings == 1
     assert "next crossing" not in threshold_lines(config, [near])[0]

@@ -5,17 +5,20 @@ set in the config's raw dict and the whole dict is validated by
 ``sim.config.parse_config``, so a refusal reads exactly as it would for a
 TOML file (``allele[1].adult_survival must be in [0, 1]; got 1.3``).
 
-Keys: ``resident.KEY`` and ``mutant.KEY`` (the invasion's two alleles),
-``SECTION.KEY``, ``environment.years`` (the year types' names, comma-separated:
-naming some adds an ``[environment]``, emptying it removes it, a new name at
-the end adds a year type and a changed one renames it, keeping its
-multipliers), and, for a config with year types, ``environment.switching``,
-``environment.year.NAME.KEY`` (the sweep's path of a year's key) and
-``environment.transitions.NAME`` (that year type's row of a Markov chain,
-typed as comma-separated numbers). Where the number of year types or the
-switching changes, the law is set to one that is valid at once: equal
-probabilities, or rows of transitions that repeat them (an iid chain), for
-the page to adjust.
+Keys: ``resident.KEY`` and ``mutant.KEY`` (the invasion's two alleles: an
+effort allele shows its effort, the others their fecundity and adult
+survival; a change of breeding to or from effort is valid at once, see
+``_set_breeding``), ``SECTION.KEY`` (``tradeoff.KEY`` where the config has a
+trade-off curve), ``environment.years`` (the year types' names,
+comma-separated: naming some adds an ``[environment]``, emptying it removes
+it, a new name at the end adds a year type and a changed one renames it,
+keeping its multipliers), and, for a config with year types,
+``environment.switching``, ``environment.year.NAME.KEY`` (the sweep's path of
+a year's key) and ``environment.transitions.NAME`` (that year type's row of a
+Markov chain, typed as comma-separated numbers). Where the number of year
+types or the switching changes, the law is set to one that is valid at once:
+equal probabilities, or rows of transitions that repeat them (an iid chain),
+for the page to adjust.
 """
 
 from __future__ import annotations
@@ -55,9 +58,10 @@ class Control:
     unset: str = "(default)"
 
 
-_BREEDING = ("iteroparous", "semelparous", "table")
+_BREEDING = ("iteroparous", "semelparous", "table", "effort")
 _SCHEDULE = [("breeding", "breeding", "choice", _BREEDING), ("fecundity", "fecundity", "number", ()),
              ("adult_survival", "adult survival", "number", ()),
+             ("effort", "effort", "number", ()),  # (breeding = "effort" only)
              ("juvenile_survival", "juvenile survival", "number", ()),
              ("maturity_age", "maturity age", "integer", ()),
              # parental care and brood size; an empty orphan survival is the juvenile survival
@@ -67,13 +71,22 @@ _SCHEDULE = [("breeding", "breeding", "choice", _BREEDING), ("fecundity", "fecun
 _UNSET = {"brood_effect": "none"}  # a choice whose default has a name
 _YEAR = [("juvenile_survival", "x juvenile survival"), ("fecundity", "x fecundity"),
          ("adult_survival", "x adult survival")]
+_ON_CURVE = ("fecundity", "adult_survival")  # an effort allele's, read off the [tradeoff] curve
+_TRADEOFF = [("max_fecundity", "max fecundity"), ("fecundity_shape", "fecundity shape"),
+             ("max_adult_survival", "max adult survival"), ("survival_shape", "survival shape")]
+# [tradeoff] made for an allele that turns to effort: a straight line through its fecundity m
+# and survival s at effort 0.5 (max_fecundity 2 m, max_adult_survival 2 s, at most 1), or these
+# values where it has no number for them
+_CURVE_DEFAULTS = {"max_fecundity": 4.0, "max_adult_survival": 0.9}
+_FIRST_EFFORT = 0.5
 
 
 def controls(raw: dict | None = None) -> list[Control]:
     """Every control of the page, in page order; with ``raw`` (a config's raw dict) those of
     its year types too, each year's probability (or its row of transitions) and multipliers."""
     out = [Control(f"{who}.{key}", label, kind, choices, _UNSET.get(key, "(default)"))
-           for who in ("resident", "mutant") for key, label, kind, choices in _SCHEDULE]
+           for who in ("resident", "mutant") for key, label, kind, choices in _SCHEDULE
+           if _shown(raw, who, key)]
     out += [
         Control("density.form", "form", "choice", ("none", "beverton-holt", "ricker", "ceiling")),
         Control("density.acts_on", "acts on", "choice",
@@ -83,6 +96,8 @@ def controls(raw: dict | None = None) -> list[Control]:
         Control("experiment.replicates", "replicates", "integer"),
         Control("experiment.seed", "seed", "integer"),
     ]
+    if (raw or {}).get("tradeoff") is not None:
+        out += [Control(f"tradeoff.{key}", label, "number") for key, label in _TRADEOFF]
     environment = (raw or {}).get("environment")
     out.append(Control("environment.years", "year types", "names", unset="(constant)"))
     if environment:
@@ -95,6 +110,13 @@ def controls(raw: dict | None = None) -> list[Control]:
             out.append(Control(f"environment.transitions.{name}", f"{name}: next year", "numbers"))
         out += [Control(f"environment.year.{name}.{key}", f"{name}: {label}", "number") for key, label in _YEAR]
     return out
+
+
+def _shown(raw: dict | None, who: str, key: str) -> bool:
+    """Whether an allele's schedule shows a key: an effort allele its effort, not the fecundity
+    and survival the curve gives; the others the reverse (without ``raw``: the latter)."""
+    effort = raw is not None and _allele(raw, who).get("breeding") == "effort"
+    return effort != (key in _ON_CURVE) if key in (*_ON_CURVE, "effort") else True
 
 
 def _keys(raw: dict) -> set[str]:
@@ -195,6 +217,40 @@ def _set_switching(raw: dict, value) -> None:
         _equal_law(environment)
 
 
+def _number(value):
+    return value if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+
+
+def _set_breeding(raw: dict, who: str, value) -> None:
+    """``resident.breeding`` / ``mutant.breeding``, valid at once across effort and the rest:
+    an allele turning to effort leaves its fecundity and survival to the [tradeoff] curve (made
+    where there is none: a straight line through them at effort 0.5) at effort 0.5; one leaving
+    effort takes the curve's fecundity and survival at its effort; [tradeoff] goes when no
+    allele breeds by effort."""
+    allele = _allele(raw, who)
+    old = allele.get("breeding")
+    allele["breeding"] = value
+    if value == "effort" and old != "effort":
+        m, s = (_number(allele.pop(k, None)) for k in _ON_CURVE)
+        if raw.get("tradeoff") is None:
+            raw["tradeoff"] = {
+                "max_fecundity": 2.0 * m if m is not None else _CURVE_DEFAULTS["max_fecundity"],
+                "max_adult_survival": (min(1.0, 2.0 * s) if s else _CURVE_DEFAULTS["max_adult_survival"])}
+        allele.setdefault("effort", _FIRST_EFFORT)
+    elif old == "effort" and value != "effort":
+        e = _number(allele.pop("effort", None))
+        curve = raw.get("tradeoff") or {}
+        if e is not None and all(_number(curve.get(k)) is not None for k in _CURVE_DEFAULTS):
+            b = curve["max_fecundity"] * e ** curve.get("fecundity_shape", 1.0)
+            p = curve["max_adult_survival"] * (1.0 - e) ** curve.get("survival_shape", 1.0)
+            b, p = float(f"{b:.10g}"), float(f"{p:.10g}")
+            allele["fecundity"], allele["adult_survival"] = ([b], [p]) if value == "table" else (b, p)
+            if value == "semelparous" and allele.get("maturity_age", 1) == 1:
+                del allele["adult_survival"]  # (it breeds in its first season: no survival is used)
+        if not any(a.get("breeding") == "effort" for a in raw["allele"]):
+            raw.pop("tradeoff", None)
+
+
 def set_control(raw: dict, key: str, value) -> dict:
     """A copy of ``raw`` with the control ``key`` set (``None`` removes the key).
 
@@ -211,6 +267,9 @@ def set_control(raw: dict, key: str, value) -> dict:
         return raw
     if key == "environment.switching":
         _set_switching(raw, typed(value))
+        return raw
+    if key in ("resident.breeding", "mutant.breeding"):
+        _set_breeding(raw, key.split(".")[0], typed(value))
         return raw
     table, name = _place(raw, key, create=True)
     value = typed(value)

@@ -69,8 +69,11 @@ class Theory:
 
 
 def page_theory(config: Config) -> Theory:
-    """Invasion fitness, verdict, establishment, neutral expectation and threshold for one config."""
-    parameter = f"allele.{config.invasion.mutant}.fecundity"
+    """Invasion fitness, verdict, establishment, neutral expectation and threshold for one config
+    (along the mutant's fecundity, or its effort for an effort allele)."""
+    mutant = config.alleles[config.allele_index(config.invasion.mutant)]
+    # the mutant's own number: its effort where the trade-off curve gives its fecundity
+    parameter = f"allele.{mutant.name}.{'effort' if mutant.breeding == 'effort' else 'fecundity'}"
     closed = closed_form_threshold(config)
     try:
         prediction = predict_point(config)  # where years vary, the stochastic theory

@@ -4,7 +4,8 @@
 const COLOURS = { "mutant-fixed": "#1a9850", "mutant-lost": "#9a9a9a", other: "#e07b00" };
 const ALLELE_COLOURS = ["#4e79a7", "#e15759", "#59a14f", "#b07aa1"];
 const GROUPS = { resident: "group-resident", mutant: "group-mutant", density: "group-density",
-                 invasion: "group-experiment", experiment: "group-experiment", environment: "group-environment" };
+                 tradeoff: "group-tradeoff", invasion: "group-experiment", experiment: "group-experiment",
+                 environment: "group-environment" };
 const SVGNS = "http://www.w3.org/2000/svg";
 
 let view = null;        // the last answer of the server
@@ -40,8 +41,9 @@ async function refused(err) {
 }
 
 // -- controls -----------------------------------------------------------------------
-// the controls whose change adds or removes others (the year types' rows)
-const RESHAPING = ["environment.years", "environment.switching"];
+// the controls whose change adds or removes others (the year types' rows; an allele's effort or
+// its fecundity and survival, and the trade-off curve)
+const RESHAPING = ["environment.years", "environment.switching", "resident.breeding", "mutant.breeding"];
 
 function addControl(c) {
   const row = document.createElement("label");
@@ -68,7 +70,7 @@ function addControl(c) {
   input.dataset.key = c.key;
   input.addEventListener("change", async () => {
     await post("/api/update", { changes: { [c.key]: input.value } }, c.key);
-    if (RESHAPING.includes(c.key)) await rebuildYears();
+    if (RESHAPING.includes(c.key)) await rebuildControls();
   });
   const msg = document.createElement("span");
   msg.className = "msg";
@@ -78,14 +80,16 @@ function addControl(c) {
 
 async function buildControls() {
   for (const c of await call("GET", "/api/controls")) addControl(c);
+  $("fieldset-tradeoff").hidden = !$("group-tradeoff").children.length;
 }
 
-// the year types' rows again, from the settings now in force (or being edited)
-async function rebuildYears() {
-  const list = (await call("GET", "/api/controls")).filter((c) => c.key.startsWith("environment."));
+// every control again, from the settings now in force (or being edited)
+async function rebuildControls() {
+  const list = await call("GET", "/api/controls");
   const keep = document.activeElement && document.activeElement.dataset ? document.activeElement.dataset.key : null;
-  $("group-environment").replaceChildren();
+  for (const id of new Set(Object.values(GROUPS))) $(id).replaceChildren();
   for (const c of list) addControl(c);
+  $("fieldset-tradeoff").hidden = !$("group-tradeoff").children.length;
   if (view) showControls(view);
   if (keep && $(idOf(keep))) $(idOf(keep)).focus();
 }
